@@ -1,0 +1,76 @@
+//! Command-line interface: argument types (clap) and dispatch to the library.
+
+use crate::error::Result;
+use clap::{Parser, Subcommand};
+use std::path::PathBuf;
+
+#[derive(Debug, Parser)]
+#[command(
+    name = "deepdry",
+    version,
+    about = "Coupled heat, liquid water and water vapour in deep unsaturated soil"
+)]
+pub struct Cli {
+    #[command(subcommand)]
+    pub command: Command,
+}
+
+#[derive(Debug, Subcommand)]
+pub enum Command {
+    /// Parse and validate a case file, then print a summary.
+    Check {
+        /// The case file (TOML).
+        case: PathBuf,
+    },
+    /// Print property tables as CSV.
+    Table {
+        #[command(subcommand)]
+        what: TableCommand,
+    },
+}
+
+#[derive(Debug, Subcommand)]
+pub enum TableCommand {
+    /// Water and vapour properties against temperature.
+    Water {
+        /// First temperature [°C].
+        #[arg(long, default_value_t = 0.0)]
+        from: f64,
+        /// Last temperature [°C].
+        #[arg(long, default_value_t = 100.0)]
+        to: f64,
+        /// Temperature step [°C].
+        #[arg(long, default_value_t = 5.0)]
+        step: f64,
+    },
+    /// Soil properties of one layer against head, from −0.01 m to oven dryness.
+    Soil {
+        /// The case file (TOML).
+        case: PathBuf,
+        /// Layer name.
+        #[arg(long)]
+        layer: String,
+    },
+}
+
+/// Runs one command.
+pub fn dispatch(cli: Cli) -> Result<()> {
+    match cli.command {
+        Command::Check { case } => {
+            let model = crate::case::load(&case)?;
+            print!("{}", crate::case::summary(&model));
+            Ok(())
+        }
+        Command::Table { what } => match what {
+            TableCommand::Water { from, to, step } => {
+                print!("{}", crate::props::table::water_csv(from, to, step)?);
+                Ok(())
+            }
+            TableCommand::Soil { case, layer } => {
+                let model = crate::case::load(&case)?;
+                print!("{}", crate::props::table::soil_csv(&model, &layer)?);
+                Ok(())
+            }
+        },
+    }
+}

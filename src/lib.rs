@@ -1,0 +1,23 @@
+//! deepdry: coupled heat, liquid water and water vapour in deep unsaturated soil.
+//!
+//! Module map:
+//! - [`model`]    the validated run description in SI units (what the solver consumes)
+//! - [`case`]     TOML case files -> [`model::Model`], with one-line errors
+//! - [`mesh`]     graded 1-D finite-volume mesh
+//! - [`schedule`] time functions for boundary values
+//! - [`props`]    constitutive laws and water properties, each with derivatives
+//! - [`physics`]  residual and exact Jacobian of the three balance laws
+//! - [`solve`]    linear solvers, Newton, time stepping
+//! - [`output`]   results files (HDF5)
+//! - [`error`]    typed errors
+
+pub mod case;
+pub mod cli;
+pub mod error;
+pub mod mesh;
+pub mod model;
+pub mod output;
+pub mod physics;
+pub mod props;
+pub mod schedule;
+pub mod solve;

@@ -1,0 +1,264 @@
+//! The validated description of one run, in SI units.
+//!
+//! `case::load` turns a TOML case file into a [`Model`]; the solver consumes only this.
+//! Times are seconds, depths metres (positive downward), temperatures kelvin, heads metres,
+//! fluxes positive downward.
+
+use crate::mesh::Mesh;
+use crate::props::conductivity::FaceAveraging;
+use crate::props::retention::Retention;
+use crate::props::thermal::ThermalConductivity;
+use crate::props::vapor::{Diffusivity, Enhancement};
+use crate::schedule::Schedule;
+
+/// One soil (a named material).
+#[derive(Debug, Clone)]
+pub struct Soil {
+    pub name: String,
+    /// Retention law θ(h) (with the optional dry-end extension folded in) and its
+    /// matching relative conductivity Kr(h).
+    pub retention: Retention,
+    /// Saturated hydraulic conductivity at the reference temperature [m s⁻¹].
+    pub saturated_conductivity: f64,
+    /// Thermal conductivity law λ(θl) [W m⁻¹ K⁻¹].
+    pub thermal: ThermalConductivity,
+    /// Volumetric heat capacity of the solid per unit bulk volume, (1−φ) ρs cs [J m⁻³ K⁻¹].
+    pub solid_heat_capacity: f64,
+    /// Enhancement factor η(θl) on the thermal vapour flux.
+    pub enhancement: Enhancement,
+}
+
+/// A layer: a depth interval filled with one soil.
+#[derive(Debug, Clone)]
+pub struct Layer {
+    pub name: String,
+    /// Index into `Model::soils`.
+    pub soil: usize,
+    /// Top and bottom depth [m].
+    pub top: f64,
+    pub bottom: f64,
+}
+
+/// How the vapour density is determined.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum VaporMode {
+    /// rv = rveq(T, h) everywhere (an algebraic row).
+    Equilibrium,
+    /// ∂(θa rv)/∂t + ∂jv/∂z = b (rveq − rv), with rate coefficient b [s⁻¹].
+    Kinetic { rate: f64 },
+}
+
+/// Physics switches and parameters common to all soils.
+#[derive(Debug, Clone)]
+pub struct Physics {
+    pub vapor_mode: VaporMode,
+    /// Binary diffusivity of water vapour in air.
+    pub diffusivity: Diffusivity,
+    /// Total gas pressure of the pore air [Pa] (for the diffusivity).
+    pub air_pressure: f64,
+    /// Gain factor of the thermal liquid flux (Nimmo & Miller 1986); `None` disables it.
+    pub thermal_liquid_gain: Option<f64>,
+    /// Scale K with the viscosity of water: K(h,T) = Kr Ks μ(Tref)/μ(T).
+    pub viscosity_correction: bool,
+    /// Temperature at which Ks was measured [K].
+    pub reference_temperature: f64,
+    /// Face averaging of the hydraulic conductivity.
+    pub face_conductivity: FaceAveraging,
+}
+
+/// Surface heat condition.
+#[derive(Debug, Clone)]
+pub enum SurfaceHeat {
+    /// Prescribed surface temperature Ts(t) [K].
+    Temperature(Schedule),
+    /// Prescribed heat flux into the soil, positive downward [W m⁻²].
+    Flux(Schedule),
+}
+
+/// Surface moisture condition.
+#[derive(Debug, Clone)]
+pub enum SurfaceWater {
+    /// Prescribed pressure head hs(t) [m].
+    Head(Schedule),
+    /// Prescribed liquid flux into the soil q(t), positive downward [m s⁻¹]; infiltration
+    /// is limited so that the surface head never exceeds `ponding_head` [m].
+    Flux { flux: Schedule, ponding_head: f64 },
+    /// No liquid flux; vapour exchange with air of relative humidity `relative_humidity(t)`
+    /// [-] at the surface temperature, either fixed at the surface (`resistance` None) or
+    /// through a boundary-layer resistance [s m⁻¹].
+    Atmosphere {
+        relative_humidity: Schedule,
+        resistance: Option<Schedule>,
+    },
+    /// No liquid and no vapour flux.
+    NoFlow,
+}
+
+/// Boundary conditions at the land surface over one period.
+#[derive(Debug, Clone)]
+pub struct SurfaceBc {
+    pub heat: SurfaceHeat,
+    pub water: SurfaceWater,
+}
+
+/// Bottom heat condition.
+#[derive(Debug, Clone)]
+pub enum BottomHeat {
+    /// Prescribed temperature Tb(t) [K].
+    Temperature(Schedule),
+    /// Geothermal heat flux entering from below, positive **upward** [W m⁻²].
+    GeothermalFlux(Schedule),
+}
+
+/// Bottom moisture condition.
+#[derive(Debug, Clone)]
+pub enum BottomWater {
+    /// Prescribed head hb(t) [m] (0 at the water table; hb < 0 for a table below the column),
+    /// with rv = rveq at the boundary.
+    WaterTable(Schedule),
+    /// Unit gradient: ql = K(h), no vapour flux.
+    FreeDrainage,
+    /// No liquid and no vapour flux.
+    NoFlow,
+}
+
+#[derive(Debug, Clone)]
+pub struct BottomBc {
+    pub heat: BottomHeat,
+    pub water: BottomWater,
+}
+
+/// A boundary condition that may change kind at given times. Periods are sorted by `start`;
+/// the first period applies from the start of the run (its `start` is −∞).
+#[derive(Debug, Clone)]
+pub struct Periods<T> {
+    pub periods: Vec<(f64, T)>,
+}
+
+impl<T> Periods<T> {
+    pub fn single(value: T) -> Self {
+        Periods {
+            periods: vec![(f64::NEG_INFINITY, value)],
+        }
+    }
+    /// The period in force at time `t` [s]: the last one whose start is ≤ t.
+    pub fn at(&self, t: f64) -> &T {
+        let mut chosen = &self.periods[0].1;
+        for (start, v) in &self.periods {
+            if *start <= t {
+                chosen = v;
+            }
+        }
+        chosen
+    }
+    /// Times at which the condition changes kind [s].
+    pub fn switch_times(&self) -> impl Iterator<Item = f64> + '_ {
+        self.periods.iter().map(|p| p.0).filter(|t| t.is_finite())
+    }
+}
+
+/// How the run starts.
+#[derive(Debug, Clone)]
+pub enum InitialState {
+    /// Hydrostatic head above the bottom water table (h = hb − (L − z)) and a linear
+    /// temperature profile T = surface_temperature + gradient·z.
+    Hydrostatic {
+        surface_temperature: f64,
+        /// [K m⁻¹], positive when warmer at depth.
+        gradient: f64,
+    },
+    /// The steady state under the given boundary conditions (held at their values at the
+    /// start time), found by pseudo-transient continuation from the hydrostatic state.
+    Steady {
+        surface: SurfaceBc,
+        bottom: BottomBc,
+        /// Hydrostatic/linear first guess.
+        surface_temperature: f64,
+        gradient: f64,
+    },
+    /// A profile table interpolated linearly onto the cell centres.
+    Profile {
+        depth: Vec<f64>,
+        temperature: Vec<f64>,
+        moisture: ProfileMoisture,
+    },
+}
+
+#[derive(Debug, Clone)]
+pub enum ProfileMoisture {
+    /// Pressure head [m].
+    Head(Vec<f64>),
+    /// Liquid content [m³ m⁻³], converted to head through the retention law.
+    LiquidContent(Vec<f64>),
+}
+
+/// Time span and step control.
+#[derive(Debug, Clone)]
+pub struct TimeControl {
+    /// Start and end of the run [s].
+    pub start: f64,
+    pub end: f64,
+    /// First, smallest and largest step [s].
+    pub dt_initial: f64,
+    pub dt_min: f64,
+    pub dt_max: f64,
+    /// Time integrator.
+    pub method: Method,
+    /// Relative and absolute local-error tolerances (used by error-controlled methods).
+    pub rtol: f64,
+    pub atol_temperature: f64,
+    pub atol_head: f64,
+    pub atol_vapor: f64,
+    /// Newton iteration limit per step.
+    pub max_newton: usize,
+}
+
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Method {
+    /// Backward Euler with step control by Newton iteration counts.
+    BackwardEuler,
+    /// Variable-step BDF with local error control (orders 1..=max_order).
+    Bdf { max_order: usize },
+}
+
+/// What is written and when.
+#[derive(Debug, Clone)]
+pub struct OutputControl {
+    /// Folder for the results file and checkpoints.
+    pub folder: std::path::PathBuf,
+    /// Snapshot times [s], sorted, inside [start, end]; the end time is always included.
+    pub snapshot_times: Vec<f64>,
+    /// Write a series record every this many accepted steps (1 = every step).
+    pub series_every: usize,
+}
+
+/// Checkpoint policy.
+#[derive(Debug, Clone)]
+pub struct CheckpointControl {
+    /// Simulated-time interval between checkpoints [s]; `None` = only at the end.
+    pub every: Option<f64>,
+    /// Wall-clock interval between checkpoints [s]; `None` = never by wall clock.
+    pub wall_every: Option<f64>,
+    /// How many checkpoint files to keep (newest first), at least 1.
+    pub keep: usize,
+}
+
+/// The whole validated run description.
+#[derive(Debug, Clone)]
+pub struct Model {
+    pub title: String,
+    /// The case file's full text, stored in results and checkpoints.
+    pub case_text: String,
+    pub mesh: Mesh,
+    pub soils: Vec<Soil>,
+    pub layers: Vec<Layer>,
+    /// Soil index for every cell.
+    pub cell_soil: Vec<usize>,
+    pub physics: Physics,
+    pub surface: Periods<SurfaceBc>,
+    pub bottom: Periods<BottomBc>,
+    pub initial: InitialState,
+    pub time: TimeControl,
+    pub output: OutputControl,
+    pub checkpoint: CheckpointControl,
+}

@@ -19,5 +19,6 @@ pub mod model;
 pub mod output;
 pub mod physics;
 pub mod props;
+pub mod run;
 pub mod schedule;
 pub mod solve;

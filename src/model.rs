@@ -159,6 +159,7 @@ impl<T> Periods<T> {
 
 /// How the run starts.
 #[derive(Debug, Clone)]
+#[allow(clippy::large_enum_variant)]
 pub enum InitialState {
     /// Hydrostatic head above the bottom water table (h = hb − (L − z)) and a linear
     /// temperature profile T = surface_temperature + gradient·z.

@@ -22,6 +22,23 @@ pub enum Command {
         /// The case file (TOML).
         case: PathBuf,
     },
+    /// Run a case: write the results file and print a summary.
+    Run {
+        /// The case file (TOML).
+        case: PathBuf,
+        /// Output folder (default: the case's `output.folder`).
+        #[arg(long)]
+        out: Option<PathBuf>,
+        /// Replace an existing results file.
+        #[arg(long)]
+        overwrite: bool,
+        /// No progress bar.
+        #[arg(long)]
+        quiet: bool,
+        /// Linear solver: block-tridiagonal (fast, default) or sparse-lu (general).
+        #[arg(long, default_value = "block-tridiagonal", value_parser = ["block-tridiagonal", "sparse-lu"])]
+        solver: String,
+    },
     /// Print property tables as CSV.
     Table {
         #[command(subcommand)]
@@ -59,6 +76,28 @@ pub fn dispatch(cli: Cli) -> Result<()> {
         Command::Check { case } => {
             let model = crate::case::load(&case)?;
             print!("{}", crate::case::summary(&model));
+            Ok(())
+        }
+        Command::Run {
+            case,
+            out,
+            overwrite,
+            quiet,
+            solver,
+        } => {
+            let model = crate::case::load(&case)?;
+            let opts = crate::run::RunOptions {
+                out,
+                overwrite,
+                progress: !quiet,
+                solver: if solver == "sparse-lu" {
+                    crate::solve::linear::SolverKind::SparseLu
+                } else {
+                    crate::solve::linear::SolverKind::BlockThomas
+                },
+            };
+            let summary = crate::run::run(&model, &opts)?;
+            print!("{}", summary.text());
             Ok(())
         }
         Command::Table { what } => match what {

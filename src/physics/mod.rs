@@ -1,1 +1,321 @@
-//! (to be written)
+//! Residual and exact Jacobian of the three balance laws on the 1-D mesh.
+//!
+//! Unknowns per cell i (in this order): T [K], h [m], rv [kg m⁻³]. Equations per cell
+//! (rows): 0 energy, 1 total water, 2 vapour. With storages M(u) per bulk volume and face
+//! fluxes F (positive downward), the residual of a cell of width w is
+//!
+//! `R = w (c·M(u) − hist) + F_below − F_above`
+//!
+//! where the time integrator supplies `c` [s⁻¹] and `hist` (for backward Euler c = 1/Δt,
+//! hist = M(u_old)/Δt). In equilibrium mode the vapour row is algebraic, `rv − rveq(T,h)`;
+//! in kinetic mode it is the vapour balance with source `b (rveq − rv)`.
+
+pub mod boundary;
+pub mod cell;
+pub mod dual;
+pub mod flux;
+
+use crate::model::{BottomBc, Model, Periods, Physics, Soil, SurfaceBc, VaporMode};
+use crate::solve::blocktri::BlockTri;
+use cell::{cell_props, CellProps};
+use dual::{D3, D6};
+use flux::{face_flux, FaceFlux};
+
+/// Index of the energy, water and vapour rows/storages within a cell.
+pub const ENERGY: usize = 0;
+pub const WATER: usize = 1;
+pub const VAPOR: usize = 2;
+/// Index of the unknowns within a cell.
+pub const T: usize = 0;
+pub const H: usize = 1;
+pub const RV: usize = 2;
+
+/// A residual or property that is not a finite number: a recoverable step failure.
+#[derive(Debug, Clone, PartialEq)]
+pub struct NonFinite {
+    pub cell: usize,
+    pub row: usize,
+}
+
+/// The discretised column: geometry, materials, boundary conditions and workspace.
+#[derive(Debug, Clone)]
+pub struct System {
+    pub n: usize,
+    pub widths: Vec<f64>,
+    pub centers: Vec<f64>,
+    pub faces_z: Vec<f64>,
+    /// Distance from each cell centre to its upper and lower face [m].
+    pub d_above: Vec<f64>,
+    pub d_below: Vec<f64>,
+    pub soils: Vec<Soil>,
+    pub cell_soil: Vec<usize>,
+    pub physics: Physics,
+    pub surface: Periods<SurfaceBc>,
+    pub bottom: Periods<BottomBc>,
+    /// Workspace: cell properties and face fluxes of the last evaluation.
+    pub cells: Vec<CellProps>,
+    pub faces: Vec<FaceFlux>,
+}
+
+impl System {
+    pub fn new(model: &Model) -> System {
+        let m = &model.mesh;
+        let n = m.n_cells();
+        let d_above = (0..n).map(|i| m.centers[i] - m.faces[i]).collect();
+        let d_below = (0..n).map(|i| m.faces[i + 1] - m.centers[i]).collect();
+        let zero = cell_props(
+            &model.soils[model.cell_soil[0]],
+            &model.physics,
+            D3::cst(293.15),
+            D3::cst(-1.0),
+            D3::cst(0.01),
+        );
+        System {
+            n,
+            widths: m.widths.clone(),
+            centers: m.centers.clone(),
+            faces_z: m.faces.clone(),
+            d_above,
+            d_below,
+            soils: model.soils.clone(),
+            cell_soil: model.cell_soil.clone(),
+            physics: model.physics.clone(),
+            surface: model.surface.clone(),
+            bottom: model.bottom.clone(),
+            cells: vec![zero; n],
+            faces: vec![FaceFlux::zero(); n + 1],
+        }
+    }
+
+    /// Number of unknowns (3 per cell).
+    pub fn len(&self) -> usize {
+        3 * self.n
+    }
+    pub fn is_empty(&self) -> bool {
+        self.n == 0
+    }
+
+    pub fn soil_of(&self, cell: usize) -> &Soil {
+        &self.soils[self.cell_soil[cell]]
+    }
+
+    /// Evaluates cell properties and all face fluxes at state `u` and time `t` [s].
+    pub fn evaluate(&mut self, t: f64, u: &[f64]) {
+        let n = self.n;
+        for i in 0..n {
+            let soil = &self.soils[self.cell_soil[i]];
+            self.cells[i] = cell_props(
+                soil,
+                &self.physics,
+                D3::var(u[3 * i + T], 0),
+                D3::var(u[3 * i + H], 1),
+                D3::var(u[3 * i + RV], 2),
+            );
+        }
+        let avg = self.physics.face_conductivity;
+        for j in 1..n {
+            self.faces[j] = face_flux(
+                &self.cells[j - 1],
+                &self.cells[j],
+                0,
+                3,
+                self.d_below[j - 1],
+                self.d_above[j],
+                avg,
+            );
+        }
+        self.faces[0] = self.top_face(t);
+        self.faces[n] = self.bottom_face(t);
+    }
+
+    /// Storage per bulk volume of cell i: [energy J m⁻³, water kg m⁻³, vapour kg m⁻³],
+    /// from the last evaluation.
+    pub fn storage(&self, i: usize) -> [f64; 3] {
+        let c = &self.cells[i];
+        [c.energy.v, c.water.v, c.vapor.v]
+    }
+
+    /// Storage of every cell into `out` (3 per cell), from the last evaluation.
+    pub fn storage_into(&self, out: &mut [f64]) {
+        for i in 0..self.n {
+            out[3 * i..3 * i + 3].copy_from_slice(&self.storage(i));
+        }
+    }
+
+    /// Column totals per unit area from the last evaluation: [energy J m⁻², water kg m⁻²].
+    pub fn totals(&self) -> [f64; 2] {
+        let mut e = 0.0;
+        let mut w = 0.0;
+        for i in 0..self.n {
+            e += self.widths[i] * self.cells[i].energy.v;
+            w += self.widths[i] * self.cells[i].water.v;
+        }
+        [e, w]
+    }
+
+    /// Net inflow rates through the boundaries from the last evaluation:
+    /// [energy W m⁻², water kg m⁻² s⁻¹] (top flux in minus bottom flux out).
+    pub fn net_inflow(&self) -> [f64; 2] {
+        let top = &self.faces[0];
+        let bot = &self.faces[self.n];
+        [
+            top.energy().v - bot.energy().v,
+            top.water().v - bot.water().v,
+        ]
+    }
+
+    /// Magnitude of the terms of every residual row (3 per cell) from the last evaluation:
+    /// storage terms plus the flux scales of both faces. Newton judges convergence by
+    /// |R| against this, so round-off in large cancelling terms is not mistaken for error.
+    pub fn residual_scale_into(&self, c: f64, hist: &[f64], out: &mut [f64]) {
+        let rate = match self.physics.vapor_mode {
+            VaporMode::Kinetic { rate } => Some(rate),
+            VaporMode::Equilibrium => None,
+        };
+        for i in 0..self.n {
+            let w = self.widths[i];
+            let cp = &self.cells[i];
+            let (fa, fb) = (&self.faces[i], &self.faces[i + 1]);
+            let sw = |f: &FaceFlux| f.scale_water.max(f.water().v.abs());
+            let se = |f: &FaceFlux| f.scale_energy.max(f.energy().v.abs());
+            let sv = |f: &FaceFlux| f.vapor_iso.v.abs() + f.vapor_th.v.abs();
+            out[3 * i + ENERGY] =
+                w * ((c * cp.energy.v).abs() + hist[3 * i + ENERGY].abs()) + se(fa) + se(fb);
+            out[3 * i + WATER] =
+                w * ((c * cp.water.v).abs() + hist[3 * i + WATER].abs()) + sw(fa) + sw(fb);
+            out[3 * i + VAPOR] = if let Some(b) = rate {
+                w * ((c * cp.vapor.v).abs()
+                    + hist[3 * i + VAPOR].abs()
+                    + b * (cp.rv.v.abs() + cp.rveq.v.abs()))
+                    + sv(fa)
+                    + sv(fb)
+            } else {
+                cp.rv.v.abs() + cp.rveq.v.abs()
+            } + 1e-300;
+        }
+    }
+
+    /// Fills the residual (and, when given, the Jacobian) at state `u`, time `t`, with
+    /// integrator coefficient `c` and history `hist` (3 per cell).
+    pub fn assemble(
+        &mut self,
+        t: f64,
+        u: &[f64],
+        c: f64,
+        hist: &[f64],
+        res: &mut [f64],
+        jac: Option<&mut BlockTri>,
+    ) -> Result<(), NonFinite> {
+        self.evaluate(t, u);
+        let n = self.n;
+        let kinetic = match self.physics.vapor_mode {
+            VaporMode::Kinetic { rate } => Some(rate),
+            VaporMode::Equilibrium => None,
+        };
+        // Storage and source terms (cell-local).
+        for i in 0..n {
+            let w = self.widths[i];
+            let cp = &self.cells[i];
+            let local: [D3; 3] = [
+                (cp.energy * c - hist[3 * i + ENERGY]) * w,
+                (cp.water * c - hist[3 * i + WATER]) * w,
+                match kinetic {
+                    None => cp.rv - cp.rveq,
+                    Some(b) => {
+                        (cp.vapor * c - hist[3 * i + VAPOR]) * w - (cp.rveq - cp.rv) * (b * w)
+                    }
+                },
+            ];
+            for r in 0..3 {
+                res[3 * i + r] = local[r].v;
+            }
+        }
+        // Flux differences.
+        for j in 0..=n {
+            let f = &self.faces[j];
+            let fe = f.energy();
+            let fw = f.water();
+            let fv = f.vapor();
+            if j >= 1 {
+                res[3 * (j - 1) + ENERGY] += fe.v;
+                res[3 * (j - 1) + WATER] += fw.v;
+                if kinetic.is_some() {
+                    res[3 * (j - 1) + VAPOR] += fv.v;
+                }
+            }
+            if j < n {
+                res[3 * j + ENERGY] -= fe.v;
+                res[3 * j + WATER] -= fw.v;
+                if kinetic.is_some() {
+                    res[3 * j + VAPOR] -= fv.v;
+                }
+            }
+        }
+        for (k, r) in res.iter().enumerate().take(3 * n) {
+            if !r.is_finite() {
+                return Err(NonFinite {
+                    cell: k / 3,
+                    row: k % 3,
+                });
+            }
+        }
+        if let Some(jac) = jac {
+            jac.zero();
+            for i in 0..n {
+                let w = self.widths[i];
+                let cp = &self.cells[i];
+                let rows = [
+                    cp.energy * (c * w),
+                    cp.water * (c * w),
+                    match kinetic {
+                        None => cp.rv - cp.rveq,
+                        Some(b) => cp.vapor * (c * w) - (cp.rveq - cp.rv) * (b * w),
+                    },
+                ];
+                let d = &mut jac.diag[i];
+                for r in 0..3 {
+                    for col in 0..3 {
+                        d[r * 3 + col] += rows[r].d[col];
+                    }
+                }
+            }
+            for j in 0..=n {
+                let f = &self.faces[j];
+                let mut vals: [D6; 3] = [f.energy(), f.water(), f.vapor()];
+                if kinetic.is_none() {
+                    vals[VAPOR] = D6::cst(0.0);
+                }
+                let col_up = if j == 0 { 0 } else { j - 1 };
+                let col_dn = if j == n { n - 1 } else { j };
+                for (rb, sign) in [(j.wrapping_sub(1), 1.0), (j, -1.0)] {
+                    if rb >= n {
+                        continue;
+                    }
+                    for (r, v) in vals.iter().enumerate() {
+                        {
+                            let b = jac.block_mut(rb, col_up);
+                            for col in 0..3 {
+                                b[r * 3 + col] += sign * v.d[col];
+                            }
+                        }
+                        let b = jac.block_mut(rb, col_dn);
+                        for col in 0..3 {
+                            b[r * 3 + col] += sign * v.d[3 + col];
+                        }
+                    }
+                }
+            }
+            for blocks in [&jac.lower, &jac.diag, &jac.upper] {
+                for (i, b) in blocks.iter().enumerate() {
+                    if let Some(k) = b.iter().position(|x| !x.is_finite()) {
+                        return Err(NonFinite {
+                            cell: i,
+                            row: k / 3,
+                        });
+                    }
+                }
+            }
+        }
+        Ok(())
+    }
+}

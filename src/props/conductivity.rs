@@ -12,3 +12,10 @@ pub enum FaceAveraging {
     /// The value of the cell the liquid flows from.
     Upstream,
 }
+
+/// Viscosity correction factor μ(t_ref)/μ(t) [-] and its derivative in t [K⁻¹].
+/// STUB: to be written with the IAPWS viscosity.
+pub fn viscosity_factor(t: f64, t_ref: f64) -> (f64, f64) {
+    let _ = (t, t_ref);
+    todo!()
+}

@@ -1,1 +1,6 @@
-//! (to be written)
+//! Linear solvers, Newton's method and time stepping.
+
+pub mod blocktri;
+pub mod linear;
+pub mod newton;
+pub mod stepper;

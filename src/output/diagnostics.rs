@@ -1,0 +1,189 @@
+//! Diagnostics computed from the evaluated system: profiles, face fluxes, the drying
+//! front, balance errors.
+
+use crate::physics::System;
+use crate::props::constants::{CELSIUS_ZERO, WATER_DENSITY};
+
+/// Liquid content above the driest value in the column that marks the drying front
+/// [m³ m⁻³]. The drying-front depth is the shallowest depth (linearly interpolated
+/// between cell centres) where θl exceeds min(θl) + this threshold; 0 when the surface
+/// cell already does.
+pub const DRYING_FRONT_THRESHOLD: f64 = 0.01;
+
+/// Cell and face profiles at one time (reused buffers).
+#[derive(Debug, Clone, Default)]
+pub struct Profile {
+    pub temperature_c: Vec<f64>,
+    pub head: Vec<f64>,
+    pub liquid_content: Vec<f64>,
+    pub vapor_density: Vec<f64>,
+    pub relative_humidity: Vec<f64>,
+    /// Face water fluxes [kg m⁻² s⁻¹] and heat flux [W m⁻²], positive downward.
+    pub liquid_iso: Vec<f64>,
+    pub liquid_th: Vec<f64>,
+    pub vapor_iso: Vec<f64>,
+    pub vapor_th: Vec<f64>,
+    pub heat: Vec<f64>,
+}
+
+impl Profile {
+    /// Fills from the last evaluation of `sys`.
+    pub fn fill(&mut self, sys: &System) {
+        let n = sys.n;
+        let resize = |v: &mut Vec<f64>, k: usize| v.resize(k, 0.0);
+        for v in [
+            &mut self.temperature_c,
+            &mut self.head,
+            &mut self.liquid_content,
+            &mut self.vapor_density,
+            &mut self.relative_humidity,
+        ] {
+            resize(v, n);
+        }
+        for v in [
+            &mut self.liquid_iso,
+            &mut self.liquid_th,
+            &mut self.vapor_iso,
+            &mut self.vapor_th,
+            &mut self.heat,
+        ] {
+            resize(v, n + 1);
+        }
+        for (i, c) in sys.cells.iter().enumerate() {
+            self.temperature_c[i] = c.t.v - CELSIUS_ZERO;
+            self.head[i] = c.h.v;
+            self.liquid_content[i] = c.theta.v;
+            self.vapor_density[i] = c.rv.v;
+            self.relative_humidity[i] = c.rv.v / c.rvs.v;
+        }
+        for (j, f) in sys.faces.iter().enumerate() {
+            self.liquid_iso[j] = WATER_DENSITY * f.liquid_iso.v;
+            self.liquid_th[j] = WATER_DENSITY * f.liquid_th.v;
+            self.vapor_iso[j] = f.vapor_iso.v;
+            self.vapor_th[j] = f.vapor_th.v;
+            self.heat[j] = f.energy().v;
+        }
+    }
+}
+
+/// Drying-front depth [m] (see [`DRYING_FRONT_THRESHOLD`]) from the last evaluation.
+pub fn drying_front_depth(sys: &System) -> f64 {
+    let th: Vec<f64> = sys.cells.iter().map(|c| c.theta.v).collect();
+    let min = th.iter().cloned().fold(f64::INFINITY, f64::min);
+    let level = min + DRYING_FRONT_THRESHOLD;
+    if th[0] > level {
+        return 0.0;
+    }
+    for i in 1..th.len() {
+        if th[i] > level {
+            let (z0, z1) = (sys.centers[i - 1], sys.centers[i]);
+            let f = (level - th[i - 1]) / (th[i] - th[i - 1]);
+            return z0 + f * (z1 - z0);
+        }
+    }
+    sys.faces_z[sys.n]
+}
+
+/// One row of the time series.
+#[derive(Debug, Clone, Copy, Default, PartialEq)]
+pub struct SeriesRecord {
+    /// Time [year].
+    pub time_year: f64,
+    /// Net water flux at the surface and the bottom, positive downward [kg m⁻² s⁻¹].
+    pub surface_water_flux: f64,
+    pub bottom_water_flux: f64,
+    /// Heat flux at the surface and the bottom, positive downward [W m⁻²].
+    pub surface_heat_flux: f64,
+    pub bottom_heat_flux: f64,
+    /// Water stored in the column [kg m⁻²].
+    pub water_storage: f64,
+    /// Cumulative balance errors: storage change − net inflow [kg m⁻²], [J m⁻²].
+    pub water_balance_error: f64,
+    pub energy_balance_error: f64,
+    /// Relative balance errors [-].
+    pub water_balance_relative: f64,
+    pub energy_balance_relative: f64,
+    pub drying_front_depth: f64,
+    /// Step just taken [s] and its Newton iterations.
+    pub dt: f64,
+    pub newton_iterations: f64,
+}
+
+impl SeriesRecord {
+    /// Dataset names, units and long names, in the order of [`SeriesRecord::values`].
+    pub const FIELDS: [(&'static str, &'static str, &'static str); 12] = [
+        (
+            "surface_water_flux",
+            "kg m-2 s-1",
+            "net water flux at the land surface, positive downward",
+        ),
+        (
+            "bottom_water_flux",
+            "kg m-2 s-1",
+            "net water flux at the bottom boundary, positive downward",
+        ),
+        (
+            "surface_heat_flux",
+            "W m-2",
+            "energy flux at the land surface, positive downward",
+        ),
+        (
+            "bottom_heat_flux",
+            "W m-2",
+            "energy flux at the bottom boundary, positive downward",
+        ),
+        (
+            "water_storage",
+            "kg m-2",
+            "water (liquid and vapour) stored in the column",
+        ),
+        (
+            "water_balance_error",
+            "kg m-2",
+            "cumulative storage change minus net inflow of water",
+        ),
+        (
+            "energy_balance_error",
+            "J m-2",
+            "cumulative storage change minus net inflow of energy",
+        ),
+        (
+            "water_balance_relative_error",
+            "1",
+            "water balance error relative to max(|storage change|, boundary throughput)",
+        ),
+        (
+            "energy_balance_relative_error",
+            "1",
+            "energy balance error relative to max(|storage change|, boundary throughput)",
+        ),
+        (
+            "drying_front_depth",
+            "m",
+            "shallowest depth where liquid content exceeds the column minimum by 0.01",
+        ),
+        ("dt", "s", "time step just taken"),
+        (
+            "newton_iterations",
+            "1",
+            "Newton iterations of the step just taken",
+        ),
+    ];
+
+    pub fn values(&self) -> [f64; 12] {
+        [
+            self.surface_water_flux,
+            self.bottom_water_flux,
+            self.surface_heat_flux,
+            self.bottom_heat_flux,
+            self.water_storage,
+            self.water_balance_error,
+            self.energy_balance_error,
+            self.water_balance_relative,
+            self.energy_balance_relative,
+            self.drying_front_depth,
+            self.dt,
+            self.newton_iterations,
+        ]
+    }
+}

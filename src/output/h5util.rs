@@ -1,0 +1,116 @@
+//! Small helpers over the hdf5 crate: string attributes, growable datasets.
+
+use hdf5::types::VarLenUnicode;
+use hdf5::{Dataset, Group, Location};
+use ndarray::{s, Array1, Array2};
+
+/// Writes a scalar string attribute.
+pub fn attr_str(loc: &Location, name: &str, value: &str) -> hdf5::Result<()> {
+    let v: VarLenUnicode = value
+        .parse()
+        .map_err(|e| hdf5::Error::from(format!("attribute {name}: {e}")))?;
+    if loc.attr(name).is_ok() {
+        loc.delete_attr(name)?;
+    }
+    loc.new_attr::<VarLenUnicode>()
+        .shape(())
+        .create(name)?
+        .write_scalar(&v)
+}
+
+/// Reads a scalar string attribute.
+pub fn read_attr_str(loc: &Location, name: &str) -> hdf5::Result<String> {
+    let v: VarLenUnicode = loc.attr(name)?.read_scalar()?;
+    Ok(v.as_str().to_string())
+}
+
+/// Writes a scalar f64 attribute.
+pub fn attr_f64(loc: &Location, name: &str, value: f64) -> hdf5::Result<()> {
+    if loc.attr(name).is_ok() {
+        loc.delete_attr(name)?;
+    }
+    loc.new_attr::<f64>()
+        .shape(())
+        .create(name)?
+        .write_scalar(&value)
+}
+
+/// Sets `units` and `long_name` on a dataset.
+pub fn describe(ds: &Dataset, units: &str, long_name: &str) -> hdf5::Result<()> {
+    attr_str(ds, "units", units)?;
+    attr_str(ds, "long_name", long_name)
+}
+
+/// A fixed 1-D f64 dataset with units.
+pub fn write_1d(
+    g: &Group,
+    name: &str,
+    data: &[f64],
+    units: &str,
+    long_name: &str,
+) -> hdf5::Result<Dataset> {
+    let ds = g
+        .new_dataset_builder()
+        .with_data(&Array1::from_vec(data.to_vec()))
+        .create(name)?;
+    describe(&ds, units, long_name)?;
+    Ok(ds)
+}
+
+/// A growable 1-D f64 dataset (chunked, unlimited).
+pub fn growable_1d(g: &Group, name: &str, units: &str, long_name: &str) -> hdf5::Result<Dataset> {
+    let ds = g.new_dataset::<f64>().chunk(256).shape(0..).create(name)?;
+    describe(&ds, units, long_name)?;
+    Ok(ds)
+}
+
+/// A growable 2-D f64 dataset with `width` columns.
+pub fn growable_2d(
+    g: &Group,
+    name: &str,
+    width: usize,
+    units: &str,
+    long_name: &str,
+) -> hdf5::Result<Dataset> {
+    let ds = g
+        .new_dataset::<f64>()
+        .chunk((1, width.max(1)))
+        .shape((0.., width))
+        .create(name)?;
+    describe(&ds, units, long_name)?;
+    Ok(ds)
+}
+
+/// Appends values to a growable 1-D dataset.
+pub fn append_1d(ds: &Dataset, values: &[f64]) -> hdf5::Result<()> {
+    if values.is_empty() {
+        return Ok(());
+    }
+    let old = ds.shape()[0];
+    ds.resize(old + values.len())?;
+    ds.write_slice(
+        &Array1::from_vec(values.to_vec()),
+        s![old..old + values.len()],
+    )
+}
+
+/// Appends one row to a growable 2-D dataset.
+pub fn append_row(ds: &Dataset, row: &[f64]) -> hdf5::Result<()> {
+    let shape = ds.shape();
+    let old = shape[0];
+    let width = shape[1];
+    ds.resize((old + 1, width))?;
+    let a = Array2::from_shape_vec((1, width), row.to_vec())
+        .map_err(|e| hdf5::Error::from(e.to_string()))?;
+    ds.write_slice(&a, s![old..old + 1, ..])
+}
+
+/// Truncates a growable dataset to `len` rows.
+pub fn truncate(ds: &Dataset, len: usize) -> hdf5::Result<()> {
+    let mut shape = ds.shape();
+    if shape[0] > len {
+        shape[0] = len;
+        ds.resize(shape)?;
+    }
+    Ok(())
+}

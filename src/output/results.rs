@@ -1,0 +1,243 @@
+//! The results file (HDF5), one per run, written as the run goes.
+//!
+//! Layout (the names are the contract downstream scripts use):
+//! - root attributes `title`, `software_version`, `created`, `case_text`, `time_unit` = `year`,
+//!   `kind` = `deepdry-results`
+//! - `/mesh/depth` [cells], `/mesh/face_depth` [cells+1], `/mesh/layer` [cells],
+//!   `/mesh/layer_names`
+//! - `/profiles/time` [snapshots] and [snapshots × cells] `temperature`, `head`,
+//!   `liquid_content`, `vapor_density`, `relative_humidity`; [snapshots × faces]
+//!   `liquid_flux_isothermal`, `liquid_flux_thermal`, `vapor_flux_isothermal`,
+//!   `vapor_flux_thermal` (kg m-2 s-1), `heat_flux` (W m-2); fluxes positive downward
+//! - `/series/time` [records] and one dataset per [`SeriesRecord`] field.
+//!
+//! Series rows are buffered and written at every snapshot and at [`ResultsFile::flush`];
+//! the file is flushed to disk at every snapshot, so a killed run leaves a readable file.
+
+use super::diagnostics::{Profile, SeriesRecord};
+use super::h5util::{append_1d, append_row, attr_str, growable_1d, growable_2d, write_1d};
+use crate::error::{Error, Result};
+use crate::model::Model;
+use hdf5::types::VarLenUnicode;
+use hdf5::{Dataset, File};
+use std::path::{Path, PathBuf};
+
+/// Attribute value of `kind` that marks a results file.
+pub const RESULTS_KIND: &str = "deepdry-results";
+
+const PROFILE_CELL: [(&str, &str, &str); 5] = [
+    ("temperature", "degC", "temperature"),
+    ("head", "m", "pressure (matric) head"),
+    ("liquid_content", "1", "volumetric liquid water content"),
+    (
+        "vapor_density",
+        "kg m-3",
+        "water vapour density in the pore air",
+    ),
+    (
+        "relative_humidity",
+        "1",
+        "relative humidity of the pore air",
+    ),
+];
+const PROFILE_FACE: [(&str, &str, &str); 5] = [
+    (
+        "liquid_flux_isothermal",
+        "kg m-2 s-1",
+        "liquid water flux driven by head and gravity, positive downward",
+    ),
+    (
+        "liquid_flux_thermal",
+        "kg m-2 s-1",
+        "liquid water flux driven by the temperature gradient, positive downward",
+    ),
+    (
+        "vapor_flux_isothermal",
+        "kg m-2 s-1",
+        "vapour flux not due to the temperature gradient, positive downward",
+    ),
+    (
+        "vapor_flux_thermal",
+        "kg m-2 s-1",
+        "vapour flux driven by the temperature gradient (with enhancement), positive downward",
+    ),
+    (
+        "heat_flux",
+        "W m-2",
+        "total energy flux (conduction and advected enthalpy), positive downward",
+    ),
+];
+
+pub struct ResultsFile {
+    pub path: PathBuf,
+    file: File,
+    profile_time: Dataset,
+    cell_sets: Vec<Dataset>,
+    face_sets: Vec<Dataset>,
+    series_time: Dataset,
+    series_sets: Vec<Dataset>,
+    pending: Vec<SeriesRecord>,
+    pub snapshots: usize,
+    pub records: usize,
+}
+
+fn h5(path: &Path) -> impl Fn(hdf5::Error) -> Error + '_ {
+    move |e| Error::io(path, e)
+}
+
+impl ResultsFile {
+    /// Creates the results file for `model`. Refuses an existing file unless `overwrite`.
+    pub fn create(path: &Path, model: &Model, overwrite: bool) -> Result<Self> {
+        if path.exists() && !overwrite {
+            return Err(Error::Io(format!(
+                "{}: results file exists already; use --overwrite to replace it, or --out to write elsewhere",
+                path.display()
+            )));
+        }
+        let e = h5(path);
+        let file = File::create(path).map_err(&e)?;
+        let root = file.as_group().map_err(&e)?;
+        attr_str(&root, "kind", RESULTS_KIND).map_err(&e)?;
+        attr_str(&root, "title", &model.title).map_err(&e)?;
+        attr_str(&root, "software_version", env!("CARGO_PKG_VERSION")).map_err(&e)?;
+        attr_str(&root, "created", &crate::output::now_utc()).map_err(&e)?;
+        attr_str(&root, "case_text", &model.case_text).map_err(&e)?;
+        attr_str(&root, "time_unit", "year").map_err(&e)?;
+
+        let mesh = file.create_group("mesh").map_err(&e)?;
+        write_1d(
+            &mesh,
+            "depth",
+            &model.mesh.centers,
+            "m",
+            "depth of the cell centres",
+        )
+        .map_err(&e)?;
+        write_1d(
+            &mesh,
+            "face_depth",
+            &model.mesh.faces,
+            "m",
+            "depth of the cell faces",
+        )
+        .map_err(&e)?;
+        let layer_of_cell: Vec<i32> = model
+            .mesh
+            .centers
+            .iter()
+            .map(|z| {
+                model
+                    .layers
+                    .iter()
+                    .position(|l| *z >= l.top && *z <= l.bottom)
+                    .unwrap_or(0) as i32
+            })
+            .collect();
+        let ds = mesh
+            .new_dataset_builder()
+            .with_data(&ndarray::Array1::from_vec(layer_of_cell))
+            .create("layer")
+            .map_err(&e)?;
+        super::h5util::describe(&ds, "1", "layer index of each cell (into layer_names)")
+            .map_err(&e)?;
+        let names: Vec<VarLenUnicode> = model
+            .layers
+            .iter()
+            .map(|l| l.name.parse().unwrap_or_default())
+            .collect();
+        let ds = mesh
+            .new_dataset_builder()
+            .with_data(&ndarray::Array1::from_vec(names))
+            .create("layer_names")
+            .map_err(&e)?;
+        super::h5util::describe(&ds, "1", "layer names").map_err(&e)?;
+
+        let n = model.mesh.n_cells();
+        let prof = file.create_group("profiles").map_err(&e)?;
+        let profile_time = growable_1d(&prof, "time", "year", "snapshot time").map_err(&e)?;
+        let mut cell_sets = Vec::new();
+        for (name, units, long) in PROFILE_CELL {
+            cell_sets.push(growable_2d(&prof, name, n, units, long).map_err(&e)?);
+        }
+        let mut face_sets = Vec::new();
+        for (name, units, long) in PROFILE_FACE {
+            face_sets.push(growable_2d(&prof, name, n + 1, units, long).map_err(&e)?);
+        }
+        let ser = file.create_group("series").map_err(&e)?;
+        let series_time =
+            growable_1d(&ser, "time", "year", "time at the end of the step").map_err(&e)?;
+        let mut series_sets = Vec::new();
+        for (name, units, long) in SeriesRecord::FIELDS {
+            series_sets.push(growable_1d(&ser, name, units, long).map_err(&e)?);
+        }
+        Ok(ResultsFile {
+            path: path.to_path_buf(),
+            file,
+            profile_time,
+            cell_sets,
+            face_sets,
+            series_time,
+            series_sets,
+            pending: Vec::new(),
+            snapshots: 0,
+            records: 0,
+        })
+    }
+
+    /// Sets a root string attribute (e.g. the parent checkpoint of a branch).
+    pub fn set_attr(&self, name: &str, value: &str) -> Result<()> {
+        let root = self.file.as_group().map_err(h5(&self.path))?;
+        attr_str(&root, name, value).map_err(h5(&self.path))
+    }
+
+    /// Queues one series row (written at the next snapshot or flush).
+    pub fn push_series(&mut self, rec: SeriesRecord) {
+        self.pending.push(rec);
+    }
+
+    /// Writes a snapshot at `time_year`, then everything queued, then flushes the file.
+    pub fn write_snapshot(&mut self, time_year: f64, p: &Profile) -> Result<()> {
+        let path = self.path.clone();
+        let e = h5(&path);
+        append_1d(&self.profile_time, &[time_year]).map_err(&e)?;
+        let cells = [
+            &p.temperature_c,
+            &p.head,
+            &p.liquid_content,
+            &p.vapor_density,
+            &p.relative_humidity,
+        ];
+        for (ds, v) in self.cell_sets.iter().zip(cells) {
+            append_row(ds, v).map_err(&e)?;
+        }
+        let faces = [
+            &p.liquid_iso,
+            &p.liquid_th,
+            &p.vapor_iso,
+            &p.vapor_th,
+            &p.heat,
+        ];
+        for (ds, v) in self.face_sets.iter().zip(faces) {
+            append_row(ds, v).map_err(&e)?;
+        }
+        self.snapshots += 1;
+        self.flush()
+    }
+
+    /// Writes queued series rows and flushes the file to disk.
+    pub fn flush(&mut self) -> Result<()> {
+        let path = self.path.clone();
+        let e = h5(&path);
+        if !self.pending.is_empty() {
+            let times: Vec<f64> = self.pending.iter().map(|r| r.time_year).collect();
+            append_1d(&self.series_time, &times).map_err(&e)?;
+            for (k, ds) in self.series_sets.iter().enumerate() {
+                let col: Vec<f64> = self.pending.iter().map(|r| r.values()[k]).collect();
+                append_1d(ds, &col).map_err(&e)?;
+            }
+            self.records += self.pending.len();
+            self.pending.clear();
+        }
+        self.file.flush().map_err(&e)
+    }
+}

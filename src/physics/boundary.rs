@@ -1,0 +1,137 @@
+//! Boundary faces. Each boundary is a face between the adjacent cell and a "ghost" point
+//! on the face itself (zero distance) that carries the boundary values; the ghost may
+//! depend on the adjacent cell (e.g. its temperature under a heat-flux condition), and its
+//! derivatives are then folded into that cell's Jacobian block.
+
+use super::cell::{cell_props, equilibrium_vapor, head_from_rh, CellProps};
+use super::dual::{D3, D6};
+use super::flux::{face_flux, FaceFlux};
+use super::System;
+use crate::model::{BottomHeat, BottomWater, SurfaceHeat, SurfaceWater};
+
+impl System {
+    fn ghost(&self, cell: usize, t: D3, h: D3, rv: Option<D3>) -> CellProps {
+        let rv = rv.unwrap_or_else(|| equilibrium_vapor(t, h).3);
+        cell_props(self.soil_of(cell), &self.physics, t, h, rv)
+    }
+
+    /// Fluxes through the land surface (face 0), positive downward (into the soil).
+    pub fn top_face(&self, t: f64) -> FaceFlux {
+        let bc = self.surface.at(t);
+        let c0 = self.cells[0];
+        let d0 = self.d_above[0];
+        let avg = self.physics.face_conductivity;
+        let (tg, heat_flux) = match &bc.heat {
+            SurfaceHeat::Temperature(s) => (D3::cst(s.value(t)), None),
+            SurfaceHeat::Flux(s) => (c0.t, Some(s.value(t))),
+        };
+        let mut f = match &bc.water {
+            SurfaceWater::Head(s) => {
+                let g = self.ghost(0, tg, D3::cst(s.value(t)), None);
+                face_flux(&g, &c0, 0, 3, 0.0, d0, avg)
+            }
+            SurfaceWater::Atmosphere {
+                relative_humidity,
+                resistance,
+            } => {
+                let rh = relative_humidity.value(t);
+                let g = self.ghost(0, tg, head_from_rh(rh, tg), None);
+                let mut f = face_flux(&g, &c0, 0, 3, 0.0, d0, avg);
+                f.liquid_iso = D6::cst(0.0);
+                f.liquid_th = D6::cst(0.0);
+                if let Some(r) = resistance {
+                    let ra = r.value(t).max(0.0);
+                    // jv = −(rv0 − rva)/(ra + d0/Dv0): air-side and soil-side resistances
+                    // in series; reported as isothermal.
+                    let rv0 = D6::lift3(c0.rv, 3);
+                    let rva = D6::lift3(g.rv, 0);
+                    let dv0 = D6::lift3(c0.dv, 3);
+                    let total = if dv0.v > 0.0 {
+                        (dv0.recip() * d0) + ra
+                    } else {
+                        D6::cst(f64::INFINITY)
+                    };
+                    f.vapor_iso = if total.v.is_finite() {
+                        -((rv0 - rva) / total)
+                    } else {
+                        D6::cst(0.0)
+                    };
+                    f.vapor_th = D6::cst(0.0);
+                }
+                f
+            }
+            SurfaceWater::Flux { flux, ponding_head } => {
+                let g = self.ghost(0, tg, D3::cst(*ponding_head), None);
+                let mut f = face_flux(&g, &c0, 0, 3, 0.0, d0, avg);
+                let q = flux.value(t);
+                // Infiltration cannot exceed what the soil takes with the surface ponded.
+                let capacity = f.liquid_iso;
+                f.liquid_iso = if q <= capacity.v {
+                    D6::cst(q)
+                } else {
+                    capacity
+                };
+                f.liquid_th = D6::cst(0.0);
+                f.vapor_iso = D6::cst(0.0);
+                f.vapor_th = D6::cst(0.0);
+                f
+            }
+            SurfaceWater::NoFlow => {
+                let g = self.ghost(0, tg, c0.h, Some(c0.rv));
+                let mut f = face_flux(&g, &c0, 0, 3, 0.0, d0, avg);
+                zero_water(&mut f);
+                f
+            }
+        };
+        if let Some(q) = heat_flux {
+            f.conduction = D6::cst(q);
+        }
+        f
+    }
+
+    /// Fluxes through the bottom boundary (face n), positive downward (out of the column).
+    pub fn bottom_face(&self, t: f64) -> FaceFlux {
+        let n = self.n;
+        let bc = self.bottom.at(t);
+        let cn = self.cells[n - 1];
+        let dn = self.d_below[n - 1];
+        let avg = self.physics.face_conductivity;
+        let (tg, heat_flux) = match &bc.heat {
+            BottomHeat::Temperature(s) => (D3::cst(s.value(t)), None),
+            // Geothermal flux is given positive upward; the face flux is positive downward.
+            BottomHeat::GeothermalFlux(s) => (cn.t, Some(-s.value(t))),
+        };
+        let mut f = match &bc.water {
+            BottomWater::WaterTable(s) => {
+                let g = self.ghost(n - 1, tg, D3::cst(s.value(t)), None);
+                face_flux(&cn, &g, 0, 3, dn, 0.0, avg)
+            }
+            BottomWater::FreeDrainage => {
+                let g = self.ghost(n - 1, tg, cn.h, Some(cn.rv));
+                let mut f = face_flux(&cn, &g, 0, 3, dn, 0.0, avg);
+                zero_water(&mut f);
+                // Unit gradient: ql = K(h, T) of the bottom cell.
+                f.liquid_iso = D6::lift3(cn.k, 0);
+                f
+            }
+            BottomWater::NoFlow => {
+                let g = self.ghost(n - 1, tg, cn.h, Some(cn.rv));
+                let mut f = face_flux(&cn, &g, 0, 3, dn, 0.0, avg);
+                zero_water(&mut f);
+                f
+            }
+        };
+        if let Some(q) = heat_flux {
+            f.conduction = D6::cst(q);
+        }
+        f
+    }
+}
+
+fn zero_water(f: &mut FaceFlux) {
+    let z = D6::cst(0.0);
+    f.liquid_iso = z;
+    f.liquid_th = z;
+    f.vapor_iso = z;
+    f.vapor_th = z;
+}

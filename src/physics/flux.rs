@@ -1,0 +1,174 @@
+//! Fluxes at a face between two points (cells or a cell and a boundary ghost point),
+//! positive downward. Face values are `Dual<6>`: slots 0–2 belong to the upper point,
+//! slots 3–5 to the lower one.
+
+use super::cell::{vapor_enthalpy, CellProps};
+use super::dual::{Dual, D3, D6};
+use crate::props::conductivity::FaceAveraging;
+use crate::props::constants::{T_REF, WATER_DENSITY, WATER_HEAT_CAPACITY};
+
+/// The parts of the fluxes through one face.
+#[derive(Debug, Clone, Copy)]
+pub struct FaceFlux {
+    /// Liquid flux, isothermal part −K(∂h/∂z − 1) [m s⁻¹].
+    pub liquid_iso: D6,
+    /// Liquid flux, thermal part −K G h (σ'/σ) ∂T/∂z [m s⁻¹].
+    pub liquid_th: D6,
+    /// Vapour flux, isothermal part (what is left of jv after the thermal part) [kg m⁻² s⁻¹].
+    pub vapor_iso: D6,
+    /// Vapour flux, thermal part −η Dv hr (drvs/dT) ∂T/∂z [kg m⁻² s⁻¹].
+    pub vapor_th: D6,
+    /// Heat conduction −λ ∂T/∂z [W m⁻²].
+    pub conduction: D6,
+    /// Face temperature [K] (for the advected enthalpies).
+    pub t_face: D6,
+    /// Magnitude of the largest terms that make up the water and energy fluxes
+    /// [kg m⁻² s⁻¹], [W m⁻²]: the scale against which round-off is judged.
+    pub scale_water: f64,
+    pub scale_energy: f64,
+}
+
+impl FaceFlux {
+    pub fn zero() -> Self {
+        let z = D6::cst(0.0);
+        FaceFlux {
+            liquid_iso: z,
+            liquid_th: z,
+            vapor_iso: z,
+            vapor_th: z,
+            conduction: z,
+            t_face: z,
+            scale_water: 0.0,
+            scale_energy: 0.0,
+        }
+    }
+    /// Total vapour flux jv [kg m⁻² s⁻¹].
+    #[inline]
+    pub fn vapor(&self) -> D6 {
+        self.vapor_iso + self.vapor_th
+    }
+    /// Total liquid flux ql [m s⁻¹].
+    #[inline]
+    pub fn liquid(&self) -> D6 {
+        self.liquid_iso + self.liquid_th
+    }
+    /// Total water mass flux ρw ql + jv [kg m⁻² s⁻¹].
+    #[inline]
+    pub fn water(&self) -> D6 {
+        self.liquid() * WATER_DENSITY + self.vapor()
+    }
+    /// Total energy flux −λ∂T/∂z + ρw cw ql (T − T0) + jv (L0 + cv (T − T0)) [W m⁻²].
+    #[inline]
+    pub fn energy(&self) -> D6 {
+        let dt0 = self.t_face - T_REF;
+        self.conduction
+            + self.liquid() * dt0 * (WATER_DENSITY * WATER_HEAT_CAPACITY)
+            + self.vapor() * vapor_enthalpy(self.t_face)
+    }
+}
+
+/// Distance-weighted linear interpolation to the face: (db·a + da·b)/(da + db).
+#[inline]
+fn interp(a: D6, b: D6, da: f64, db: f64) -> D6 {
+    let dz = da + db;
+    (a * db + b * da) / dz
+}
+
+/// Distance-weighted harmonic mean (series conductance) dz/(da/a + db/b); 0 when either is 0.
+#[inline]
+fn harmonic(a: D6, b: D6, da: f64, db: f64) -> D6 {
+    // A ghost point on the face itself (zero distance) adds no resistance.
+    if da == 0.0 {
+        return b;
+    }
+    if db == 0.0 {
+        return a;
+    }
+    let den = a * db + b * da;
+    if den.v <= 0.0 || a.v <= 0.0 || b.v <= 0.0 {
+        // A zero conductance on either side closes the face; keep the derivative of the
+        // product so Newton sees it re-open.
+        if den.v > 0.0 {
+            return a * b * (da + db) / den;
+        }
+        return D6::cst(0.0);
+    }
+    a * b * (da + db) / den
+}
+
+/// Smallest conductivity used inside logarithms [m s⁻¹] (far below any physical value).
+const K_FLOOR: f64 = 1e-300;
+
+/// Fluxes between `up` (distance `da` above the face) and `lo` (distance `db` below);
+/// `off_up` and `off_lo` are the dual slot offsets of the two points (0 or 3).
+pub fn face_flux(
+    up: &CellProps,
+    lo: &CellProps,
+    off_up: usize,
+    off_lo: usize,
+    da: f64,
+    db: f64,
+    averaging: FaceAveraging,
+) -> FaceFlux {
+    let l = |x: D3, off: usize| -> D6 { Dual::lift3(x, off) };
+    let dz = da + db;
+    let (ta, tb) = (l(up.t, off_up), l(lo.t, off_lo));
+    let grad_t = (tb - ta) / dz;
+    let grad_h = (l(lo.h, off_lo) - l(up.h, off_up)) / dz;
+    let grad_rv = (l(lo.rv, off_lo) - l(up.rv, off_up)) / dz;
+
+    let (ka, kb) = (l(up.k, off_up), l(lo.k, off_lo));
+    let drive = grad_h - 1.0;
+    let k_face = match averaging {
+        FaceAveraging::Arithmetic => interp(ka, kb, da, db),
+        FaceAveraging::Harmonic => harmonic(ka, kb, da, db),
+        FaceAveraging::Geometric => {
+            let la = ka.max(D6::cst(K_FLOOR)).ln();
+            let lb = kb.max(D6::cst(K_FLOOR)).ln();
+            interp(la, lb, da, db).exp()
+        }
+        FaceAveraging::Upstream => {
+            if drive.v <= 0.0 {
+                ka
+            } else {
+                kb
+            }
+        }
+    };
+    let liquid_iso = -(k_face * drive);
+    let kt_face = interp(l(up.kt, off_up), l(lo.kt, off_lo), da, db);
+    let liquid_th = if kt_face.v == 0.0 && kt_face.d.iter().all(|x| *x == 0.0) {
+        D6::cst(0.0)
+    } else {
+        -(k_face * kt_face * grad_t)
+    };
+
+    let dv = harmonic(l(up.dv, off_up), l(lo.dv, off_lo), da, db);
+    let eta = interp(l(up.eta, off_up), l(lo.eta, off_lo), da, db);
+    let hr = interp(l(up.hr, off_up), l(lo.hr, off_lo), da, db);
+    let drvs = interp(l(up.drvs, off_up), l(lo.drvs, off_lo), da, db);
+    let thermal_gradient_flux = dv * hr * drvs * grad_t;
+    // jv = −Dv ∂rv/∂z − (η − 1) Dv hr (drvs/dT) ∂T/∂z
+    let jv = -(dv * grad_rv) - (eta - 1.0) * thermal_gradient_flux;
+    let vapor_th = -(eta * thermal_gradient_flux);
+    let vapor_iso = jv - vapor_th;
+
+    let lambda = harmonic(l(up.lambda, off_up), l(lo.lambda, off_lo), da, db);
+    let conduction = -(lambda * grad_t);
+    let t_face = interp(ta, tb, da, db);
+    let scale_water = WATER_DENSITY * (k_face.v * (grad_h.v.abs() + 1.0) + liquid_th.v.abs())
+        + (dv.v * grad_rv.v).abs()
+        + (eta.v * thermal_gradient_flux.v).abs();
+    let scale_energy = conduction.v.abs()
+        + scale_water * (WATER_HEAT_CAPACITY * (t_face.v - T_REF).abs() + vapor_enthalpy(t_face).v);
+    FaceFlux {
+        liquid_iso,
+        liquid_th,
+        vapor_iso,
+        vapor_th,
+        conduction,
+        t_face,
+        scale_water,
+        scale_energy,
+    }
+}

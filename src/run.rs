@@ -1,0 +1,491 @@
+//! One simulation run: initial state, the time loop with its sync times, outputs and the
+//! end-of-run summary. The loop only advances a plain [`StepState`]; the results file is
+//! an observer of that state.
+
+use crate::error::{Error, Result};
+use crate::model::{
+    BottomBc, BottomHeat, BottomWater, InitialState, Model, Periods, ProfileMoisture, SurfaceBc,
+    SurfaceHeat, SurfaceWater,
+};
+use crate::output::diagnostics::{drying_front_depth, Profile, SeriesRecord};
+use crate::output::results::ResultsFile;
+use crate::physics::cell::equilibrium_vapor;
+use crate::physics::dual::D3;
+use crate::physics::{System, H, RV, T};
+use crate::props::constants::SECONDS_PER_YEAR;
+use crate::schedule::Schedule;
+use crate::solve::linear::{make_solver, SolverKind};
+use crate::solve::newton::NewtonFailure;
+use crate::solve::stepper::{Counters, StepFailure, StepOptions, StepState, Stepper};
+use std::path::PathBuf;
+use std::time::Instant;
+
+/// Options of one run that are not part of the case.
+#[derive(Debug, Clone)]
+pub struct RunOptions {
+    /// Output folder (overrides the case's).
+    pub out: Option<PathBuf>,
+    /// Replace an existing results file.
+    pub overwrite: bool,
+    /// Show a progress bar (only drawn on a terminal).
+    pub progress: bool,
+    pub solver: SolverKind,
+}
+
+impl Default for RunOptions {
+    fn default() -> Self {
+        RunOptions {
+            out: None,
+            overwrite: false,
+            progress: true,
+            solver: SolverKind::BlockThomas,
+        }
+    }
+}
+
+/// What a finished run reports.
+#[derive(Debug, Clone)]
+pub struct RunSummary {
+    pub results: PathBuf,
+    pub start: f64,
+    pub end: f64,
+    pub wall_seconds: f64,
+    pub counters: Counters,
+    /// Final balance errors, absolute [J m⁻², kg m⁻²] and relative.
+    pub balance_abs: [f64; 2],
+    pub balance_rel: [f64; 2],
+    /// Final water fluxes at the surface and the bottom [mm/yr], positive downward.
+    pub surface_flux_mm_yr: f64,
+    pub bottom_flux_mm_yr: f64,
+    pub final_state: StepState,
+}
+
+impl RunSummary {
+    /// The one-screen summary printed at the end of `deepdry run`.
+    pub fn text(&self) -> String {
+        let c = &self.counters;
+        format!(
+            "run finished: {:.6} yr to {:.6} yr in {:.2} s wall time\n\
+             steps {} (rejected {}), Newton iterations {}, factorisations {}\n\
+             water balance error {:.3e} kg m-2 (relative {:.2e}); energy balance error {:.3e} J m-2 (relative {:.2e})\n\
+             water flux at the surface {:.6e} mm/yr, at the bottom {:.6e} mm/yr (positive downward)\n\
+             results: {}\n",
+            self.start / SECONDS_PER_YEAR,
+            self.end / SECONDS_PER_YEAR,
+            self.wall_seconds,
+            c.steps,
+            c.rejected,
+            c.newton_iterations,
+            c.factorizations,
+            self.balance_abs[1],
+            self.balance_rel[1],
+            self.balance_abs[0],
+            self.balance_rel[0],
+            self.surface_flux_mm_yr,
+            self.bottom_flux_mm_yr,
+            self.results.display()
+        )
+    }
+}
+
+/// Converts a water mass flux [kg m⁻² s⁻¹] to mm of water per year.
+pub fn mm_per_year(flux: f64) -> f64 {
+    flux * SECONDS_PER_YEAR
+}
+
+fn frozen(s: &Schedule, t: f64) -> Schedule {
+    Schedule::Constant(s.value(t))
+}
+
+/// The surface condition with every schedule held at its value at `t`.
+pub fn freeze_surface(bc: &SurfaceBc, t: f64) -> SurfaceBc {
+    SurfaceBc {
+        heat: match &bc.heat {
+            SurfaceHeat::Temperature(s) => SurfaceHeat::Temperature(frozen(s, t)),
+            SurfaceHeat::Flux(s) => SurfaceHeat::Flux(frozen(s, t)),
+        },
+        water: match &bc.water {
+            SurfaceWater::Head(s) => SurfaceWater::Head(frozen(s, t)),
+            SurfaceWater::Flux { flux, ponding_head } => SurfaceWater::Flux {
+                flux: frozen(flux, t),
+                ponding_head: *ponding_head,
+            },
+            SurfaceWater::Atmosphere {
+                relative_humidity,
+                resistance,
+            } => SurfaceWater::Atmosphere {
+                relative_humidity: frozen(relative_humidity, t),
+                resistance: resistance.as_ref().map(|r| frozen(r, t)),
+            },
+            SurfaceWater::NoFlow => SurfaceWater::NoFlow,
+        },
+    }
+}
+
+/// The bottom condition with every schedule held at its value at `t`.
+pub fn freeze_bottom(bc: &BottomBc, t: f64) -> BottomBc {
+    BottomBc {
+        heat: match &bc.heat {
+            BottomHeat::Temperature(s) => BottomHeat::Temperature(frozen(s, t)),
+            BottomHeat::GeothermalFlux(s) => BottomHeat::GeothermalFlux(frozen(s, t)),
+        },
+        water: match &bc.water {
+            BottomWater::WaterTable(s) => BottomWater::WaterTable(frozen(s, t)),
+            BottomWater::FreeDrainage => BottomWater::FreeDrainage,
+            BottomWater::NoFlow => BottomWater::NoFlow,
+        },
+    }
+}
+
+/// Bottom head at time t for the hydrostatic profile (0 unless a water table is given).
+fn bottom_head(model: &Model, t: f64) -> f64 {
+    match &model.bottom.at(t).water {
+        BottomWater::WaterTable(s) => s.value(t),
+        _ => 0.0,
+    }
+}
+
+/// Sets rv to its equilibrium value in every cell.
+pub fn equilibrate_vapor(u: &mut [f64]) {
+    for i in 0..u.len() / 3 {
+        let (_, _, _, rveq) = equilibrium_vapor(D3::cst(u[3 * i + T]), D3::cst(u[3 * i + H]));
+        u[3 * i + RV] = rveq.v;
+    }
+}
+
+/// Hydrostatic head above the bottom head and a linear temperature profile.
+pub fn hydrostatic(model: &Model, surface_temperature: f64, gradient: f64) -> Vec<f64> {
+    let n = model.mesh.n_cells();
+    let l = model.mesh.depth();
+    let hb = bottom_head(model, model.time.start);
+    let mut u = vec![0.0; 3 * n];
+    for (i, z) in model.mesh.centers.iter().enumerate() {
+        u[3 * i + T] = surface_temperature + gradient * z;
+        u[3 * i + H] = hb - (l - z);
+    }
+    equilibrate_vapor(&mut u);
+    u
+}
+
+fn interp(xs: &[f64], ys: &[f64], x: f64) -> f64 {
+    if x <= xs[0] {
+        return ys[0];
+    }
+    for k in 1..xs.len() {
+        if x <= xs[k] {
+            let f = (x - xs[k - 1]) / (xs[k] - xs[k - 1]);
+            return ys[k - 1] + f * (ys[k] - ys[k - 1]);
+        }
+    }
+    ys[ys.len() - 1]
+}
+
+/// Unknowns of the initial state (the steady state is solved for).
+pub fn initial_unknowns(model: &Model, solver: SolverKind) -> Result<Vec<f64>> {
+    match &model.initial {
+        InitialState::Hydrostatic {
+            surface_temperature,
+            gradient,
+        } => Ok(hydrostatic(model, *surface_temperature, *gradient)),
+        InitialState::Profile {
+            depth,
+            temperature,
+            moisture,
+        } => {
+            let n = model.mesh.n_cells();
+            let mut u = vec![0.0; 3 * n];
+            for (i, z) in model.mesh.centers.iter().enumerate() {
+                u[3 * i + T] = interp(depth, temperature, *z);
+                u[3 * i + H] = match moisture {
+                    ProfileMoisture::Head(h) => interp(depth, h, *z),
+                    ProfileMoisture::LiquidContent(th) => {
+                        let theta = interp(depth, th, *z);
+                        let soil = &model.soils[model.cell_soil[i]];
+                        soil.retention.head_from_theta(theta).ok_or_else(|| {
+                            Error::input(format!(
+                                "initial profile: liquid content {theta} at depth {z:.3} m is outside the retention curve of soil '{}'",
+                                soil.name
+                            ))
+                        })?
+                    }
+                };
+            }
+            equilibrate_vapor(&mut u);
+            Ok(u)
+        }
+        InitialState::Steady {
+            surface,
+            bottom,
+            surface_temperature,
+            gradient,
+        } => {
+            let guess = hydrostatic(model, *surface_temperature, *gradient);
+            let mut m = model.clone();
+            m.surface = Periods::single(freeze_surface(surface, model.time.start));
+            m.bottom = Periods::single(freeze_bottom(bottom, model.time.start));
+            steady_state(&m, guess, solver)
+        }
+    }
+}
+
+/// Steady state of `model` (its boundary conditions must be time-independent) by
+/// pseudo-transient continuation: backward-Euler steps from `guess` with Δt growing
+/// without bound, until the state stops changing at Δt ≥ 10¹⁶ s.
+pub fn steady_state(model: &Model, guess: Vec<f64>, solver: SolverKind) -> Result<Vec<f64>> {
+    let mut sys = System::new(model);
+    let n = sys.n;
+    let t0 = model.time.start;
+    let state = Stepper::initial_state(&mut sys, t0, 3600.0, guess);
+    let opts = StepOptions {
+        dt_min: 1e-3,
+        dt_max: 1e30,
+        target_dt_change: 20.0,
+        target_theta_change: 0.2,
+        max_growth: 4.0,
+        newton: crate::solve::newton::NewtonOptions {
+            max_iter: model.time.max_newton,
+            ..Default::default()
+        },
+    };
+    let mut st = Stepper::new(&mut sys, state, opts, make_solver(solver, n));
+    let mut prev = st.state.u.clone();
+    for _ in 0..5000 {
+        let info = st
+            .step(&mut sys, f64::MAX)
+            .map_err(|f| numerical_message(&sys, &f, "steady initial state"))?;
+        let u = &st.state.u;
+        let mut change = 0.0f64;
+        for i in 0..n {
+            change = change
+                .max((u[3 * i + T] - prev[3 * i + T]).abs())
+                .max((u[3 * i + H] - prev[3 * i + H]).abs() / (1.0 + u[3 * i + H].abs()));
+        }
+        prev.copy_from_slice(u);
+        if info.dt >= 1e16 && change < 1e-9 {
+            return Ok(prev);
+        }
+    }
+    Err(Error::Numerical(
+        "steady initial state: pseudo-transient continuation did not settle in 5000 steps".into(),
+    ))
+}
+
+/// A one-line message for a step that failed at the minimum Δt.
+pub fn numerical_message(sys: &System, f: &StepFailure, what: &str) -> Error {
+    let names = ["energy balance", "water balance", "vapour equation"];
+    let (cell, row, res) = match &f.failure {
+        NewtonFailure::NotConverged {
+            cell,
+            row,
+            residual,
+        }
+        | NewtonFailure::Diverged {
+            cell,
+            row,
+            residual,
+        } => (*cell, *row, *residual),
+        NewtonFailure::NonFinite(nf) => (nf.cell, nf.row, f64::NAN),
+        NewtonFailure::Linear(_) => (0, 0, f64::NAN),
+    };
+    let kind = match &f.failure {
+        NewtonFailure::NotConverged { .. } => "Newton did not converge",
+        NewtonFailure::Diverged { .. } => "Newton diverged",
+        NewtonFailure::NonFinite(_) => "a non-finite value (NaN or Inf) appeared",
+        NewtonFailure::Linear(_) => "the linear system was singular",
+    };
+    let cell = cell.min(sys.n.saturating_sub(1));
+    Error::Numerical(format!(
+        "{what}: step failed at t = {:.6e} yr with dt = {:.3e} s (the minimum): {kind}; worst {} residual {:.3e} (scaled) at depth {:.4} m (cell {cell})",
+        f.t / SECONDS_PER_YEAR,
+        f.dt,
+        names[row.min(2)],
+        res,
+        sys.centers[cell],
+    ))
+}
+
+/// Times the stepper must land on inside (start, end]: schedule breakpoints, changes of
+/// boundary-condition kind, snapshots and the end.
+pub fn sync_times(model: &Model) -> Vec<f64> {
+    let mut ts: Vec<f64> = Vec::new();
+    let add_schedule = |s: &Schedule, ts: &mut Vec<f64>| ts.extend(s.breakpoints());
+    for (start, bc) in &model.surface.periods {
+        ts.push(*start);
+        match &bc.heat {
+            SurfaceHeat::Temperature(s) | SurfaceHeat::Flux(s) => add_schedule(s, &mut ts),
+        }
+        match &bc.water {
+            SurfaceWater::Head(s) => add_schedule(s, &mut ts),
+            SurfaceWater::Flux { flux, .. } => add_schedule(flux, &mut ts),
+            SurfaceWater::Atmosphere {
+                relative_humidity,
+                resistance,
+            } => {
+                add_schedule(relative_humidity, &mut ts);
+                if let Some(r) = resistance {
+                    add_schedule(r, &mut ts);
+                }
+            }
+            SurfaceWater::NoFlow => {}
+        }
+    }
+    for (start, bc) in &model.bottom.periods {
+        ts.push(*start);
+        match &bc.heat {
+            BottomHeat::Temperature(s) | BottomHeat::GeothermalFlux(s) => add_schedule(s, &mut ts),
+        }
+        if let BottomWater::WaterTable(s) = &bc.water {
+            add_schedule(s, &mut ts);
+        }
+    }
+    ts.extend(model.output.snapshot_times.iter().cloned());
+    ts.push(model.time.end);
+    let (a, b) = (model.time.start, model.time.end);
+    ts.retain(|t| t.is_finite() && *t > a && *t <= b);
+    ts.sort_by(|x, y| x.total_cmp(y));
+    ts.dedup_by(|x, y| (*x - *y).abs() <= 1e-9 * y.abs().max(1.0));
+    ts
+}
+
+/// Step options from the case.
+pub fn step_options(model: &Model) -> StepOptions {
+    StepOptions {
+        dt_min: model.time.dt_min,
+        dt_max: model.time.dt_max,
+        newton: crate::solve::newton::NewtonOptions {
+            max_iter: model.time.max_newton,
+            ..Default::default()
+        },
+        ..Default::default()
+    }
+}
+
+/// The series record for the current (evaluated) state.
+pub fn series_record(sys: &System, st: &Stepper, dt: f64, iters: usize) -> SeriesRecord {
+    let (abs, rel) = st.balance(sys);
+    let top = &sys.faces[0];
+    let bot = &sys.faces[sys.n];
+    SeriesRecord {
+        time_year: st.state.t / SECONDS_PER_YEAR,
+        surface_water_flux: top.water().v,
+        bottom_water_flux: bot.water().v,
+        surface_heat_flux: top.energy().v,
+        bottom_heat_flux: bot.energy().v,
+        water_storage: sys.totals()[1],
+        water_balance_error: abs[1],
+        energy_balance_error: abs[0],
+        water_balance_relative: rel[1],
+        energy_balance_relative: rel[0],
+        drying_front_depth: drying_front_depth(sys),
+        dt,
+        newton_iterations: iters as f64,
+    }
+}
+
+/// Runs `model` from its initial state to its end time.
+pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
+    let wall = Instant::now();
+    let folder = opts
+        .out
+        .clone()
+        .unwrap_or_else(|| model.output.folder.clone());
+    std::fs::create_dir_all(&folder)
+        .map_err(|e| Error::io(&folder, format!("cannot create the output folder: {e}")))?;
+    let results_path = folder.join("results.h5");
+    if results_path.exists() && !opts.overwrite {
+        return Err(Error::Io(format!(
+            "{}: results file exists already; use --overwrite to replace it, or --out to write elsewhere",
+            results_path.display()
+        )));
+    }
+    let u0 = initial_unknowns(model, opts.solver)?;
+    let mut sys = System::new(model);
+    let mut results = ResultsFile::create(&results_path, model, opts.overwrite)?;
+    let state = Stepper::initial_state(&mut sys, model.time.start, model.time.dt_initial, u0);
+    let lin = make_solver(opts.solver, sys.n);
+    let mut st = Stepper::new(&mut sys, state, step_options(model), lin);
+    let mut profile = Profile::default();
+    sys.evaluate(st.state.t, &st.state.u);
+    profile.fill(&sys);
+    results.push_series(series_record(&sys, &st, 0.0, 0));
+    results.write_snapshot(st.state.t / SECONDS_PER_YEAR, &profile)?;
+
+    let syncs = sync_times(model);
+    let snaps = &model.output.snapshot_times;
+    let bar = progress_bar(opts.progress, model);
+    let mut since_series = 0usize;
+    for &t_sync in &syncs {
+        while st.state.t < t_sync {
+            let info = match st.step(&mut sys, t_sync) {
+                Ok(info) => info,
+                Err(f) => {
+                    let err = numerical_message(&sys, &f, "run");
+                    results.flush()?;
+                    bar.finish_and_clear();
+                    return Err(err);
+                }
+            };
+            since_series += 1;
+            let at_snapshot = st.state.t == t_sync
+                && snaps
+                    .iter()
+                    .any(|s| (s - t_sync).abs() <= 1e-9 * t_sync.abs().max(1.0));
+            if since_series >= model.output.series_every
+                || at_snapshot
+                || st.state.t == model.time.end
+            {
+                results.push_series(series_record(&sys, &st, info.dt, info.newton_iterations));
+                since_series = 0;
+            }
+            if at_snapshot {
+                profile.fill(&sys);
+                results.write_snapshot(st.state.t / SECONDS_PER_YEAR, &profile)?;
+            }
+            update_bar(&bar, model, &st, info.dt);
+        }
+    }
+    results.flush()?;
+    bar.finish_and_clear();
+    sys.evaluate(st.state.t, &st.state.u);
+    let (balance_abs, balance_rel) = st.balance(&sys);
+    Ok(RunSummary {
+        results: results_path,
+        start: model.time.start,
+        end: st.state.t,
+        wall_seconds: wall.elapsed().as_secs_f64(),
+        counters: st.state.counters,
+        balance_abs,
+        balance_rel,
+        surface_flux_mm_yr: mm_per_year(sys.faces[0].water().v),
+        bottom_flux_mm_yr: mm_per_year(sys.faces[sys.n].water().v),
+        final_state: st.state.clone(),
+    })
+}
+
+fn progress_bar(show: bool, model: &Model) -> indicatif::ProgressBar {
+    use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
+    let bar = ProgressBar::with_draw_target(Some(1000), ProgressDrawTarget::stderr());
+    if !show || !std::io::IsTerminal::is_terminal(&std::io::stderr()) {
+        bar.set_draw_target(ProgressDrawTarget::hidden());
+    }
+    if let Ok(style) = ProgressStyle::with_template("{bar:30} {percent:>3}% {msg}") {
+        bar.set_style(style);
+    }
+    let _ = model;
+    bar
+}
+
+fn update_bar(bar: &indicatif::ProgressBar, model: &Model, st: &Stepper, dt: f64) {
+    if bar.is_hidden() {
+        return;
+    }
+    let span = model.time.end - model.time.start;
+    let done = ((st.state.t - model.time.start) / span * 1000.0).clamp(0.0, 1000.0);
+    bar.set_position(done as u64);
+    bar.set_message(format!(
+        "t = {:.4e} yr, dt = {:.3e} yr, steps {}",
+        st.state.t / SECONDS_PER_YEAR,
+        dt / SECONDS_PER_YEAR,
+        st.state.counters.steps
+    ));
+}

@@ -12,8 +12,10 @@
 //! - [`error`]    typed errors
 
 pub mod case;
+pub mod checkpoint;
 pub mod cli;
 pub mod error;
+pub mod inspect;
 pub mod mesh;
 pub mod model;
 pub mod output;

@@ -30,6 +30,7 @@ pub struct RunOptions {
     /// Show a progress bar (only drawn on a terminal).
     pub progress: bool,
     pub solver: SolverKind,
+    pub start: Start,
 }
 
 impl Default for RunOptions {
@@ -39,6 +40,7 @@ impl Default for RunOptions {
             overwrite: false,
             progress: true,
             solver: SolverKind::BlockThomas,
+            start: Start::Fresh,
         }
     }
 }
@@ -382,7 +384,99 @@ pub fn series_record(sys: &System, st: &Stepper, dt: f64, iters: usize) -> Serie
     }
 }
 
-/// Runs `model` from its initial state to its end time.
+/// How a run starts.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Start {
+    /// From the case's initial state.
+    Fresh,
+    /// Continue the run that wrote this checkpoint (same case), appending to its results.
+    Resume(PathBuf),
+    /// A new run (new results file) from this checkpoint's state, with this case's
+    /// boundary conditions and end time; the mesh and soils must match.
+    Branch(PathBuf),
+}
+
+static INTERRUPT: std::sync::OnceLock<std::sync::Arc<std::sync::atomic::AtomicBool>> =
+    std::sync::OnceLock::new();
+
+/// Installs SIGINT/SIGTERM handlers that ask the run loop to stop cleanly.
+pub fn install_signal_handlers() -> Result<()> {
+    let flag =
+        INTERRUPT.get_or_init(|| std::sync::Arc::new(std::sync::atomic::AtomicBool::new(false)));
+    for sig in [signal_hook::consts::SIGINT, signal_hook::consts::SIGTERM] {
+        signal_hook::flag::register(sig, flag.clone())
+            .map_err(|e| Error::Internal(format!("cannot install the signal handler: {e}")))?;
+    }
+    Ok(())
+}
+
+fn interrupted() -> bool {
+    INTERRUPT
+        .get()
+        .map(|f| f.load(std::sync::atomic::Ordering::Relaxed))
+        .unwrap_or(false)
+}
+
+/// Checkpoint times inside (start, end] from the simulated-time interval.
+fn checkpoint_times(model: &Model) -> Vec<f64> {
+    let mut out = Vec::new();
+    if let Some(every) = model.checkpoint.every {
+        if every > 0.0 {
+            let mut k = 1.0;
+            loop {
+                let t = model.time.start + k * every;
+                if t >= model.time.end {
+                    break;
+                }
+                out.push(t);
+                k += 1.0;
+            }
+        }
+    }
+    out
+}
+
+fn is_member(list: &[f64], t: f64) -> bool {
+    list.iter()
+        .any(|s| (s - t).abs() <= 1e-9 * t.abs().max(1.0))
+}
+
+struct Runner<'a> {
+    model: &'a Model,
+    sys: System,
+    st: Stepper,
+    results: ResultsFile,
+    profile: Profile,
+    since_series: u64,
+    folder: PathBuf,
+}
+
+impl Runner<'_> {
+    fn checkpoint(&mut self, path: &std::path::Path) -> Result<()> {
+        self.results.flush()?;
+        let position = crate::checkpoint::LoopPosition {
+            since_series: self.since_series,
+            series_rows: self.results.records as u64,
+            snapshots: self.results.snapshots as u64,
+        };
+        crate::checkpoint::write(
+            path,
+            self.model,
+            &self.st.state,
+            position,
+            &self.results.path,
+        )
+    }
+
+    fn regular_checkpoint(&mut self) -> Result<PathBuf> {
+        let path = crate::checkpoint::name_at(&self.folder, self.st.state.t);
+        self.checkpoint(&path)?;
+        crate::checkpoint::prune(&self.folder, self.model.checkpoint.keep);
+        Ok(path)
+    }
+}
+
+/// Runs `model` (from its initial state, or as `opts.start` says) to its end time.
 pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
     let wall = Instant::now();
     let folder = opts
@@ -392,62 +486,197 @@ pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
     std::fs::create_dir_all(&folder)
         .map_err(|e| Error::io(&folder, format!("cannot create the output folder: {e}")))?;
     let results_path = folder.join("results.h5");
-    if results_path.exists() && !opts.overwrite {
-        return Err(Error::Io(format!(
-            "{}: results file exists already; use --overwrite to replace it, or --out to write elsewhere",
-            results_path.display()
-        )));
-    }
-    let u0 = initial_unknowns(model, opts.solver)?;
     let mut sys = System::new(model);
-    let mut results = ResultsFile::create(&results_path, model, opts.overwrite)?;
-    let state = Stepper::initial_state(&mut sys, model.time.start, model.time.dt_initial, u0);
-    let lin = make_solver(opts.solver, sys.n);
-    let mut st = Stepper::new(&mut sys, state, step_options(model), lin);
-    let mut profile = Profile::default();
-    sys.evaluate(st.state.t, &st.state.u);
-    profile.fill(&sys);
-    results.push_series(series_record(&sys, &st, 0.0, 0));
-    results.write_snapshot(st.state.t / SECONDS_PER_YEAR, &profile)?;
+    let n = sys.n;
+    let (state, results, since_series) = match &opts.start {
+        Start::Fresh => {
+            if results_path.exists() && !opts.overwrite {
+                return Err(Error::Io(format!(
+                    "{}: results file exists already; use --overwrite to replace it, or --out to write elsewhere",
+                    results_path.display()
+                )));
+            }
+            let u0 = initial_unknowns(model, opts.solver)?;
+            let results = ResultsFile::create(&results_path, model, opts.overwrite)?;
+            let state =
+                Stepper::initial_state(&mut sys, model.time.start, model.time.dt_initial, u0);
+            (state, results, 0u64)
+        }
+        Start::Resume(path) => {
+            let ck = crate::checkpoint::read(path)?;
+            if ck.physics_hash != crate::checkpoint::physics_hash(model) {
+                return Err(Error::input(format!(
+                    "{}: the case differs from the one that wrote this checkpoint (physics hash {} vs {}); to continue with changes, use --start-from to branch",
+                    path.display(),
+                    ck.physics_hash,
+                    crate::checkpoint::physics_hash(model)
+                )));
+            }
+            if ck.state.u.len() != 3 * n {
+                return Err(Error::input(format!(
+                    "{}: checkpoint holds {} unknowns, the case's mesh needs {}",
+                    path.display(),
+                    ck.state.u.len(),
+                    3 * n
+                )));
+            }
+            if ck.state.t >= model.time.end {
+                return Err(Error::input(format!(
+                    "{}: the checkpoint is at {:.6e} yr, at or after the case's end {:.6e} yr: nothing to continue",
+                    path.display(),
+                    ck.state.t / SECONDS_PER_YEAR,
+                    model.time.end / SECONDS_PER_YEAR
+                )));
+            }
+            let results = ResultsFile::open_append(
+                &results_path,
+                ck.position.snapshots as usize,
+                ck.position.series_rows as usize,
+            )?;
+            (ck.state, results, ck.position.since_series)
+        }
+        Start::Branch(path) => {
+            let ck = crate::checkpoint::read(path)?;
+            if ck.faces != model.mesh.faces {
+                return Err(Error::input(format!(
+                    "{}: mesh differs: the checkpoint has {} cells to {} m, the case {} cells to {} m; a branch needs the same mesh",
+                    path.display(),
+                    ck.faces.len().saturating_sub(1),
+                    ck.faces.last().copied().unwrap_or(0.0),
+                    n,
+                    model.mesh.depth()
+                )));
+            }
+            if ck.column_hash != crate::checkpoint::column_hash(model) {
+                return Err(Error::input(format!(
+                    "{}: soils or layers differ from the checkpoint's case; a branch needs the same soils and layers",
+                    path.display()
+                )));
+            }
+            if ck.physics_hash != crate::checkpoint::physics_hash(model) {
+                log::warn!(
+                    "branching from {}: physics, boundary conditions or step control differ from the parent case",
+                    path.display()
+                );
+            }
+            if ck.state.t >= model.time.end {
+                return Err(Error::input(format!(
+                    "{}: the checkpoint is at {:.6e} yr, at or after the case's end {:.6e} yr",
+                    path.display(),
+                    ck.state.t / SECONDS_PER_YEAR,
+                    model.time.end / SECONDS_PER_YEAR
+                )));
+            }
+            if results_path.exists() && !opts.overwrite {
+                return Err(Error::Io(format!(
+                    "{}: results file exists already; use --overwrite to replace it, or --out to write elsewhere",
+                    results_path.display()
+                )));
+            }
+            let results = ResultsFile::create(&results_path, model, opts.overwrite)?;
+            results.set_attr("parent_checkpoint", &path.display().to_string())?;
+            results.set_attr(
+                "parent_time_year",
+                &format!("{:e}", ck.state.t / SECONDS_PER_YEAR),
+            )?;
+            results.set_attr("parent_physics_hash", &ck.physics_hash)?;
+            let state = Stepper::initial_state(&mut sys, ck.state.t, ck.state.dt, ck.state.u);
+            (state, results, 0)
+        }
+    };
+    let fresh_output = !matches!(opts.start, Start::Resume(_));
+    let lin = make_solver(opts.solver, n);
+    let st = Stepper::new(&mut sys, state, step_options(model), lin);
+    let mut r = Runner {
+        model,
+        sys,
+        st,
+        results,
+        profile: Profile::default(),
+        since_series,
+        folder: folder.clone(),
+    };
+    if fresh_output {
+        r.sys.evaluate(r.st.state.t, &r.st.state.u);
+        r.profile.fill(&r.sys);
+        let rec = series_record(&r.sys, &r.st, 0.0, 0);
+        r.results.push_series(rec);
+        r.results
+            .write_snapshot(r.st.state.t / SECONDS_PER_YEAR, &r.profile)?;
+    }
 
-    let syncs = sync_times(model);
+    let ckpt_times = checkpoint_times(model);
+    let mut syncs = sync_times(model);
+    syncs.extend(ckpt_times.iter().cloned());
+    syncs.sort_by(|a, b| a.total_cmp(b));
+    syncs.dedup_by(|x, y| (*x - *y).abs() <= 1e-9 * y.abs().max(1.0));
     let snaps = &model.output.snapshot_times;
     let bar = progress_bar(opts.progress, model);
-    let mut since_series = 0usize;
+    let mut last_wall = Instant::now();
+    let t_begin = r.st.state.t;
+    syncs.retain(|t| *t > t_begin);
     for &t_sync in &syncs {
-        while st.state.t < t_sync {
-            let info = match st.step(&mut sys, t_sync) {
+        while r.st.state.t < t_sync {
+            let info = match r.st.step(&mut r.sys, t_sync) {
                 Ok(info) => info,
                 Err(f) => {
-                    let err = numerical_message(&sys, &f, "run");
-                    results.flush()?;
+                    let err = numerical_message(&r.sys, &f, "run");
                     bar.finish_and_clear();
-                    return Err(err);
+                    let saved = folder.join("failed-state.h5");
+                    return match r.checkpoint(&saved) {
+                        Ok(()) => Err(Error::Numerical(format!(
+                            "{err}; last good state saved in {}",
+                            saved.display()
+                        ))),
+                        Err(e2) => Err(Error::Numerical(format!(
+                            "{err}; the last good state could not be saved: {e2}"
+                        ))),
+                    };
                 }
             };
-            since_series += 1;
-            let at_snapshot = st.state.t == t_sync
-                && snaps
-                    .iter()
-                    .any(|s| (s - t_sync).abs() <= 1e-9 * t_sync.abs().max(1.0));
-            if since_series >= model.output.series_every
+            r.since_series += 1;
+            let landed = r.st.state.t == t_sync;
+            let at_snapshot = landed && is_member(snaps, t_sync);
+            if r.since_series >= model.output.series_every as u64
                 || at_snapshot
-                || st.state.t == model.time.end
+                || r.st.state.t == model.time.end
             {
-                results.push_series(series_record(&sys, &st, info.dt, info.newton_iterations));
-                since_series = 0;
+                let rec = series_record(&r.sys, &r.st, info.dt, info.newton_iterations);
+                r.results.push_series(rec);
+                r.since_series = 0;
             }
             if at_snapshot {
-                profile.fill(&sys);
-                results.write_snapshot(st.state.t / SECONDS_PER_YEAR, &profile)?;
+                r.profile.fill(&r.sys);
+                r.results
+                    .write_snapshot(r.st.state.t / SECONDS_PER_YEAR, &r.profile)?;
             }
-            update_bar(&bar, model, &st, info.dt);
+            update_bar(&bar, model, &r.st, info.dt);
+            if landed && is_member(&ckpt_times, t_sync) {
+                r.regular_checkpoint()?;
+                last_wall = Instant::now();
+            } else if let Some(w) = model.checkpoint.wall_every {
+                if last_wall.elapsed().as_secs_f64() >= w {
+                    r.regular_checkpoint()?;
+                    last_wall = Instant::now();
+                }
+            }
+            if interrupted() {
+                bar.finish_and_clear();
+                let path = r.regular_checkpoint()?;
+                return Err(Error::Interrupted(format!(
+                    "interrupted at t = {:.6e} yr; checkpoint written to {} (continue with --resume)",
+                    r.st.state.t / SECONDS_PER_YEAR,
+                    path.display()
+                )));
+            }
         }
     }
-    results.flush()?;
+    r.regular_checkpoint()?;
+    r.results.flush()?;
     bar.finish_and_clear();
+    let (sys, st) = (&mut r.sys, &r.st);
     sys.evaluate(st.state.t, &st.state.u);
-    let (balance_abs, balance_rel) = st.balance(&sys);
+    let (balance_abs, balance_rel) = st.balance(sys);
     Ok(RunSummary {
         results: results_path,
         start: model.time.start,

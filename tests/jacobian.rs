@@ -38,7 +38,8 @@ fn check(model: &Model, seed: u64, label: &str) {
         let t = 0.0;
         let mut res = vec![0.0; 3 * n];
         let mut jac = BlockTri::new(n);
-        sys.assemble(t, &u, c, &hist, &mut res, Some(&mut jac)).unwrap();
+        sys.assemble(t, &u, c, &hist, &mut res, Some(&mut jac))
+            .unwrap();
         let mut rp = vec![0.0; 3 * n];
         let mut rm = vec![0.0; 3 * n];
         for col in 0..3 * n {
@@ -85,13 +86,29 @@ fn row_scale(jac: &BlockTri, rb: usize, r: usize) -> f64 {
 
 #[test]
 fn jacobian_matches_finite_differences_equilibrium() {
-    let m = column(uniform_mesh(2.0, 8), sandy_loam(), dry_surface(291.15, 0.2), water_table(298.15), 291.15, 298.15, YEAR);
+    let m = column(
+        uniform_mesh(2.0, 8),
+        sandy_loam(),
+        dry_surface(291.15, 0.2),
+        water_table(298.15),
+        291.15,
+        298.15,
+        YEAR,
+    );
     check(&m, 1, "equilibrium, atmosphere/water table");
 }
 
 #[test]
 fn jacobian_matches_finite_differences_kinetic_thermal_liquid() {
-    let mut m = column(uniform_mesh(2.0, 8), sandy_loam(), dry_surface(291.15, 0.3), water_table(298.15), 291.15, 298.15, YEAR);
+    let mut m = column(
+        uniform_mesh(2.0, 8),
+        sandy_loam(),
+        dry_surface(291.15, 0.3),
+        water_table(298.15),
+        291.15,
+        298.15,
+        YEAR,
+    );
     m.physics.vapor_mode = VaporMode::Kinetic { rate: 1e-2 };
     m.physics.thermal_liquid_gain = Some(7.0);
     m.physics.viscosity_correction = true;
@@ -101,7 +118,15 @@ fn jacobian_matches_finite_differences_kinetic_thermal_liquid() {
 
 #[test]
 fn jacobian_matches_finite_differences_other_boundaries() {
-    let mut m = column(uniform_mesh(3.0, 7), sandy_loam(), dry_surface(291.15, 0.2), water_table(298.15), 291.15, 298.15, YEAR);
+    let mut m = column(
+        uniform_mesh(3.0, 7),
+        sandy_loam(),
+        dry_surface(291.15, 0.2),
+        water_table(298.15),
+        291.15,
+        298.15,
+        YEAR,
+    );
     m.surface = Periods::single(SurfaceBc {
         heat: SurfaceHeat::Flux(Schedule::Constant(5.0)),
         water: SurfaceWater::Atmosphere {
@@ -118,7 +143,11 @@ fn jacobian_matches_finite_differences_other_boundaries() {
         deepdry::props::conductivity::FaceAveraging::Harmonic,
     ] {
         m.physics.face_conductivity = avg;
-        check(&m, 3, &format!("heat flux, resistance, free drainage, {avg:?}"));
+        check(
+            &m,
+            3,
+            &format!("heat flux, resistance, free drainage, {avg:?}"),
+        );
     }
     m.surface = Periods::single(SurfaceBc {
         heat: SurfaceHeat::Temperature(Schedule::Constant(285.0)),

@@ -38,6 +38,17 @@ pub enum Command {
         /// Linear solver: block-tridiagonal (fast, default) or sparse-lu (general).
         #[arg(long, default_value = "block-tridiagonal", value_parser = ["block-tridiagonal", "sparse-lu"])]
         solver: String,
+        /// Continue the run that wrote this checkpoint (same case), appending to its results.
+        #[arg(long, conflicts_with = "start_from")]
+        resume: Option<PathBuf>,
+        /// Start a new run (new results file) from this checkpoint's state (branching).
+        #[arg(long)]
+        start_from: Option<PathBuf>,
+    },
+    /// Summarise a results or checkpoint file.
+    Inspect {
+        /// A deepdry results or checkpoint file (HDF5).
+        file: PathBuf,
     },
     /// Print property tables as CSV.
     Table {
@@ -72,6 +83,8 @@ pub enum TableCommand {
 
 /// Runs one command.
 pub fn dispatch(cli: Cli) -> Result<()> {
+    // HDF5's own error stack printing would bury our one-line messages.
+    hdf5::silence_errors(true);
     match cli.command {
         Command::Check { case } => {
             let model = crate::case::load(&case)?;
@@ -84,8 +97,16 @@ pub fn dispatch(cli: Cli) -> Result<()> {
             overwrite,
             quiet,
             solver,
+            resume,
+            start_from,
         } => {
             let model = crate::case::load(&case)?;
+            crate::run::install_signal_handlers()?;
+            let start = match (resume, start_from) {
+                (Some(p), _) => crate::run::Start::Resume(p),
+                (None, Some(p)) => crate::run::Start::Branch(p),
+                (None, None) => crate::run::Start::Fresh,
+            };
             let opts = crate::run::RunOptions {
                 out,
                 overwrite,
@@ -95,9 +116,14 @@ pub fn dispatch(cli: Cli) -> Result<()> {
                 } else {
                     crate::solve::linear::SolverKind::BlockThomas
                 },
+                start,
             };
             let summary = crate::run::run(&model, &opts)?;
             print!("{}", summary.text());
+            Ok(())
+        }
+        Command::Inspect { file } => {
+            print!("{}", crate::inspect::summary(&file)?);
             Ok(())
         }
         Command::Table { what } => match what {

@@ -184,6 +184,72 @@ impl ResultsFile {
         })
     }
 
+    /// Reopens an existing results file to append after `snapshots` snapshots and
+    /// `series_rows` series rows; anything written after those (by an interrupted run
+    /// past its last checkpoint) is dropped.
+    pub fn open_append(path: &Path, snapshots: usize, series_rows: usize) -> Result<Self> {
+        let e = h5(path);
+        let file = File::open_rw(path).map_err(|err| {
+            Error::Io(format!(
+                "{}: cannot reopen the results file to continue it: {err}",
+                path.display()
+            ))
+        })?;
+        let root = file.as_group().map_err(&e)?;
+        let kind = super::h5util::read_attr_str(&root, "kind").unwrap_or_default();
+        if kind != RESULTS_KIND {
+            return Err(Error::input(format!(
+                "{}: not a deepdry results file",
+                path.display()
+            )));
+        }
+        let ds = |name: &str| file.dataset(name).map_err(&e);
+        let profile_time = ds("profiles/time")?;
+        let have_snap = profile_time.shape()[0];
+        let series_time = ds("series/time")?;
+        let have_rows = series_time.shape()[0];
+        if have_snap < snapshots || have_rows < series_rows {
+            return Err(Error::input(format!(
+                "{}: the results file holds {have_snap} snapshots and {have_rows} series rows, fewer than the checkpoint recorded ({snapshots}, {series_rows}); it does not belong to this checkpoint",
+                path.display()
+            )));
+        }
+        let mut cell_sets = Vec::new();
+        for (name, _, _) in PROFILE_CELL {
+            cell_sets.push(ds(&format!("profiles/{name}"))?);
+        }
+        let mut face_sets = Vec::new();
+        for (name, _, _) in PROFILE_FACE {
+            face_sets.push(ds(&format!("profiles/{name}"))?);
+        }
+        let mut series_sets = Vec::new();
+        for (name, _, _) in SeriesRecord::FIELDS {
+            series_sets.push(ds(&format!("series/{name}"))?);
+        }
+        use super::h5util::truncate;
+        truncate(&profile_time, snapshots).map_err(&e)?;
+        for d in cell_sets.iter().chain(face_sets.iter()) {
+            truncate(d, snapshots).map_err(&e)?;
+        }
+        truncate(&series_time, series_rows).map_err(&e)?;
+        for d in &series_sets {
+            truncate(d, series_rows).map_err(&e)?;
+        }
+        file.flush().map_err(&e)?;
+        Ok(ResultsFile {
+            path: path.to_path_buf(),
+            file,
+            profile_time,
+            cell_sets,
+            face_sets,
+            series_time,
+            series_sets,
+            pending: Vec::new(),
+            snapshots,
+            records: series_rows,
+        })
+    }
+
     /// Sets a root string attribute (e.g. the parent checkpoint of a branch).
     pub fn set_attr(&self, name: &str, value: &str) -> Result<()> {
         let root = self.file.as_group().map_err(h5(&self.path))?;

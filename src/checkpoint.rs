@@ -1,0 +1,313 @@
+//! Checkpoint files (HDF5): everything needed to continue a run exactly.
+//!
+//! A checkpoint holds the stepper state ([`StepState`]: time, proposed Δt, unknowns,
+//! balance accumulators, counters), the run-loop position (series rows since the last
+//! record, rows and snapshots in the results file), the mesh, the full case text, hashes
+//! of the case content and the software version. Files are written atomically: to a
+//! temporary file in the same folder, flushed and fsynced, then renamed over the target
+//! and the folder fsynced, so a crash at any moment leaves the previous checkpoint intact.
+
+use crate::error::{Error, Result};
+use crate::model::Model;
+use crate::output::h5util::{attr_f64, attr_str, read_attr_str};
+use crate::props::constants::SECONDS_PER_YEAR;
+use crate::solve::stepper::{Counters, StepState};
+use hdf5::File;
+use ndarray::Array1;
+use std::path::{Path, PathBuf};
+
+/// Attribute value of `kind` that marks a checkpoint file.
+pub const CHECKPOINT_KIND: &str = "deepdry-checkpoint";
+/// Format version of checkpoint files; a file of another version is refused.
+pub const CHECKPOINT_FORMAT: &str = "1";
+
+/// FNV-1a 64-bit hash of a string, as 16 hex digits.
+pub fn fnv1a(text: &str) -> String {
+    let mut h: u64 = 0xcbf2_9ce4_8422_2325;
+    for b in text.as_bytes() {
+        h ^= *b as u64;
+        h = h.wrapping_mul(0x0100_0000_01b3);
+    }
+    format!("{h:016x}")
+}
+
+/// Hash of what fixes the discretised column: mesh, soils and layers.
+pub fn column_hash(m: &Model) -> String {
+    fnv1a(&format!(
+        "{:?}|{:?}|{:?}|{:?}",
+        m.mesh, m.soils, m.layers, m.cell_soil
+    ))
+}
+
+/// Hash of the physics-relevant content: column, physics, boundary conditions, initial
+/// state and the step control (everything that changes the computed sequence, except
+/// the end time and the outputs).
+pub fn physics_hash(m: &Model) -> String {
+    let t = &m.time;
+    fnv1a(&format!(
+        "{}|{:?}|{:?}|{:?}|{:?}|{:?}|{:?}|{:?}|{:?}|{:?}|{:?}",
+        column_hash(m),
+        m.physics,
+        m.surface,
+        m.bottom,
+        m.initial,
+        (t.start, t.dt_initial, t.dt_min, t.dt_max, t.max_newton),
+        t.method,
+        (t.rtol, t.atol_temperature, t.atol_head, t.atol_vapor),
+        m.output.snapshot_times,
+        m.output.series_every,
+        m.checkpoint.every
+    ))
+}
+
+/// Run-loop position stored alongside the stepper state.
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub struct LoopPosition {
+    /// Accepted steps since the last series record.
+    pub since_series: u64,
+    /// Rows in `/series` and snapshots in `/profiles` of the results file at this point.
+    pub series_rows: u64,
+    pub snapshots: u64,
+}
+
+/// A checkpoint read back from disk.
+#[derive(Debug, Clone)]
+pub struct Checkpoint {
+    pub path: PathBuf,
+    pub state: StepState,
+    pub position: LoopPosition,
+    pub case_text: String,
+    pub title: String,
+    pub software_version: String,
+    pub physics_hash: String,
+    pub column_hash: String,
+    pub results_file: String,
+    pub faces: Vec<f64>,
+    pub created: String,
+}
+
+fn e(path: &Path) -> impl Fn(hdf5::Error) -> Error + '_ {
+    move |err| Error::io(path, err)
+}
+
+/// Writes a checkpoint atomically to `path`.
+pub fn write(
+    path: &Path,
+    model: &Model,
+    state: &StepState,
+    position: LoopPosition,
+    results_file: &Path,
+) -> Result<()> {
+    let tmp = path.with_extension("h5.tmp");
+    {
+        let file = File::create(&tmp).map_err(e(&tmp))?;
+        let root = file.as_group().map_err(e(&tmp))?;
+        let er = e(&tmp);
+        attr_str(&root, "kind", CHECKPOINT_KIND).map_err(&er)?;
+        attr_str(&root, "format", CHECKPOINT_FORMAT).map_err(&er)?;
+        attr_str(&root, "title", &model.title).map_err(&er)?;
+        attr_str(&root, "software_version", env!("CARGO_PKG_VERSION")).map_err(&er)?;
+        attr_str(&root, "created", &crate::output::now_utc()).map_err(&er)?;
+        attr_str(&root, "case_text", &model.case_text).map_err(&er)?;
+        attr_str(&root, "physics_hash", &physics_hash(model)).map_err(&er)?;
+        attr_str(&root, "column_hash", &column_hash(model)).map_err(&er)?;
+        attr_str(&root, "results_file", &results_file.display().to_string()).map_err(&er)?;
+        attr_f64(&root, "time_year", state.t / SECONDS_PER_YEAR).map_err(&er)?;
+        let f64s = |name: &str, v: &[f64]| -> hdf5::Result<()> {
+            file.new_dataset_builder()
+                .with_data(&Array1::from_vec(v.to_vec()))
+                .create(name)
+                .map(|_| ())
+        };
+        f64s("time_s", &[state.t]).map_err(&er)?;
+        f64s("dt_s", &[state.dt]).map_err(&er)?;
+        f64s("unknowns", &state.u).map_err(&er)?;
+        f64s("inflow", &state.inflow).map_err(&er)?;
+        f64s("throughput", &state.throughput).map_err(&er)?;
+        f64s("initial_totals", &state.initial_totals).map_err(&er)?;
+        f64s("face_depth", &model.mesh.faces).map_err(&er)?;
+        let c = &state.counters;
+        let ints: Vec<u64> = vec![
+            c.steps,
+            c.rejected,
+            c.newton_iterations,
+            c.factorizations,
+            position.since_series,
+            position.series_rows,
+            position.snapshots,
+        ];
+        file.new_dataset_builder()
+            .with_data(&Array1::from_vec(ints))
+            .create("counters")
+            .map_err(&er)?;
+        file.flush().map_err(&er)?;
+        // Every handle is dropped at the end of this block, which closes the file.
+    }
+    let f = std::fs::File::open(&tmp).map_err(|err| Error::io(&tmp, err))?;
+    f.sync_all().map_err(|err| Error::io(&tmp, err))?;
+    drop(f);
+    std::fs::rename(&tmp, path)
+        .map_err(|err| Error::io(path, format!("cannot rename checkpoint: {err}")))?;
+    if let Some(dir) = path.parent() {
+        if let Ok(d) = std::fs::File::open(if dir.as_os_str().is_empty() {
+            Path::new(".")
+        } else {
+            dir
+        }) {
+            let _ = d.sync_all();
+        }
+    }
+    Ok(())
+}
+
+/// What kind of deepdry file `path` is: `Some("deepdry-results")`, `Some("deepdry-checkpoint")`
+/// or an error naming why it is neither.
+pub fn file_kind(path: &Path) -> Result<String> {
+    if !path.exists() {
+        return Err(Error::input(format!("{}: no such file", path.display())));
+    }
+    let meta = std::fs::metadata(path).map_err(|err| Error::io(path, err))?;
+    if meta.len() == 0 {
+        return Err(Error::input(format!(
+            "{}: the file is empty (not a deepdry results or checkpoint file)",
+            path.display()
+        )));
+    }
+    let file = File::open(path).map_err(|_| {
+        Error::input(format!(
+            "{}: not a readable HDF5 file (truncated or of another format); expected a deepdry results or checkpoint file",
+            path.display()
+        ))
+    })?;
+    let root = file.as_group().map_err(e(path))?;
+    match read_attr_str(&root, "kind") {
+        Ok(k) if k == CHECKPOINT_KIND || k == crate::output::results::RESULTS_KIND => Ok(k),
+        _ => Err(Error::input(format!(
+            "{}: an HDF5 file not written by deepdry (no 'kind' attribute of a results or checkpoint file)",
+            path.display()
+        ))),
+    }
+}
+
+/// Reads a checkpoint, refusing files that are not deepdry checkpoints of this format.
+pub fn read(path: &Path) -> Result<Checkpoint> {
+    let kind = file_kind(path)?;
+    if kind != CHECKPOINT_KIND {
+        return Err(Error::input(format!(
+            "{}: a deepdry {kind} file, not a checkpoint",
+            path.display()
+        )));
+    }
+    let bad = |what: &str| {
+        Error::input(format!(
+            "{}: damaged checkpoint ({what} missing or unreadable)",
+            path.display()
+        ))
+    };
+    let inner = || -> Result<Checkpoint> {
+        let file = File::open(path).map_err(|_| bad("file"))?;
+        let root = file.as_group().map_err(|_| bad("root group"))?;
+        let s = |name: &str| read_attr_str(&root, name).map_err(|_| bad(name));
+        let format = s("format")?;
+        if format != CHECKPOINT_FORMAT {
+            return Err(Error::input(format!(
+                "{}: checkpoint format {format} written by deepdry {}; this deepdry ({}) reads format {CHECKPOINT_FORMAT}",
+                path.display(),
+                s("software_version").unwrap_or_else(|_| "?".into()),
+                env!("CARGO_PKG_VERSION")
+            )));
+        }
+        let v = |name: &str| -> Result<Vec<f64>> {
+            file.dataset(name)
+                .and_then(|d| d.read_1d::<f64>())
+                .map(|a| a.to_vec())
+                .map_err(|_| bad(name))
+        };
+        let one =
+            |name: &str| -> Result<f64> { v(name)?.first().copied().ok_or_else(|| bad(name)) };
+        let two = |name: &str| -> Result<[f64; 2]> {
+            let x = v(name)?;
+            if x.len() != 2 {
+                return Err(bad(name));
+            }
+            Ok([x[0], x[1]])
+        };
+        let ints: Vec<u64> = file
+            .dataset("counters")
+            .and_then(|d| d.read_1d::<u64>())
+            .map(|a| a.to_vec())
+            .map_err(|_| bad("counters"))?;
+        if ints.len() != 7 {
+            return Err(bad("counters"));
+        }
+        let state = StepState {
+            t: one("time_s")?,
+            dt: one("dt_s")?,
+            u: v("unknowns")?,
+            inflow: two("inflow")?,
+            throughput: two("throughput")?,
+            initial_totals: two("initial_totals")?,
+            counters: Counters {
+                steps: ints[0],
+                rejected: ints[1],
+                newton_iterations: ints[2],
+                factorizations: ints[3],
+            },
+        };
+        if state.u.iter().any(|x| !x.is_finite()) || !state.t.is_finite() || state.dt.is_nan() || state.dt <= 0.0 {
+            return Err(bad("finite state"));
+        }
+        Ok(Checkpoint {
+            path: path.to_path_buf(),
+            state,
+            position: LoopPosition {
+                since_series: ints[4],
+                series_rows: ints[5],
+                snapshots: ints[6],
+            },
+            case_text: s("case_text")?,
+            title: s("title")?,
+            software_version: s("software_version")?,
+            physics_hash: s("physics_hash")?,
+            column_hash: s("column_hash")?,
+            results_file: s("results_file")?,
+            faces: v("face_depth")?,
+            created: s("created")?,
+        })
+    };
+    inner()
+}
+
+/// File name of the checkpoint at time `t` [s] in `folder`.
+pub fn name_at(folder: &Path, t: f64) -> PathBuf {
+    folder.join(format!("checkpoint-{:.9e}yr.h5", t / SECONDS_PER_YEAR))
+}
+
+/// Checkpoints in `folder` written by [`name_at`], sorted oldest first by time.
+pub fn list(folder: &Path) -> Vec<(f64, PathBuf)> {
+    let mut out = Vec::new();
+    if let Ok(rd) = std::fs::read_dir(folder) {
+        for entry in rd.flatten() {
+            let name = entry.file_name().to_string_lossy().to_string();
+            if let Some(mid) = name
+                .strip_prefix("checkpoint-")
+                .and_then(|r| r.strip_suffix("yr.h5"))
+            {
+                if let Ok(t) = mid.parse::<f64>() {
+                    out.push((t, entry.path()));
+                }
+            }
+        }
+    }
+    out.sort_by(|a, b| a.0.total_cmp(&b.0));
+    out
+}
+
+/// Removes all but the newest `keep` checkpoints in `folder`.
+pub fn prune(folder: &Path, keep: usize) {
+    let all = list(folder);
+    let excess = all.len().saturating_sub(keep.max(1));
+    for (_, p) in all.into_iter().take(excess) {
+        let _ = std::fs::remove_file(p);
+    }
+}

@@ -1,0 +1,90 @@
+//! `deepdry inspect`: a summary of a results or checkpoint file.
+
+use crate::checkpoint::{file_kind, CHECKPOINT_KIND};
+use crate::error::{Error, Result};
+use crate::output::h5util::read_attr_str;
+use std::fmt::Write;
+use std::path::Path;
+
+/// Summary text of the deepdry file at `path`; other files are refused.
+pub fn summary(path: &Path) -> Result<String> {
+    let kind = file_kind(path)?;
+    let mut out = String::new();
+    if kind == CHECKPOINT_KIND {
+        let ck = crate::checkpoint::read(path)?;
+        let c = &ck.state.counters;
+        let _ = writeln!(out, "file: {}", path.display());
+        let _ = writeln!(out, "kind: checkpoint");
+        let _ = writeln!(out, "case title: {}", ck.title);
+        let _ = writeln!(out, "software version: {}", ck.software_version);
+        let _ = writeln!(out, "written: {}", ck.created);
+        let _ = writeln!(
+            out,
+            "time: {:.6e} yr, next step {:.3e} s",
+            ck.state.t / crate::props::constants::SECONDS_PER_YEAR,
+            ck.state.dt
+        );
+        let _ = writeln!(out, "cells: {}", ck.state.u.len() / 3);
+        let _ = writeln!(
+            out,
+            "steps {} (rejected {}), Newton iterations {}, factorisations {}",
+            c.steps, c.rejected, c.newton_iterations, c.factorizations
+        );
+        let _ = writeln!(
+            out,
+            "results file: {} ({} snapshots, {} series rows at this point)",
+            ck.results_file, ck.position.snapshots, ck.position.series_rows
+        );
+        let _ = writeln!(out, "physics hash: {}", ck.physics_hash);
+        return Ok(out);
+    }
+    let e = |err: hdf5::Error| Error::io(path, err);
+    let file = hdf5::File::open(path).map_err(e)?;
+    let root = file.as_group().map_err(e)?;
+    let attr = |n: &str| read_attr_str(&root, n).unwrap_or_else(|_| "?".into());
+    let read = |n: &str| -> Vec<f64> {
+        file.dataset(n)
+            .and_then(|d| d.read_1d::<f64>())
+            .map(|a| a.to_vec())
+            .unwrap_or_default()
+    };
+    let times = read("profiles/time");
+    let series = read("series/time");
+    let _ = writeln!(out, "file: {}", path.display());
+    let _ = writeln!(out, "kind: results");
+    let _ = writeln!(out, "case title: {}", attr("title"));
+    let _ = writeln!(out, "software version: {}", attr("software_version"));
+    let _ = writeln!(out, "created: {}", attr("created"));
+    let cells = read("mesh/depth").len();
+    let _ = writeln!(out, "cells: {cells}");
+    match (series.first(), series.last()) {
+        (Some(a), Some(b)) => {
+            let _ = writeln!(
+                out,
+                "times covered: {a:.6e} to {b:.6e} yr ({} series rows)",
+                series.len()
+            );
+        }
+        _ => {
+            let _ = writeln!(out, "times covered: none yet");
+        }
+    }
+    let _ = writeln!(out, "snapshots: {}", times.len());
+    let wb = read("series/water_balance_relative_error");
+    let eb = read("series/energy_balance_relative_error");
+    if let (Some(w), Some(en)) = (wb.last(), eb.last()) {
+        let _ = writeln!(
+            out,
+            "last relative balance errors: water {w:.3e}, energy {en:.3e}"
+        );
+    }
+    if let Ok(p) = read_attr_str(&root, "parent_checkpoint") {
+        let _ = writeln!(
+            out,
+            "branch of: {p} at {} yr (hash {})",
+            attr("parent_time_year"),
+            attr("parent_physics_hash")
+        );
+    }
+    Ok(out)
+}

@@ -126,6 +126,33 @@ pub fn write(
         f64s("throughput", &state.throughput).map_err(&er)?;
         f64s("initial_totals", &state.initial_totals).map_err(&er)?;
         f64s("face_depth", &model.mesh.faces).map_err(&er)?;
+        // Multistep history, newest first.
+        let hlen = state.history.len();
+        let width = state.u.len();
+        let mut hu = Vec::with_capacity(hlen * width);
+        let mut hmeta = Vec::with_capacity(hlen * 5);
+        for hp in &state.history {
+            hu.extend_from_slice(&hp.u);
+            hmeta.extend_from_slice(&[
+                hp.t,
+                hp.inflow[0],
+                hp.inflow[1],
+                hp.throughput[0],
+                hp.throughput[1],
+            ]);
+        }
+        let a = ndarray::Array2::from_shape_vec((hlen, width), hu)
+            .map_err(|x| Error::Internal(x.to_string()))?;
+        file.new_dataset_builder()
+            .with_data(&a)
+            .create("history_unknowns")
+            .map_err(&er)?;
+        let a = ndarray::Array2::from_shape_vec((hlen, 5), hmeta)
+            .map_err(|x| Error::Internal(x.to_string()))?;
+        file.new_dataset_builder()
+            .with_data(&a)
+            .create("history_time_inflow")
+            .map_err(&er)?;
         let c = &state.counters;
         let ints: Vec<u64> = vec![
             c.steps,
@@ -135,6 +162,8 @@ pub fn write(
             position.since_series,
             position.series_rows,
             position.snapshots,
+            state.order as u64,
+            state.steps_at_order as u64,
         ];
         file.new_dataset_builder()
             .with_data(&Array1::from_vec(ints))
@@ -237,9 +266,28 @@ pub fn read(path: &Path) -> Result<Checkpoint> {
             .and_then(|d| d.read_1d::<u64>())
             .map(|a| a.to_vec())
             .map_err(|_| bad("counters"))?;
-        if ints.len() != 7 {
+        if ints.len() != 9 {
             return Err(bad("counters"));
         }
+        let hu = file
+            .dataset("history_unknowns")
+            .and_then(|d| d.read_2d::<f64>())
+            .map_err(|_| bad("history_unknowns"))?;
+        let hm = file
+            .dataset("history_time_inflow")
+            .and_then(|d| d.read_2d::<f64>())
+            .map_err(|_| bad("history_time_inflow"))?;
+        if hu.nrows() != hm.nrows() || hm.ncols() != 5 {
+            return Err(bad("history"));
+        }
+        let history = (0..hu.nrows())
+            .map(|k| crate::solve::stepper::HistoryPoint {
+                t: hm[[k, 0]],
+                u: hu.row(k).to_vec(),
+                inflow: [hm[[k, 1]], hm[[k, 2]]],
+                throughput: [hm[[k, 3]], hm[[k, 4]]],
+            })
+            .collect();
         let state = StepState {
             t: one("time_s")?,
             dt: one("dt_s")?,
@@ -253,8 +301,18 @@ pub fn read(path: &Path) -> Result<Checkpoint> {
                 newton_iterations: ints[2],
                 factorizations: ints[3],
             },
+            history,
+            order: ints[7] as usize,
+            steps_at_order: ints[8] as usize,
         };
-        if state.u.iter().any(|x| !x.is_finite()) || !state.t.is_finite() || state.dt.is_nan() || state.dt <= 0.0 {
+        if state.history.iter().any(|h| h.u.len() != state.u.len()) {
+            return Err(bad("history"));
+        }
+        if state.u.iter().any(|x| !x.is_finite())
+            || !state.t.is_finite()
+            || state.dt.is_nan()
+            || state.dt <= 0.0
+        {
             return Err(bad("finite state"));
         }
         Ok(Checkpoint {

@@ -11,6 +11,9 @@
 //! - [`output`]   results files (HDF5)
 //! - [`error`]    typed errors
 
+// Index loops read like the formulas they implement.
+#![allow(clippy::needless_range_loop)]
+
 pub mod case;
 pub mod checkpoint;
 pub mod cli;

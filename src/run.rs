@@ -244,6 +244,7 @@ pub fn steady_state(model: &Model, guess: Vec<f64>, solver: SolverKind) -> Resul
         target_dt_change: 20.0,
         target_theta_change: 0.2,
         max_growth: 4.0,
+        integrator: crate::solve::stepper::Integrator::BackwardEuler,
         newton: crate::solve::newton::NewtonOptions {
             max_iter: model.time.max_newton,
             ..Default::default()
@@ -309,6 +310,23 @@ pub fn numerical_message(sys: &System, f: &StepFailure, what: &str) -> Error {
 /// Times the stepper must land on inside (start, end]: schedule breakpoints, changes of
 /// boundary-condition kind, snapshots and the end.
 pub fn sync_times(model: &Model) -> Vec<f64> {
+    let mut ts = forcing_times(model);
+    ts.extend(model.output.snapshot_times.iter().cloned());
+    ts.push(model.time.end);
+    clean_times(model, ts)
+}
+
+fn clean_times(model: &Model, mut ts: Vec<f64>) -> Vec<f64> {
+    let (a, b) = (model.time.start, model.time.end);
+    ts.retain(|t| t.is_finite() && *t > a && *t <= b);
+    ts.sort_by(|x, y| x.total_cmp(y));
+    ts.dedup_by(|x, y| (*x - *y).abs() <= 1e-9 * y.abs().max(1.0));
+    ts
+}
+
+/// Times where the forcing jumps or changes slope (schedule breakpoints, changes of
+/// boundary-condition kind) inside (start, end]: the multistep history restarts there.
+pub fn forcing_times(model: &Model) -> Vec<f64> {
     let mut ts: Vec<f64> = Vec::new();
     let add_schedule = |s: &Schedule, ts: &mut Vec<f64>| ts.extend(s.breakpoints());
     for (start, bc) in &model.surface.periods {
@@ -340,20 +358,25 @@ pub fn sync_times(model: &Model) -> Vec<f64> {
             add_schedule(s, &mut ts);
         }
     }
-    ts.extend(model.output.snapshot_times.iter().cloned());
-    ts.push(model.time.end);
-    let (a, b) = (model.time.start, model.time.end);
-    ts.retain(|t| t.is_finite() && *t > a && *t <= b);
-    ts.sort_by(|x, y| x.total_cmp(y));
-    ts.dedup_by(|x, y| (*x - *y).abs() <= 1e-9 * y.abs().max(1.0));
-    ts
+    clean_times(model, ts)
 }
 
 /// Step options from the case.
 pub fn step_options(model: &Model) -> StepOptions {
+    let t = &model.time;
     StepOptions {
         dt_min: model.time.dt_min,
         dt_max: model.time.dt_max,
+        integrator: match t.method {
+            crate::model::Method::BackwardEuler => crate::solve::stepper::Integrator::BackwardEuler,
+            crate::model::Method::Bdf { max_order } => crate::solve::stepper::Integrator::Bdf {
+                max_order,
+                rtol: t.rtol,
+                atol_t: t.atol_temperature,
+                atol_h: t.atol_head,
+                atol_rv: t.atol_vapor,
+            },
+        },
         newton: crate::solve::newton::NewtonOptions {
             max_iter: model.time.max_newton,
             ..Default::default()
@@ -606,6 +629,7 @@ pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
     }
 
     let ckpt_times = checkpoint_times(model);
+    let jumps = forcing_times(model);
     let mut syncs = sync_times(model);
     syncs.extend(ckpt_times.iter().cloned());
     syncs.sort_by(|a, b| a.total_cmp(b));
@@ -636,6 +660,9 @@ pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
             };
             r.since_series += 1;
             let landed = r.st.state.t == t_sync;
+            if landed && is_member(&jumps, t_sync) {
+                r.st.restart_history();
+            }
             let at_snapshot = landed && is_member(snaps, t_sync);
             if r.since_series >= model.output.series_every as u64
                 || at_snapshot

@@ -1,27 +1,50 @@
-//! Time stepping: backward Euler on the conserved quantities with adaptive Δt.
+//! Time stepping on the conserved quantities, with adaptive Δt.
 //!
-//! Each step solves `w (M(u) − M(u_old))/Δt + F_below − F_above = 0` by Newton. Δt grows
-//! after easy steps and is limited by the largest change of temperature and liquid
-//! content per step; a failed step is cut by 4 and retried; steps are clipped to land
-//! exactly on the stop time the caller gives (schedule breakpoints, outputs, the end).
-//! The cumulative boundary inflow is integrated with the same formula, so the balance
-//! `storage − initial storage − inflow` closes to the Newton tolerance.
+//! Two integrators share one step loop:
+//! - **Backward Euler** with heuristic control: Δt grows after easy steps and is limited
+//!   by the largest change of temperature and liquid content per step.
+//! - **Variable-step BDF** of orders 1..=max_order with local-error control: the
+//!   derivative of the storages M at t_{n+1} is the derivative of the Lagrange polynomial
+//!   through the last k+1 points, `dM/dt ≈ Σ_j ℓ_j'(t_{n+1}) M_{n+1−j}`; the local error is
+//!   estimated from the corrector–predictor difference, `LTE ≈ Δt/(t_{n+1} − t_{n−k}) ·
+//!   (u − u_pred)`, with the predictor extrapolating the last k+1 points; the step is
+//!   accepted when the weighted max norm with `rtol` and per-variable `atol` is ≤ 1.
+//!
+//! Every step solves `w (c·M(u) − hist) + F_below − F_above = 0` by Newton. A failed step
+//! is cut and retried; steps are clipped to land exactly on the stop time the caller
+//! gives. The cumulative boundary inflow W is integrated with the same formula as the
+//! storages, so `storage − initial storage − W` stays at the Newton tolerance whatever the
+//! order (the BDF weights sum to zero).
 
 use super::linear::LinearSolver;
 use super::newton::{self, NewtonFailure, NewtonOptions, NewtonWork};
-use crate::physics::{System, H, T};
+use crate::physics::{System, H, RV, T};
+
+/// Which integrator and its tolerances.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Integrator {
+    BackwardEuler,
+    Bdf {
+        max_order: usize,
+        rtol: f64,
+        atol_t: f64,
+        atol_h: f64,
+        atol_rv: f64,
+    },
+}
 
 /// Step-size control settings.
 #[derive(Debug, Clone)]
 pub struct StepOptions {
     pub dt_min: f64,
     pub dt_max: f64,
-    /// Target largest temperature change per step [K].
+    /// Backward Euler only: target largest temperature change per step [K].
     pub target_dt_change: f64,
-    /// Target largest liquid-content change per step [m³ m⁻³].
+    /// Backward Euler only: target largest liquid-content change per step [m³ m⁻³].
     pub target_theta_change: f64,
     /// Largest growth factor per step.
     pub max_growth: f64,
+    pub integrator: Integrator,
     pub newton: NewtonOptions,
 }
 
@@ -33,6 +56,7 @@ impl Default for StepOptions {
             target_dt_change: 0.5,
             target_theta_change: 0.02,
             max_growth: 2.0,
+            integrator: Integrator::BackwardEuler,
             newton: NewtonOptions::default(),
         }
     }
@@ -60,6 +84,16 @@ pub struct StepFailure {
 pub struct StepInfo {
     pub dt: f64,
     pub newton_iterations: usize,
+    pub order: usize,
+}
+
+/// An earlier accepted point kept for the multistep formula.
+#[derive(Debug, Clone, PartialEq)]
+pub struct HistoryPoint {
+    pub t: f64,
+    pub u: Vec<f64>,
+    pub inflow: [f64; 2],
+    pub throughput: [f64; 2],
 }
 
 /// The stepper's state: everything needed to continue a run exactly.
@@ -78,6 +112,11 @@ pub struct StepState {
     /// Column totals at the start: [energy J m⁻², water kg m⁻²].
     pub initial_totals: [f64; 2],
     pub counters: Counters,
+    /// Earlier accepted points, newest first (BDF only; at most max_order + 1).
+    pub history: Vec<HistoryPoint>,
+    /// Current BDF order and the number of steps taken at it.
+    pub order: usize,
+    pub steps_at_order: usize,
 }
 
 pub struct Stepper {
@@ -88,6 +127,41 @@ pub struct Stepper {
     u_old: Vec<f64>,
     m_old: Vec<f64>,
     hist: Vec<f64>,
+    pred: Vec<f64>,
+    /// Storages of the history points (recomputed from `history[k].u` when it changes).
+    m_hist: Vec<Vec<f64>>,
+}
+
+/// Derivative at τ[0] of the Lagrange basis polynomials through τ[0..=k].
+fn bdf_weights(tau: &[f64], out: &mut [f64]) {
+    let k = tau.len() - 1;
+    out[0] = (1..=k).map(|m| 1.0 / (tau[0] - tau[m])).sum();
+    for j in 1..=k {
+        let mut num = 1.0;
+        let mut den = 1.0;
+        for m in 0..=k {
+            if m != j {
+                den *= tau[j] - tau[m];
+                if m != 0 {
+                    num *= tau[0] - tau[m];
+                }
+            }
+        }
+        out[j] = num / den;
+    }
+}
+
+/// Lagrange basis values at `x` for the nodes `tau`.
+fn lagrange_values(tau: &[f64], x: f64, out: &mut [f64]) {
+    for j in 0..tau.len() {
+        let mut v = 1.0;
+        for m in 0..tau.len() {
+            if m != j {
+                v *= (x - tau[m]) / (tau[j] - tau[m]);
+            }
+        }
+        out[j] = v;
+    }
 }
 
 impl Stepper {
@@ -100,7 +174,7 @@ impl Stepper {
     ) -> Self {
         let n = sys.n;
         sys.evaluate(state.t, &state.u);
-        Stepper {
+        let mut s = Stepper {
             state,
             opts,
             lin,
@@ -108,7 +182,11 @@ impl Stepper {
             u_old: vec![0.0; 3 * n],
             m_old: vec![0.0; 3 * n],
             hist: vec![0.0; 3 * n],
-        }
+            pred: vec![0.0; 3 * n],
+            m_hist: Vec::new(),
+        };
+        s.refresh_history_storage(sys);
+        s
     }
 
     /// Fresh state at time `t` from unknowns `u`.
@@ -122,7 +200,30 @@ impl Stepper {
             inflow: [0.0; 2],
             throughput: [0.0; 2],
             counters: Counters::default(),
+            history: Vec::new(),
+            order: 1,
+            steps_at_order: 0,
         }
+    }
+
+    fn refresh_history_storage(&mut self, sys: &mut System) {
+        let n = sys.n;
+        self.m_hist
+            .resize(self.state.history.len(), vec![0.0; 3 * n]);
+        for (k, hp) in self.state.history.iter().enumerate() {
+            sys.evaluate(hp.t, &hp.u);
+            sys.storage_into(&mut self.m_hist[k]);
+        }
+        sys.evaluate(self.state.t, &self.state.u);
+    }
+
+    /// Forgets the multistep history (after a discontinuity in the forcing): the next
+    /// step is of order 1.
+    pub fn restart_history(&mut self) {
+        self.state.history.clear();
+        self.m_hist.clear();
+        self.state.order = 1;
+        self.state.steps_at_order = 0;
     }
 
     /// Balance errors: [energy J m⁻², water kg m⁻²] = storage change − net inflow, and the
@@ -147,12 +248,26 @@ impl Stepper {
     /// Takes one accepted step that does not pass `t_stop` (retrying with smaller Δt).
     pub fn step(&mut self, sys: &mut System, t_stop: f64) -> Result<StepInfo, StepFailure> {
         let n = sys.n;
-        let s = &mut self.state;
-        self.u_old.copy_from_slice(&s.u);
-        sys.evaluate(s.t, &self.u_old);
+        self.u_old.copy_from_slice(&self.state.u);
+        sys.evaluate(self.state.t, &self.u_old);
         sys.storage_into(&mut self.m_old);
-        let mut dt_try = s.dt.min(self.opts.dt_max);
+        let bdf = match self.opts.integrator {
+            Integrator::Bdf {
+                max_order,
+                rtol,
+                atol_t,
+                atol_h,
+                atol_rv,
+            } => Some((max_order.clamp(1, 5), rtol, atol_t, atol_h, atol_rv)),
+            Integrator::BackwardEuler => None,
+        };
+        let mut dt_try = self.state.dt.min(self.opts.dt_max);
+        let mut error_failures = 0usize;
+        let mut tau = [0.0f64; 7];
+        let mut alpha = [0.0f64; 7];
+        let mut lag = [0.0f64; 7];
         loop {
+            let s = &mut self.state;
             let remaining = t_stop - s.t;
             let landing = dt_try >= remaining * (1.0 - 1e-12);
             let dt = if landing {
@@ -162,14 +277,54 @@ impl Stepper {
             } else {
                 dt_try
             };
-            let c = 1.0 / dt;
             let t_new = if landing { t_stop } else { s.t + dt };
-            // hist = M_old/Δt
-            for (h, m) in self.hist.iter_mut().zip(self.m_old.iter()) {
-                *h = m * c;
+            // Order of this step: limited by the history available.
+            let k = match bdf {
+                Some(_) => s.order.min(s.history.len() + 1).max(1),
+                None => 1,
+            };
+            // Nodes τ0 = t_new, τ1 = t, τ2.. = history.
+            tau[0] = t_new;
+            tau[1] = s.t;
+            for j in 2..=k {
+                tau[j] = s.history[j - 2].t;
             }
-            s.u.copy_from_slice(&self.u_old);
-            match newton::solve(
+            bdf_weights(&tau[..=k], &mut alpha);
+            let c = alpha[0];
+            for i in 0..3 * n {
+                let mut hsum = alpha[1] * self.m_old[i];
+                for j in 2..=k {
+                    hsum += alpha[j] * self.m_hist[j - 2][i];
+                }
+                self.hist[i] = -hsum;
+            }
+            // Predictor: extrapolation through the last k+1 points (as many as exist).
+            let np = (k + 1).min(s.history.len() + 1);
+            let mut ptau = [0.0f64; 7];
+            ptau[0] = s.t;
+            for j in 1..np {
+                ptau[j] = s.history[j - 1].t;
+            }
+            lagrange_values(&ptau[..np], t_new, &mut lag);
+            for i in 0..3 * n {
+                let mut v = lag[0] * self.u_old[i];
+                for j in 1..np {
+                    v += lag[j] * s.history[j - 1].u[i];
+                }
+                self.pred[i] = v;
+            }
+            if bdf.is_some() {
+                // Keep the guess physical: vapour density positive.
+                for i in 0..n {
+                    if self.pred[3 * i + RV].is_nan() || self.pred[3 * i + RV] <= 0.0 {
+                        self.pred[3 * i + RV] = self.u_old[3 * i + RV];
+                    }
+                }
+                s.u.copy_from_slice(&self.pred);
+            } else {
+                s.u.copy_from_slice(&self.u_old);
+            }
+            let result = newton::solve(
                 sys,
                 self.lin.as_mut(),
                 t_new,
@@ -178,51 +333,9 @@ impl Stepper {
                 &mut s.u,
                 &self.opts.newton,
                 &mut self.work,
-            ) {
-                Ok(stats) => {
-                    s.counters.newton_iterations += stats.iterations as u64;
-                    s.counters.factorizations += stats.factorizations as u64;
-                    s.counters.steps += 1;
-                    // sys holds the evaluation at the new state.
-                    let top = &sys.faces[0];
-                    let bot = &sys.faces[n];
-                    let (fe_t, fw_t) = (top.energy().v, top.water().v);
-                    let (fe_b, fw_b) = (bot.energy().v, bot.water().v);
-                    s.inflow[0] += dt * (fe_t - fe_b);
-                    s.inflow[1] += dt * (fw_t - fw_b);
-                    s.throughput[0] += dt * (fe_t.abs() + fe_b.abs());
-                    s.throughput[1] += dt * (fw_t.abs() + fw_b.abs());
-                    // Next step from the iteration count and the largest changes.
-                    let mut max_dt = 0.0f64;
-                    let mut max_dth = 0.0f64;
-                    for i in 0..n {
-                        max_dt = max_dt.max((s.u[3 * i + T] - self.u_old[3 * i + T]).abs());
-                        let soil = sys.soil_of(i);
-                        let th_new = soil.retention.theta(s.u[3 * i + H]).0;
-                        let th_old = soil.retention.theta(self.u_old[3 * i + H]).0;
-                        max_dth = max_dth.max((th_new - th_old).abs());
-                    }
-                    let mut f = match stats.iterations {
-                        0..=4 => self.opts.max_growth,
-                        5..=7 => 1.2,
-                        _ => 0.7,
-                    };
-                    if max_dt > 0.0 {
-                        f = f.min(0.9 * self.opts.target_dt_change / max_dt);
-                    }
-                    if max_dth > 0.0 {
-                        f = f.min(0.9 * self.opts.target_theta_change / max_dth);
-                    }
-                    let f = f.max(0.2);
-                    // A step clipped to land keeps the proposal it was clipped from.
-                    let base = if dt < dt_try { dt_try } else { dt };
-                    s.dt = (base * f).clamp(self.opts.dt_min, self.opts.dt_max);
-                    s.t = t_new;
-                    return Ok(StepInfo {
-                        dt,
-                        newton_iterations: stats.iterations,
-                    });
-                }
+            );
+            let stats = match result {
+                Ok(stats) => stats,
                 Err(failure) => {
                     s.counters.rejected += 1;
                     if dt <= self.opts.dt_min * (1.0 + 1e-9) {
@@ -235,12 +348,171 @@ impl Stepper {
                         });
                     }
                     dt_try = (0.25 * dt).max(self.opts.dt_min);
+                    if bdf.is_some() {
+                        s.order = 1;
+                        s.steps_at_order = 0;
+                    }
                     log::debug!(
                         "step of {dt:.3e} s at t = {:.6e} s rejected: {failure:?}",
                         s.t
                     );
+                    continue;
                 }
+            };
+            s.counters.newton_iterations += stats.iterations as u64;
+            s.counters.factorizations += stats.factorizations as u64;
+            // Local error test (BDF).
+            let mut factor;
+            if let Some((max_order, rtol, atol_t, atol_h, atol_rv)) = bdf {
+                let have_pred = s.history.len() + 1 > k; // k+1 points were available
+                let mut err = 0.0f64;
+                if have_pred {
+                    let scale = dt / (t_new - ptau[np - 1]);
+                    for i in 0..n {
+                        let e = |kk: usize, atol: f64| -> f64 {
+                            let y = s.u[3 * i + kk];
+                            (scale * (y - self.pred[3 * i + kk])).abs()
+                                / (atol + rtol * y.abs().max(self.u_old[3 * i + kk].abs()))
+                        };
+                        err = err.max(e(T, atol_t)).max(e(H, atol_h)).max(e(RV, atol_rv));
+                    }
+                } else {
+                    // The first step after a restart has no error estimate: keep it small
+                    // by the change heuristics below and let the next steps judge.
+                    err = 0.0;
+                }
+                if err > 1.0 && dt > self.opts.dt_min * (1.0 + 1e-9) {
+                    s.counters.rejected += 1;
+                    error_failures += 1;
+                    let f = (0.9 * err.powf(-1.0 / (k as f64 + 1.0))).clamp(0.1, 0.9);
+                    dt_try = (dt * if error_failures >= 2 { f.min(0.25) } else { f })
+                        .max(self.opts.dt_min);
+                    if error_failures >= 2 {
+                        s.order = 1;
+                        s.steps_at_order = 0;
+                    }
+                    continue;
+                }
+                factor = if err > 0.0 {
+                    0.9 * err.powf(-1.0 / (k as f64 + 1.0))
+                } else if have_pred {
+                    self.opts.max_growth
+                } else {
+                    1.0
+                };
+                if !have_pred {
+                    factor = factor.min(change_factor(
+                        sys,
+                        &s.u,
+                        &self.u_old,
+                        &self.opts,
+                        stats.iterations,
+                    ));
+                }
+                // Order control: raise after k+1 steps at this order when the error is small.
+                let mut next_order = s.order.max(k);
+                if s.steps_at_order + 1 > k && k < max_order && err < 0.5 && have_pred {
+                    next_order = k + 1;
+                }
+                if next_order != s.order {
+                    s.order = next_order;
+                    s.steps_at_order = 0;
+                } else {
+                    s.steps_at_order += 1;
+                }
+                // Newton trouble also limits growth.
+                if stats.iterations > 6 {
+                    factor = factor.min(0.8);
+                }
+            } else {
+                factor = change_factor(sys, &s.u, &self.u_old, &self.opts, stats.iterations);
             }
+            let factor = factor.clamp(0.2, self.opts.max_growth.max(1.0));
+            s.counters.steps += 1;
+            // Cumulative inflow by the same formula as the storages:
+            // α0 W_new + α1 W_old + Σ αj W_j = F_in(new).
+            let top = &sys.faces[0];
+            let bot = &sys.faces[n];
+            let fin = [
+                top.energy().v - bot.energy().v,
+                top.water().v - bot.water().v,
+            ];
+            let fabs = [
+                top.energy().v.abs() + bot.energy().v.abs(),
+                top.water().v.abs() + bot.water().v.abs(),
+            ];
+            let mut new_inflow = [0.0; 2];
+            let mut new_throughput = [0.0; 2];
+            for q in 0..2 {
+                let mut a = alpha[1] * s.inflow[q];
+                let mut b = alpha[1] * s.throughput[q];
+                for j in 2..=k {
+                    a += alpha[j] * s.history[j - 2].inflow[q];
+                    b += alpha[j] * s.history[j - 2].throughput[q];
+                }
+                new_inflow[q] = (fin[q] - a) / c;
+                new_throughput[q] = (fabs[q] - b) / c;
+            }
+            if bdf.is_some() {
+                // Shift the history: the old current point becomes the newest history point.
+                let keep = match bdf {
+                    Some((max_order, ..)) => max_order + 1,
+                    None => 0,
+                };
+                let point = HistoryPoint {
+                    t: s.t,
+                    u: self.u_old.clone(),
+                    inflow: s.inflow,
+                    throughput: s.throughput,
+                };
+                s.history.insert(0, point);
+                self.m_hist.insert(0, self.m_old.clone());
+                s.history.truncate(keep);
+                self.m_hist.truncate(keep);
+            }
+            s.inflow = new_inflow;
+            s.throughput = new_throughput;
+            let base = if dt < dt_try { dt_try } else { dt };
+            s.dt = (base * factor).clamp(self.opts.dt_min, self.opts.dt_max);
+            s.t = t_new;
+            // sys holds the evaluation at the new state (Newton's last assembly).
+            return Ok(StepInfo {
+                dt,
+                newton_iterations: stats.iterations,
+                order: k,
+            });
         }
     }
+}
+
+/// Growth factor of the backward-Euler heuristics: from the Newton iteration count and the
+/// largest changes of temperature and liquid content over the step.
+fn change_factor(
+    sys: &System,
+    u: &[f64],
+    u_old: &[f64],
+    opts: &StepOptions,
+    iterations: usize,
+) -> f64 {
+    let mut max_dt = 0.0f64;
+    let mut max_dth = 0.0f64;
+    for i in 0..sys.n {
+        max_dt = max_dt.max((u[3 * i + T] - u_old[3 * i + T]).abs());
+        let soil = sys.soil_of(i);
+        let th_new = soil.retention.theta(u[3 * i + H]).0;
+        let th_old = soil.retention.theta(u_old[3 * i + H]).0;
+        max_dth = max_dth.max((th_new - th_old).abs());
+    }
+    let mut f = match iterations {
+        0..=4 => opts.max_growth,
+        5..=7 => 1.2,
+        _ => 0.7,
+    };
+    if max_dt > 0.0 {
+        f = f.min(0.9 * opts.target_dt_change / max_dt);
+    }
+    if max_dth > 0.0 {
+        f = f.min(0.9 * opts.target_theta_change / max_dth);
+    }
+    f.max(0.2)
 }

@@ -4,6 +4,7 @@
 
 pub mod conductivity;
 pub mod constants;
+mod jet;
 pub mod retention;
 pub mod table;
 pub mod thermal;

@@ -1,11 +1,29 @@
 //! Retention laws θ(h) and their matching relative conductivity Kr(h) (Mualem 1976).
-//! STUB: types fixed; implementations to be written.
+//!
+//! Heads h in metres, negative when unsaturated. For h ≥ 0 every law is saturated:
+//! θ = θs, Kr = 1, both derivatives 0.
+//!
+//! Numerics: the laws are evaluated through ln Se and ln Kr, so that heads down to −10⁷ m
+//! (and beyond) give finite values and derivatives: Kr may be 10⁻⁴⁰ or smaller (it
+//! underflows gracefully to 0, never to NaN), dKr/dh and dθ/dh stay finite. No allocation.
+//!
+//! Valid parameter ranges (checked by the case loader, not here): 0 ≤ θr < θs ≤ 1,
+//! α > 0, n > 1 (van Genuchten), air-entry head > 0 and λ > 0 (Brooks–Corey),
+//! oven-dry head < −0.01 m (Fayer–Simmons).
+
+/// Oven-dry head used when no dry-end extension is set (tables, plots) [m]
+/// (≈ 10⁷ cm of suction, common practice).
+pub const OVEN_DRY_HEAD: f64 = -1.0e5;
 
 /// The base retention law. Heads in metres (negative when unsaturated).
 #[derive(Debug, Clone, PartialEq)]
 pub enum RetentionLaw {
     /// van Genuchten (1980) with m = 1 − 1/n; Mualem (1976) conductivity with pore
     /// connectivity `l` (0.5 in the original).
+    ///
+    /// Se = [1 + (α|h|)ⁿ]^(−m), θ = θr + (θs − θr) Se,
+    /// Kr = Se^l [1 − (1 − Se^(1/m))^m]² (van Genuchten 1980, Eq. 8 with Mualem's l).
+    /// `alpha` in m⁻¹.
     VanGenuchten {
         theta_r: f64,
         theta_s: f64,
@@ -15,6 +33,9 @@ pub enum RetentionLaw {
     },
     /// Brooks & Corey (1964): Se = (h/hb)^(−λ) below the air-entry head; Mualem conductivity.
     /// `air_entry` is the magnitude |hb| [m].
+    ///
+    /// Se = 1 for |h| ≤ |hb|; Mualem's integral gives Kr = Se^(l + 2 + 2/λ).
+    /// θ and Kr have a kink at h = −|hb| (inherent to the law).
     BrooksCorey {
         theta_r: f64,
         theta_s: f64,
@@ -22,7 +43,8 @@ pub enum RetentionLaw {
         lambda: f64,
         l: f64,
     },
-    /// Exponential (Gardner 1958 type): θ = θr + (θs − θr) e^(αh), Kr = e^(αh).
+    /// Exponential (Gardner 1958 type): θ = θr + (θs − θr) e^(αh), Kr = e^(αh) for h < 0.
+    /// `alpha` in m⁻¹.
     Exponential {
         theta_r: f64,
         theta_s: f64,
@@ -35,6 +57,25 @@ pub enum RetentionLaw {
 pub enum DryEnd {
     /// Fayer & Simmons (1995): θr is replaced by an adsorbed-water term that vanishes at
     /// the oven-dry head `oven_dry_head` [m, negative].
+    ///
+    /// θ(h) = χ(h) θr + [θs − χ(h) θr] Se(h), with Se(h) the base law's effective saturation
+    /// and θr the base law's residual content (now read as the adsorption parameter θa).
+    ///
+    /// **Units of the log term.** The published form writes χ = 1 − ln ψ / ln ψm with the
+    /// suctions ψ, ψm in **cm** (form as recalled from Fayer & Simmons 1995, from memory), so
+    /// that χ = 1 at ψ = 1 cm. The ratio of logarithms depends on the unit, so we keep the
+    /// centimetre convention exactly:
+    /// χ(h) = 1 − ln(100·|h|) / ln(100·|h_od|),  h and h_od in metres.
+    /// χ falls from 1 at |h| = 0.01 m to 0 at the oven-dry head; for |h| < 0.01 m it exceeds 1
+    /// (the form is smooth there and θ stays ≤ θs because 1 − Se → 0); it is capped at θs/θr
+    /// so that θ ≤ θs for any head. Beyond the oven-dry head χ = 0 and θ = θs·Se(h), so
+    /// θ(h_od) = θs·Se(h_od), practically 0 (≈ 3·10⁻⁴ for a loam with h_od = −10⁵ m); the slope
+    /// of θ has a small kink at h_od.
+    ///
+    /// **Conductivity.** Fayer & Simmons give no closed-form Kr for the extended curve. Here
+    /// the adsorbed film χθr(1 − Se) is taken as immobile: Kr(h) is the base law's Mualem
+    /// Kr(Se(h)), unchanged by the extension (our choice, documented; film flow is not
+    /// modelled).
     FayerSimmons { oven_dry_head: f64 },
 }
 
@@ -44,24 +85,273 @@ pub struct Retention {
     pub dry_end: Option<DryEnd>,
 }
 
+/// ln(1 + eᵗ) without overflow.
+fn softplus(t: f64) -> f64 {
+    if t > 0.0 {
+        t + (-t).exp().ln_1p()
+    } else {
+        t.exp().ln_1p()
+    }
+}
+
+/// ln(1 − eᵃ) for a ≤ 0 (accurate near 0 and for very negative a).
+fn ln_one_minus_exp(a: f64) -> f64 {
+    if a > -std::f64::consts::LN_2 {
+        (-a.exp_m1()).ln()
+    } else {
+        (-a.exp()).ln_1p()
+    }
+}
+
+/// Base-law quantities at a head h < 0.
+#[derive(Debug, Clone, Copy)]
+struct Base {
+    /// ln Se and d ln Se/dh [m⁻¹].
+    ln_se: f64,
+    dln_se: f64,
+    /// ln Kr and d ln Kr/dh [m⁻¹].
+    ln_kr: f64,
+    dln_kr: f64,
+}
+
+impl RetentionLaw {
+    fn theta_r(&self) -> f64 {
+        match *self {
+            RetentionLaw::VanGenuchten { theta_r, .. }
+            | RetentionLaw::BrooksCorey { theta_r, .. }
+            | RetentionLaw::Exponential { theta_r, .. } => theta_r,
+        }
+    }
+    fn theta_s(&self) -> f64 {
+        match *self {
+            RetentionLaw::VanGenuchten { theta_s, .. }
+            | RetentionLaw::BrooksCorey { theta_s, .. }
+            | RetentionLaw::Exponential { theta_s, .. } => theta_s,
+        }
+    }
+
+    /// ln Se, ln Kr and their h-derivatives for h < 0.
+    fn base(&self, h: f64) -> Base {
+        match *self {
+            RetentionLaw::VanGenuchten { alpha, n, l, .. } => {
+                let m = 1.0 - 1.0 / n;
+                let lx = (-alpha * h).ln(); // ln x, x = α|h|
+                let t = n * lx; // ln xⁿ
+                let sp = softplus(t); // ln(1 + xⁿ)
+                let ln_se = -m * sp;
+                // d ln Se/dh = α m n w/x, w = xⁿ/(1 + xⁿ): w/x = exp((n − 1) ln x − sp)
+                let dln_se = alpha * m * n * ((n - 1.0) * lx - sp).exp();
+                // Mualem: 1 − Se^(1/m) = w, Kr = Se^l (1 − w^m)².
+                // ln w = −softplus(−t), ln(1 − w) = −softplus(t).
+                let (ln_1mwm, dterm) = if t > 30.0 {
+                    // w^m = exp(−m ln(1 + x⁻ⁿ)) ⇒ 1 − w^m = m x⁻ⁿ (1 + O(x⁻ⁿ)).
+                    // d/dh ln(1 − w^m) → α n / x (relative error O(x⁻ⁿ) < 1e-13).
+                    (m.ln() - t, alpha * n * (-lx).exp())
+                } else {
+                    let ln_w = -softplus(-t);
+                    let l1 = ln_one_minus_exp(m * ln_w);
+                    // d/dh ln(1 − w^m) = α m n w^m (1 − w) / (x (1 − w^m))
+                    let d = alpha * m * n * (m * ln_w - sp - lx - l1).exp();
+                    (l1, d)
+                };
+                Base {
+                    ln_se,
+                    dln_se,
+                    ln_kr: l * ln_se + 2.0 * ln_1mwm,
+                    dln_kr: l * dln_se + 2.0 * dterm,
+                }
+            }
+            RetentionLaw::BrooksCorey {
+                air_entry,
+                lambda,
+                l,
+                ..
+            } => {
+                if -h <= air_entry {
+                    Base {
+                        ln_se: 0.0,
+                        dln_se: 0.0,
+                        ln_kr: 0.0,
+                        dln_kr: 0.0,
+                    }
+                } else {
+                    let ln_se = -lambda * (-h / air_entry).ln();
+                    let dln_se = -lambda / h;
+                    let p = l + 2.0 + 2.0 / lambda;
+                    Base {
+                        ln_se,
+                        dln_se,
+                        ln_kr: p * ln_se,
+                        dln_kr: p * dln_se,
+                    }
+                }
+            }
+            RetentionLaw::Exponential { alpha, .. } => Base {
+                ln_se: alpha * h,
+                dln_se: alpha,
+                ln_kr: alpha * h,
+                dln_kr: alpha,
+            },
+        }
+    }
+
+    /// Closed-form inverse of the base law: head at effective saturation 0 < Se < 1.
+    fn head_from_se(&self, se: f64) -> f64 {
+        match *self {
+            RetentionLaw::VanGenuchten { alpha, n, .. } => {
+                let m = 1.0 - 1.0 / n;
+                // (α|h|)ⁿ = Se^(−1/m) − 1
+                let xn = (-se.ln() / m).exp_m1();
+                -xn.powf(1.0 / n) / alpha
+            }
+            RetentionLaw::BrooksCorey {
+                air_entry, lambda, ..
+            } => -air_entry * se.powf(-1.0 / lambda),
+            RetentionLaw::Exponential { alpha, .. } => se.ln() / alpha,
+        }
+    }
+}
+
+impl DryEnd {
+    fn oven_dry_head(&self) -> f64 {
+        match *self {
+            DryEnd::FayerSimmons { oven_dry_head } => oven_dry_head,
+        }
+    }
+}
+
 impl Retention {
     /// Saturated liquid content θs = porosity used by the balance laws [m³ m⁻³].
     pub fn theta_s(&self) -> f64 {
-        todo!()
+        self.law.theta_s()
     }
+
+    /// Residual content θr of the base law (the adsorption parameter θa when the
+    /// Fayer–Simmons extension is set) [m³ m⁻³].
+    pub fn theta_r(&self) -> f64 {
+        self.law.theta_r()
+    }
+
+    /// The head at which the curve is taken as oven dry [m]: the dry-end head when an
+    /// extension is set, otherwise [`OVEN_DRY_HEAD`].
+    pub fn oven_dry_head(&self) -> f64 {
+        self.dry_end
+            .as_ref()
+            .map_or(OVEN_DRY_HEAD, DryEnd::oven_dry_head)
+    }
+
+    /// Effective saturation of the base law Se(h) [-] and dSe/dh [m⁻¹] (1 and 0 for h ≥ 0).
+    pub fn effective_saturation(&self, h: f64) -> (f64, f64) {
+        if h >= 0.0 || h.is_nan() {
+            return (1.0, 0.0);
+        }
+        let b = self.law.base(h);
+        let se = b.ln_se.exp();
+        (se, se * b.dln_se)
+    }
+
     /// Liquid content θ(h) [m³ m⁻³] and dθ/dh [m⁻¹].
     pub fn theta(&self, h: f64) -> (f64, f64) {
-        let _ = h;
-        todo!()
+        let ts = self.law.theta_s();
+        if h >= 0.0 || h.is_nan() {
+            return (ts, 0.0);
+        }
+        let tr = self.law.theta_r();
+        let b = self.law.base(h);
+        let se = b.ln_se.exp();
+        let dse = se * b.dln_se;
+        match &self.dry_end {
+            None => (tr + (ts - tr) * se, (ts - tr) * dse),
+            Some(de) => {
+                let hod = de.oven_dry_head();
+                let one_m_se = -b.ln_se.exp_m1();
+                let (chi, dchi) = if h <= hod {
+                    (0.0, 0.0)
+                } else {
+                    let big_l = (-100.0 * hod).ln();
+                    let chi = 1.0 - (-100.0 * h).ln() / big_l;
+                    let cap = if tr > 0.0 { ts / tr } else { f64::INFINITY };
+                    if chi >= cap {
+                        (cap, 0.0)
+                    } else {
+                        (chi, -1.0 / (h * big_l))
+                    }
+                };
+                // θ = θs Se + χ θr (1 − Se)
+                let theta = ts * se + chi * tr * one_m_se;
+                let dtheta = (ts - chi * tr) * dse + tr * dchi * one_m_se;
+                (theta, dtheta)
+            }
+        }
     }
+
     /// Relative conductivity Kr(h) [-] and dKr/dh [m⁻¹].
+    ///
+    /// With the Fayer–Simmons extension Kr is the base law's (see [`DryEnd::FayerSimmons`]).
     pub fn relative_conductivity(&self, h: f64) -> (f64, f64) {
-        let _ = h;
-        todo!()
+        if h >= 0.0 || h.is_nan() {
+            return (1.0, 0.0);
+        }
+        let b = self.law.base(h);
+        let kr = b.ln_kr.exp();
+        (kr, kr * b.dln_kr)
     }
+
     /// Head [m] at which θ(h) = `theta`; `None` when `theta` is outside the curve's range.
+    ///
+    /// θ = θs gives 0. The range is (θr, θs] for the base laws and (0, θs] with the
+    /// Fayer–Simmons extension (solved by bisection in ln|h|, to ~1e-13 relative).
     pub fn head_from_theta(&self, theta: f64) -> Option<f64> {
-        let _ = theta;
-        todo!()
+        let ts = self.law.theta_s();
+        if !theta.is_finite() || theta > ts {
+            return None;
+        }
+        if theta == ts {
+            return Some(0.0);
+        }
+        let tr = self.law.theta_r();
+        let h = match &self.dry_end {
+            None => {
+                if theta <= tr {
+                    return None;
+                }
+                self.law.head_from_se((theta - tr) / (ts - tr))
+            }
+            Some(de) => {
+                if theta <= 0.0 {
+                    return None;
+                }
+                let hod = de.oven_dry_head();
+                let (theta_od, _) = self.theta(hod);
+                if theta <= theta_od {
+                    // Beyond the oven-dry head θ = θs Se(h).
+                    self.law.head_from_se(theta / ts)
+                } else {
+                    // θ decreases monotonically with y = ln|h| on (−∞, ln|h_od|].
+                    let mut hi = (-hod).ln();
+                    let mut lo = hi - 10.0;
+                    while self.theta(-lo.exp()).0 <= theta && lo > -700.0 {
+                        lo -= 10.0;
+                    }
+                    for _ in 0..200 {
+                        let mid = 0.5 * (lo + hi);
+                        if mid <= lo || mid >= hi {
+                            break;
+                        }
+                        if self.theta(-mid.exp()).0 > theta {
+                            lo = mid;
+                        } else {
+                            hi = mid;
+                        }
+                    }
+                    -(0.5 * (lo + hi)).exp()
+                }
+            }
+        };
+        if h.is_finite() && h <= 0.0 {
+            Some(h)
+        } else {
+            None
+        }
     }
 }

@@ -1,0 +1,229 @@
+//! `deepdry table water` / `deepdry table soil` output: headers, row counts, values and the
+//! one-line error messages for bad options.
+
+use deepdry::error::Error;
+use deepdry::mesh::Mesh;
+use deepdry::model::{
+    BottomBc, BottomHeat, BottomWater, CheckpointControl, InitialState, Layer, Method, Model,
+    OutputControl, Periods, Physics, Soil, SurfaceBc, SurfaceHeat, SurfaceWater, TimeControl,
+    VaporMode,
+};
+use deepdry::props::conductivity::FaceAveraging;
+use deepdry::props::retention::{DryEnd, Retention, RetentionLaw};
+use deepdry::props::table::{soil_csv, water_csv, SOIL_HEADER, WATER_HEADER};
+use deepdry::props::thermal::ThermalConductivity;
+use deepdry::props::vapor::{Diffusivity, Enhancement};
+use deepdry::props::water;
+use deepdry::schedule::Schedule;
+
+#[test]
+fn water_csv_header_and_rows() {
+    let csv = water_csv(0.0, 100.0, 5.0).unwrap();
+    let lines: Vec<&str> = csv.lines().collect();
+    assert_eq!(
+        lines[0],
+        "temperature_C,saturation_pressure_Pa,saturated_vapor_density_kg_m3,latent_heat_J_kg,liquid_density_kg_m3,viscosity_Pa_s,surface_tension_N_m,vapor_diffusivity_m2_s"
+    );
+    assert_eq!(lines[0], WATER_HEADER);
+    assert_eq!(lines.len(), 1 + 21, "0, 5, ..., 100 °C");
+    assert!(lines[1].starts_with("0,"));
+    assert!(lines[21].starts_with("100,"));
+    // The 20 °C row carries the library's values.
+    let row: Vec<f64> = lines[5].split(',').map(|s| s.parse().unwrap()).collect();
+    assert_eq!(row.len(), 8);
+    assert_eq!(row[0], 20.0);
+    let t = 293.15;
+    let expect = [
+        water::saturation_pressure(t).0,
+        water::saturated_vapor_density(t).0,
+        water::latent_heat(t),
+        water::liquid_density(t).0,
+        water::viscosity(t).0,
+        water::surface_tension(t).0,
+        Diffusivity::default().value(t, 101_325.0).0,
+    ];
+    for (got, want) in row[1..].iter().zip(expect) {
+        assert!(((got - want) / want).abs() < 1e-7, "{got} vs {want}");
+    }
+    // Fractional steps print cleanly and a single temperature gives one row.
+    let csv = water_csv(10.0, 10.3, 0.1).unwrap();
+    let temps: Vec<&str> = csv
+        .lines()
+        .skip(1)
+        .map(|l| l.split(',').next().unwrap())
+        .collect();
+    assert_eq!(temps, ["10", "10.1", "10.2", "10.3"]);
+    assert_eq!(water_csv(25.0, 25.0, 1.0).unwrap().lines().count(), 2);
+}
+
+fn input_message(r: deepdry::error::Result<String>) -> String {
+    match r {
+        Err(Error::Input(m)) => m,
+        other => panic!("expected an input error, got {other:?}"),
+    }
+}
+
+#[test]
+fn water_csv_rejects_bad_ranges_with_one_line_messages() {
+    let cases = [
+        (water_csv(0.0, 100.0, 0.0), "--step", "0"),
+        (water_csv(0.0, 100.0, -5.0), "--step", "-5"),
+        (water_csv(60.0, 40.0, 5.0), "--from", "60"),
+        (water_csv(-10.0, 40.0, 5.0), "--from", "-10"),
+        (water_csv(0.0, 150.0, 5.0), "--to", "150"),
+        (water_csv(f64::NAN, 40.0, 5.0), "--from", "NaN"),
+        (water_csv(0.0, 100.0, 1e-9), "--step", "0.000000001"),
+    ];
+    for (r, option, value) in cases {
+        let m = input_message(r);
+        assert!(!m.contains('\n'), "one line: {m}");
+        assert!(
+            m.starts_with(&format!("{option}: {value}:")),
+            "names option and value: {m}"
+        );
+    }
+    let m = input_message(water_csv(-10.0, 40.0, 5.0));
+    assert!(m.contains("0–110 °C"), "says what is allowed: {m}");
+    let m = input_message(water_csv(0.0, 100.0, 0.0));
+    assert!(m.contains("greater than 0"), "{m}");
+    let m = input_message(water_csv(60.0, 40.0, 5.0));
+    assert!(m.contains("--to (40)"), "{m}");
+}
+
+fn soil(name: &str, dry_end: Option<DryEnd>) -> Soil {
+    Soil {
+        name: name.to_string(),
+        retention: Retention {
+            law: RetentionLaw::VanGenuchten {
+                theta_r: 0.078,
+                theta_s: 0.43,
+                alpha: 3.6,
+                n: 1.56,
+                l: 0.5,
+            },
+            dry_end,
+        },
+        saturated_conductivity: 2.889e-6,
+        thermal: ThermalConductivity::campbell_1985(1.5, 0.1),
+        solid_heat_capacity: 2.0e6,
+        enhancement: Enhancement::Cass { clay_fraction: 0.1 },
+    }
+}
+
+fn model() -> Model {
+    let mesh = Mesh::from_faces(vec![0.0, 1.0, 2.0]);
+    let layer = |name: &str, soil, top, bottom| Layer {
+        name: name.to_string(),
+        soil,
+        top,
+        bottom,
+    };
+    Model {
+        title: "table test".into(),
+        case_text: String::new(),
+        mesh,
+        soils: vec![
+            soil("loam", None),
+            soil(
+                "dry loam",
+                Some(DryEnd::FayerSimmons {
+                    oven_dry_head: -1.0e4,
+                }),
+            ),
+        ],
+        layers: vec![layer("top", 0, 0.0, 1.0), layer("deep", 1, 1.0, 2.0)],
+        cell_soil: vec![0, 1],
+        physics: Physics {
+            vapor_mode: VaporMode::Equilibrium,
+            diffusivity: Diffusivity::default(),
+            air_pressure: 101_325.0,
+            thermal_liquid_gain: None,
+            viscosity_correction: true,
+            reference_temperature: 293.15,
+            face_conductivity: FaceAveraging::Arithmetic,
+        },
+        surface: Periods::single(SurfaceBc {
+            heat: SurfaceHeat::Temperature(Schedule::Constant(293.15)),
+            water: SurfaceWater::NoFlow,
+        }),
+        bottom: Periods::single(BottomBc {
+            heat: BottomHeat::Temperature(Schedule::Constant(293.15)),
+            water: BottomWater::NoFlow,
+        }),
+        initial: InitialState::Hydrostatic {
+            surface_temperature: 293.15,
+            gradient: 0.0,
+        },
+        time: TimeControl {
+            start: 0.0,
+            end: 1.0,
+            dt_initial: 1.0,
+            dt_min: 1.0,
+            dt_max: 1.0,
+            method: Method::BackwardEuler,
+            rtol: 1e-6,
+            atol_temperature: 1e-6,
+            atol_head: 1e-6,
+            atol_vapor: 1e-9,
+            max_newton: 10,
+        },
+        output: OutputControl {
+            folder: std::path::PathBuf::from("."),
+            snapshot_times: vec![1.0],
+            series_every: 1,
+        },
+        checkpoint: CheckpointControl {
+            every: None,
+            wall_every: None,
+            keep: 1,
+        },
+    }
+}
+
+/// −0.01 m to −1e5 m is 7 decades: 70 intervals, 71 rows; with a Fayer–Simmons oven-dry
+/// head of −1e4 m, 6 decades, 61 rows. Values are the library's at each head.
+#[test]
+fn soil_csv_rows_and_values() {
+    let m = model();
+    let csv = soil_csv(&m, "top").unwrap();
+    let lines: Vec<&str> = csv.lines().collect();
+    assert_eq!(lines[0], SOIL_HEADER);
+    assert_eq!(
+        lines[0],
+        "head_m,liquid_content,relative_conductivity,conductivity_m_s,relative_humidity_20C,thermal_conductivity_W_m_K"
+    );
+    assert_eq!(lines.len(), 1 + 71);
+    let first: Vec<f64> = lines[1].split(',').map(|s| s.parse().unwrap()).collect();
+    let last: Vec<f64> = lines[71].split(',').map(|s| s.parse().unwrap()).collect();
+    assert_eq!(first[0], -0.01);
+    assert_eq!(last[0], -1.0e5);
+    let s = &m.soils[0];
+    for row in [&first, &last] {
+        let h = row[0];
+        let (theta, _) = s.retention.theta(h);
+        let (kr, _) = s.retention.relative_conductivity(h);
+        let (hr, _, _) = water::relative_humidity(h, 293.15);
+        let (lam, _) = s.thermal.value(theta, 0.43);
+        let want = [theta, kr, kr * s.saturated_conductivity, hr, lam];
+        for (got, want) in row[1..].iter().zip(want) {
+            assert!(((got - want) / want).abs() < 1e-7, "{got} vs {want}");
+        }
+    }
+    // Heads decrease monotonically, ~10 per decade.
+    let heads: Vec<f64> = lines[1..]
+        .iter()
+        .map(|l| l.split(',').next().unwrap().parse().unwrap())
+        .collect();
+    assert!(heads.windows(2).all(|w| w[1] < w[0]));
+    let deep = soil_csv(&m, "deep").unwrap();
+    assert_eq!(deep.lines().count(), 1 + 61);
+    assert!(deep.lines().last().unwrap().starts_with("-1.000000e4,"));
+}
+
+#[test]
+fn soil_csv_unknown_layer_lists_the_layers() {
+    let m = input_message(soil_csv(&model(), "middle"));
+    assert!(!m.contains('\n'));
+    assert!(m.starts_with("--layer: middle:"), "{m}");
+    assert!(m.contains("top, deep"), "{m}");
+}

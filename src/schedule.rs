@@ -1,5 +1,6 @@
 //! Time functions for boundary values. Times in seconds, values in SI units.
-//! STUB: types fixed; implementations to be written.
+
+use std::f64::consts::PI;
 
 #[derive(Debug, Clone, PartialEq)]
 pub enum Schedule {
@@ -22,14 +23,116 @@ pub enum Schedule {
 }
 
 impl Schedule {
-    /// Value at time `t` [s].
+    /// Value at time `t` [s]. An empty `Steps` or `Table` (never built by `case`) gives NaN.
     pub fn value(&self, t: f64) -> f64 {
-        let _ = t;
-        todo!()
+        match self {
+            Schedule::Constant(c) => *c,
+            Schedule::Steps { times, values } => {
+                // Number of times ≤ t; the value before the first time is values[0].
+                let k = times.partition_point(|&tk| tk <= t);
+                values.get(k.saturating_sub(1)).copied().unwrap_or(f64::NAN)
+            }
+            Schedule::Table { times, values } => {
+                let (Some(&t_first), Some(&t_last)) = (times.first(), times.last()) else {
+                    return f64::NAN;
+                };
+                if t <= t_first {
+                    return values[0];
+                }
+                if t >= t_last {
+                    return values[times.len() - 1];
+                }
+                // times[k-1] < t < times[k]
+                let k = times.partition_point(|&tk| tk <= t);
+                let (t0, t1) = (times[k - 1], times[k]);
+                let (v0, v1) = (values[k - 1], values[k]);
+                v0 + (v1 - v0) * (t - t0) / (t1 - t0)
+            }
+            Schedule::Sine {
+                mean,
+                amplitude,
+                period,
+                phase,
+            } => mean + amplitude * (2.0 * PI * (t - phase) / period).sin(),
+            Schedule::Sum(parts) => parts.iter().map(|p| p.value(t)).sum(),
+        }
     }
+
     /// Times where the schedule jumps or changes slope (sorted, deduplicated); the stepper
-    /// lands exactly on each.
+    /// lands exactly on each. Steps: every step time after the first (the value before the
+    /// first time equals the first value, so nothing happens there); tables: every knot;
+    /// sinusoids and constants: none; sums: the union of their parts'.
     pub fn breakpoints(&self) -> Vec<f64> {
-        todo!()
+        let mut out = Vec::new();
+        self.collect_breakpoints(&mut out);
+        out.sort_by(f64::total_cmp);
+        out.dedup();
+        out
+    }
+
+    fn collect_breakpoints(&self, out: &mut Vec<f64>) {
+        match self {
+            Schedule::Constant(_) | Schedule::Sine { .. } => {}
+            Schedule::Steps { times, .. } => out.extend(times.iter().skip(1)),
+            Schedule::Table { times, .. } => out.extend(times),
+            Schedule::Sum(parts) => parts.iter().for_each(|p| p.collect_breakpoints(out)),
+        }
+    }
+
+    /// The schedule `scale · s(t) + offset`. The offset is applied once: for a sum, to its
+    /// first part only (so °C → K adds 273.15 to a sum exactly once).
+    pub fn affine(&self, scale: f64, offset: f64) -> Schedule {
+        let map = |v: &[f64]| v.iter().map(|x| scale * x + offset).collect();
+        match self {
+            Schedule::Constant(c) => Schedule::Constant(scale * c + offset),
+            Schedule::Steps { times, values } => Schedule::Steps {
+                times: times.clone(),
+                values: map(values),
+            },
+            Schedule::Table { times, values } => Schedule::Table {
+                times: times.clone(),
+                values: map(values),
+            },
+            Schedule::Sine {
+                mean,
+                amplitude,
+                period,
+                phase,
+            } => Schedule::Sine {
+                mean: scale * mean + offset,
+                amplitude: scale * amplitude,
+                period: *period,
+                phase: *phase,
+            },
+            Schedule::Sum(parts) => Schedule::Sum(
+                parts
+                    .iter()
+                    .enumerate()
+                    .map(|(i, p)| p.affine(scale, if i == 0 { offset } else { 0.0 }))
+                    .collect(),
+            ),
+        }
+    }
+
+    /// Lower and upper bounds of the values the schedule can take at any time. Exact for
+    /// every form except sums, where the bounds of the parts are added (a safe envelope).
+    pub fn bounds(&self) -> (f64, f64) {
+        let span = |v: &[f64]| {
+            v.iter()
+                .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), &x| {
+                    (lo.min(x), hi.max(x))
+                })
+        };
+        match self {
+            Schedule::Constant(c) => (*c, *c),
+            Schedule::Steps { values, .. } | Schedule::Table { values, .. } => span(values),
+            Schedule::Sine {
+                mean, amplitude, ..
+            } => (mean - amplitude.abs(), mean + amplitude.abs()),
+            Schedule::Sum(parts) => parts.iter().fold((0.0, 0.0), |(lo, hi), p| {
+                let (a, b) = p.bounds();
+                (lo + a, hi + b)
+            }),
+        }
     }
 }

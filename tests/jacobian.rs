@@ -13,35 +13,47 @@ fn check(model: &Model, seed: u64, label: &str) {
     let mut sys = System::new(model);
     let n = sys.n;
     let mut rng = Rng(seed);
-    for trial in 0..4 {
-        // Random state: T 5–45 °C, h from −1e-2 to −1e5 m (log-uniform; some cells wet),
-        // rv within ±20 % of equilibrium.
+    let mut counted = 0usize;
+    let mut tight = 0usize;
+    for trial in 0..8 {
+        // Even trials, rough states: T 5–45 °C, h from −1e-2 to −1e5 m log-uniform per cell
+        // (some cells wet). Odd trials, smooth states: one head level from −1e-2 to −1e5 m
+        // with ±10 % per cell and T within ±1 K of a linear profile. rv within ±20 % of
+        // equilibrium in both.
         let mut u = vec![0.0; 3 * n];
+        let level = -(10f64.powf(-2.0 + 7.0 * rng.next()));
         for i in 0..n {
-            u[3 * i] = 278.15 + 40.0 * rng.next();
-            let h = if rng.next() < 0.15 {
-                -1e-3 * rng.next()
+            if trial % 2 == 0 {
+                u[3 * i] = 278.15 + 40.0 * rng.next();
+                u[3 * i + 1] = if rng.next() < 0.15 {
+                    -1e-3 * rng.next()
+                } else {
+                    -(10f64.powf(-2.0 + 7.0 * rng.next()))
+                };
             } else {
-                -(10f64.powf(-2.0 + 7.0 * rng.next()))
-            };
-            u[3 * i + 1] = h;
+                u[3 * i] = 288.15 + i as f64 + 2.0 * (rng.next() - 0.5);
+                u[3 * i + 1] = level * (0.9 + 0.2 * rng.next());
+            }
         }
         deepdry::run::equilibrate_vapor(&mut u);
         for i in 0..n {
             u[3 * i + 2] *= 0.8 + 0.4 * rng.next();
         }
         let c = 1.0 / (1e3 + 1e7 * rng.next());
-        let mut hist = vec![0.0; 3 * n];
-        for h in hist.iter_mut() {
-            *h = rng.next();
-        }
+        // The history only shifts the residual; derivatives do not see it.
+        let hist = vec![0.0; 3 * n];
         let t = 0.0;
         let mut res = vec![0.0; 3 * n];
         let mut jac = BlockTri::new(n);
         sys.assemble(t, &u, c, &hist, &mut res, Some(&mut jac))
             .unwrap();
+        // Magnitude of the terms in each row: round-off in R is ~1e-16 of it.
+        let mut rscale = vec![0.0; 3 * n];
+        sys.residual_scale_into(c, &hist, &mut rscale);
         let mut rp = vec![0.0; 3 * n];
         let mut rm = vec![0.0; 3 * n];
+        let mut rp2 = vec![0.0; 3 * n];
+        let mut rm2 = vec![0.0; 3 * n];
         for col in 0..3 * n {
             let x = u[col];
             let step = match col % 3 {
@@ -49,29 +61,58 @@ fn check(model: &Model, seed: u64, label: &str) {
                 1 => 1e-6 * x.abs().max(1e-2),
                 _ => 1e-6 * x.abs().max(1e-9),
             };
+            // Richardson-extrapolated central differences (fourth order).
             let mut up = u.clone();
             up[col] = x + step;
             sys.assemble(t, &up, c, &hist, &mut rp, None).unwrap();
             up[col] = x - step;
             sys.assemble(t, &up, c, &hist, &mut rm, None).unwrap();
+            up[col] = x + 0.5 * step;
+            sys.assemble(t, &up, c, &hist, &mut rp2, None).unwrap();
+            up[col] = x - 0.5 * step;
+            sys.assemble(t, &up, c, &hist, &mut rm2, None).unwrap();
             let cb = col / 3;
             for rb in cb.saturating_sub(1)..(cb + 2).min(n) {
                 for r in 0..3 {
                     let row = 3 * rb + r;
-                    let fd = (rp[row] - rm[row]) / (2.0 * step);
+                    let d1 = (rp[row] - rm[row]) / (2.0 * step);
+                    let d2 = (rp2[row] - rm2[row]) / step;
+                    let fd = (4.0 * d2 - d1) / 3.0;
                     let an = jac.block_mut(rb, cb)[r * 3 + col % 3];
-                    // Scale: the largest entry of that row times the variable step, so a
-                    // tiny coupling is judged against what matters for the row.
-                    let tol = 1e-5 * (an.abs().max(fd.abs())) + 1e-9 * row_scale(&jac, rb, r);
+                    // Relative agreement, with a floor for round-off in the differenced
+                    // residual (1e-16 of its largest terms, amplified by 1/step) and for
+                    // couplings negligible against the row's largest entry.
+                    let tol = 1e-5 * (an.abs().max(fd.abs()))
+                        + 2e-15 * rscale[row] / step
+                        + 1e-9 * row_scale(&jac, rb, r);
+                    if trial % 2 == 1 && (an != 0.0 || fd != 0.0) {
+                        counted += 1;
+                        if 2e-15 * rscale[row] / step + 1e-9 * row_scale(&jac, rb, r)
+                            < 1e-5 * an.abs().max(fd.abs())
+                        {
+                            tight += 1;
+                        }
+                    }
                     assert!(
                         (an - fd).abs() <= tol,
-                        "{label} trial {trial}: d R[{rb},{r}] / d u[{cb},{}]: analytic {an:e}, finite difference {fd:e}",
-                        col % 3
+                        "{label} trial {trial}: d R[{rb},{r}] / d u[{cb},{}]: analytic {an:e}, finite difference {fd:e} ({d1:e}, {d2:e}); state {:?}",
+                        col % 3,
+                        &u[3 * cb.saturating_sub(1)..(3 * cb + 6).min(3 * n)]
                     );
                 }
             }
         }
     }
+    // The floors must not swallow the test: on the smooth states most entries are judged
+    // by the 1e-5 relative criterion alone (measured: about 60 %; the rest are couplings
+    // below 1e-9 of the row's largest entry or differenced against much larger terms).
+    eprintln!(
+        "{label}: {tight} of {counted} nonzero entries of smooth states judged at 1e-5 relative"
+    );
+    assert!(
+        tight * 2 >= counted,
+        "{label}: only {tight} of {counted} entries judged at 1e-5 relative"
+    );
 }
 
 fn row_scale(jac: &BlockTri, rb: usize, r: usize) -> f64 {

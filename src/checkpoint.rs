@@ -53,7 +53,13 @@ pub fn physics_hash(m: &Model) -> String {
         m.initial,
         (t.start, t.dt_initial, t.dt_min, t.dt_max, t.max_newton),
         t.method,
-        (t.rtol, t.atol_temperature, t.atol_head, t.atol_vapor),
+        (
+            t.rtol,
+            t.atol_temperature,
+            t.atol_head,
+            t.atol_vapor,
+            t.atol_theta
+        ),
         m.output.snapshot_times,
         m.output.series_every,
         m.checkpoint.every

@@ -212,6 +212,9 @@ pub struct TimeControl {
     pub atol_temperature: f64,
     pub atol_head: f64,
     pub atol_vapor: f64,
+    /// Absolute local-error tolerance on the liquid content [m³ m⁻³]: the moisture error
+    /// is measured in θl, and in h only where the soil is saturated (θl flat in h).
+    pub atol_theta: f64,
     /// Newton iteration limit per step.
     pub max_newton: usize,
 }

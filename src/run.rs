@@ -375,6 +375,7 @@ pub fn step_options(model: &Model) -> StepOptions {
                 atol_t: t.atol_temperature,
                 atol_h: t.atol_head,
                 atol_rv: t.atol_vapor,
+                atol_theta: t.atol_theta,
             },
         },
         newton: crate::solve::newton::NewtonOptions {

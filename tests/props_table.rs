@@ -165,6 +165,7 @@ fn model() -> Model {
             atol_temperature: 1e-6,
             atol_head: 1e-6,
             atol_vapor: 1e-9,
+            atol_theta: 1e-5,
             max_newton: 10,
         },
         output: OutputControl {

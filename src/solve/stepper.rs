@@ -30,6 +30,7 @@ pub enum Integrator {
         atol_t: f64,
         atol_h: f64,
         atol_rv: f64,
+        atol_theta: f64,
     },
 }
 
@@ -258,7 +259,15 @@ impl Stepper {
                 atol_t,
                 atol_h,
                 atol_rv,
-            } => Some((max_order.clamp(1, 5), rtol, atol_t, atol_h, atol_rv)),
+                atol_theta,
+            } => Some((
+                max_order.clamp(1, 5),
+                rtol,
+                atol_t,
+                atol_h,
+                atol_rv,
+                atol_theta,
+            )),
             Integrator::BackwardEuler => None,
         };
         let mut dt_try = self.state.dt.min(self.opts.dt_max);
@@ -363,19 +372,43 @@ impl Stepper {
             s.counters.factorizations += stats.factorizations as u64;
             // Local error test (BDF).
             let mut factor;
-            if let Some((max_order, rtol, atol_t, atol_h, atol_rv)) = bdf {
+            if let Some((max_order, rtol, atol_t, atol_h, atol_rv, atol_theta)) = bdf {
                 let have_pred = s.history.len() + 1 > k; // k+1 points were available
                 let mut err = 0.0f64;
+                let mut worst = (0usize, 0usize);
                 if have_pred {
                     let scale = dt / (t_new - ptau[np - 1]);
                     for i in 0..n {
-                        let e = |kk: usize, atol: f64| -> f64 {
+                        for (kk, atol) in [(T, atol_t), (RV, atol_rv)] {
                             let y = s.u[3 * i + kk];
-                            (scale * (y - self.pred[3 * i + kk])).abs()
-                                / (atol + rtol * y.abs().max(self.u_old[3 * i + kk].abs()))
+                            let e = (scale * (y - self.pred[3 * i + kk])).abs()
+                                / (atol + rtol * y.abs().max(self.u_old[3 * i + kk].abs()));
+                            if e > err {
+                                err = e;
+                                worst = (i, kk);
+                            }
+                        }
+                        // Moisture: the error in liquid content; in h where θl is flat.
+                        let ret = &sys.soil_of(i).retention;
+                        let (th, dth) = ret.theta(s.u[3 * i + H]);
+                        let th_p = ret.theta(self.pred[3 * i + H]).0;
+                        let e = if dth == 0.0 && th >= ret.theta_s() {
+                            let y = s.u[3 * i + H];
+                            (scale * (y - self.pred[3 * i + H])).abs() / (atol_h + rtol * y.abs())
+                        } else {
+                            (scale * (th - th_p)).abs() / (atol_theta + rtol * th)
                         };
-                        err = err.max(e(T, atol_t)).max(e(H, atol_h)).max(e(RV, atol_rv));
+                        if e > err {
+                            err = e;
+                            worst = (i, H);
+                        }
                     }
+                    log::trace!(
+                        "t {:.6e} dt {dt:.3e} order {k} error {err:.3e} at cell {} variable {}",
+                        s.t,
+                        worst.0,
+                        worst.1
+                    );
                 } else {
                     // The first step after a restart has no error estimate: keep it small
                     // by the change heuristics below and let the next steps judge.

@@ -102,6 +102,7 @@ pub fn column(
             atol_temperature: 1e-3,
             atol_head: 1e-3,
             atol_vapor: 1e-8,
+            atol_theta: 1e-5,
             max_newton: 15,
         },
         output: OutputControl {

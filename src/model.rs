@@ -161,7 +161,6 @@ impl<T> Periods<T> {
 // `Steady` carries two boundary sets; one value per run, so its size does not matter.
 #[allow(clippy::large_enum_variant)]
 #[derive(Debug, Clone)]
-#[allow(clippy::large_enum_variant)]
 pub enum InitialState {
     /// Hydrostatic head above the bottom water table (h = hb − (L − z)) and a linear
     /// temperature profile T = surface_temperature + gradient·z.

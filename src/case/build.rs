@@ -1256,6 +1256,7 @@ const OUTPUT_KEYS: &[&str] = &[
     "every_year",
     "log_from_year",
     "log_per_decade",
+    "log_origin_year",
     "series_every",
 ];
 
@@ -1308,21 +1309,34 @@ fn read_output(root: &Table, time: &TimeControl) -> R<OutputControl> {
         }
     }
     match (t.get("log_from_year"), t.get("log_per_decade")) {
-        (None, None) => {}
+        (None, None) => t.only_with("log_origin_year", "log_from_year and log_per_decade")?,
         (Some(first_v), Some(per_v)) => {
+            let origin = match t.get("log_origin_year") {
+                Some(v) => num(
+                    &v,
+                    |y| y >= start && y < end,
+                    &format!(
+                        "must be inside the run ({} ≤ log_origin_year < {} years)",
+                        fmt_g(start),
+                        fmt_g(end)
+                    ),
+                )?,
+                None => start,
+            };
             let first = num(
                 &first_v,
-                |y| y > 0.0 && y < span,
+                |y| y > 0.0 && origin + y < end,
                 &format!(
-                    "must be > 0 and less than the run length ({} yr); it counts from time.start_year",
-                    fmt_g(span)
+                    "must be > 0 and less than {} yr (it counts from log_origin_year = {})",
+                    fmt_g(end - origin),
+                    fmt_g(origin)
                 ),
             )?;
             let per = per_v.usize()?;
             if !(1..=100).contains(&per) {
                 return Err(per_v.err("must be 1 to 100"));
             }
-            let decades = (span / first).log10();
+            let decades = ((end - origin) / first).log10();
             if decades * per as f64 > MAX_SNAPSHOTS as f64 {
                 return Err(too_many(&per_v));
             }
@@ -1330,11 +1344,11 @@ fn read_output(root: &Table, time: &TimeControl) -> R<OutputControl> {
             loop {
                 let factor =
                     10f64.powi((j / per) as i32) * 10f64.powf((j % per) as f64 / per as f64);
-                let y = first * factor;
-                if y >= span {
+                let y = origin + first * factor;
+                if y >= end {
                     break;
                 }
-                years.push(start + y);
+                years.push(y);
                 j += 1;
             }
         }

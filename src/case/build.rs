@@ -4,8 +4,8 @@
 
 use super::csvfile::{self, Header};
 use super::schedules::{
-    self, fmt_g, Quantity, GEOTHERMAL_FLUX, HEAD, HEAT_FLUX, RELATIVE_HUMIDITY, RESISTANCE,
-    TEMPERATURE, T_MAX_C, T_MIN_C, T_NOTE, WATER_FLUX,
+    self, fmt_g, GEOTHERMAL_FLUX, HEAD, HEAT_FLUX, RELATIVE_HUMIDITY, RESISTANCE, TEMPERATURE,
+    T_MAX_C, T_MIN_C, T_NOTE, WATER_FLUX,
 };
 use super::tree::{suggest, Kind, Node, Source, Table, Value};
 use crate::error::Error;
@@ -16,7 +16,6 @@ use crate::props::constants::{CELSIUS_ZERO, SECONDS_PER_YEAR};
 use crate::props::retention::{DryEnd, Retention, RetentionLaw};
 use crate::props::thermal::ThermalConductivity;
 use crate::props::vapor::{Diffusivity, Enhancement};
-use crate::schedule::Schedule;
 use std::path::Path;
 
 type R<T> = Result<T, Error>;
@@ -579,6 +578,9 @@ fn read_layers(root: &Table, soils: &[Soil], depth: f64) -> R<Vec<Layer>> {
             root.src.origin
         ))
     })?;
+    if v.is_table() {
+        return Err(v.err_at("write each layer as a [[layers]] table (an array of tables)"));
+    }
     let items = v.array()?;
     if items.is_empty() {
         return Err(v.err("needs at least one layer"));
@@ -799,10 +801,6 @@ const BOTTOM_KEYS: &[&str] = &[
     "no_flow",
 ];
 
-fn schedule(v: &Value, key: &str, q: &Quantity) -> R<Schedule> {
-    schedules::read(v, key, q)
-}
-
 /// `flag = true` (false is not a condition).
 fn flag(v: &Value) -> R<()> {
     if v.bool()? {
@@ -818,9 +816,9 @@ fn read_surface(t: &Table) -> R<SurfaceBc> {
         "surface heat condition",
     )?;
     let heat = if key == "temperature_C" {
-        SurfaceHeat::Temperature(schedule(&v, key, &TEMPERATURE)?)
+        SurfaceHeat::Temperature(schedules::read(&v, key, &TEMPERATURE)?)
     } else {
-        SurfaceHeat::Flux(schedule(&v, key, &HEAT_FLUX)?)
+        SurfaceHeat::Flux(schedules::read(&v, key, &HEAT_FLUX)?)
     };
     let (key, v) = t.one_of(
         &["head_m", "flux_mm_per_year", "relative_humidity", "no_flow"],
@@ -833,9 +831,9 @@ fn read_surface(t: &Table) -> R<SurfaceBc> {
         t.only_with("resistance_s_per_m", "relative_humidity (open to the air)")?;
     }
     let water = match key {
-        "head_m" => SurfaceWater::Head(schedule(&v, key, &HEAD)?),
+        "head_m" => SurfaceWater::Head(schedules::read(&v, key, &HEAD)?),
         "flux_mm_per_year" => SurfaceWater::Flux {
-            flux: schedule(&v, key, &WATER_FLUX)?,
+            flux: schedules::read(&v, key, &WATER_FLUX)?,
             ponding_head: opt_num(
                 t,
                 "ponding_head_m",
@@ -845,10 +843,10 @@ fn read_surface(t: &Table) -> R<SurfaceBc> {
             .unwrap_or(0.0),
         },
         "relative_humidity" => SurfaceWater::Atmosphere {
-            relative_humidity: schedule(&v, key, &RELATIVE_HUMIDITY)?,
+            relative_humidity: schedules::read(&v, key, &RELATIVE_HUMIDITY)?,
             resistance: t
                 .get("resistance_s_per_m")
-                .map(|r| schedule(&r, "resistance_s_per_m", &RESISTANCE))
+                .map(|r| schedules::read(&r, "resistance_s_per_m", &RESISTANCE))
                 .transpose()?,
         },
         _ => {
@@ -865,16 +863,16 @@ fn read_bottom(t: &Table) -> R<BottomBc> {
         "bottom heat condition",
     )?;
     let heat = if key == "temperature_C" {
-        BottomHeat::Temperature(schedule(&v, key, &TEMPERATURE)?)
+        BottomHeat::Temperature(schedules::read(&v, key, &TEMPERATURE)?)
     } else {
-        BottomHeat::GeothermalFlux(schedule(&v, key, &GEOTHERMAL_FLUX)?)
+        BottomHeat::GeothermalFlux(schedules::read(&v, key, &GEOTHERMAL_FLUX)?)
     };
     let (key, v) = t.one_of(
         &["head_m", "free_drainage", "no_flow"],
         "bottom moisture condition",
     )?;
     let water = match key {
-        "head_m" => BottomWater::WaterTable(schedule(&v, key, &HEAD)?),
+        "head_m" => BottomWater::WaterTable(schedules::read(&v, key, &HEAD)?),
         "free_drainage" => {
             flag(&v)?;
             BottomWater::FreeDrainage

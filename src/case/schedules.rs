@@ -61,10 +61,6 @@ impl Quantity {
     pub fn from_si(&self, s: &Schedule) -> Schedule {
         s.affine(1.0 / self.scale, -self.offset / self.scale)
     }
-    /// One value file units → SI.
-    pub fn value_to_si(&self, v: f64) -> f64 {
-        self.scale * v + self.offset
-    }
 }
 
 /// The valid temperature range of the whole program [°C].

@@ -344,11 +344,6 @@ impl<'a> Value<'a> {
         }
     }
 
-    /// An array of numbers.
-    pub fn f64_array(&self) -> Result<Vec<f64>, Error> {
-        self.array()?.iter().map(Value::f64).collect()
-    }
-
     /// The value as a table whose keys must all be in `allowed`.
     pub fn table(&self, allowed: &[&str]) -> Result<Table<'a>, Error> {
         let t = self.named_table()?;

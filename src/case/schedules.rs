@@ -203,12 +203,7 @@ fn read_user(v: &Value, key: &str, q: &Quantity, check: bool) -> Result<Schedule
     if !v.is_table() {
         return Err(v.err(format!(
             "expected a number or a schedule table, found {}",
-            match &v.node.kind {
-                super::tree::Kind::Str(_) => "a string",
-                super::tree::Kind::Bool(_) => "a boolean",
-                super::tree::Kind::Array(_) => "an array",
-                _ => "another type",
-            }
+            v.node.kind.type_name()
         )));
     }
     let t = v.table(ALL_KEYS)?;

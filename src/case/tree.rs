@@ -36,7 +36,8 @@ pub struct Entry {
 }
 
 impl Kind {
-    fn type_name(&self) -> &'static str {
+    /// "a string", "an integer", … (for messages).
+    pub fn type_name(&self) -> &'static str {
         match self {
             Kind::Str(_) => "a string",
             Kind::Int(_) => "an integer",

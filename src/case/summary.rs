@@ -1,0 +1,336 @@
+//! The text printed by `deepdry check`: what the case file says, in the file's units.
+
+use super::schedules::{
+    describe, fmt_g, Quantity, GEOTHERMAL_FLUX, HEAD, HEAT_FLUX, RELATIVE_HUMIDITY, RESISTANCE,
+    TEMPERATURE, WATER_FLUX,
+};
+use crate::model::*;
+use crate::props::conductivity::FaceAveraging;
+use crate::props::constants::{CELSIUS_ZERO, SECONDS_PER_YEAR};
+use crate::props::retention::{DryEnd, RetentionLaw};
+use crate::props::thermal::ThermalConductivity;
+use crate::props::vapor::Enhancement;
+use crate::schedule::Schedule;
+use std::fmt::Write;
+
+fn yr(t: f64) -> String {
+    fmt_g(t / SECONDS_PER_YEAR)
+}
+
+fn celsius(t: f64) -> String {
+    format!("{} °C", fmt_g(t - CELSIUS_ZERO))
+}
+
+/// A schedule in file units with its breakpoints in years.
+fn sched(s: &Schedule, q: &Quantity) -> String {
+    let text = describe(&q.from_si(s), q.unit);
+    let bp = s.breakpoints();
+    if bp.is_empty() {
+        return text;
+    }
+    let mut list: Vec<String> = bp.iter().take(8).map(|&t| yr(t)).collect();
+    if bp.len() > 8 {
+        list.push(format!("… ({} in all)", bp.len()));
+    }
+    format!("{text} [breakpoints at year {}]", list.join(", "))
+}
+
+fn surface_bc(bc: &SurfaceBc) -> String {
+    let heat = match &bc.heat {
+        SurfaceHeat::Temperature(s) => format!("temperature {}", sched(s, &TEMPERATURE)),
+        SurfaceHeat::Flux(s) => format!("heat flux (down) {}", sched(s, &HEAT_FLUX)),
+    };
+    let water = match &bc.water {
+        SurfaceWater::Head(s) => format!("head {}", sched(s, &HEAD)),
+        SurfaceWater::Flux { flux, ponding_head } => format!(
+            "water flux (down) {}, ponding limit {} m",
+            sched(flux, &WATER_FLUX),
+            fmt_g(*ponding_head)
+        ),
+        SurfaceWater::Atmosphere {
+            relative_humidity,
+            resistance,
+        } => format!(
+            "open to the air, relative humidity {}, {}",
+            sched(relative_humidity, &RELATIVE_HUMIDITY),
+            match resistance {
+                None => "no boundary-layer resistance".to_string(),
+                Some(r) => format!("boundary-layer resistance {}", sched(r, &RESISTANCE)),
+            }
+        ),
+        SurfaceWater::NoFlow => "no flow".to_string(),
+    };
+    format!("{heat}; {water}")
+}
+
+fn bottom_bc(bc: &BottomBc) -> String {
+    let water = match &bc.water {
+        BottomWater::WaterTable(s) => format!("water table, head {}", sched(s, &HEAD)),
+        BottomWater::FreeDrainage => "free drainage".to_string(),
+        BottomWater::NoFlow => "no flow".to_string(),
+    };
+    let heat = match &bc.heat {
+        BottomHeat::Temperature(s) => format!("temperature {}", sched(s, &TEMPERATURE)),
+        BottomHeat::GeothermalFlux(s) => {
+            format!("geothermal flux (up) {}", sched(s, &GEOTHERMAL_FLUX))
+        }
+    };
+    format!("{water}; {heat}")
+}
+
+fn periods<T>(out: &mut String, p: &Periods<T>, show: fn(&T) -> String) {
+    for (start, bc) in &p.periods {
+        let when = if start.is_finite() {
+            format!("from year {}", yr(*start))
+        } else {
+            "from the start".to_string()
+        };
+        let _ = writeln!(out, "  {when}: {}", show(bc));
+    }
+}
+
+fn soil(s: &Soil) -> String {
+    let law = match &s.retention.law {
+        RetentionLaw::VanGenuchten {
+            theta_r,
+            theta_s,
+            alpha,
+            n,
+            l,
+        } => format!(
+            "van Genuchten–Mualem θr {}, θs {}, α {} 1/m, n {}, l {}",
+            fmt_g(*theta_r),
+            fmt_g(*theta_s),
+            fmt_g(*alpha),
+            fmt_g(*n),
+            fmt_g(*l)
+        ),
+        RetentionLaw::BrooksCorey {
+            theta_r,
+            theta_s,
+            air_entry,
+            lambda,
+            l,
+        } => format!(
+            "Brooks–Corey–Mualem θr {}, θs {}, |hb| {} m, λ {}, l {}",
+            fmt_g(*theta_r),
+            fmt_g(*theta_s),
+            fmt_g(*air_entry),
+            fmt_g(*lambda),
+            fmt_g(*l)
+        ),
+        RetentionLaw::Exponential {
+            theta_r,
+            theta_s,
+            alpha,
+        } => format!(
+            "exponential θr {}, θs {}, α {} 1/m",
+            fmt_g(*theta_r),
+            fmt_g(*theta_s),
+            fmt_g(*alpha)
+        ),
+    };
+    let dry = match &s.retention.dry_end {
+        Some(DryEnd::FayerSimmons { oven_dry_head }) => {
+            format!(", Fayer–Simmons dry end to {} m", fmt_g(*oven_dry_head))
+        }
+        None => String::new(),
+    };
+    let thermal = match &s.thermal {
+        ThermalConductivity::Constant { value } => format!("λ {} W/(m K)", fmt_g(*value)),
+        ThermalConductivity::Campbell { a, b, c, d, e } => format!(
+            "λ Campbell A {}, B {}, C {}, D {}, E {}",
+            fmt_g(*a),
+            fmt_g(*b),
+            fmt_g(*c),
+            fmt_g(*d),
+            fmt_g(*e)
+        ),
+        ThermalConductivity::Johansen {
+            dry,
+            saturated,
+            fine,
+        } => format!(
+            "λ Johansen dry {} / saturated {} W/(m K), {} texture",
+            fmt_g(*dry),
+            fmt_g(*saturated),
+            if *fine { "fine" } else { "coarse" }
+        ),
+    };
+    let enh = match &s.enhancement {
+        Enhancement::None => "none".to_string(),
+        Enhancement::Constant(x) => fmt_g(*x),
+        Enhancement::Cass { clay_fraction } => {
+            format!(
+                "Cass et al. (1984), clay fraction {}",
+                fmt_g(*clay_fraction)
+            )
+        }
+    };
+    format!(
+        "{law}{dry}; Ks {} m/s; {thermal}; solid heat capacity {} J/(m³ K); enhancement {enh}",
+        fmt_g(s.saturated_conductivity),
+        fmt_g(s.solid_heat_capacity)
+    )
+}
+
+/// The summary: layers, mesh, soils, physics, boundary conditions, initial state, time,
+/// output and checkpoints.
+pub fn summary(m: &Model) -> String {
+    let mut out = String::new();
+    let o = &mut out;
+    let _ = writeln!(o, "Case: {}", m.title);
+    let (lo, hi) = m.mesh.width_range();
+    let _ = writeln!(
+        o,
+        "Column: {} m deep, {} cells, smallest {} m, largest {} m",
+        fmt_g(m.mesh.depth()),
+        m.mesh.n_cells(),
+        fmt_g(lo),
+        fmt_g(hi)
+    );
+    let _ = writeln!(o, "Layers:");
+    for (i, l) in m.layers.iter().enumerate() {
+        let cells = m
+            .mesh
+            .centers
+            .iter()
+            .filter(|&&z| z >= l.top && z < l.bottom)
+            .count();
+        let _ = writeln!(
+            o,
+            "  {}. {}: soil {}, {} to {} m ({cells} cells)",
+            i + 1,
+            l.name,
+            m.soils[l.soil].name,
+            fmt_g(l.top),
+            fmt_g(l.bottom)
+        );
+    }
+    let _ = writeln!(o, "Soils:");
+    for s in &m.soils {
+        let _ = writeln!(o, "  {}: {}", s.name, soil(s));
+    }
+    let p = &m.physics;
+    let d = &p.diffusivity;
+    let _ = writeln!(
+        o,
+        "Physics: vapour {}; diffusivity {} m²/s (T/{} K)^{} ({} Pa/p); air pressure {} Pa; \
+         thermal liquid flux {}; viscosity correction of K {}; face averaging of K {}",
+        match p.vapor_mode {
+            VaporMode::Equilibrium => "in equilibrium".to_string(),
+            VaporMode::Kinetic { rate } => format!("kinetic, rate {} 1/s", fmt_g(rate)),
+        },
+        fmt_g(d.d0),
+        fmt_g(d.t0),
+        fmt_g(d.exponent),
+        fmt_g(d.p0),
+        fmt_g(p.air_pressure),
+        match p.thermal_liquid_gain {
+            None => "off".to_string(),
+            Some(g) => format!("on, gain {}", fmt_g(g)),
+        },
+        if p.viscosity_correction {
+            format!("on (Ks at {})", celsius(p.reference_temperature))
+        } else {
+            "off".to_string()
+        },
+        match p.face_conductivity {
+            FaceAveraging::Arithmetic => "arithmetic",
+            FaceAveraging::Geometric => "geometric",
+            FaceAveraging::Harmonic => "harmonic",
+            FaceAveraging::Upstream => "upstream",
+        }
+    );
+    let _ = writeln!(o, "Surface:");
+    periods(o, &m.surface, surface_bc);
+    let _ = writeln!(o, "Bottom:");
+    periods(o, &m.bottom, bottom_bc);
+    let linear = |ts: f64, g: f64| {
+        format!(
+            "{} at the surface, gradient {} K/m ({} at the bottom)",
+            celsius(ts),
+            fmt_g(g),
+            celsius(ts + g * m.mesh.depth())
+        )
+    };
+    let init = match &m.initial {
+        InitialState::Hydrostatic {
+            surface_temperature,
+            gradient,
+        } => format!(
+            "hydrostatic above the water table; {}",
+            linear(*surface_temperature, *gradient)
+        ),
+        InitialState::Steady {
+            surface,
+            bottom,
+            surface_temperature,
+            gradient,
+        } => format!(
+            "steady state under surface {{{}}} and bottom {{{}}} (values at the start); first guess {}",
+            surface_bc(surface),
+            bottom_bc(bottom),
+            linear(*surface_temperature, *gradient)
+        ),
+        InitialState::Profile {
+            depth, moisture, ..
+        } => format!(
+            "profile table, {} rows from {} to {} m, {}",
+            depth.len(),
+            fmt_g(depth.first().copied().unwrap_or(0.0)),
+            fmt_g(depth.last().copied().unwrap_or(0.0)),
+            match moisture {
+                ProfileMoisture::Head(_) => "head",
+                ProfileMoisture::LiquidContent(_) => "liquid content",
+            }
+        ),
+    };
+    let _ = writeln!(o, "Initial state: {init}");
+    let t = &m.time;
+    let _ = writeln!(
+        o,
+        "Time: year {} to {}; first step {} yr, steps {} to {} yr; {}; at most {} Newton \
+         iterations; rtol {}, atol {} K, {} m, {} kg/m³",
+        yr(t.start),
+        yr(t.end),
+        yr(t.dt_initial),
+        yr(t.dt_min),
+        yr(t.dt_max),
+        match t.method {
+            Method::BackwardEuler => "backward Euler".to_string(),
+            Method::Bdf { max_order } => format!("BDF up to order {max_order}"),
+        },
+        t.max_newton,
+        fmt_g(t.rtol),
+        fmt_g(t.atol_temperature),
+        fmt_g(t.atol_head),
+        fmt_g(t.atol_vapor)
+    );
+    let snaps = &m.output.snapshot_times;
+    let _ = writeln!(
+        o,
+        "Output: {} snapshot times (year {} to {}) in {}; series record every {} step(s)",
+        snaps.len(),
+        yr(snaps.first().copied().unwrap_or(t.end)),
+        yr(snaps.last().copied().unwrap_or(t.end)),
+        m.output.folder.display(),
+        m.output.series_every
+    );
+    let c = &m.checkpoint;
+    let mut when = Vec::new();
+    if let Some(e) = c.every {
+        when.push(format!("every {} simulated years", yr(e)));
+    }
+    if let Some(w) = c.wall_every {
+        when.push(format!("every {} wall-clock minutes", fmt_g(w / 60.0)));
+    }
+    when.push("at the end".to_string());
+    let _ = writeln!(
+        o,
+        "Checkpoints: {}; keep the newest {}",
+        when.join(", "),
+        c.keep
+    );
+    out
+}

@@ -1158,6 +1158,7 @@ const TIME_KEYS: &[&str] = &[
     "atol_temperature_K",
     "atol_head_m",
     "atol_vapor_kg_per_m3",
+    "atol_liquid_content",
     "max_newton_iterations",
 ];
 
@@ -1244,6 +1245,7 @@ fn read_time(root: &Table) -> R<TimeControl> {
         atol_temperature: tol("atol_temperature_K", 1.0e-3)?,
         atol_head: tol("atol_head_m", 1.0e-3)?,
         atol_vapor: tol("atol_vapor_kg_per_m3", 1.0e-8)?,
+        atol_theta: tol("atol_liquid_content", 1.0e-5)?,
         max_newton,
     })
 }

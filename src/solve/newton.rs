@@ -25,9 +25,9 @@ pub struct NewtonOptions {
     pub update_rv_rel: f64,
     pub update_rv_abs: f64,
     pub residual_tol_loose: f64,
-    /// Largest change per iteration: temperature [K]; head as a fraction of |h| plus [m].
+    /// Largest change per iteration: temperature [K]; head by a factor in |h| plus [m].
     pub max_dt_per_iter: f64,
-    pub max_dh_frac: f64,
+    pub max_dh_factor: f64,
     pub max_dh_abs: f64,
 }
 
@@ -43,7 +43,7 @@ impl Default for NewtonOptions {
             update_rv_abs: 1e-16,
             residual_tol_loose: 1e-7,
             max_dt_per_iter: 5.0,
-            max_dh_frac: 0.8,
+            max_dh_factor: 10.0,
             max_dh_abs: 2.0,
         }
     }
@@ -134,6 +134,9 @@ pub fn solve(
             .map_err(NewtonFailure::NonFinite)?;
         sys.residual_scale_into(c, hist, &mut w.scale);
         let (r, cell, row) = worst(&w.res, &w.scale);
+        log::trace!(
+            "newton t {t:.6e} it {it} worst scaled residual {r:.3e} at cell {cell} row {row}"
+        );
         if r.is_nan() {
             return Err(NewtonFailure::NonFinite(NonFinite { cell, row }));
         }
@@ -187,8 +190,12 @@ pub fn solve(
             let mut dh = w.dx[kh] * w.col[kh];
             let mut drv = w.dx[kv] * w.col[kv];
             dt = dt.clamp(-opts.max_dt_per_iter, opts.max_dt_per_iter);
-            let hmax = opts.max_dh_frac * u[kh].abs() + opts.max_dh_abs;
-            dh = dh.clamp(-hmax, hmax);
+            // Heads move at most by the factor `max_dh_factor` per iteration in |h| (dry
+            // soil spans decades), plus `max_dh_abs` near saturation.
+            let h = u[kh];
+            let lo = h.min(0.0) * opts.max_dh_factor - opts.max_dh_abs;
+            let hi = if h < 0.0 { h / opts.max_dh_factor } else { h } + opts.max_dh_abs;
+            dh = dh.clamp(lo - h, hi - h);
             // Vapour density stays positive.
             if u[kv] + drv < 0.1 * u[kv] {
                 drv = -0.9 * u[kv];

@@ -10,6 +10,7 @@
 //! - [`solve`]    linear solvers, Newton, time stepping
 //! - [`output`]   results files (HDF5)
 //! - [`error`]    typed errors
+//! - [`verify`]   verification cases, reference solutions and the report
 
 // Index loops read like the formulas they implement.
 #![allow(clippy::needless_range_loop)]
@@ -27,3 +28,4 @@ pub mod props;
 pub mod run;
 pub mod schedule;
 pub mod solve;
+pub mod verify;

@@ -50,6 +50,15 @@ pub enum Command {
         /// A deepdry results or checkpoint file (HDF5).
         file: PathBuf,
     },
+    /// Run the verification cases (analytic and published references) and print the table.
+    Verify {
+        /// Run only this case (a folder name under validation/).
+        #[arg(long)]
+        only: Option<String>,
+        /// Write DIR/verification.md with an SVG figure per case.
+        #[arg(long, value_name = "DIR")]
+        report: Option<PathBuf>,
+    },
     /// Print property tables as CSV.
     Table {
         #[command(subcommand)]
@@ -126,6 +135,7 @@ pub fn dispatch(cli: Cli) -> Result<()> {
             print!("{}", crate::inspect::summary(&file)?);
             Ok(())
         }
+        Command::Verify { only, report } => crate::verify::command(only, report),
         Command::Table { what } => match what {
             TableCommand::Water { from, to, step } => {
                 print!("{}", crate::props::table::water_csv(from, to, step)?);

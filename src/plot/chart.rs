@@ -163,7 +163,7 @@ fn draw_panel<DB: DrawingBackend>(
     if !p.heading.is_empty() {
         builder.caption(&p.heading, font(17.0));
     }
-    let mut chart = builder.build_cartesian_2d(p.x, p.y)?;
+    let mut chart = builder.build_cartesian_2d(p.x.with_ticks(11), p.y.with_ticks(9))?;
     chart
         .configure_mesh()
         .x_desc(p.x_label.as_str())

@@ -108,6 +108,28 @@ fn read_rows(
     Ok(a.outer_iter().map(|r| r.to_vec()).collect())
 }
 
+/// Whether `path` starts with the HDF5 signature (at 0, 512, 1024, ... bytes).
+fn has_hdf5_signature(path: &Path) -> bool {
+    use std::io::{Read, Seek, SeekFrom};
+    const SIG: [u8; 8] = [0x89, b'H', b'D', b'F', b'\r', b'\n', 0x1a, b'\n'];
+    let Ok(mut f) = std::fs::File::open(path) else {
+        return false;
+    };
+    let len = f.metadata().map(|m| m.len()).unwrap_or(0);
+    let mut at = 0u64;
+    while at + 8 <= len {
+        let mut buf = [0u8; 8];
+        if f.seek(SeekFrom::Start(at)).is_err() || f.read_exact(&mut buf).is_err() {
+            return false;
+        }
+        if buf == SIG {
+            return true;
+        }
+        at = if at == 0 { 512 } else { at * 2 };
+    }
+    false
+}
+
 /// Reads `path`. Missing file, a file that is not HDF5, or an HDF5 file without the
 /// results layout give an [`Error::Input`] naming the file and what is wrong.
 pub fn read(path: &Path) -> Result<Results> {
@@ -120,7 +142,13 @@ pub fn read(path: &Path) -> Result<Results> {
             path.display()
         )));
     }
-    let file = File::open(path).map_err(|_| not_results(path, "not an HDF5 file"))?;
+    let file = File::open(path).map_err(|e| {
+        if has_hdf5_signature(path) {
+            Error::io(path, format!("cannot open the results file: {e}"))
+        } else {
+            not_results(path, "not an HDF5 file")
+        }
+    })?;
     let kind =
         read_attr_str(&file, "kind").map_err(|_| not_results(path, "no `kind` attribute"))?;
     if kind != RESULTS_KIND {

@@ -152,6 +152,8 @@ pub struct Axis {
     pub lo: f64,
     pub hi: f64,
     pub reversed: bool,
+    /// Most labelled ticks (tick positions and label decimals both follow from it).
+    pub max_ticks: usize,
 }
 
 impl Axis {
@@ -161,7 +163,13 @@ impl Axis {
             lo,
             hi,
             reversed: false,
+            max_ticks: 9,
         }
+    }
+
+    pub fn with_ticks(mut self, max: usize) -> Self {
+        self.max_ticks = max.max(2);
+        self
     }
 
     pub fn reversed(mut self) -> Self {
@@ -205,10 +213,7 @@ impl Axis {
     /// The label of a tick at `v`.
     pub fn label(&self, v: f64) -> String {
         match self.scale {
-            Scale::Linear => {
-                let step = nice_step((self.hi - self.lo).abs() / 6.0);
-                format_linear(v, step)
-            }
+            Scale::Linear => format_linear(v, linear_step(self.lo, self.hi, self.max_ticks)),
             Scale::Log | Scale::SymLog(_) => format_real(v),
         }
     }
@@ -268,9 +273,14 @@ pub fn nice_step(raw: f64) -> f64 {
     k * p
 }
 
+/// The spacing of at most `max` labelled ticks on a linear axis from `lo` to `hi`.
+fn linear_step(lo: f64, hi: f64, max: usize) -> f64 {
+    nice_step((hi - lo).abs() / (max as f64 - 1.0).max(1.0))
+}
+
 fn linear_ticks(lo: f64, hi: f64, max: usize, minor: bool) -> Vec<f64> {
     let (lo, hi) = (lo.min(hi), lo.max(hi));
-    let mut step = nice_step((hi - lo) / (max as f64 - 1.0).max(1.0));
+    let mut step = linear_step(lo, hi, max);
     if minor {
         step /= if (step / 10f64.powf(step.log10().floor()) - 2.0).abs() < 1e-6 {
             4.0

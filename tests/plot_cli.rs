@@ -46,5 +46,18 @@ fn command_line_prints_paths_and_reports_errors_on_one_line() {
     assert_eq!(out.status.code(), Some(deepdry::error::exit::INPUT));
     let stderr = String::from_utf8(out.stderr).unwrap();
     assert_eq!(stderr.lines().count(), 1, "{stderr}");
+    assert!(stderr.contains("outside"), "{stderr}");
+
+    // A file that a writer holds open (as a running `deepdry run` does) is locked.
+    let writer = hdf5::File::open_rw(&f).unwrap();
+    let out = Command::new(exe)
+        .args(["plot", f.to_str().unwrap()])
+        .output()
+        .unwrap();
+    drop(writer);
+    assert_eq!(out.status.code(), Some(deepdry::error::exit::IO));
+    let stderr = String::from_utf8(out.stderr).unwrap();
+    assert_eq!(stderr.lines().count(), 1, "{stderr}");
+    assert!(stderr.contains("locked"), "{stderr}");
     let _ = std::fs::remove_dir_all(&dir);
 }

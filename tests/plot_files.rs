@@ -115,3 +115,29 @@ fn linear_time_axis_for_a_short_run() {
     let axis = deepdry::plot::time_axis(&[0.0, 1e-3, 1.0, 10.0], false);
     assert_eq!(axis.scale, deepdry::plot::scale::Scale::Log);
 }
+
+#[test]
+fn flat_single_snapshot_file_without_series() {
+    let dir = scratch("flat");
+    let file = dir.join("flat.h5");
+    write_flat(&file);
+    let written = plot_results(&file, &PlotOptions::default()).unwrap();
+    // Profiles only: there are no series rows to draw.
+    let names: Vec<String> = written
+        .iter()
+        .map(|p| p.file_name().unwrap().to_string_lossy().into_owned())
+        .collect();
+    assert_eq!(names.len(), 10, "{names:?}");
+    assert!(
+        names.iter().all(|n| n.starts_with("profiles-")),
+        "{names:?}"
+    );
+    for p in &written {
+        assert!(std::fs::metadata(p).unwrap().len() > 1000);
+    }
+    let temp = std::fs::read_to_string(dir.join("profiles-temperature.svg")).unwrap();
+    assert!(temp.contains("at t = 0 yr"));
+    // The case title heads every picture.
+    assert!(temp.contains("test column"));
+    let _ = std::fs::remove_dir_all(&dir);
+}

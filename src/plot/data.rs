@@ -144,7 +144,16 @@ pub fn read(path: &Path) -> Result<Results> {
     }
     let file = File::open(path).map_err(|e| {
         if has_hdf5_signature(path) {
-            Error::io(path, format!("cannot open the results file: {e}"))
+            let e = e.to_string();
+            if e.contains("lock") {
+                Error::io(
+                    path,
+                    "cannot open: the file is locked by another program (a run still \
+                     writing it?); wait for it, or set HDF5_USE_FILE_LOCKING=FALSE to read it anyway",
+                )
+            } else {
+                Error::io(path, format!("cannot open the results file: {e}"))
+            }
         } else {
             not_results(path, "not an HDF5 file")
         }

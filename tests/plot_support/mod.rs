@@ -125,3 +125,37 @@ pub const PLOT_NAMES: [&str; 9] = [
     "series-water-storage",
     "series-balance-errors",
 ];
+
+/// A results file with a single snapshot of uniform profiles (h = 0, zero fluxes, a NaN
+/// in the temperature) and no series rows: every axis range is degenerate.
+pub fn write_flat(path: &Path) {
+    let model = common::column(
+        common::uniform_mesh(2.0, 5),
+        common::sandy_loam(),
+        common::dry_surface(300.0, 0.2),
+        common::water_table(300.0),
+        300.0,
+        300.0,
+        common::YEAR,
+    );
+    let mut rf = ResultsFile::create(path, &model, true).unwrap();
+    let mut p = Profile::default();
+    let n = 5;
+    p.temperature_c = vec![20.0; n];
+    p.temperature_c[2] = f64::NAN;
+    p.head = vec![0.0; n];
+    p.liquid_content = vec![0.41; n];
+    p.vapor_density = vec![0.017; n];
+    p.relative_humidity = vec![1.0; n];
+    for v in [
+        &mut p.liquid_iso,
+        &mut p.liquid_th,
+        &mut p.vapor_iso,
+        &mut p.vapor_th,
+        &mut p.heat,
+    ] {
+        *v = vec![0.0; n + 1];
+    }
+    rf.write_snapshot(0.0, &p).unwrap();
+    rf.flush().unwrap();
+}

@@ -9,6 +9,7 @@
 //! - [`physics`]  residual and exact Jacobian of the three balance laws
 //! - [`solve`]    linear solvers, Newton, time stepping
 //! - [`output`]   results files (HDF5)
+//! - [`plot`]     pictures of a results file (SVG, PNG)
 //! - [`error`]    typed errors
 
 // Index loops read like the formulas they implement.
@@ -23,6 +24,7 @@ pub mod mesh;
 pub mod model;
 pub mod output;
 pub mod physics;
+pub mod plot;
 pub mod props;
 pub mod run;
 pub mod schedule;

@@ -264,6 +264,12 @@ pub fn steady_state(model: &Model, guess: Vec<f64>, solver: SolverKind) -> Resul
                 .max((u[3 * i + H] - prev[3 * i + H]).abs() / (1.0 + u[3 * i + H].abs()));
         }
         prev.copy_from_slice(u);
+        log::debug!(
+            "steady state: pseudo-time {:.3e} s, dt {:.3e} s, largest change {change:.3e}, Newton {}",
+            st.state.t - t0,
+            info.dt,
+            info.newton_iterations
+        );
         if info.dt >= 1e16 && change < 1e-9 {
             return Ok(prev);
         }

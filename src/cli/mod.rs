@@ -50,6 +50,21 @@ pub enum Command {
         /// A deepdry results or checkpoint file (HDF5).
         file: PathBuf,
     },
+    /// Draw profiles and time series of a results file as SVG and PNG.
+    Plot {
+        /// The results file (HDF5) written by `deepdry run`.
+        results: PathBuf,
+        /// Output folder (default: the results file's folder).
+        #[arg(long)]
+        out: Option<PathBuf>,
+        /// Snapshot times to draw [yr], comma-separated; the nearest snapshots are used
+        /// (default: up to 6 spread in log time).
+        #[arg(long, value_delimiter = ',', num_args = 1.., allow_negative_numbers = true)]
+        times: Option<Vec<f64>>,
+        /// Logarithmic time axis for the time series (automatic beyond 3 decades).
+        #[arg(long)]
+        log_time: bool,
+    },
     /// Print property tables as CSV.
     Table {
         #[command(subcommand)]
@@ -124,6 +139,22 @@ pub fn dispatch(cli: Cli) -> Result<()> {
         }
         Command::Inspect { file } => {
             print!("{}", crate::inspect::summary(&file)?);
+            Ok(())
+        }
+        Command::Plot {
+            results,
+            out,
+            times,
+            log_time,
+        } => {
+            let opts = crate::plot::PlotOptions {
+                out,
+                times,
+                log_time,
+            };
+            for p in crate::plot::plot_results(&results, &opts)? {
+                println!("{}", p.display());
+            }
             Ok(())
         }
         Command::Table { what } => match what {

@@ -97,6 +97,17 @@ pub struct HistoryPoint {
     pub throughput: [f64; 2],
 }
 
+impl HistoryPoint {
+    fn empty(len: usize) -> Self {
+        HistoryPoint {
+            t: 0.0,
+            u: vec![0.0; len],
+            inflow: [0.0; 2],
+            throughput: [0.0; 2],
+        }
+    }
+}
+
 /// The stepper's state: everything needed to continue a run exactly.
 #[derive(Debug, Clone, PartialEq)]
 pub struct StepState {
@@ -127,6 +138,8 @@ pub struct Stepper {
     work: NewtonWork,
     u_old: Vec<f64>,
     m_old: Vec<f64>,
+    /// Storages at the current state (kept from the last accepted step's evaluation).
+    m_cur: Vec<f64>,
     hist: Vec<f64>,
     pred: Vec<f64>,
     /// Storages of the history points (recomputed from `history[k].u` when it changes).
@@ -182,11 +195,13 @@ impl Stepper {
             work: NewtonWork::new(n),
             u_old: vec![0.0; 3 * n],
             m_old: vec![0.0; 3 * n],
+            m_cur: vec![0.0; 3 * n],
             hist: vec![0.0; 3 * n],
             pred: vec![0.0; 3 * n],
             m_hist: Vec::new(),
         };
         s.refresh_history_storage(sys);
+        sys.storage_into(&mut s.m_cur);
         s
     }
 
@@ -250,8 +265,7 @@ impl Stepper {
     pub fn step(&mut self, sys: &mut System, t_stop: f64) -> Result<StepInfo, StepFailure> {
         let n = sys.n;
         self.u_old.copy_from_slice(&self.state.u);
-        sys.evaluate(self.state.t, &self.u_old);
-        sys.storage_into(&mut self.m_old);
+        self.m_old.copy_from_slice(&self.m_cur);
         let bdf = match self.opts.integrator {
             Integrator::Bdf {
                 max_order,
@@ -492,14 +506,19 @@ impl Stepper {
                     Some((max_order, ..)) => max_order + 1,
                     None => 0,
                 };
-                let point = HistoryPoint {
-                    t: s.t,
-                    u: self.u_old.clone(),
-                    inflow: s.inflow,
-                    throughput: s.throughput,
+                // Reuse the oldest point's buffers once the history is full.
+                let (mut point, mut m) = if s.history.len() >= keep {
+                    (s.history.pop().unwrap_or_else(|| HistoryPoint::empty(3 * n)), self.m_hist.pop().unwrap_or_else(|| vec![0.0; 3 * n]))
+                } else {
+                    (HistoryPoint::empty(3 * n), vec![0.0; 3 * n])
                 };
+                point.t = s.t;
+                point.u.copy_from_slice(&self.u_old);
+                point.inflow = s.inflow;
+                point.throughput = s.throughput;
+                m.copy_from_slice(&self.m_old);
                 s.history.insert(0, point);
-                self.m_hist.insert(0, self.m_old.clone());
+                self.m_hist.insert(0, m);
                 s.history.truncate(keep);
                 self.m_hist.truncate(keep);
             }
@@ -509,6 +528,7 @@ impl Stepper {
             s.dt = (base * factor).clamp(self.opts.dt_min, self.opts.dt_max);
             s.t = t_new;
             // sys holds the evaluation at the new state (Newton's last assembly).
+            sys.storage_into(&mut self.m_cur);
             return Ok(StepInfo {
                 dt,
                 newton_iterations: stats.iterations,

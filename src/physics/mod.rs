@@ -186,8 +186,9 @@ impl System {
             let sw = |f: &FaceFlux, t: &[D6; 3]| f.scale_water.max(t[WATER].v.abs());
             let se = |f: &FaceFlux, t: &[D6; 3]| f.scale_energy.max(t[ENERGY].v.abs());
             let sv = |f: &FaceFlux| f.vapor_iso.v.abs() + f.vapor_th.v.abs();
-            out[3 * i + ENERGY] =
-                w * ((c * cp.energy.v).abs() + hist[3 * i + ENERGY].abs()) + se(fa, ta) + se(fb, tb);
+            out[3 * i + ENERGY] = w * ((c * cp.energy.v).abs() + hist[3 * i + ENERGY].abs())
+                + se(fa, ta)
+                + se(fb, tb);
             out[3 * i + WATER] =
                 w * ((c * cp.water.v).abs() + hist[3 * i + WATER].abs()) + sw(fa, ta) + sw(fb, tb);
             out[3 * i + VAPOR] = if let Some(b) = rate {

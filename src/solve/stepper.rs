@@ -146,6 +146,9 @@ pub struct Stepper {
     m_hist: Vec<Vec<f64>>,
 }
 
+/// Largest step ratio Δt_{n+1}/Δt_n for the BDF order (index = order).
+const BDF_MAX_RATIO: [f64; 6] = [2.0, 2.0, 2.0, 1.5, 1.2, 1.08];
+
 /// Derivative at τ[0] of the Lagrange basis polynomials through τ[0..=k].
 fn bdf_weights(tau: &[f64], out: &mut [f64]) {
     let k = tau.len() - 1;
@@ -474,7 +477,15 @@ impl Stepper {
             } else {
                 factor = change_factor(sys, &s.u, &self.u_old, &self.opts, stats.iterations);
             }
-            let factor = factor.clamp(0.2, self.opts.max_growth.max(1.0));
+            // Variable-step BDF of order ≥ 3 is zero-stable only for bounded step ratios
+            // (Grigorieff 1983; bounds of about 1.6, 1.3 and 1.1 for orders 3, 4, 5, from
+            // memory): growth is capped below them for the order the next step will use.
+            let cap = if bdf.is_some() {
+                BDF_MAX_RATIO[s.order.clamp(1, 5)]
+            } else {
+                f64::INFINITY
+            };
+            let factor = factor.clamp(0.2, self.opts.max_growth.max(1.0).min(cap));
             s.counters.steps += 1;
             // Cumulative inflow by the same formula as the storages:
             // α0 W_new + α1 W_old + Σ αj W_j = F_in(new).
@@ -508,7 +519,12 @@ impl Stepper {
                 };
                 // Reuse the oldest point's buffers once the history is full.
                 let (mut point, mut m) = if s.history.len() >= keep {
-                    (s.history.pop().unwrap_or_else(|| HistoryPoint::empty(3 * n)), self.m_hist.pop().unwrap_or_else(|| vec![0.0; 3 * n]))
+                    (
+                        s.history
+                            .pop()
+                            .unwrap_or_else(|| HistoryPoint::empty(3 * n)),
+                        self.m_hist.pop().unwrap_or_else(|| vec![0.0; 3 * n]),
+                    )
                 } else {
                     (HistoryPoint::empty(3 * n), vec![0.0; 3 * n])
                 };

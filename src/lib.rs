@@ -15,6 +15,7 @@
 // Index loops read like the formulas they implement.
 #![allow(clippy::needless_range_loop)]
 
+pub mod bench;
 pub mod case;
 pub mod checkpoint;
 pub mod cli;

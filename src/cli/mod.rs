@@ -45,6 +45,18 @@ pub enum Command {
         #[arg(long)]
         start_from: Option<PathBuf>,
     },
+    /// Measure performance: the reference case and a scaling series over the cell count.
+    Bench {
+        /// The reference case.
+        #[arg(long, default_value = "cases/benchmark-300m.toml")]
+        case: PathBuf,
+        /// Cell counts of the scaling series, comma-separated.
+        #[arg(long, value_delimiter = ',', default_value = "300,1000,3000,10000")]
+        cells: Vec<usize>,
+        /// Simulated span of the scaling runs [yr].
+        #[arg(long, default_value_t = 1000.0)]
+        span_years: f64,
+    },
     /// Summarise a results or checkpoint file.
     Inspect {
         /// A deepdry results or checkpoint file (HDF5).
@@ -135,6 +147,14 @@ pub fn dispatch(cli: Cli) -> Result<()> {
             };
             let summary = crate::run::run(&model, &opts)?;
             print!("{}", summary.text());
+            Ok(())
+        }
+        Command::Bench {
+            case,
+            cells,
+            span_years,
+        } => {
+            print!("{}", crate::bench::bench(&case, &cells, span_years)?);
             Ok(())
         }
         Command::Inspect { file } => {

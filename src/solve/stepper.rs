@@ -339,17 +339,18 @@ impl Stepper {
                 }
                 self.pred[i] = v;
             }
-            if bdf.is_some() {
-                // Keep the guess physical: vapour density positive.
-                for i in 0..n {
-                    if self.pred[3 * i + RV].is_nan() || self.pred[3 * i + RV] <= 0.0 {
-                        self.pred[3 * i + RV] = self.u_old[3 * i + RV];
-                    }
+            // Newton starts from the predictor (backward Euler: linear extrapolation of the
+            // last two points), kept physical: vapour density positive, head not above 0
+            // where the old head was below.
+            for i in 0..n {
+                if self.pred[3 * i + RV].is_nan() || self.pred[3 * i + RV] <= 0.0 {
+                    self.pred[3 * i + RV] = self.u_old[3 * i + RV];
                 }
-                s.u.copy_from_slice(&self.pred);
-            } else {
-                s.u.copy_from_slice(&self.u_old);
+                if self.u_old[3 * i + H] < 0.0 && self.pred[3 * i + H] > 0.0 {
+                    self.pred[3 * i + H] = 0.5 * self.u_old[3 * i + H];
+                }
             }
+            s.u.copy_from_slice(&self.pred);
             let result = newton::solve(
                 sys,
                 self.lin.as_mut(),
@@ -511,11 +512,11 @@ impl Stepper {
                 new_inflow[q] = (fin[q] - a) / c;
                 new_throughput[q] = (fabs[q] - b) / c;
             }
-            if bdf.is_some() {
+            {
                 // Shift the history: the old current point becomes the newest history point.
                 let keep = match bdf {
                     Some((max_order, ..)) => max_order + 1,
-                    None => 0,
+                    None => 1,
                 };
                 // Reuse the oldest point's buffers once the history is full.
                 let (mut point, mut m) = if s.history.len() >= keep {

@@ -375,3 +375,66 @@ pub fn prune(folder: &Path, keep: usize) {
         let _ = std::fs::remove_file(p);
     }
 }
+
+/// Removes temporary files left by checkpoint writes that were killed (`*.h5.tmp` next to
+/// checkpoints). Returns how many were removed.
+pub fn remove_temporaries(folder: &Path) -> usize {
+    let mut n = 0;
+    if let Ok(rd) = std::fs::read_dir(folder) {
+        for entry in rd.flatten() {
+            let name = entry.file_name().to_string_lossy().to_string();
+            if (name.starts_with("checkpoint-") || name.starts_with("failed-state"))
+                && name.ends_with(".h5.tmp")
+                && std::fs::remove_file(entry.path()).is_ok()
+            {
+                n += 1;
+            }
+        }
+    }
+    n
+}
+
+fn same_file(a: &Path, b: &Path) -> bool {
+    match (a.canonicalize(), b.canonicalize()) {
+        (Ok(x), Ok(y)) => x == y,
+        _ => false,
+    }
+}
+
+/// Removes the checkpoints in `folder` later than `t` [s] (by the times in their names),
+/// except `keep`. Returns how many were removed.
+pub fn remove_after(folder: &Path, t: f64, keep: &Path) -> usize {
+    let limit = name_at(Path::new(""), t)
+        .to_string_lossy()
+        .strip_prefix("checkpoint-")
+        .and_then(|r| r.strip_suffix("yr.h5"))
+        .and_then(|m| m.parse::<f64>().ok())
+        .unwrap_or(f64::INFINITY);
+    let mut n = 0;
+    for (tf, p) in list(folder) {
+        if tf > limit && !same_file(&p, keep) && std::fs::remove_file(&p).is_ok() {
+            n += 1;
+        }
+    }
+    n
+}
+
+/// Removes every checkpoint in `folder` and its `failed-state.h5`, except `keep`.
+/// Returns how many files were removed.
+pub fn remove_all(folder: &Path, keep: Option<&Path>) -> usize {
+    let mut paths: Vec<PathBuf> = list(folder).into_iter().map(|(_, p)| p).collect();
+    let failed = folder.join("failed-state.h5");
+    if failed.exists() {
+        paths.push(failed);
+    }
+    let mut n = 0;
+    for p in paths {
+        if keep.is_some_and(|k| same_file(&p, k)) {
+            continue;
+        }
+        if std::fs::remove_file(&p).is_ok() {
+            n += 1;
+        }
+    }
+    n
+}

@@ -500,6 +500,48 @@ impl Runner<'_> {
     }
 }
 
+/// Refuses to start a new run in `folder` over an earlier one (its results file, or the
+/// checkpoints of one whose results file is gone) unless `overwrite`.
+fn check_new_output(
+    folder: &std::path::Path,
+    results: &std::path::Path,
+    overwrite: bool,
+) -> Result<()> {
+    if overwrite {
+        return Ok(());
+    }
+    if results.exists() {
+        return Err(Error::Io(format!(
+            "{}: results file exists already; use --overwrite to replace it, or --out to write elsewhere",
+            results.display()
+        )));
+    }
+    let cks = crate::checkpoint::list(folder);
+    if let Some((_, p)) = cks.last() {
+        return Err(Error::Io(format!(
+            "{}: the output folder holds {} checkpoints of an earlier run (newest {}) but no results file; use --overwrite to replace them, or --out to write elsewhere",
+            folder.display(),
+            cks.len(),
+            p.display()
+        )));
+    }
+    Ok(())
+}
+
+/// Removes the checkpoints (and diagnostic state) of the run a new run replaces: they
+/// continue a results file that is being replaced, and being later in time they would
+/// outlive the new run's checkpoints when pruning. `keep` (a branch's parent) stays.
+fn replace_earlier_run(folder: &std::path::Path, keep: Option<&std::path::Path>) {
+    crate::checkpoint::remove_temporaries(folder);
+    let removed = crate::checkpoint::remove_all(folder, keep);
+    if removed > 0 {
+        log::info!(
+            "removed {removed} checkpoint files of the earlier run in {}",
+            folder.display()
+        );
+    }
+}
+
 /// Runs `model` (from its initial state, or as `opts.start` says) to its end time.
 pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
     let wall = Instant::now();
@@ -514,13 +556,9 @@ pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
     let n = sys.n;
     let (state, results, since_series) = match &opts.start {
         Start::Fresh => {
-            if results_path.exists() && !opts.overwrite {
-                return Err(Error::Io(format!(
-                    "{}: results file exists already; use --overwrite to replace it, or --out to write elsewhere",
-                    results_path.display()
-                )));
-            }
+            check_new_output(&folder, &results_path, opts.overwrite)?;
             let u0 = initial_unknowns(model, opts.solver)?;
+            replace_earlier_run(&folder, None);
             let results = ResultsFile::create(&results_path, model, opts.overwrite)?;
             let state =
                 Stepper::initial_state(&mut sys, model.time.start, model.time.dt_initial, u0);
@@ -557,6 +595,16 @@ pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
                 ck.position.snapshots as usize,
                 ck.position.series_rows as usize,
             )?;
+            // The results after the checkpoint are gone, so later checkpoints in the
+            // folder no longer match them (and would outlive the new ones when pruning).
+            crate::checkpoint::remove_temporaries(&folder);
+            let removed = crate::checkpoint::remove_after(&folder, ck.state.t, path);
+            if removed > 0 {
+                log::info!(
+                    "removed {removed} checkpoints later than {} (their results rows were dropped)",
+                    path.display()
+                );
+            }
             (ck.state, results, ck.position.since_series)
         }
         Start::Branch(path) => {
@@ -591,12 +639,8 @@ pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
                     model.time.end / SECONDS_PER_YEAR
                 )));
             }
-            if results_path.exists() && !opts.overwrite {
-                return Err(Error::Io(format!(
-                    "{}: results file exists already; use --overwrite to replace it, or --out to write elsewhere",
-                    results_path.display()
-                )));
-            }
+            check_new_output(&folder, &results_path, opts.overwrite)?;
+            replace_earlier_run(&folder, Some(path));
             let results = ResultsFile::create(&results_path, model, opts.overwrite)?;
             results.set_attr("parent_checkpoint", &path.display().to_string())?;
             results.set_attr(

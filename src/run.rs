@@ -473,6 +473,8 @@ struct Runner<'a> {
     profile: Profile,
     since_series: u64,
     folder: PathBuf,
+    /// The checkpoint a branched run started from, and its time [yr].
+    parent: Option<(String, f64)>,
 }
 
 impl Runner<'_> {
@@ -483,12 +485,24 @@ impl Runner<'_> {
             series_rows: self.results.records as u64,
             snapshots: self.results.snapshots as u64,
         };
+        // The balance at the checkpoint's state (evaluating does not change what the
+        // next step computes: every step evaluates its start state afresh).
+        self.sys.evaluate(self.st.state.t, &self.st.state.u);
+        let (abs, rel) = self.st.balance(&self.sys);
+        let info = crate::checkpoint::CheckpointInfo {
+            balance_abs: Some(abs),
+            balance_rel: Some(rel),
+            last_series_year: self.results.last_series_year,
+            last_snapshot_year: self.results.last_snapshot_year,
+            parent: self.parent.clone(),
+        };
         crate::checkpoint::write(
             path,
             self.model,
             &self.st.state,
             position,
             &self.results.path,
+            &info,
         )
     }
 
@@ -554,6 +568,7 @@ pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
     let results_path = folder.join("results.h5");
     let mut sys = System::new(model);
     let n = sys.n;
+    let mut parent = None;
     let (state, results, since_series) = match &opts.start {
         Start::Fresh => {
             check_new_output(&folder, &results_path, opts.overwrite)?;
@@ -592,8 +607,11 @@ pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
             }
             let results = ResultsFile::open_append(
                 &results_path,
+                &ck.faces,
                 ck.position.snapshots as usize,
                 ck.position.series_rows as usize,
+                ck.info.last_series_year,
+                ck.info.last_snapshot_year,
             )?;
             // The results after the checkpoint are gone, so later checkpoints in the
             // folder no longer match them (and would outlive the new ones when pruning).
@@ -605,6 +623,7 @@ pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
                     path.display()
                 );
             }
+            parent = ck.info.parent.clone();
             (ck.state, results, ck.position.since_series)
         }
         Start::Branch(path) => {
@@ -642,6 +661,7 @@ pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
             check_new_output(&folder, &results_path, opts.overwrite)?;
             replace_earlier_run(&folder, Some(path));
             let results = ResultsFile::create(&results_path, model, opts.overwrite)?;
+            parent = Some((path.display().to_string(), ck.state.t / SECONDS_PER_YEAR));
             results.set_attr("parent_checkpoint", &path.display().to_string())?;
             results.set_attr(
                 "parent_time_year",
@@ -663,6 +683,7 @@ pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
         profile: Profile::default(),
         since_series,
         folder: folder.clone(),
+        parent,
     };
     if fresh_output {
         r.sys.evaluate(r.st.state.t, &r.st.state.u);

@@ -241,7 +241,10 @@ pub fn file_kind(path: &Path) -> Result<String> {
             path.display()
         )));
     }
-    let file = File::open(path).map_err(|_| {
+    let file = File::open(path).map_err(|err| {
+        if let Some(m) = crate::output::h5util::in_use_message(path, &err) {
+            return Error::Io(m);
+        }
         Error::input(format!(
             "{}: not a readable HDF5 file (truncated or of another format); expected a deepdry results or checkpoint file",
             path.display()

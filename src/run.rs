@@ -565,6 +565,7 @@ pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
         .unwrap_or_else(|| model.output.folder.clone());
     std::fs::create_dir_all(&folder)
         .map_err(|e| Error::io(&folder, format!("cannot create the output folder: {e}")))?;
+    let _lock = crate::output::FolderLock::acquire(&folder)?;
     let results_path = folder.join("results.h5");
     let mut sys = System::new(model);
     let n = sys.n;
@@ -573,8 +574,10 @@ pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
         Start::Fresh => {
             check_new_output(&folder, &results_path, opts.overwrite)?;
             let u0 = initial_unknowns(model, opts.solver)?;
-            replace_earlier_run(&folder, None);
+            // Create (and so lock) the new results file first: a run still writing to the
+            // folder makes this fail before its checkpoints are touched.
             let results = ResultsFile::create(&results_path, model, opts.overwrite)?;
+            replace_earlier_run(&folder, None);
             let state =
                 Stepper::initial_state(&mut sys, model.time.start, model.time.dt_initial, u0);
             (state, results, 0u64)
@@ -659,8 +662,8 @@ pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
                 )));
             }
             check_new_output(&folder, &results_path, opts.overwrite)?;
-            replace_earlier_run(&folder, Some(path));
             let results = ResultsFile::create(&results_path, model, opts.overwrite)?;
+            replace_earlier_run(&folder, Some(path));
             parent = Some((path.display().to_string(), ck.state.t / SECONDS_PER_YEAR));
             results.set_attr("parent_checkpoint", &path.display().to_string())?;
             results.set_attr(

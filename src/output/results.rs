@@ -15,7 +15,9 @@
 //! the file is flushed to disk at every snapshot, so a killed run leaves a readable file.
 
 use super::diagnostics::{Profile, SeriesRecord};
-use super::h5util::{append_1d, append_row, attr_str, growable_1d, growable_2d, write_1d};
+use super::h5util::{
+    append_1d, append_row, attr_str, growable_1d, growable_2d, in_use_message, write_1d,
+};
 use crate::error::{Error, Result};
 use crate::model::Model;
 use hdf5::types::VarLenUnicode;
@@ -116,7 +118,10 @@ impl ResultsFile {
             )));
         }
         let e = h5(path);
-        let file = File::create(path).map_err(&e)?;
+        let file = File::create(path).map_err(|err| match in_use_message(path, &err) {
+            Some(m) => Error::Io(m),
+            None => e(err),
+        })?;
         let root = file.as_group().map_err(&e)?;
         attr_str(&root, "kind", RESULTS_KIND).map_err(&e)?;
         attr_str(&root, "title", &model.title).map_err(&e)?;
@@ -245,7 +250,10 @@ impl ResultsFile {
                 msg.lines().next().unwrap_or("")
             ))
         };
-        let file = File::open_rw(path).map_err(h5err)?;
+        let file = File::open_rw(path).map_err(|err| match in_use_message(path, &err) {
+            Some(m) => Error::Io(m),
+            None => h5err(err),
+        })?;
         let root = file.as_group().map_err(h5err)?;
         let kind = super::h5util::read_attr_str(&root, "kind").unwrap_or_default();
         if kind != RESULTS_KIND {

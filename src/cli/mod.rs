@@ -29,7 +29,7 @@ pub enum Command {
         /// Output folder (default: the case's `output.folder`).
         #[arg(long)]
         out: Option<PathBuf>,
-        /// Replace an existing results file.
+        /// Replace an existing results file (and the checkpoints of the run that wrote it).
         #[arg(long)]
         overwrite: bool,
         /// No progress bar.

@@ -76,6 +76,21 @@ pub struct LoopPosition {
     pub snapshots: u64,
 }
 
+/// What a checkpoint records besides the state, for `inspect` and for the checks made on
+/// resume. Every field is optional on reading (older checkpoints of format 1 lack them).
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct CheckpointInfo {
+    /// Balance errors at the checkpoint: absolute [energy J m⁻², water kg m⁻²] and relative.
+    pub balance_abs: Option<[f64; 2]>,
+    pub balance_rel: Option<[f64; 2]>,
+    /// Time [yr] of the last `/series` row and of the last snapshot in the results file at
+    /// this point (NaN when there is none): resume checks that the results file agrees.
+    pub last_series_year: Option<f64>,
+    pub last_snapshot_year: Option<f64>,
+    /// The checkpoint a branched run started from, and its time [yr].
+    pub parent: Option<(String, f64)>,
+}
+
 /// A checkpoint read back from disk.
 #[derive(Debug, Clone)]
 pub struct Checkpoint {
@@ -90,6 +105,8 @@ pub struct Checkpoint {
     pub results_file: String,
     pub faces: Vec<f64>,
     pub created: String,
+    pub format: String,
+    pub info: CheckpointInfo,
 }
 
 fn e(path: &Path) -> impl Fn(hdf5::Error) -> Error + '_ {
@@ -103,6 +120,7 @@ pub fn write(
     state: &StepState,
     position: LoopPosition,
     results_file: &Path,
+    info: &CheckpointInfo,
 ) -> Result<()> {
     let tmp = path.with_extension("h5.tmp");
     {
@@ -132,6 +150,21 @@ pub fn write(
         f64s("throughput", &state.throughput).map_err(&er)?;
         f64s("initial_totals", &state.initial_totals).map_err(&er)?;
         f64s("face_depth", &model.mesh.faces).map_err(&er)?;
+        if let (Some(a), Some(r)) = (info.balance_abs, info.balance_rel) {
+            f64s("balance_error", &[a[0], a[1], r[0], r[1]]).map_err(&er)?;
+        }
+        f64s(
+            "results_last_times",
+            &[
+                info.last_series_year.unwrap_or(f64::NAN),
+                info.last_snapshot_year.unwrap_or(f64::NAN),
+            ],
+        )
+        .map_err(&er)?;
+        if let Some((p, t)) = &info.parent {
+            attr_str(&root, "parent_checkpoint", p).map_err(&er)?;
+            attr_f64(&root, "parent_time_year", *t).map_err(&er)?;
+        }
         // Multistep history, newest first.
         let hlen = state.history.len();
         let width = state.u.len();
@@ -208,7 +241,10 @@ pub fn file_kind(path: &Path) -> Result<String> {
             path.display()
         )));
     }
-    let file = File::open(path).map_err(|_| {
+    let file = File::open(path).map_err(|err| {
+        if let Some(m) = crate::output::h5util::in_use_message(path, &err) {
+            return Error::Io(m);
+        }
         Error::input(format!(
             "{}: not a readable HDF5 file (truncated or of another format); expected a deepdry results or checkpoint file",
             path.display()
@@ -311,6 +347,27 @@ pub fn read(path: &Path) -> Result<Checkpoint> {
             order: ints[7] as usize,
             steps_at_order: ints[8] as usize,
         };
+        // Optional records (absent in older checkpoints of this format).
+        let mut info = CheckpointInfo::default();
+        if let Ok(b) = v("balance_error") {
+            if b.len() == 4 {
+                info.balance_abs = Some([b[0], b[1]]);
+                info.balance_rel = Some([b[2], b[3]]);
+            }
+        }
+        if let Ok(l) = v("results_last_times") {
+            if l.len() == 2 {
+                info.last_series_year = Some(l[0]).filter(|x| !x.is_nan());
+                info.last_snapshot_year = Some(l[1]).filter(|x| !x.is_nan());
+            }
+        }
+        if let Ok(p) = read_attr_str(&root, "parent_checkpoint") {
+            let t = root
+                .attr("parent_time_year")
+                .and_then(|a| a.read_scalar::<f64>())
+                .unwrap_or(f64::NAN);
+            info.parent = Some((p, t));
+        }
         if state.history.iter().any(|h| h.u.len() != state.u.len()) {
             return Err(bad("history"));
         }
@@ -337,6 +394,8 @@ pub fn read(path: &Path) -> Result<Checkpoint> {
             results_file: s("results_file")?,
             faces: v("face_depth")?,
             created: s("created")?,
+            format,
+            info,
         })
     };
     inner()
@@ -374,4 +433,67 @@ pub fn prune(folder: &Path, keep: usize) {
     for (_, p) in all.into_iter().take(excess) {
         let _ = std::fs::remove_file(p);
     }
+}
+
+/// Removes temporary files left by checkpoint writes that were killed (`*.h5.tmp` next to
+/// checkpoints). Returns how many were removed.
+pub fn remove_temporaries(folder: &Path) -> usize {
+    let mut n = 0;
+    if let Ok(rd) = std::fs::read_dir(folder) {
+        for entry in rd.flatten() {
+            let name = entry.file_name().to_string_lossy().to_string();
+            if (name.starts_with("checkpoint-") || name.starts_with("failed-state"))
+                && name.ends_with(".h5.tmp")
+                && std::fs::remove_file(entry.path()).is_ok()
+            {
+                n += 1;
+            }
+        }
+    }
+    n
+}
+
+fn same_file(a: &Path, b: &Path) -> bool {
+    match (a.canonicalize(), b.canonicalize()) {
+        (Ok(x), Ok(y)) => x == y,
+        _ => false,
+    }
+}
+
+/// Removes the checkpoints in `folder` later than `t` [s] (by the times in their names),
+/// except `keep`. Returns how many were removed.
+pub fn remove_after(folder: &Path, t: f64, keep: &Path) -> usize {
+    let limit = name_at(Path::new(""), t)
+        .to_string_lossy()
+        .strip_prefix("checkpoint-")
+        .and_then(|r| r.strip_suffix("yr.h5"))
+        .and_then(|m| m.parse::<f64>().ok())
+        .unwrap_or(f64::INFINITY);
+    let mut n = 0;
+    for (tf, p) in list(folder) {
+        if tf > limit && !same_file(&p, keep) && std::fs::remove_file(&p).is_ok() {
+            n += 1;
+        }
+    }
+    n
+}
+
+/// Removes every checkpoint in `folder` and its `failed-state.h5`, except `keep`.
+/// Returns how many files were removed.
+pub fn remove_all(folder: &Path, keep: Option<&Path>) -> usize {
+    let mut paths: Vec<PathBuf> = list(folder).into_iter().map(|(_, p)| p).collect();
+    let failed = folder.join("failed-state.h5");
+    if failed.exists() {
+        paths.push(failed);
+    }
+    let mut n = 0;
+    for p in paths {
+        if keep.is_some_and(|k| same_file(&p, k)) {
+            continue;
+        }
+        if std::fs::remove_file(&p).is_ok() {
+            n += 1;
+        }
+    }
+    n
 }

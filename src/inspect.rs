@@ -17,6 +17,7 @@ pub fn summary(path: &Path) -> Result<String> {
         let _ = writeln!(out, "kind: checkpoint");
         let _ = writeln!(out, "case title: {}", ck.title);
         let _ = writeln!(out, "software version: {}", ck.software_version);
+        let _ = writeln!(out, "checkpoint format: {}", ck.format);
         let _ = writeln!(out, "written: {}", ck.created);
         let _ = writeln!(
             out,
@@ -35,6 +36,21 @@ pub fn summary(path: &Path) -> Result<String> {
             "results file: {} ({} snapshots, {} series rows at this point)",
             ck.results_file, ck.position.snapshots, ck.position.series_rows
         );
+        match (ck.info.balance_abs, ck.info.balance_rel) {
+            (Some(a), Some(r)) => {
+                let _ = writeln!(
+                    out,
+                    "last relative balance errors: water {:.3e}, energy {:.3e} (absolute {:.3e} kg m-2, {:.3e} J m-2)",
+                    r[1], r[0], a[1], a[0]
+                );
+            }
+            _ => {
+                let _ = writeln!(out, "last relative balance errors: not recorded");
+            }
+        }
+        if let Some((p, t)) = &ck.info.parent {
+            let _ = writeln!(out, "branch of: {p} at {t:e} yr");
+        }
         let _ = writeln!(out, "physics hash: {}", ck.physics_hash);
         return Ok(out);
     }

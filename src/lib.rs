@@ -9,12 +9,14 @@
 //! - [`physics`]  residual and exact Jacobian of the three balance laws
 //! - [`solve`]    linear solvers, Newton, time stepping
 //! - [`output`]   results files (HDF5)
+//! - [`plot`]     pictures of a results file (SVG, PNG)
 //! - [`error`]    typed errors
 //! - [`verify`]   verification cases, reference solutions and the report
 
 // Index loops read like the formulas they implement.
 #![allow(clippy::needless_range_loop)]
 
+pub mod bench;
 pub mod case;
 pub mod checkpoint;
 pub mod cli;
@@ -24,6 +26,7 @@ pub mod mesh;
 pub mod model;
 pub mod output;
 pub mod physics;
+pub mod plot;
 pub mod props;
 pub mod run;
 pub mod schedule;

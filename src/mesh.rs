@@ -183,7 +183,7 @@ impl Segment {
         let mut out = top;
         if m > 0 {
             let u = (self.len() - ga - gb) / m as f64;
-            out.extend(std::iter::repeat(u).take(m));
+            out.extend(std::iter::repeat_n(u, m));
         }
         out.extend(bottom);
         if m == 0 {

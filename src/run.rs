@@ -264,6 +264,12 @@ pub fn steady_state(model: &Model, guess: Vec<f64>, solver: SolverKind) -> Resul
                 .max((u[3 * i + H] - prev[3 * i + H]).abs() / (1.0 + u[3 * i + H].abs()));
         }
         prev.copy_from_slice(u);
+        log::debug!(
+            "steady state: pseudo-time {:.3e} s, dt {:.3e} s, largest change {change:.3e}, Newton {}",
+            st.state.t - t0,
+            info.dt,
+            info.newton_iterations
+        );
         if info.dt >= 1e16 && change < 1e-9 {
             return Ok(prev);
         }
@@ -473,6 +479,8 @@ struct Runner<'a> {
     profile: Profile,
     since_series: u64,
     folder: PathBuf,
+    /// The checkpoint a branched run started from, and its time [yr].
+    parent: Option<(String, f64)>,
 }
 
 impl Runner<'_> {
@@ -483,12 +491,24 @@ impl Runner<'_> {
             series_rows: self.results.records as u64,
             snapshots: self.results.snapshots as u64,
         };
+        // The balance at the checkpoint's state (evaluating does not change what the
+        // next step computes: every step evaluates its start state afresh).
+        self.sys.evaluate(self.st.state.t, &self.st.state.u);
+        let (abs, rel) = self.st.balance(&self.sys);
+        let info = crate::checkpoint::CheckpointInfo {
+            balance_abs: Some(abs),
+            balance_rel: Some(rel),
+            last_series_year: self.results.last_series_year,
+            last_snapshot_year: self.results.last_snapshot_year,
+            parent: self.parent.clone(),
+        };
         crate::checkpoint::write(
             path,
             self.model,
             &self.st.state,
             position,
             &self.results.path,
+            &info,
         )
     }
 
@@ -497,6 +517,48 @@ impl Runner<'_> {
         self.checkpoint(&path)?;
         crate::checkpoint::prune(&self.folder, self.model.checkpoint.keep);
         Ok(path)
+    }
+}
+
+/// Refuses to start a new run in `folder` over an earlier one (its results file, or the
+/// checkpoints of one whose results file is gone) unless `overwrite`.
+fn check_new_output(
+    folder: &std::path::Path,
+    results: &std::path::Path,
+    overwrite: bool,
+) -> Result<()> {
+    if overwrite {
+        return Ok(());
+    }
+    if results.exists() {
+        return Err(Error::Io(format!(
+            "{}: results file exists already; use --overwrite to replace it, or --out to write elsewhere",
+            results.display()
+        )));
+    }
+    let cks = crate::checkpoint::list(folder);
+    if let Some((_, p)) = cks.last() {
+        return Err(Error::Io(format!(
+            "{}: the output folder holds {} checkpoints of an earlier run (newest {}) but no results file; use --overwrite to replace them, or --out to write elsewhere",
+            folder.display(),
+            cks.len(),
+            p.display()
+        )));
+    }
+    Ok(())
+}
+
+/// Removes the checkpoints (and diagnostic state) of the run a new run replaces: they
+/// continue a results file that is being replaced, and being later in time they would
+/// outlive the new run's checkpoints when pruning. `keep` (a branch's parent) stays.
+fn replace_earlier_run(folder: &std::path::Path, keep: Option<&std::path::Path>) {
+    crate::checkpoint::remove_temporaries(folder);
+    let removed = crate::checkpoint::remove_all(folder, keep);
+    if removed > 0 {
+        log::info!(
+            "removed {removed} checkpoint files of the earlier run in {}",
+            folder.display()
+        );
     }
 }
 
@@ -509,19 +571,19 @@ pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
         .unwrap_or_else(|| model.output.folder.clone());
     std::fs::create_dir_all(&folder)
         .map_err(|e| Error::io(&folder, format!("cannot create the output folder: {e}")))?;
+    let _lock = crate::output::FolderLock::acquire(&folder)?;
     let results_path = folder.join("results.h5");
     let mut sys = System::new(model);
     let n = sys.n;
+    let mut parent = None;
     let (state, results, since_series) = match &opts.start {
         Start::Fresh => {
-            if results_path.exists() && !opts.overwrite {
-                return Err(Error::Io(format!(
-                    "{}: results file exists already; use --overwrite to replace it, or --out to write elsewhere",
-                    results_path.display()
-                )));
-            }
+            check_new_output(&folder, &results_path, opts.overwrite)?;
             let u0 = initial_unknowns(model, opts.solver)?;
+            // Create (and so lock) the new results file first: a run still writing to the
+            // folder makes this fail before its checkpoints are touched.
             let results = ResultsFile::create(&results_path, model, opts.overwrite)?;
+            replace_earlier_run(&folder, None);
             let state =
                 Stepper::initial_state(&mut sys, model.time.start, model.time.dt_initial, u0);
             (state, results, 0u64)
@@ -554,9 +616,23 @@ pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
             }
             let results = ResultsFile::open_append(
                 &results_path,
+                &ck.faces,
                 ck.position.snapshots as usize,
                 ck.position.series_rows as usize,
+                ck.info.last_series_year,
+                ck.info.last_snapshot_year,
             )?;
+            // The results after the checkpoint are gone, so later checkpoints in the
+            // folder no longer match them (and would outlive the new ones when pruning).
+            crate::checkpoint::remove_temporaries(&folder);
+            let removed = crate::checkpoint::remove_after(&folder, ck.state.t, path);
+            if removed > 0 {
+                log::info!(
+                    "removed {removed} checkpoints later than {} (their results rows were dropped)",
+                    path.display()
+                );
+            }
+            parent = ck.info.parent.clone();
             (ck.state, results, ck.position.since_series)
         }
         Start::Branch(path) => {
@@ -591,13 +667,10 @@ pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
                     model.time.end / SECONDS_PER_YEAR
                 )));
             }
-            if results_path.exists() && !opts.overwrite {
-                return Err(Error::Io(format!(
-                    "{}: results file exists already; use --overwrite to replace it, or --out to write elsewhere",
-                    results_path.display()
-                )));
-            }
+            check_new_output(&folder, &results_path, opts.overwrite)?;
             let results = ResultsFile::create(&results_path, model, opts.overwrite)?;
+            replace_earlier_run(&folder, Some(path));
+            parent = Some((path.display().to_string(), ck.state.t / SECONDS_PER_YEAR));
             results.set_attr("parent_checkpoint", &path.display().to_string())?;
             results.set_attr(
                 "parent_time_year",
@@ -619,6 +692,7 @@ pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
         profile: Profile::default(),
         since_series,
         folder: folder.clone(),
+        parent,
     };
     if fresh_output {
         r.sys.evaluate(r.st.state.t, &r.st.state.u);

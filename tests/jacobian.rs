@@ -182,6 +182,7 @@ fn jacobian_matches_finite_differences_other_boundaries() {
     for avg in [
         deepdry::props::conductivity::FaceAveraging::Geometric,
         deepdry::props::conductivity::FaceAveraging::Harmonic,
+        deepdry::props::conductivity::FaceAveraging::Upstream,
     ] {
         m.physics.face_conductivity = avg;
         check(

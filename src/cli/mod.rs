@@ -29,7 +29,7 @@ pub enum Command {
         /// Output folder (default: the case's `output.folder`).
         #[arg(long)]
         out: Option<PathBuf>,
-        /// Replace an existing results file.
+        /// Replace an existing results file (and the checkpoints of the run that wrote it).
         #[arg(long)]
         overwrite: bool,
         /// No progress bar.
@@ -45,10 +45,37 @@ pub enum Command {
         #[arg(long)]
         start_from: Option<PathBuf>,
     },
+    /// Measure performance: the reference case and a scaling series over the cell count.
+    Bench {
+        /// The reference case.
+        #[arg(long, default_value = "cases/benchmark-300m.toml")]
+        case: PathBuf,
+        /// Cell counts of the scaling series, comma-separated.
+        #[arg(long, value_delimiter = ',', default_value = "300,1000,3000,10000")]
+        cells: Vec<usize>,
+        /// Simulated span of the scaling runs [yr].
+        #[arg(long, default_value_t = 1000.0)]
+        span_years: f64,
+    },
     /// Summarise a results or checkpoint file.
     Inspect {
         /// A deepdry results or checkpoint file (HDF5).
         file: PathBuf,
+    },
+    /// Draw profiles and time series of a results file as SVG and PNG.
+    Plot {
+        /// The results file (HDF5) written by `deepdry run`.
+        results: PathBuf,
+        /// Output folder (default: the results file's folder).
+        #[arg(long)]
+        out: Option<PathBuf>,
+        /// Snapshot times to draw [yr], comma-separated; the nearest snapshots are used
+        /// (default: up to 6 spread in log time).
+        #[arg(long, value_delimiter = ',', num_args = 1.., allow_negative_numbers = true)]
+        times: Option<Vec<f64>>,
+        /// Logarithmic time axis for the time series (automatic beyond 3 decades).
+        #[arg(long)]
+        log_time: bool,
     },
     /// Run the verification cases (analytic and published references) and print the table.
     Verify {
@@ -131,8 +158,32 @@ pub fn dispatch(cli: Cli) -> Result<()> {
             print!("{}", summary.text());
             Ok(())
         }
+        Command::Bench {
+            case,
+            cells,
+            span_years,
+        } => {
+            print!("{}", crate::bench::bench(&case, &cells, span_years)?);
+            Ok(())
+        }
         Command::Inspect { file } => {
             print!("{}", crate::inspect::summary(&file)?);
+            Ok(())
+        }
+        Command::Plot {
+            results,
+            out,
+            times,
+            log_time,
+        } => {
+            let opts = crate::plot::PlotOptions {
+                out,
+                times,
+                log_time,
+            };
+            for p in crate::plot::plot_results(&results, &opts)? {
+                println!("{}", p.display());
+            }
             Ok(())
         }
         Command::Verify { only, report } => crate::verify::command(only, report),

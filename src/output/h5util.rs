@@ -114,3 +114,17 @@ pub fn truncate(ds: &Dataset, len: usize) -> hdf5::Result<()> {
     }
     Ok(())
 }
+
+/// HDF5 refuses to open a file that another process has open for writing (file locking).
+/// Returns the one-line message for that case, or `None` for any other error.
+pub fn in_use_message(path: &std::path::Path, err: &hdf5::Error) -> Option<String> {
+    let text = err.to_string();
+    if text.contains("unable to lock file") {
+        Some(format!(
+            "{}: the file is open for writing in another process (a deepdry run still going?); wait until it has stopped (its checkpoints can be inspected meanwhile)",
+            path.display()
+        ))
+    } else {
+        None
+    }
+}

@@ -30,3 +30,53 @@ pub fn now_utc() -> String {
         rem % 60
     )
 }
+
+/// An exclusive lock on an output folder, held for the whole run: two runs writing to one
+/// folder would destroy each other's results (HDF5 truncates a results file before it finds
+/// it locked) and checkpoints. The lock is an advisory lock on `.deepdry.lock` in the
+/// folder; the operating system releases it when the process ends, however it ends.
+pub struct FolderLock {
+    _file: std::fs::File,
+}
+
+impl FolderLock {
+    pub const NAME: &'static str = ".deepdry.lock";
+
+    /// Takes the lock, or fails at once with a one-line message when another process
+    /// holds it.
+    pub fn acquire(folder: &std::path::Path) -> crate::error::Result<FolderLock> {
+        use std::io::{Read, Seek, Write};
+        let path = folder.join(Self::NAME);
+        let mut file = std::fs::OpenOptions::new()
+            .read(true)
+            .write(true)
+            .create(true)
+            .truncate(false)
+            .open(&path)
+            .map_err(|e| {
+                crate::error::Error::io(&path, format!("cannot create the lock file: {e}"))
+            })?;
+        match file.try_lock() {
+            Ok(()) => {
+                let _ = file.set_len(0);
+                let _ = file.seek(std::io::SeekFrom::Start(0));
+                let _ = write!(file, "{}", std::process::id());
+                Ok(FolderLock { _file: file })
+            }
+            Err(std::fs::TryLockError::WouldBlock) => {
+                let mut pid = String::new();
+                let _ = file.read_to_string(&mut pid);
+                let pid = pid.trim();
+                Err(crate::error::Error::Io(format!(
+                    "{}: another deepdry run{} is writing to this folder; wait until it has stopped, or use --out for another folder",
+                    folder.display(),
+                    if pid.is_empty() { String::new() } else { format!(" (process {pid})") }
+                )))
+            }
+            Err(std::fs::TryLockError::Error(e)) => Err(crate::error::Error::io(
+                &path,
+                format!("cannot lock the output folder: {e}"),
+            )),
+        }
+    }
+}

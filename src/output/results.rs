@@ -15,7 +15,9 @@
 //! the file is flushed to disk at every snapshot, so a killed run leaves a readable file.
 
 use super::diagnostics::{Profile, SeriesRecord};
-use super::h5util::{append_1d, append_row, attr_str, growable_1d, growable_2d, write_1d};
+use super::h5util::{
+    append_1d, append_row, attr_str, growable_1d, growable_2d, in_use_message, write_1d,
+};
 use crate::error::{Error, Result};
 use crate::model::Model;
 use hdf5::types::VarLenUnicode;
@@ -79,6 +81,27 @@ pub struct ResultsFile {
     pending: Vec<SeriesRecord>,
     pub snapshots: usize,
     pub records: usize,
+    /// Time [yr] of the last series row and of the last snapshot written to the file.
+    pub last_series_year: Option<f64>,
+    pub last_snapshot_year: Option<f64>,
+}
+
+/// The last value of a 1-D f64 dataset of `len` rows.
+fn last_value(ds: &Dataset, len: usize) -> hdf5::Result<Option<f64>> {
+    if len == 0 {
+        return Ok(None);
+    }
+    let v = ds.read_slice_1d::<f64, _>(ndarray::s![len - 1..len])?;
+    Ok(v.first().copied())
+}
+
+/// Exact equality of two recorded times, NaN-free (both written by the same run).
+fn same_time(a: Option<f64>, b: Option<f64>) -> bool {
+    match (a, b) {
+        (Some(x), Some(y)) => x.to_bits() == y.to_bits(),
+        (None, None) => true,
+        _ => false,
+    }
 }
 
 fn h5(path: &Path) -> impl Fn(hdf5::Error) -> Error + '_ {
@@ -95,7 +118,10 @@ impl ResultsFile {
             )));
         }
         let e = h5(path);
-        let file = File::create(path).map_err(&e)?;
+        let file = File::create(path).map_err(|err| match in_use_message(path, &err) {
+            Some(m) => Error::Io(m),
+            None => e(err),
+        })?;
         let root = file.as_group().map_err(&e)?;
         attr_str(&root, "kind", RESULTS_KIND).map_err(&e)?;
         attr_str(&root, "title", &model.title).map_err(&e)?;
@@ -181,21 +207,54 @@ impl ResultsFile {
             pending: Vec::new(),
             snapshots: 0,
             records: 0,
+            last_series_year: None,
+            last_snapshot_year: None,
         })
     }
 
     /// Reopens an existing results file to append after `snapshots` snapshots and
     /// `series_rows` series rows; anything written after those (by an interrupted run
     /// past its last checkpoint) is dropped.
-    pub fn open_append(path: &Path, snapshots: usize, series_rows: usize) -> Result<Self> {
-        let e = h5(path);
-        let file = File::open_rw(path).map_err(|err| {
+    ///
+    /// The file must belong to the checkpoint: the same mesh (`faces`), at least that many
+    /// rows, and, where the checkpoint recorded them, the same times in its last series row
+    /// and last snapshot. A file that is missing, cannot be opened or read (for example
+    /// damaged by a kill during a flush), or does not match is refused with one line that
+    /// says how to go on; the file is not modified then.
+    pub fn open_append(
+        path: &Path,
+        faces: &[f64],
+        snapshots: usize,
+        series_rows: usize,
+        last_series_year: Option<f64>,
+        last_snapshot_year: Option<f64>,
+    ) -> Result<Self> {
+        let how = "run again from the start with --overwrite (deterministic: the same results), \
+                   or branch from the checkpoint into a new folder with --start-from CHECKPOINT --out FOLDER";
+        if !path.exists() {
+            return Err(Error::Io(format!(
+                "{}: no such file; the checkpoint continues this results file; {how}",
+                path.display()
+            )));
+        }
+        let damaged = |what: String| {
             Error::Io(format!(
-                "{}: cannot reopen the results file to continue it: {err}",
+                "{}: the results file cannot be continued: {what}; {how}",
                 path.display()
             ))
+        };
+        let h5err = |err: hdf5::Error| {
+            let msg = err.to_string();
+            damaged(format!(
+                "damaged or not an HDF5 file ({})",
+                msg.lines().next().unwrap_or("")
+            ))
+        };
+        let file = File::open_rw(path).map_err(|err| match in_use_message(path, &err) {
+            Some(m) => Error::Io(m),
+            None => h5err(err),
         })?;
-        let root = file.as_group().map_err(&e)?;
+        let root = file.as_group().map_err(h5err)?;
         let kind = super::h5util::read_attr_str(&root, "kind").unwrap_or_default();
         if kind != RESULTS_KIND {
             return Err(Error::input(format!(
@@ -203,7 +262,16 @@ impl ResultsFile {
                 path.display()
             )));
         }
-        let ds = |name: &str| file.dataset(name).map_err(&e);
+        let ds = |name: &str| file.dataset(name).map_err(h5err);
+        let stored_faces = ds("mesh/face_depth")?.read_raw::<f64>().map_err(h5err)?;
+        if stored_faces != faces {
+            return Err(Error::input(format!(
+                "{}: the results file has {} cells, the checkpoint {}, or other cell depths; it does not belong to this checkpoint",
+                path.display(),
+                stored_faces.len().saturating_sub(1),
+                faces.len().saturating_sub(1)
+            )));
+        }
         let profile_time = ds("profiles/time")?;
         let have_snap = profile_time.shape()[0];
         let series_time = ds("series/time")?;
@@ -226,6 +294,40 @@ impl ResultsFile {
         for (name, _, _) in SeriesRecord::FIELDS {
             series_sets.push(ds(&format!("series/{name}"))?);
         }
+        // Every dataset must hold the rows the checkpoint counts on.
+        for d in cell_sets.iter().chain(face_sets.iter()) {
+            if d.shape()[0] < snapshots {
+                return Err(damaged(format!(
+                    "{} has {} rows, fewer than its {snapshots} snapshots",
+                    d.name(),
+                    d.shape()[0]
+                )));
+            }
+        }
+        for d in &series_sets {
+            if d.shape()[0] < series_rows {
+                return Err(damaged(format!(
+                    "{} has {} rows, fewer than its {series_rows} series rows",
+                    d.name(),
+                    d.shape()[0]
+                )));
+            }
+        }
+        let last_row = last_value(&series_time, series_rows).map_err(h5err)?;
+        let last_snap = last_value(&profile_time, snapshots).map_err(h5err)?;
+        if (last_series_year.is_some() && !same_time(last_row, last_series_year))
+            || (last_snapshot_year.is_some() && !same_time(last_snap, last_snapshot_year))
+        {
+            return Err(Error::input(format!(
+                "{}: the results file's series row {series_rows} is at {:?} yr and snapshot {snapshots} at {:?} yr, the checkpoint recorded {:?} and {:?}; it does not belong to this checkpoint",
+                path.display(),
+                last_row,
+                last_snap,
+                last_series_year,
+                last_snapshot_year
+            )));
+        }
+        let e = h5(path);
         use super::h5util::truncate;
         truncate(&profile_time, snapshots).map_err(&e)?;
         for d in cell_sets.iter().chain(face_sets.iter()) {
@@ -247,6 +349,8 @@ impl ResultsFile {
             pending: Vec::new(),
             snapshots,
             records: series_rows,
+            last_series_year: last_row,
+            last_snapshot_year: last_snap,
         })
     }
 
@@ -287,6 +391,7 @@ impl ResultsFile {
             append_row(ds, v).map_err(&e)?;
         }
         self.snapshots += 1;
+        self.last_snapshot_year = Some(time_year);
         self.flush()
     }
 
@@ -302,6 +407,7 @@ impl ResultsFile {
                 append_1d(ds, &col).map_err(&e)?;
             }
             self.records += self.pending.len();
+            self.last_series_year = self.pending.last().map(|r| r.time_year);
             self.pending.clear();
         }
         self.file.flush().map_err(&e)

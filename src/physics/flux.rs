@@ -96,6 +96,10 @@ fn harmonic(a: D6, b: D6, da: f64, db: f64) -> D6 {
     a * b * (da + db) / den
 }
 
+/// Half-width of the band of driving gradient |∂h/∂z − 1| [-] over which upstream
+/// weighting blends the two cells' conductivities.
+pub const UPSTREAM_BAND: f64 = 1e-3;
+
 /// Smallest conductivity used inside logarithms [m s⁻¹] (far below any physical value).
 const K_FLOOR: f64 = 1e-300;
 
@@ -128,10 +132,19 @@ pub fn face_flux(
             interp(la, lb, da, db).exp()
         }
         FaceAveraging::Upstream => {
-            if drive.v <= 0.0 {
+            // The upper cell's K for downward flow (drive < 0), the lower's for upward;
+            // blended smoothly over |∂h/∂z − 1| < UPSTREAM_BAND, where the flux is near zero
+            // anyway, so Newton does not cycle when the flow direction flips.
+            let x = drive.v / UPSTREAM_BAND;
+            if x <= -1.0 {
                 ka
-            } else {
+            } else if x >= 1.0 {
                 kb
+            } else {
+                // w = weight of the lower cell, smoothstep in x ∈ (−1, 1).
+                let s = (drive / UPSTREAM_BAND + 1.0) * 0.5;
+                let w = s * s * (3.0 - s * 2.0);
+                ka + (kb - ka) * w
             }
         }
     };

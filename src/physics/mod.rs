@@ -55,6 +55,8 @@ pub struct System {
     /// Workspace: cell properties and face fluxes of the last evaluation.
     pub cells: Vec<CellProps>,
     pub faces: Vec<FaceFlux>,
+    /// Per face: total energy, water and vapour flux (computed once per evaluation).
+    pub face_totals: Vec<[D6; 3]>,
 }
 
 impl System {
@@ -84,6 +86,7 @@ impl System {
             bottom: model.bottom.clone(),
             cells: vec![zero; n],
             faces: vec![FaceFlux::zero(); n + 1],
+            face_totals: vec![[D6::cst(0.0); 3]; n + 1],
         }
     }
 
@@ -126,6 +129,9 @@ impl System {
         }
         self.faces[0] = self.top_face(t);
         self.faces[n] = self.bottom_face(t);
+        for (tot, f) in self.face_totals.iter_mut().zip(self.faces.iter()) {
+            *tot = [f.energy(), f.water(), f.vapor()];
+        }
     }
 
     /// Storage per bulk volume of cell i: [energy J m⁻³, water kg m⁻³, vapour kg m⁻³],
@@ -176,13 +182,15 @@ impl System {
             let w = self.widths[i];
             let cp = &self.cells[i];
             let (fa, fb) = (&self.faces[i], &self.faces[i + 1]);
-            let sw = |f: &FaceFlux| f.scale_water.max(f.water().v.abs());
-            let se = |f: &FaceFlux| f.scale_energy.max(f.energy().v.abs());
+            let (ta, tb) = (&self.face_totals[i], &self.face_totals[i + 1]);
+            let sw = |f: &FaceFlux, t: &[D6; 3]| f.scale_water.max(t[WATER].v.abs());
+            let se = |f: &FaceFlux, t: &[D6; 3]| f.scale_energy.max(t[ENERGY].v.abs());
             let sv = |f: &FaceFlux| f.vapor_iso.v.abs() + f.vapor_th.v.abs();
-            out[3 * i + ENERGY] =
-                w * ((c * cp.energy.v).abs() + hist[3 * i + ENERGY].abs()) + se(fa) + se(fb);
+            out[3 * i + ENERGY] = w * ((c * cp.energy.v).abs() + hist[3 * i + ENERGY].abs())
+                + se(fa, ta)
+                + se(fb, tb);
             out[3 * i + WATER] =
-                w * ((c * cp.water.v).abs() + hist[3 * i + WATER].abs()) + sw(fa) + sw(fb);
+                w * ((c * cp.water.v).abs() + hist[3 * i + WATER].abs()) + sw(fa, ta) + sw(fb, tb);
             out[3 * i + VAPOR] = if let Some(b) = rate {
                 w * ((c * cp.vapor.v).abs()
                     + hist[3 * i + VAPOR].abs()
@@ -232,10 +240,7 @@ impl System {
         }
         // Flux differences.
         for j in 0..=n {
-            let f = &self.faces[j];
-            let fe = f.energy();
-            let fw = f.water();
-            let fv = f.vapor();
+            let [fe, fw, fv] = self.face_totals[j];
             if j >= 1 {
                 res[3 * (j - 1) + ENERGY] += fe.v;
                 res[3 * (j - 1) + WATER] += fw.v;
@@ -280,8 +285,7 @@ impl System {
                 }
             }
             for j in 0..=n {
-                let f = &self.faces[j];
-                let mut vals: [D6; 3] = [f.energy(), f.water(), f.vapor()];
+                let mut vals: [D6; 3] = self.face_totals[j];
                 if kinetic.is_none() {
                     vals[VAPOR] = D6::cst(0.0);
                 }

@@ -41,7 +41,7 @@ impl Default for NewtonOptions {
             update_h_abs: 1e-9,
             update_rv_rel: 1e-10,
             update_rv_abs: 1e-16,
-            residual_tol_loose: 1e-7,
+            residual_tol_loose: 1e-8,
             max_dt_per_iter: 5.0,
             max_dh_factor: 10.0,
             max_dh_abs: 2.0,
@@ -78,6 +78,9 @@ pub struct NewtonWork {
     pub row: Vec<f64>,
     pub col: Vec<f64>,
     pub jac: BlockTri,
+    /// The iterate before the last update and that update (for backtracking).
+    pub u_prev: Vec<f64>,
+    pub step: Vec<f64>,
 }
 
 impl NewtonWork {
@@ -89,6 +92,8 @@ impl NewtonWork {
             row: vec![0.0; 3 * n],
             col: vec![0.0; 3 * n],
             jac: BlockTri::new(n),
+            u_prev: vec![0.0; 3 * n],
+            step: vec![0.0; 3 * n],
         }
     }
 }
@@ -129,6 +134,8 @@ pub fn solve(
     let mut last = f64::INFINITY;
     let mut growth = 0;
     let mut small_update = false;
+    let mut lambda = 1.0;
+    let mut backtracks = 0;
     for it in 0..=opts.max_iter {
         sys.assemble(t, u, c, hist, &mut w.res, Some(&mut w.jac))
             .map_err(NewtonFailure::NonFinite)?;
@@ -151,6 +158,18 @@ pub fn solve(
                 residual: r,
             });
         }
+        // Backtracking: a full step that made the residual worse is halved (up to 4 times)
+        // before a new direction is computed; this tames kinks such as the air-entry head.
+        if r > last && backtracks < 4 {
+            backtracks += 1;
+            lambda *= 0.5;
+            for k in 0..u.len() {
+                u[k] = w.u_prev[k] + lambda * w.step[k];
+            }
+            continue;
+        }
+        backtracks = 0;
+        lambda = 1.0;
         if r > last {
             growth += 1;
             if growth >= 3 {
@@ -206,9 +225,13 @@ pub fn solve(
             {
                 small_update = false;
             }
-            u[kt] += dt;
-            u[kh] += dh;
-            u[kv] += drv;
+            w.step[kt] = dt;
+            w.step[kh] = dh;
+            w.step[kv] = drv;
+        }
+        w.u_prev.copy_from_slice(u);
+        for k in 0..u.len() {
+            u[k] += w.step[k];
         }
     }
     Err(NewtonFailure::NotConverged {

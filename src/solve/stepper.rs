@@ -97,6 +97,17 @@ pub struct HistoryPoint {
     pub throughput: [f64; 2],
 }
 
+impl HistoryPoint {
+    fn empty(len: usize) -> Self {
+        HistoryPoint {
+            t: 0.0,
+            u: vec![0.0; len],
+            inflow: [0.0; 2],
+            throughput: [0.0; 2],
+        }
+    }
+}
+
 /// The stepper's state: everything needed to continue a run exactly.
 #[derive(Debug, Clone, PartialEq)]
 pub struct StepState {
@@ -127,11 +138,16 @@ pub struct Stepper {
     work: NewtonWork,
     u_old: Vec<f64>,
     m_old: Vec<f64>,
+    /// Storages at the current state (kept from the last accepted step's evaluation).
+    m_cur: Vec<f64>,
     hist: Vec<f64>,
     pred: Vec<f64>,
     /// Storages of the history points (recomputed from `history[k].u` when it changes).
     m_hist: Vec<Vec<f64>>,
 }
+
+/// Largest step ratio Δt_{n+1}/Δt_n for the BDF order (index = order).
+const BDF_MAX_RATIO: [f64; 6] = [2.0, 2.0, 2.0, 1.5, 1.2, 1.08];
 
 /// Derivative at τ[0] of the Lagrange basis polynomials through τ[0..=k].
 fn bdf_weights(tau: &[f64], out: &mut [f64]) {
@@ -182,11 +198,13 @@ impl Stepper {
             work: NewtonWork::new(n),
             u_old: vec![0.0; 3 * n],
             m_old: vec![0.0; 3 * n],
+            m_cur: vec![0.0; 3 * n],
             hist: vec![0.0; 3 * n],
             pred: vec![0.0; 3 * n],
             m_hist: Vec::new(),
         };
         s.refresh_history_storage(sys);
+        sys.storage_into(&mut s.m_cur);
         s
     }
 
@@ -250,8 +268,7 @@ impl Stepper {
     pub fn step(&mut self, sys: &mut System, t_stop: f64) -> Result<StepInfo, StepFailure> {
         let n = sys.n;
         self.u_old.copy_from_slice(&self.state.u);
-        sys.evaluate(self.state.t, &self.u_old);
-        sys.storage_into(&mut self.m_old);
+        self.m_old.copy_from_slice(&self.m_cur);
         let bdf = match self.opts.integrator {
             Integrator::Bdf {
                 max_order,
@@ -322,17 +339,18 @@ impl Stepper {
                 }
                 self.pred[i] = v;
             }
-            if bdf.is_some() {
-                // Keep the guess physical: vapour density positive.
-                for i in 0..n {
-                    if self.pred[3 * i + RV].is_nan() || self.pred[3 * i + RV] <= 0.0 {
-                        self.pred[3 * i + RV] = self.u_old[3 * i + RV];
-                    }
+            // Newton starts from the predictor (backward Euler: linear extrapolation of the
+            // last two points), kept physical: vapour density positive, head not above 0
+            // where the old head was below.
+            for i in 0..n {
+                if self.pred[3 * i + RV].is_nan() || self.pred[3 * i + RV] <= 0.0 {
+                    self.pred[3 * i + RV] = self.u_old[3 * i + RV];
                 }
-                s.u.copy_from_slice(&self.pred);
-            } else {
-                s.u.copy_from_slice(&self.u_old);
+                if self.u_old[3 * i + H] < 0.0 && self.pred[3 * i + H] > 0.0 {
+                    self.pred[3 * i + H] = 0.5 * self.u_old[3 * i + H];
+                }
             }
+            s.u.copy_from_slice(&self.pred);
             let result = newton::solve(
                 sys,
                 self.lin.as_mut(),
@@ -460,7 +478,15 @@ impl Stepper {
             } else {
                 factor = change_factor(sys, &s.u, &self.u_old, &self.opts, stats.iterations);
             }
-            let factor = factor.clamp(0.2, self.opts.max_growth.max(1.0));
+            // Variable-step BDF of order ≥ 3 is zero-stable only for bounded step ratios
+            // (Grigorieff 1983; bounds of about 1.6, 1.3 and 1.1 for orders 3, 4, 5, from
+            // memory): growth is capped below them for the order the next step will use.
+            let cap = if bdf.is_some() {
+                BDF_MAX_RATIO[s.order.clamp(1, 5)]
+            } else {
+                f64::INFINITY
+            };
+            let factor = factor.clamp(0.2, self.opts.max_growth.max(1.0).min(cap));
             s.counters.steps += 1;
             // Cumulative inflow by the same formula as the storages:
             // α0 W_new + α1 W_old + Σ αj W_j = F_in(new).
@@ -486,20 +512,30 @@ impl Stepper {
                 new_inflow[q] = (fin[q] - a) / c;
                 new_throughput[q] = (fabs[q] - b) / c;
             }
-            if bdf.is_some() {
+            {
                 // Shift the history: the old current point becomes the newest history point.
                 let keep = match bdf {
                     Some((max_order, ..)) => max_order + 1,
-                    None => 0,
+                    None => 1,
                 };
-                let point = HistoryPoint {
-                    t: s.t,
-                    u: self.u_old.clone(),
-                    inflow: s.inflow,
-                    throughput: s.throughput,
+                // Reuse the oldest point's buffers once the history is full.
+                let (mut point, mut m) = if s.history.len() >= keep {
+                    (
+                        s.history
+                            .pop()
+                            .unwrap_or_else(|| HistoryPoint::empty(3 * n)),
+                        self.m_hist.pop().unwrap_or_else(|| vec![0.0; 3 * n]),
+                    )
+                } else {
+                    (HistoryPoint::empty(3 * n), vec![0.0; 3 * n])
                 };
+                point.t = s.t;
+                point.u.copy_from_slice(&self.u_old);
+                point.inflow = s.inflow;
+                point.throughput = s.throughput;
+                m.copy_from_slice(&self.m_old);
                 s.history.insert(0, point);
-                self.m_hist.insert(0, self.m_old.clone());
+                self.m_hist.insert(0, m);
                 s.history.truncate(keep);
                 self.m_hist.truncate(keep);
             }
@@ -509,6 +545,7 @@ impl Stepper {
             s.dt = (base * factor).clamp(self.opts.dt_min, self.opts.dt_max);
             s.t = t_new;
             // sys holds the evaluation at the new state (Newton's last assembly).
+            sys.storage_into(&mut self.m_cur);
             return Ok(StepInfo {
                 dt,
                 newton_iterations: stats.iterations,

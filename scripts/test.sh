@@ -1,0 +1,7 @@
+#!/usr/bin/env bash
+# The test command: installs what is missing, then runs the whole test suite in release
+# mode (faer is ~25x slower in debug builds).
+set -euo pipefail
+cd "$(dirname "$0")/.."
+bash scripts/setup.sh
+cargo test --release

@@ -1,0 +1,200 @@
+//! `deepdry bench`: the performance benchmark. Measures, on this machine and in this run,
+//! the reference 1-Myr case, a scaling series over the cell count, the cost of one
+//! residual + Jacobian assembly, and the bare factorise-and-solve of a same-size
+//! block-tridiagonal system with each linear solver (the floor an iteration can approach).
+
+use crate::error::{Error, Result};
+use crate::physics::System;
+use crate::run::{initial_unknowns, run, RunOptions};
+use crate::solve::blocktri::BlockTri;
+use crate::solve::linear::{make_solver, SolverKind};
+use std::fmt::Write;
+use std::path::Path;
+use std::time::Instant;
+
+/// Peak resident memory of this process [MiB] (Linux `VmHWM`), if available.
+pub fn peak_memory_mib() -> Option<f64> {
+    let s = std::fs::read_to_string("/proc/self/status").ok()?;
+    let line = s.lines().find(|l| l.starts_with("VmHWM:"))?;
+    let kb: f64 = line.split_whitespace().nth(1)?.parse().ok()?;
+    Some(kb / 1024.0)
+}
+
+/// Mean wall time [s] of `f` over enough repetitions to last ~0.2 s (at least 3).
+fn time_it(mut f: impl FnMut()) -> f64 {
+    f();
+    let start = Instant::now();
+    let mut reps = 0u32;
+    while reps < 3 || start.elapsed().as_secs_f64() < 0.2 {
+        f();
+        reps += 1;
+    }
+    start.elapsed().as_secs_f64() / reps as f64
+}
+
+struct Row {
+    label: String,
+    cells: usize,
+    wall: f64,
+    steps: u64,
+    newton: u64,
+    assembly: f64,
+    thomas: f64,
+    sparse: f64,
+}
+
+fn measure(label: &str, text: &str, origin: &str, base: &Path, out: &Path) -> Result<Row> {
+    let model = crate::case::parse(text, origin, base)?;
+    let opts = RunOptions {
+        out: Some(out.to_path_buf()),
+        overwrite: true,
+        progress: false,
+        ..Default::default()
+    };
+    let summary = run(&model, &opts)?;
+    // Component costs at the initial state.
+    let mut sys = System::new(&model);
+    let n = sys.n;
+    let u = initial_unknowns(&model, SolverKind::BlockThomas)?;
+    let hist = vec![0.0; 3 * n];
+    let mut res = vec![0.0; 3 * n];
+    let mut jac = BlockTri::new(n);
+    let c = 1.0 / (86400.0 * 365.25);
+    let assembly = time_it(|| {
+        let _ = sys.assemble(model.time.start, &u, c, &hist, &mut res, Some(&mut jac));
+    });
+    // Make the system well scaled like Newton does (rows by their magnitudes).
+    let mut scale = vec![0.0; 3 * n];
+    sys.residual_scale_into(c, &hist, &mut scale);
+    let row: Vec<f64> = scale.iter().map(|s| 1.0 / s).collect();
+    let col: Vec<f64> = (0..3 * n)
+        .map(|k| match k % 3 {
+            0 => 1.0,
+            1 => 1.0 + u[k].abs(),
+            _ => 1e-3 + u[k].abs(),
+        })
+        .collect();
+    jac.scale(&row, &col);
+    let solve_time = |kind: SolverKind| -> Result<f64> {
+        let mut lin = make_solver(kind, n);
+        let mut x = res.clone();
+        lin.factor(&jac)
+            .map_err(|e| Error::Numerical(format!("benchmark matrix: {e:?}")))?;
+        Ok(time_it(|| {
+            x.copy_from_slice(&res);
+            let _ = lin.factor(&jac);
+            let _ = lin.solve(&mut x);
+        }))
+    };
+    let thomas = solve_time(SolverKind::BlockThomas)?;
+    let sparse = solve_time(SolverKind::SparseLu)?;
+    Ok(Row {
+        label: label.to_string(),
+        cells: n,
+        wall: summary.wall_seconds,
+        steps: summary.counters.steps,
+        newton: summary.counters.newton_iterations,
+        assembly,
+        thomas,
+        sparse,
+    })
+}
+
+/// Replaces the value of `key = ...` on its line in a TOML text (first occurrence); a
+/// value starting with `#` replaces the whole line (drops the key).
+fn set_key(text: &str, key: &str, value: &str) -> String {
+    let mut done = false;
+    text.lines()
+        .map(|l| {
+            if !done && l.trim_start().starts_with(&format!("{key} =")) {
+                done = true;
+                if value.starts_with('#') {
+                    value.to_string()
+                } else {
+                    format!("{key} = {value}")
+                }
+            } else {
+                l.to_string()
+            }
+        })
+        .collect::<Vec<_>>()
+        .join("\n")
+}
+
+/// Runs the benchmark on `case` (the reference case) and a scaling series over `cells`
+/// for `span_years` on uniform meshes (the case's keys `cells`, `growth`, `end_year` are
+/// rewritten and `surface_cell_m`, `bottom_cell_m` dropped); returns the report table.
+pub fn bench(case: &Path, cells: &[usize], span_years: f64) -> Result<String> {
+    let text = std::fs::read_to_string(case).map_err(|e| {
+        Error::input(format!(
+            "{}: cannot read the case file: {e}",
+            case.display()
+        ))
+    })?;
+    let base = case.parent().unwrap_or(Path::new("."));
+    let origin = case.display().to_string();
+    let tmp = std::env::temp_dir().join(format!("deepdry-bench-{}", std::process::id()));
+    std::fs::create_dir_all(&tmp).map_err(|e| Error::io(&tmp, e))?;
+    let mut rows = vec![measure("reference case", &text, &origin, base, &tmp)?];
+    for &n in cells {
+        // Uniform cells, so the series differs only in the cell count.
+        let t = set_key(&text, "cells", &n.to_string());
+        let t = set_key(&t, "growth", "1.0");
+        let t = set_key(&t, "surface_cell_m", "# (uniform)");
+        let t = set_key(&t, "bottom_cell_m", "# (uniform)");
+        let t = set_key(&t, "end_year", &format!("{span_years:e}"));
+        rows.push(measure(
+            &format!("{span_years} yr span"),
+            &t,
+            &origin,
+            base,
+            &tmp,
+        )?);
+    }
+    let _ = std::fs::remove_dir_all(&tmp);
+    let mut out = String::new();
+    let _ = writeln!(
+        out,
+        "deepdry benchmark: {} (single thread, release build)",
+        case.display()
+    );
+    let _ = writeln!(
+        out,
+        "{:<16} {:>7} {:>9} {:>7} {:>8} {:>12} {:>12} {:>12} {:>12} {:>12}",
+        "workload",
+        "cells",
+        "wall [s]",
+        "steps",
+        "Newton",
+        "ms/step",
+        "µs/it/cell",
+        "assembly µs",
+        "thomas µs",
+        "sparse-lu µs"
+    );
+    for r in &rows {
+        let per_it_cell = r.wall / r.newton.max(1) as f64 / r.cells as f64 * 1e6;
+        let _ = writeln!(
+            out,
+            "{:<16} {:>7} {:>9.3} {:>7} {:>8} {:>12.3} {:>12.3} {:>12.1} {:>12.1} {:>12.1}",
+            r.label,
+            r.cells,
+            r.wall,
+            r.steps,
+            r.newton,
+            r.wall / r.steps.max(1) as f64 * 1e3,
+            per_it_cell,
+            r.assembly * 1e6,
+            r.thomas * 1e6,
+            r.sparse * 1e6
+        );
+    }
+    let _ = writeln!(
+        out,
+        "(assembly: one residual + exact Jacobian; thomas / sparse-lu: one bare factorise + solve of the same system)"
+    );
+    if let Some(m) = peak_memory_mib() {
+        let _ = writeln!(out, "peak memory {m:.1} MiB");
+    }
+    Ok(out)
+}

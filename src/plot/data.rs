@@ -1,0 +1,211 @@
+//! Reading a results file for plotting, with one-line errors for anything that is not a
+//! readable deepdry results file.
+
+use crate::error::{Error, Result};
+use crate::output::h5util::read_attr_str;
+use crate::output::results::RESULTS_KIND;
+use hdf5::File;
+use std::path::{Path, PathBuf};
+
+/// Snapshot profiles, [snapshots][cells] or [snapshots][faces].
+#[derive(Debug, Clone, Default)]
+pub struct Profiles {
+    /// Snapshot times [year].
+    pub time: Vec<f64>,
+    /// [degC]
+    pub temperature: Vec<Vec<f64>>,
+    /// [m]
+    pub head: Vec<Vec<f64>>,
+    /// [1]
+    pub liquid_content: Vec<Vec<f64>>,
+    /// [1]
+    pub relative_humidity: Vec<Vec<f64>>,
+    /// Face water fluxes [kg m-2 s-1], positive downward.
+    pub liquid_flux_isothermal: Vec<Vec<f64>>,
+    pub liquid_flux_thermal: Vec<Vec<f64>>,
+    pub vapor_flux_isothermal: Vec<Vec<f64>>,
+    pub vapor_flux_thermal: Vec<Vec<f64>>,
+}
+
+/// The time series, one value per record.
+#[derive(Debug, Clone, Default)]
+pub struct Series {
+    /// [year]
+    pub time: Vec<f64>,
+    /// [kg m-2 s-1], positive downward.
+    pub surface_water_flux: Vec<f64>,
+    pub bottom_water_flux: Vec<f64>,
+    /// [kg m-2]
+    pub water_storage: Vec<f64>,
+    /// [1]
+    pub water_balance_relative_error: Vec<f64>,
+    pub energy_balance_relative_error: Vec<f64>,
+    /// [m]
+    pub drying_front_depth: Vec<f64>,
+}
+
+/// What the plots need from a results file.
+#[derive(Debug, Clone, Default)]
+pub struct Results {
+    pub path: PathBuf,
+    pub title: String,
+    /// Cell-centre and face depths [m].
+    pub depth: Vec<f64>,
+    pub face_depth: Vec<f64>,
+    pub profiles: Profiles,
+    pub series: Series,
+}
+
+fn not_results(path: &Path, why: impl std::fmt::Display) -> Error {
+    Error::input(format!(
+        "{}: not a deepdry results file ({why})",
+        path.display()
+    ))
+}
+
+fn read_vec(file: &File, path: &Path, name: &str, len: Option<usize>) -> Result<Vec<f64>> {
+    let ds = file
+        .dataset(name)
+        .map_err(|_| not_results(path, format!("no dataset /{name}")))?;
+    let v = ds
+        .read_1d::<f64>()
+        .map_err(|e| not_results(path, format!("/{name}: {e}")))?
+        .to_vec();
+    if let Some(n) = len {
+        if v.len() != n {
+            return Err(not_results(
+                path,
+                format!("/{name} has {} values, expected {n}", v.len()),
+            ));
+        }
+    }
+    Ok(v)
+}
+
+fn read_rows(
+    file: &File,
+    path: &Path,
+    name: &str,
+    rows: usize,
+    cols: usize,
+) -> Result<Vec<Vec<f64>>> {
+    let ds = file
+        .dataset(name)
+        .map_err(|_| not_results(path, format!("no dataset /{name}")))?;
+    let a = ds
+        .read_2d::<f64>()
+        .map_err(|e| not_results(path, format!("/{name}: {e}")))?;
+    if a.nrows() != rows || a.ncols() != cols {
+        return Err(not_results(
+            path,
+            format!(
+                "/{name} is {}×{}, expected {rows}×{cols}",
+                a.nrows(),
+                a.ncols()
+            ),
+        ));
+    }
+    Ok(a.outer_iter().map(|r| r.to_vec()).collect())
+}
+
+/// Whether `path` starts with the HDF5 signature (at 0, 512, 1024, ... bytes).
+fn has_hdf5_signature(path: &Path) -> bool {
+    use std::io::{Read, Seek, SeekFrom};
+    const SIG: [u8; 8] = [0x89, b'H', b'D', b'F', b'\r', b'\n', 0x1a, b'\n'];
+    let Ok(mut f) = std::fs::File::open(path) else {
+        return false;
+    };
+    let len = f.metadata().map(|m| m.len()).unwrap_or(0);
+    let mut at = 0u64;
+    while at + 8 <= len {
+        let mut buf = [0u8; 8];
+        if f.seek(SeekFrom::Start(at)).is_err() || f.read_exact(&mut buf).is_err() {
+            return false;
+        }
+        if buf == SIG {
+            return true;
+        }
+        at = if at == 0 { 512 } else { at * 2 };
+    }
+    false
+}
+
+/// Reads `path`. Missing file, a file that is not HDF5, or an HDF5 file without the
+/// results layout give an [`Error::Input`] naming the file and what is wrong.
+pub fn read(path: &Path) -> Result<Results> {
+    if !path.exists() {
+        return Err(Error::input(format!("{}: no such file", path.display())));
+    }
+    if path.is_dir() {
+        return Err(Error::input(format!(
+            "{}: is a folder, not a results file",
+            path.display()
+        )));
+    }
+    let file = File::open(path).map_err(|e| {
+        if has_hdf5_signature(path) {
+            let e = e.to_string();
+            if e.contains("lock") {
+                Error::io(
+                    path,
+                    "cannot open: the file is locked by another program (a run still \
+                     writing it?); wait for it, or set HDF5_USE_FILE_LOCKING=FALSE to read it anyway",
+                )
+            } else {
+                Error::io(path, format!("cannot open the results file: {e}"))
+            }
+        } else {
+            not_results(path, "not an HDF5 file")
+        }
+    })?;
+    let kind =
+        read_attr_str(&file, "kind").map_err(|_| not_results(path, "no `kind` attribute"))?;
+    if kind != RESULTS_KIND {
+        return Err(not_results(path, format!("kind is `{kind}`")));
+    }
+    let title = read_attr_str(&file, "title").unwrap_or_default();
+
+    let face_depth = read_vec(&file, path, "mesh/face_depth", None)?;
+    if face_depth.len() < 2 {
+        return Err(not_results(path, "the mesh has no cells"));
+    }
+    let cells = face_depth.len() - 1;
+    let depth = read_vec(&file, path, "mesh/depth", Some(cells))?;
+
+    let time = read_vec(&file, path, "profiles/time", None)?;
+    let s = time.len();
+    let cell = |name: &str| read_rows(&file, path, &format!("profiles/{name}"), s, cells);
+    let face = |name: &str| read_rows(&file, path, &format!("profiles/{name}"), s, cells + 1);
+    let profiles = Profiles {
+        temperature: cell("temperature")?,
+        head: cell("head")?,
+        liquid_content: cell("liquid_content")?,
+        relative_humidity: cell("relative_humidity")?,
+        liquid_flux_isothermal: face("liquid_flux_isothermal")?,
+        liquid_flux_thermal: face("liquid_flux_thermal")?,
+        vapor_flux_isothermal: face("vapor_flux_isothermal")?,
+        vapor_flux_thermal: face("vapor_flux_thermal")?,
+        time,
+    };
+
+    let stime = read_vec(&file, path, "series/time", None)?;
+    let r = Some(stime.len());
+    let ser = |name: &str| read_vec(&file, path, &format!("series/{name}"), r);
+    let series = Series {
+        surface_water_flux: ser("surface_water_flux")?,
+        bottom_water_flux: ser("bottom_water_flux")?,
+        water_storage: ser("water_storage")?,
+        water_balance_relative_error: ser("water_balance_relative_error")?,
+        energy_balance_relative_error: ser("energy_balance_relative_error")?,
+        drying_front_depth: ser("drying_front_depth")?,
+        time: stime,
+    };
+    Ok(Results {
+        path: path.to_path_buf(),
+        title,
+        depth,
+        face_depth,
+        profiles,
+        series,
+    })
+}

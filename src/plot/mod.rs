@@ -1,0 +1,545 @@
+//! `deepdry plot`: pictures of a results file, as SVG and PNG.
+//!
+//! Profiles against depth (surface at the top) at a few snapshot times, one line per
+//! time: temperature, suction (log), liquid content, relative humidity and the four parts
+//! of the water flux (symmetric log, mm/yr). Time series: water flux at the surface and
+//! the bottom, drying-front depth, water storage and relative balance errors.
+//!
+//! Every text is laid out with a font embedded in the binary (see [`chart`]), so the
+//! pictures do not depend on the fonts a machine has.
+
+pub mod chart;
+pub mod data;
+pub mod scale;
+pub mod times;
+
+use crate::error::{Error, Result};
+use chart::{Figure, Line, Panel};
+use plotters::prelude::*;
+use scale::{Axis, Scale, SymLog};
+use std::path::{Path, PathBuf};
+
+/// Seconds in a year (365.25 days); the results file's time unit.
+pub const YEAR: f64 = 365.25 * 86_400.0;
+/// kg m-2 s-1 of water to mm/yr (1 kg m-2 of water is 1 mm).
+pub const FLUX_TO_MM_PER_YEAR: f64 = YEAR;
+/// Smallest suction drawn [m]: heads above −SUCTION_FLOOR (wetter, including h ≥ 0)
+/// are drawn at this suction on the log axis.
+pub const SUCTION_FLOOR: f64 = 1e-3;
+/// Decades between the largest flux and the edge of the symlog linear band.
+pub const SYMLOG_DECADES: i32 = 4;
+/// The time axis is logarithmic when the run spans more than this many decades.
+pub const AUTO_LOG_TIME_DECADES: f64 = 3.0;
+/// Lines of the time series are thinned to about twice this many points.
+const SERIES_BUCKETS: usize = 1500;
+
+/// Options of `deepdry plot`.
+#[derive(Debug, Clone, Default)]
+pub struct PlotOptions {
+    /// Output folder (default: the results file's folder); created when missing.
+    pub out: Option<PathBuf>,
+    /// Snapshot times to draw [year]; the nearest snapshots are drawn. Default: up to
+    /// [`times::DEFAULT_COUNT`] snapshots spread in log time.
+    pub times: Option<Vec<f64>>,
+    /// Logarithmic time axis for the series (also chosen automatically for long runs).
+    pub log_time: bool,
+}
+
+/// Draws every plot of the results file `path`; returns the files written (SVG and PNG
+/// of each plot).
+pub fn plot_results(path: &Path, opts: &PlotOptions) -> Result<Vec<PathBuf>> {
+    let res = data::read(path)?;
+    let snaps = match &opts.times {
+        Some(t) if !t.is_empty() => times::pick_nearest(&res.profiles.time, t)
+            .map_err(|e| Error::input(format!("{}: {e}", path.display())))?,
+        _ => times::pick_default(&res.profiles.time, times::DEFAULT_COUNT),
+    };
+    if snaps.is_empty() {
+        return Err(Error::input(format!(
+            "{}: the results file has no snapshots to plot",
+            path.display()
+        )));
+    }
+    let out = out_folder(path, opts.out.as_deref())?;
+    let mut figures = profile_figures(&res, &snaps);
+    figures.extend(series_figures(&res, opts.log_time));
+    chart::register_fonts();
+    let mut written = Vec::new();
+    for (name, fig) in &figures {
+        written.extend(write_figure(&out, name, fig)?);
+    }
+    Ok(written)
+}
+
+/// The output folder, created when missing; an [`Error::Io`] when it cannot be.
+fn out_folder(results: &Path, out: Option<&Path>) -> Result<PathBuf> {
+    let dir = match out {
+        Some(d) => d.to_path_buf(),
+        None => match results.parent() {
+            Some(p) if !p.as_os_str().is_empty() => p.to_path_buf(),
+            _ => PathBuf::from("."),
+        },
+    };
+    if dir.exists() && !dir.is_dir() {
+        return Err(Error::io(&dir, "output folder is not a folder"));
+    }
+    std::fs::create_dir_all(&dir)
+        .map_err(|e| Error::io(&dir, format!("cannot create the output folder: {e}")))?;
+    // Writing is checked up front so that a read-only folder gives one clear error
+    // before any picture is drawn.
+    let probe = dir.join(".deepdry-plot-write-test");
+    std::fs::write(&probe, b"")
+        .map_err(|e| Error::io(&dir, format!("cannot write to the output folder: {e}")))?;
+    let _ = std::fs::remove_file(&probe);
+    Ok(dir)
+}
+
+/// Writes `NAME.svg` and `NAME.png` into `dir`.
+pub fn write_figure(dir: &Path, name: &str, fig: &Figure) -> Result<Vec<PathBuf>> {
+    chart::register_fonts();
+    let svg = dir.join(format!("{name}.svg"));
+    let png = dir.join(format!("{name}.png"));
+    {
+        let root = SVGBackend::new(&svg, fig.size).into_drawing_area();
+        chart::draw(&root, fig).map_err(|e| Error::io(&svg, e))?;
+        root.present().map_err(|e| Error::io(&svg, e))?;
+    }
+    {
+        let root = BitMapBackend::new(&png, fig.size).into_drawing_area();
+        chart::draw(&root, fig).map_err(|e| Error::io(&png, e))?;
+        root.present().map_err(|e| Error::io(&png, e))?;
+    }
+    Ok(vec![svg, png])
+}
+
+/// A time in years for legends and titles: `0`, `0.25`, `1500`, `2.5×10⁶`.
+pub fn format_years(t: f64) -> String {
+    let a = t.abs();
+    if a == 0.0 {
+        return "0".into();
+    }
+    if !(1e-3..1e6).contains(&a) {
+        return scale::format_real(t);
+    }
+    // Four significant digits (all integer digits from 10⁴ on), trailing zeros dropped.
+    let decimals = (3 - a.log10().floor() as i32).max(0) as usize;
+    let s = format!("{t:.decimals$}");
+    if s.contains('.') {
+        s.trim_end_matches('0').trim_end_matches('.').to_string()
+    } else {
+        s
+    }
+}
+
+fn title_of(res: &Results) -> String {
+    if res.title.trim().is_empty() {
+        res.path
+            .file_stem()
+            .map(|s| s.to_string_lossy().into_owned())
+            .unwrap_or_default()
+    } else {
+        res.title.clone()
+    }
+}
+
+use data::Results;
+
+/// The depth axis: surface at the top, linear, over the whole column.
+fn depth_axis(res: &Results) -> Axis {
+    let bottom = res.face_depth.last().copied().unwrap_or(1.0);
+    let top = res.face_depth.first().copied().unwrap_or(0.0);
+    let (top, bottom) = if bottom > top {
+        (top, bottom)
+    } else {
+        (0.0, 1.0)
+    };
+    Axis::new(Scale::Linear, top, bottom).reversed()
+}
+
+fn axis_for(scale: Scale, values: impl IntoIterator<Item = f64>) -> Axis {
+    let (lo, hi) = scale.range_for(values).unwrap_or(match scale {
+        Scale::Linear => (0.0, 1.0),
+        Scale::Log => (1e-3, 1.0),
+        Scale::SymLog(s) => (-s.linear, s.linear),
+    });
+    Axis::new(scale, lo, hi)
+}
+
+fn times_text(res: &Results, snaps: &[usize]) -> String {
+    let t: Vec<f64> = snaps.iter().map(|&i| res.profiles.time[i]).collect();
+    match t.len() {
+        1 => format!("at t = {} yr", format_years(t[0])),
+        n => format!(
+            "at {n} times, t = {} to {} yr",
+            format_years(t[0]),
+            format_years(t[n - 1])
+        ),
+    }
+}
+
+fn time_lines(
+    res: &Results,
+    snaps: &[usize],
+    depth: &[f64],
+    rows: &[Vec<f64>],
+    f: impl Fn(f64) -> f64,
+) -> Vec<Line> {
+    let colors = chart::sequence(snaps.len());
+    let widths = chart::widths(snaps.len());
+    snaps
+        .iter()
+        .zip(colors.into_iter().zip(widths))
+        .map(|(&i, (color, width))| Line {
+            label: format!("t = {} yr", format_years(res.profiles.time[i])),
+            color,
+            width,
+            points: rows[i]
+                .iter()
+                .zip(depth)
+                .map(|(v, z)| (f(*v), *z))
+                .collect(),
+        })
+        .collect()
+}
+
+fn values<'a>(lines: &'a [Line]) -> impl Iterator<Item = f64> + 'a {
+    lines.iter().flat_map(|l| l.points.iter().map(|p| p.0))
+}
+
+/// The profile figures (name, figure).
+pub fn profile_figures(res: &Results, snaps: &[usize]) -> Vec<(String, Figure)> {
+    let title = title_of(res);
+    let when = times_text(res, snaps);
+    let depth = depth_axis(res);
+    let p = &res.profiles;
+    let single = |what: &str, x: Axis, x_label: String, lines: Vec<Line>, x_zero: bool| Figure {
+        title: title.clone(),
+        subtitle: format!("{what} {when}"),
+        panels: vec![Panel {
+            heading: String::new(),
+            x,
+            y: depth,
+            x_label,
+            y_label: "depth [m]".into(),
+            lines,
+            x_zero,
+            y_zero: false,
+        }],
+        columns: 1,
+        size: (1000, 760),
+        legend_heading: "snapshot".into(),
+    };
+    let mut figs = Vec::new();
+
+    let lines = time_lines(res, snaps, &res.depth, &p.temperature, |v| v);
+    let x = axis_for(Scale::Linear, values(&lines));
+    figs.push((
+        "profiles-temperature".to_string(),
+        single(
+            "temperature profiles",
+            x,
+            "temperature [°C]".into(),
+            lines,
+            false,
+        ),
+    ));
+
+    let lines = time_lines(res, snaps, &res.depth, &p.head, |h| {
+        if h.is_finite() {
+            (-h).max(SUCTION_FLOOR)
+        } else {
+            h
+        }
+    });
+    let x = axis_for(Scale::Log, values(&lines));
+    figs.push((
+        "profiles-suction".to_string(),
+        single(
+            "water potential (suction) profiles",
+            x,
+            format!(
+                "suction −h [m], log scale (h > −{} m, incl. h ≥ 0, drawn at {} m)",
+                scale::format_real(SUCTION_FLOOR),
+                scale::format_real(SUCTION_FLOOR)
+            ),
+            lines,
+            false,
+        ),
+    ));
+
+    let lines = time_lines(res, snaps, &res.depth, &p.liquid_content, |v| v);
+    let x = axis_for(Scale::Linear, values(&lines));
+    figs.push((
+        "profiles-liquid-content".to_string(),
+        single(
+            "liquid water content profiles",
+            x,
+            "volumetric liquid content θ [m³ m⁻³]".into(),
+            lines,
+            false,
+        ),
+    ));
+
+    let lines = time_lines(res, snaps, &res.depth, &p.relative_humidity, |v| v);
+    let x = axis_for(Scale::Linear, values(&lines));
+    figs.push((
+        "profiles-relative-humidity".to_string(),
+        single(
+            "pore-air relative humidity profiles",
+            x,
+            "relative humidity [-]".into(),
+            lines,
+            false,
+        ),
+    ));
+
+    // The four water-flux parts on one shared symlog axis.
+    let parts: [(&str, &Vec<Vec<f64>>); 4] = [
+        (
+            "liquid, isothermal (head and gravity)",
+            &p.liquid_flux_isothermal,
+        ),
+        (
+            "liquid, thermal (temperature gradient)",
+            &p.liquid_flux_thermal,
+        ),
+        ("vapour, isothermal", &p.vapor_flux_isothermal),
+        (
+            "vapour, thermal (temperature gradient)",
+            &p.vapor_flux_thermal,
+        ),
+    ];
+    let part_lines: Vec<Vec<Line>> = parts
+        .iter()
+        .map(|(_, rows)| {
+            time_lines(res, snaps, &res.face_depth, rows, |v| {
+                v * FLUX_TO_MM_PER_YEAR
+            })
+        })
+        .collect();
+    let max_abs = part_lines
+        .iter()
+        .flat_map(|l| values(l).collect::<Vec<_>>())
+        .filter(|v| v.is_finite())
+        .fold(0.0f64, |m, v| m.max(v.abs()));
+    let sl = SymLog::for_data(max_abs, SYMLOG_DECADES);
+    let x = axis_for(
+        Scale::SymLog(sl),
+        part_lines
+            .iter()
+            .flat_map(|l| values(l).collect::<Vec<_>>()),
+    );
+    let x_label = format!(
+        "water flux [mm/yr], + downward; symmetric log, linear within ±{}",
+        scale::format_real(sl.linear)
+    );
+    let panels = parts
+        .iter()
+        .zip(part_lines)
+        .map(|((name, _), lines)| Panel {
+            heading: name.to_string(),
+            x,
+            y: depth,
+            x_label: x_label.clone(),
+            y_label: "depth [m]".into(),
+            lines,
+            x_zero: true,
+            y_zero: false,
+        })
+        .collect();
+    figs.push((
+        "profiles-water-fluxes".to_string(),
+        Figure {
+            title: title.clone(),
+            subtitle: format!("water flux parts {when}"),
+            panels,
+            columns: 2,
+            size: (1500, 1150),
+            legend_heading: "snapshot".into(),
+        },
+    ));
+    figs
+}
+
+/// The time axis of the series: log when asked for or when the run spans more than
+/// [`AUTO_LOG_TIME_DECADES`] decades (times <= 0 are then left out).
+pub fn time_axis(time: &[f64], log_time: bool) -> Axis {
+    let pos_min = time
+        .iter()
+        .cloned()
+        .filter(|t| *t > 0.0 && t.is_finite())
+        .fold(f64::INFINITY, f64::min);
+    let max = time
+        .iter()
+        .cloned()
+        .filter(|t| t.is_finite())
+        .fold(f64::NEG_INFINITY, f64::max);
+    let spans = pos_min.is_finite() && max > 0.0 && (max / pos_min).log10() > AUTO_LOG_TIME_DECADES;
+    if (log_time || spans) && pos_min.is_finite() {
+        axis_for(Scale::Log, time.iter().cloned())
+    } else {
+        let min = time
+            .iter()
+            .cloned()
+            .filter(|t| t.is_finite())
+            .fold(f64::INFINITY, f64::min);
+        if min.is_finite() && max > min {
+            Axis::new(Scale::Linear, min, max)
+        } else {
+            axis_for(Scale::Linear, time.iter().cloned())
+        }
+    }
+}
+
+fn time_label(axis: &Axis) -> String {
+    match axis.scale {
+        Scale::Log => "time [yr], log scale".into(),
+        _ => "time [yr]".into(),
+    }
+}
+
+/// The time-series figures (name, figure); none when the file has no series rows.
+pub fn series_figures(res: &Results, log_time: bool) -> Vec<(String, Figure)> {
+    let s = &res.series;
+    if s.time.is_empty() {
+        return Vec::new();
+    }
+    let title = title_of(res);
+    let t = time_axis(&s.time, log_time);
+    let span = format!(
+        "t = {} to {} yr",
+        format_years(s.time.iter().cloned().fold(f64::INFINITY, f64::min)),
+        format_years(s.time.iter().cloned().fold(f64::NEG_INFINITY, f64::max))
+    );
+    let blue = RGBColor(30, 90, 180);
+    let red = RGBColor(200, 60, 30);
+    // The first line of each series plot (blue) is drawn wider so that it shows beside
+    // the second where they overlap.
+    let line = |label: &str, color: RGBColor, v: &[f64], f: &dyn Fn(f64) -> f64| Line {
+        label: label.into(),
+        color,
+        width: if color == blue { 3 } else { 2 },
+        points: chart::thin(
+            &s.time
+                .iter()
+                .zip(v)
+                .filter(|(t_, _)| t.scale.shows(**t_))
+                .map(|(t_, v)| (*t_, f(*v)))
+                .collect::<Vec<_>>(),
+            &t,
+            SERIES_BUCKETS,
+        ),
+    };
+    let single =
+        |what: &str, y: Axis, y_label: &str, lines: Vec<Line>, y_zero: bool, key: &str| Figure {
+            title: title.clone(),
+            subtitle: format!("{what}, {span}"),
+            panels: vec![Panel {
+                heading: String::new(),
+                x: t,
+                y,
+                x_label: time_label(&t),
+                y_label: y_label.into(),
+                lines,
+                x_zero: false,
+                y_zero,
+            }],
+            columns: 1,
+            size: (1100, 720),
+            legend_heading: key.into(),
+        };
+    let yvalues = |lines: &[Line]| -> Vec<f64> {
+        lines
+            .iter()
+            .flat_map(|l| l.points.iter().map(|p| p.1))
+            .collect()
+    };
+    let mut figs = Vec::new();
+
+    let mm = |v: f64| v * FLUX_TO_MM_PER_YEAR;
+    let lines = vec![
+        line("surface", blue, &s.surface_water_flux, &mm),
+        line("bottom", red, &s.bottom_water_flux, &mm),
+    ];
+    let vals = yvalues(&lines);
+    let max_abs = vals
+        .iter()
+        .filter(|v| v.is_finite())
+        .fold(0.0f64, |m, v| m.max(v.abs()));
+    let sl = SymLog::for_data(max_abs, SYMLOG_DECADES);
+    let y = axis_for(Scale::SymLog(sl), vals);
+    figs.push((
+        "series-water-fluxes".to_string(),
+        single(
+            "net water flux at the boundaries",
+            y,
+            &format!(
+                "water flux [mm/yr], + downward; symlog, linear within ±{}",
+                scale::format_real(sl.linear)
+            ),
+            lines,
+            true,
+            "boundary",
+        ),
+    ));
+
+    let id = |v: f64| v;
+    let lines = vec![line("drying front", blue, &s.drying_front_depth, &id)];
+    let vals = yvalues(&lines);
+    let bottom = res.face_depth.last().copied().unwrap_or(1.0);
+    let hi = vals
+        .iter()
+        .cloned()
+        .filter(|v| v.is_finite())
+        .fold(0.0f64, f64::max);
+    let hi = if hi > 0.0 {
+        (hi * 1.05).min(bottom.max(hi))
+    } else {
+        bottom
+    };
+    let y = Axis::new(Scale::Linear, 0.0, hi).reversed();
+    figs.push((
+        "series-drying-front".to_string(),
+        single(
+            "drying-front depth",
+            y,
+            "drying-front depth [m]",
+            lines,
+            false,
+            "series",
+        ),
+    ));
+
+    let lines = vec![line("water storage", blue, &s.water_storage, &id)];
+    let y = axis_for(Scale::Linear, yvalues(&lines));
+    figs.push((
+        "series-water-storage".to_string(),
+        single(
+            "water stored in the column",
+            y,
+            "water storage [kg m⁻² = mm]",
+            lines,
+            false,
+            "series",
+        ),
+    ));
+
+    let abs = |v: f64| v.abs();
+    let lines = vec![
+        line("water", blue, &s.water_balance_relative_error, &abs),
+        line("energy", red, &s.energy_balance_relative_error, &abs),
+    ];
+    let y = axis_for(Scale::Log, yvalues(&lines));
+    figs.push((
+        "series-balance-errors".to_string(),
+        single(
+            "relative balance errors",
+            y,
+            "|relative balance error| [-], log scale (zeros left out)",
+            lines,
+            false,
+            "balance",
+        ),
+    ));
+    figs
+}

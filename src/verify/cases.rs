@@ -143,6 +143,8 @@ static SCRATCH: AtomicUsize = AtomicUsize::new(0);
 /// when dropped.
 struct Scratch {
     dir: PathBuf,
+    /// Keep the folder (a failed run's diagnostic state is in it).
+    keep: std::cell::Cell<bool>,
 }
 
 impl Scratch {
@@ -152,7 +154,10 @@ impl Scratch {
             std::env::temp_dir().join(format!("deepdry-verify-{}-{name}-{k}", std::process::id()));
         std::fs::create_dir_all(&dir)
             .map_err(|e| Error::io(&dir, format!("cannot create a scratch folder: {e}")))?;
-        Ok(Scratch { dir })
+        Ok(Scratch {
+            dir,
+            keep: std::cell::Cell::new(false),
+        })
     }
     fn file(&self, name: &str, text: &str) -> Result<()> {
         let p = self.dir.join(name);
@@ -162,6 +167,9 @@ impl Scratch {
 
 impl Drop for Scratch {
     fn drop(&mut self) {
+        if self.keep.get() {
+            return;
+        }
         let _ = std::fs::remove_dir_all(&self.dir);
     }
 }
@@ -244,7 +252,7 @@ fn simulate(model: &Model, scratch: &Scratch) -> Result<(RunSummary, Results)> {
         progress: false,
         ..Default::default()
     };
-    let summary = run::run(model, &opts)?;
+    let summary = run::run(model, &opts).inspect_err(|_| scratch.keep.set(true))?;
     let res = read_results(&summary.results)?;
     Ok((summary, res))
 }
@@ -1351,7 +1359,8 @@ fn kinetic_to_equilibrium(v: Variant) -> Result<CaseResult> {
             "vapor = \"equilibrium\"",
             &format!("vapor = \"kinetic\"\nkinetic_rate_per_s = {b:e}"),
         );
-        let (w, th) = lost(&text)?;
+        let (w, th) = lost(&text)
+            .map_err(|e| Error::Numerical(format!("kinetic run with b = {b:e} s⁻¹: {e}")))?;
         diffs.push(((w - w_eq) / w_eq).abs());
         dth.push(max_abs(th.iter().zip(&th_eq).map(|(a, b)| a - b)));
     }

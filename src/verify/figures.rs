@@ -102,7 +102,8 @@ where
             format!("{}", (v * 1e6).round() / 1e6)
         }
     };
-    let yfmt = move |v: &f64| fmt(&(v * sign));
+    // `+ 0.0` turns −0 into 0.
+    let yfmt = move |v: &f64| fmt(&(v * sign + 0.0));
     chart
         .configure_mesh()
         .x_desc(fig.x_label.as_str())

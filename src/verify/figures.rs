@@ -103,7 +103,15 @@ where
         }
     };
     // `+ 0.0` turns −0 into 0.
-    let yfmt = move |v: &f64| fmt(&(v * sign + 0.0));
+    let yfmt = move |v: &f64| {
+        let y = v * sign + 0.0;
+        // Depth labels: round-off near the surface reads as 0.
+        if sign < 0.0 && y.abs() < 1e-9 {
+            "0".to_string()
+        } else {
+            fmt(&y)
+        }
+    };
     chart
         .configure_mesh()
         .x_desc(fig.x_label.as_str())
@@ -145,7 +153,11 @@ where
         .configure_series_labels()
         .background_style(WHITE.mix(0.85))
         .border_style(BLACK)
-        .position(SeriesLabelPosition::UpperRight)
+        .position(if fig.y_down {
+            SeriesLabelPosition::LowerRight
+        } else {
+            SeriesLabelPosition::UpperRight
+        })
         .draw()
         .map_err(e)?;
     Ok(())

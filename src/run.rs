@@ -276,6 +276,7 @@ pub fn steady_state(model: &Model, guess: Vec<f64>, solver: SolverKind) -> Resul
 /// A one-line message for a step that failed at the minimum Δt.
 pub fn numerical_message(sys: &System, f: &StepFailure, what: &str) -> Error {
     let names = ["energy balance", "water balance", "vapour equation"];
+    let unknowns = ["temperature", "head", "vapour density"];
     let (cell, row, res) = match &f.failure {
         NewtonFailure::NotConverged {
             cell,
@@ -298,11 +299,12 @@ pub fn numerical_message(sys: &System, f: &StepFailure, what: &str) -> Error {
     };
     let cell = cell.min(sys.n.saturating_sub(1));
     Error::Numerical(format!(
-        "{what}: step failed at t = {:.6e} yr with dt = {:.3e} s (the minimum): {kind}; worst {} residual {:.3e} (scaled) at depth {:.4} m (cell {cell})",
+        "{what}: step failed at t = {:.6e} yr with dt = {:.3e} s (the minimum): {kind}; worst {} residual {:.3e} (scaled; unknown {}) at depth {:.4} m (cell {cell})",
         f.t / SECONDS_PER_YEAR,
         f.dt,
         names[row.min(2)],
         res,
+        unknowns[row.min(2)],
         sys.centers[cell],
     ))
 }

@@ -443,10 +443,24 @@ fn interrupted() -> bool {
         .unwrap_or(false)
 }
 
-/// Checkpoint times inside (start, end] from the simulated-time interval.
-fn checkpoint_times(model: &Model) -> Vec<f64> {
+/// Most checkpoint times a run accepts from `[checkpoint] every_year`.
+pub const MAX_CHECKPOINT_TIMES: f64 = 1.0e6;
+
+/// Checkpoint times inside (start, end] from the simulated-time interval; an interval
+/// that would give more than [`MAX_CHECKPOINT_TIMES`] is refused (it would take the
+/// memory of the machine before the first step).
+fn checkpoint_times(model: &Model) -> Result<Vec<f64>> {
     let mut out = Vec::new();
     if let Some(every) = model.checkpoint.every {
+        let count = (model.time.end - model.time.start) / every;
+        if count.is_nan() || count > MAX_CHECKPOINT_TIMES {
+            return Err(Error::input(format!(
+                "checkpoint.every_year = {:e}: gives {count:.3e} checkpoints over the run ({:e} to {:e} yr); at most {MAX_CHECKPOINT_TIMES:e}: use a longer interval",
+                every / SECONDS_PER_YEAR,
+                model.time.start / SECONDS_PER_YEAR,
+                model.time.end / SECONDS_PER_YEAR
+            )));
+        }
         if every > 0.0 {
             let mut k = 1.0;
             loop {
@@ -459,7 +473,7 @@ fn checkpoint_times(model: &Model) -> Vec<f64> {
             }
         }
     }
-    out
+    Ok(out)
 }
 
 fn is_member(list: &[f64], t: f64) -> bool {
@@ -561,6 +575,8 @@ fn replace_earlier_run(folder: &std::path::Path, keep: Option<&std::path::Path>)
 /// Runs `model` (from its initial state, or as `opts.start` says) to its end time.
 pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
     let wall = Instant::now();
+    // Refused before any file is touched.
+    let ckpt_times = checkpoint_times(model)?;
     let folder = opts
         .out
         .clone()
@@ -699,7 +715,6 @@ pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
             .write_snapshot(r.st.state.t / SECONDS_PER_YEAR, &r.profile)?;
     }
 
-    let ckpt_times = checkpoint_times(model);
     let jumps = forcing_times(model);
     let mut syncs = sync_times(model);
     syncs.extend(ckpt_times.iter().cloned());

@@ -388,3 +388,27 @@ fn the_cell_count_limits() {
     let o = deepdry(&["check", s(&case)]);
     assert_one_line_error(&o, 2, &["1000001 cells are more than the limit of 1000000"]);
 }
+
+#[test]
+fn a_checkpoint_interval_too_fine_for_the_run_is_refused_before_anything_is_written() {
+    // Before the fix, every_year = 1e-12 over 10 years listed 1e13 checkpoint times and
+    // took the machine's memory before the first step.
+    let dir = Scratch::new("ck-interval");
+    let small = Small {
+        checkpoint_every: 1e-12,
+        ..Small::default()
+    };
+    let case = dir.write("case.toml", &small.text());
+    let out = dir.join("out");
+    let o = deepdry(&["run", s(&case), "--out", s(&out), "--quiet"]);
+    assert_one_line_error(
+        &o,
+        2,
+        &[
+            "checkpoint.every_year = 1e-12",
+            "1.000e13 checkpoints",
+            "at most 1e6",
+        ],
+    );
+    assert!(!out.exists());
+}

@@ -11,6 +11,7 @@
 //! - [`output`]   results files (HDF5)
 //! - [`plot`]     pictures of a results file (SVG, PNG)
 //! - [`error`]    typed errors
+//! - [`verify`]   verification cases, reference solutions and the report
 
 // Index loops read like the formulas they implement.
 #![allow(clippy::needless_range_loop)]
@@ -30,3 +31,4 @@ pub mod props;
 pub mod run;
 pub mod schedule;
 pub mod solve;
+pub mod verify;

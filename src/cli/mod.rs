@@ -77,6 +77,15 @@ pub enum Command {
         #[arg(long)]
         log_time: bool,
     },
+    /// Run the verification cases (analytic and published references) and print the table.
+    Verify {
+        /// Run only this case (a folder name under validation/).
+        #[arg(long)]
+        only: Option<String>,
+        /// Write DIR/verification.md with an SVG figure per case.
+        #[arg(long, value_name = "DIR")]
+        report: Option<PathBuf>,
+    },
     /// Print property tables as CSV.
     Table {
         #[command(subcommand)]
@@ -206,6 +215,7 @@ fn run_command(cli: Cli) -> Result<()> {
             }
             Ok(())
         }
+        Command::Verify { only, report } => crate::verify::command(only, report),
         Command::Table { what } => match what {
             TableCommand::Water { from, to, step } => {
                 print!("{}", crate::props::table::water_csv(from, to, step)?);

@@ -1,0 +1,119 @@
+//! The fast variant of every verification case (`deepdry::verify`), through the same code
+//! as `deepdry verify`. Each case's README (validation/<case>/README.md) states the source
+//! and derives the tolerance; the fast tolerances are stated there too.
+
+use deepdry::verify::{find, run_case, Variant};
+
+fn check(name: &str) {
+    let case = find(name).unwrap_or_else(|| panic!("no case {name}"));
+    let o = run_case(&case, Variant::Fast);
+    eprint!(
+        "{}",
+        deepdry::verify::report::table(std::slice::from_ref(&o), true)
+    );
+    for n in &o.result.notes {
+        eprintln!("  {n}");
+    }
+    eprintln!("  {:.2} s", o.wall_seconds);
+    if let Some(e) = &o.error {
+        panic!("{name}: run failed: {e}");
+    }
+    for c in &o.result.checks {
+        assert!(
+            c.passed(),
+            "{name}: {} = {:.3e} above the tolerance {:.3e} ({})",
+            c.quantity,
+            c.error,
+            c.tolerance,
+            c.source
+        );
+    }
+}
+
+/// Fourier's law, two layers in series: T within 1e-6 K, heat flux within 1e-6 (exact on any mesh).
+#[test]
+fn two_layer_geotherm_is_piecewise_linear_with_continuous_flux() {
+    check("two-layer-geotherm");
+}
+
+/// Carslaw & Jaeger (1959) §2.4: T0 + Gz + ΔT erfc(z/2√(κt)); fast tolerance 1 % of ΔT.
+#[test]
+fn surface_step_matches_erfc_solution() {
+    check("surface-step");
+}
+
+/// Carslaw & Jaeger (1959) §2.6: amplitude e^(−z/d), lag z/d; tolerance from the a-priori
+/// backward-Euler and spatial error estimates.
+#[test]
+fn periodic_surface_temperature_decays_as_exp_minus_z_over_d() {
+    check("periodic-surface");
+}
+
+/// Gardner (1958): steady evaporation rate and head profile; fast tolerance 3e-3.
+#[test]
+fn gardner_evaporation_matches_rate_and_profile() {
+    check("gardner-evaporation");
+}
+
+/// Srivastava & Yeh (1991): transient infiltration series solution; fast tolerance 2 %.
+#[test]
+fn infiltration_matches_srivastava_yeh_series() {
+    check("srivastava-yeh-infiltration");
+}
+
+/// Fick (1855) with Millington & Quirk (1961): linear vapour density, flux −Dv Δrv/L, 1e-6.
+#[test]
+fn dry_layer_vapour_flux_obeys_ficks_law() {
+    check("fick-vapour-diffusion");
+}
+
+/// Pseudo-steady front δ = √(2 Dv Δrv t/(ρw Δθ)); tolerance from the front's error budget.
+#[test]
+fn drying_front_deepens_as_sqrt_t() {
+    check("drying-front");
+}
+
+/// Water balance at steady state with closed ends: |ρw ql + jv| ≤ 1e-6 |jv| at every face.
+#[test]
+fn closed_column_liquid_flux_balances_vapour_flux() {
+    check("closed-column-loop");
+}
+
+/// Kinetic phase change → equilibrium as O(1/b) over three decades of b.
+#[test]
+fn kinetic_phase_change_converges_to_equilibrium() {
+    check("kinetic-to-equilibrium");
+}
+
+/// IAPWS releases, Perry's Handbook and steam tables; Kelvin relation (bounds per table).
+#[test]
+fn water_properties_match_published_tables() {
+    check("water-properties");
+}
+
+/// Mesh refinement on Gardner's smooth profile: observed order 2 ± 0.2.
+#[test]
+fn mesh_refinement_shows_second_order() {
+    check("mesh-order");
+}
+
+/// Fixed-step refinement: backward Euler order 1 ± 0.1, BDF2 order 2 ± 0.2.
+#[test]
+fn time_refinement_shows_first_and_second_order() {
+    check("time-order");
+}
+
+/// Climate-shift run of 100 kyr: cumulative water and energy balance errors below 1e-8.
+#[test]
+fn climate_shift_balances_close_to_1e_minus_8() {
+    check("balance-closure");
+}
+
+/// Bad input to the runner: an unknown case name is refused in one line.
+#[test]
+fn unknown_case_name_is_refused() {
+    let e = deepdry::verify::command(Some("no-such-case".into()), None).unwrap_err();
+    let msg = e.to_string();
+    assert_eq!(e.exit_code(), deepdry::error::exit::INPUT);
+    assert!(!msg.contains('\n') && msg.contains("no-such-case"), "{msg}");
+}

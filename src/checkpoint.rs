@@ -19,7 +19,7 @@ use std::path::{Path, PathBuf};
 /// Attribute value of `kind` that marks a checkpoint file.
 pub const CHECKPOINT_KIND: &str = "deepdry-checkpoint";
 /// Format version of checkpoint files; a file of another version is refused.
-pub const CHECKPOINT_FORMAT: &str = "1";
+pub const CHECKPOINT_FORMAT: &str = "2";
 
 /// FNV-1a 64-bit hash of a string, as 16 hex digits.
 pub fn fnv1a(text: &str) -> String {
@@ -168,6 +168,7 @@ fn write_via(
         f64s("inflow", &state.inflow).map_err(&er)?;
         f64s("throughput", &state.throughput).map_err(&er)?;
         f64s("initial_totals", &state.initial_totals).map_err(&er)?;
+        f64s("initial_storage", &state.initial_storage).map_err(&er)?;
         f64s("face_depth", &model.mesh.faces).map_err(&er)?;
         if let (Some(a), Some(r)) = (info.balance_abs, info.balance_rel) {
             f64s("balance_error", &[a[0], a[1], r[0], r[1]]).map_err(&er)?;
@@ -356,6 +357,7 @@ pub fn read(path: &Path) -> Result<Checkpoint> {
             inflow: two("inflow")?,
             throughput: two("throughput")?,
             initial_totals: two("initial_totals")?,
+            initial_storage: v("initial_storage")?,
             counters: Counters {
                 steps: ints[0],
                 rejected: ints[1],
@@ -386,6 +388,9 @@ pub fn read(path: &Path) -> Result<Checkpoint> {
                 .and_then(|a| a.read_scalar::<f64>())
                 .unwrap_or(f64::NAN);
             info.parent = Some((p, t));
+        }
+        if state.initial_storage.len() != state.u.len() {
+            return Err(bad("initial_storage"));
         }
         if state.history.iter().any(|h| h.u.len() != state.u.len()) {
             return Err(bad("history"));

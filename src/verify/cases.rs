@@ -189,6 +189,8 @@ struct Results {
     series_front: Vec<f64>,
     series_water_rel: Vec<f64>,
     series_energy_rel: Vec<f64>,
+    series_water_abs: Vec<f64>,
+    series_energy_abs: Vec<f64>,
 }
 
 fn read_results(path: &std::path::Path) -> Result<Results> {
@@ -218,6 +220,8 @@ fn read_results(path: &std::path::Path) -> Result<Results> {
         series_front: d1("series/drying_front_depth")?,
         series_water_rel: d1("series/water_balance_relative_error")?,
         series_energy_rel: d1("series/energy_balance_relative_error")?,
+        series_water_abs: d1("series/water_balance_error")?,
+        series_energy_abs: d1("series/energy_balance_error")?,
     })
 }
 
@@ -1527,8 +1531,13 @@ fn balance_closure(v: Variant) -> Result<CaseResult> {
     };
     let model = parse("balance-closure", &text, &scratch)?;
     let (summary, res) = simulate(&model, &scratch)?;
-    let w = max_abs(res.series_water_rel.iter().cloned());
-    let e = max_abs(res.series_energy_rel.iter().cloned());
+    // The claim is about the cumulative balance over the run: the largest absolute error
+    // at any record, relative to the whole run's boundary throughput, and the final
+    // relative error. (Early records, when almost nothing has crossed the boundaries yet,
+    // have relative errors of Newton-residual size over a near-zero throughput.)
+    let through = summary.final_state.throughput;
+    let w = max_abs(res.series_water_abs.iter().cloned()) / through[1].max(f64::MIN_POSITIVE);
+    let e = max_abs(res.series_energy_abs.iter().cloned()) / through[0].max(f64::MIN_POSITIVE);
     let mut fig = Figure::new(
         "Cumulative balance error (relative)",
         "time [yr]",
@@ -1564,13 +1573,13 @@ fn balance_closure(v: Variant) -> Result<CaseResult> {
     Ok(CaseResult {
         checks: vec![
             Check::new(
-                "water: max cumulative relative error",
+                "water: max |cumulative error| / run throughput, and final relative error",
                 "conservation (design note §7)",
                 w.max(summary.balance_rel[1]),
                 1e-8,
             ),
             Check::new(
-                "energy: max cumulative relative error",
+                "energy: max |cumulative error| / run throughput, and final relative error",
                 "conservation (design note §7)",
                 e.max(summary.balance_rel[0]),
                 1e-8,

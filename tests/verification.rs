@@ -117,3 +117,21 @@ fn unknown_case_name_is_refused() {
     assert_eq!(e.exit_code(), deepdry::error::exit::INPUT);
     assert!(!msg.contains('\n') && msg.contains("no-such-case"), "{msg}");
 }
+
+/// Bad input to the runner: a report folder that cannot be made is refused in one line,
+/// before any case runs.
+#[test]
+fn unusable_report_folder_is_refused() {
+    let file = std::env::temp_dir().join(format!("deepdry-verify-file-{}", std::process::id()));
+    std::fs::write(&file, b"x").unwrap();
+    for dir in [file.clone(), file.join("report")] {
+        let e = deepdry::verify::command(Some("water-properties".into()), Some(dir)).unwrap_err();
+        let msg = e.to_string();
+        assert_eq!(e.exit_code(), deepdry::error::exit::IO, "{msg}");
+        assert!(
+            !msg.contains('\n') && msg.contains("report folder"),
+            "{msg}"
+        );
+    }
+    let _ = std::fs::remove_file(&file);
+}

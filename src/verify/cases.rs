@@ -143,6 +143,8 @@ static SCRATCH: AtomicUsize = AtomicUsize::new(0);
 /// when dropped.
 struct Scratch {
     dir: PathBuf,
+    /// Keep the folder (a failed run's diagnostic state is in it).
+    keep: std::cell::Cell<bool>,
 }
 
 impl Scratch {
@@ -152,7 +154,10 @@ impl Scratch {
             std::env::temp_dir().join(format!("deepdry-verify-{}-{name}-{k}", std::process::id()));
         std::fs::create_dir_all(&dir)
             .map_err(|e| Error::io(&dir, format!("cannot create a scratch folder: {e}")))?;
-        Ok(Scratch { dir })
+        Ok(Scratch {
+            dir,
+            keep: std::cell::Cell::new(false),
+        })
     }
     fn file(&self, name: &str, text: &str) -> Result<()> {
         let p = self.dir.join(name);
@@ -162,6 +167,9 @@ impl Scratch {
 
 impl Drop for Scratch {
     fn drop(&mut self) {
+        if self.keep.get() {
+            return;
+        }
         let _ = std::fs::remove_dir_all(&self.dir);
     }
 }
@@ -189,8 +197,8 @@ struct Results {
     series_front: Vec<f64>,
     series_water_rel: Vec<f64>,
     series_energy_rel: Vec<f64>,
-    series_water_abs: Vec<f64>,
-    series_energy_abs: Vec<f64>,
+    series_water_err: Vec<f64>,
+    series_energy_err: Vec<f64>,
 }
 
 fn read_results(path: &std::path::Path) -> Result<Results> {
@@ -220,8 +228,8 @@ fn read_results(path: &std::path::Path) -> Result<Results> {
         series_front: d1("series/drying_front_depth")?,
         series_water_rel: d1("series/water_balance_relative_error")?,
         series_energy_rel: d1("series/energy_balance_relative_error")?,
-        series_water_abs: d1("series/water_balance_error")?,
-        series_energy_abs: d1("series/energy_balance_error")?,
+        series_water_err: d1("series/water_balance_error")?,
+        series_energy_err: d1("series/energy_balance_error")?,
     })
 }
 
@@ -244,7 +252,7 @@ fn simulate(model: &Model, scratch: &Scratch) -> Result<(RunSummary, Results)> {
         progress: false,
         ..Default::default()
     };
-    let summary = run::run(model, &opts)?;
+    let summary = run::run(model, &opts).inspect_err(|_| scratch.keep.set(true))?;
     let res = read_results(&summary.results)?;
     Ok((summary, res))
 }
@@ -1351,7 +1359,8 @@ fn kinetic_to_equilibrium(v: Variant) -> Result<CaseResult> {
             "vapor = \"equilibrium\"",
             &format!("vapor = \"kinetic\"\nkinetic_rate_per_s = {b:e}"),
         );
-        let (w, th) = lost(&text)?;
+        let (w, th) = lost(&text)
+            .map_err(|e| Error::Numerical(format!("kinetic run with b = {b:e} s⁻¹: {e}")))?;
         diffs.push(((w - w_eq) / w_eq).abs());
         dth.push(max_abs(th.iter().zip(&th_eq).map(|(a, b)| a - b)));
     }
@@ -1531,13 +1540,26 @@ fn balance_closure(v: Variant) -> Result<CaseResult> {
     };
     let model = parse("balance-closure", &text, &scratch)?;
     let (summary, res) = simulate(&model, &scratch)?;
-    // The claim is about the cumulative balance over the run: the largest absolute error
-    // at any record, relative to the whole run's boundary throughput, and the final
-    // relative error. (Early records, when almost nothing has crossed the boundaries yet,
-    // have relative errors of Newton-residual size over a near-zero throughput.)
-    let through = summary.final_state.throughput;
-    let w = max_abs(res.series_water_abs.iter().cloned()) / through[1].max(f64::MIN_POSITIVE);
-    let e = max_abs(res.series_energy_abs.iter().cloned()) / through[0].max(f64::MIN_POSITIVE);
+    // The run's own relative errors at every record: |storage change − net inflow| over
+    // max(|storage change|, cumulative |boundary fluxes|).
+    let w_rec = max_abs(res.series_water_rel.iter().cloned());
+    let e_rec = max_abs(res.series_energy_rel.iter().cloned());
+    let argmax = |v: &[f64]| {
+        let k = (0..v.len())
+            .max_by(|a, b| v[*a].abs().total_cmp(&v[*b].abs()))
+            .unwrap_or(0);
+        res.series_time[k]
+    };
+    // The whole run's throughput, from the final absolute and relative errors.
+    let throughput = |k: usize| {
+        if summary.balance_rel[k] > 0.0 {
+            summary.balance_abs[k].abs() / summary.balance_rel[k]
+        } else {
+            f64::NAN
+        }
+    };
+    let w_all = max_abs(res.series_water_err.iter().cloned()) / throughput(1);
+    let e_all = max_abs(res.series_energy_err.iter().cloned()) / throughput(0);
     let mut fig = Figure::new(
         "Cumulative balance error (relative)",
         "time [yr]",
@@ -1573,27 +1595,46 @@ fn balance_closure(v: Variant) -> Result<CaseResult> {
     Ok(CaseResult {
         checks: vec![
             Check::new(
-                "water: max |cumulative error| / run throughput, and final relative error",
+                "water: cumulative relative error at the end",
                 "conservation (design note §7)",
-                w.max(summary.balance_rel[1]),
+                summary.balance_rel[1],
                 1e-8,
             ),
             Check::new(
-                "energy: max |cumulative error| / run throughput, and final relative error",
+                "energy: cumulative relative error at the end",
                 "conservation (design note §7)",
-                e.max(summary.balance_rel[0]),
+                summary.balance_rel[0],
+                1e-8,
+            ),
+            Check::new(
+                "water: max |cumulative error| / run throughput",
+                "conservation (design note §7)",
+                w_all,
+                1e-8,
+            ),
+            Check::new(
+                "energy: max |cumulative error| / run throughput",
+                "conservation (design note §7)",
+                e_all,
                 1e-8,
             ),
         ],
         figures: vec![fig],
-        notes: vec![format!(
-            "{} cells, {:.0} yr; steps {} (rejected {}); final water error {:.3e} kg m-2, energy {:.3e} J m-2",
-            res.depth.len(),
-            (model.time.end - model.time.start) / SECONDS_PER_YEAR,
-            summary.counters.steps,
-            summary.counters.rejected,
-            summary.balance_abs[1],
-            summary.balance_abs[0]
-        )],
+        notes: vec![
+            format!(
+                "{} cells, {:.0} yr; steps {} (rejected {}); final water error {:.3e} kg m-2, energy {:.3e} J m-2",
+                res.depth.len(),
+                (model.time.end - model.time.start) / SECONDS_PER_YEAR,
+                summary.counters.steps,
+                summary.counters.rejected,
+                summary.balance_abs[1],
+                summary.balance_abs[0]
+            ),
+            format!(
+                "largest per-record relative error: water {w_rec:.2e} at {:.6e} yr, energy {e_rec:.2e} at {:.6e} yr (the first steps after the start, where the cumulative throughput is still tiny; see README)",
+                argmax(&res.series_water_rel),
+                argmax(&res.series_energy_rel)
+            ),
+        ],
     })
 }

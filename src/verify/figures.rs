@@ -44,6 +44,8 @@ fn bounds(values: impl Iterator<Item = f64>, log: bool) -> (f64, f64) {
 
 /// The figure as an SVG document.
 pub fn svg(fig: &Figure) -> Result<String> {
+    // Plotters lays out text with the font the plot module embeds (no system fonts).
+    crate::plot::chart::register_fonts();
     let mut out = String::new();
     {
         let root = SVGBackend::with_string(&mut out, (720, 480)).into_drawing_area();
@@ -100,7 +102,8 @@ where
             format!("{}", (v * 1e6).round() / 1e6)
         }
     };
-    let yfmt = move |v: &f64| fmt(&(v * sign));
+    // `+ 0.0` turns −0 into 0.
+    let yfmt = move |v: &f64| fmt(&(v * sign + 0.0));
     chart
         .configure_mesh()
         .x_desc(fig.x_label.as_str())

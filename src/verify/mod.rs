@@ -225,11 +225,15 @@ pub fn command(only: Option<String>, report_dir: Option<PathBuf>) -> Result<()> 
     let mut outcomes = Vec::new();
     for c in &cases {
         let o = run_case(c, Variant::Full);
-        print!("{}", report::table(std::slice::from_ref(&o), false));
+        eprintln!(
+            "{:<28} {} ({:.1} s)",
+            o.name,
+            if o.passed() { "pass" } else { "FAIL" },
+            o.wall_seconds
+        );
         outcomes.push(o);
     }
     let total = t0.elapsed().as_secs_f64();
-    println!();
     print!("{}", report::table(&outcomes, true));
     let failed: Vec<&str> = outcomes
         .iter()

@@ -66,6 +66,12 @@ pub fn prepare_dir(dir: &Path) -> Result<()> {
             .to_string();
         Error::Io(format!("{}: {what}: {reason}", dir.display()))
     };
+    if dir.exists() && !dir.is_dir() {
+        return Err(Error::Io(format!(
+            "{}: the report folder is a file, not a folder",
+            dir.display()
+        )));
+    }
     std::fs::create_dir_all(dir).map_err(|e| fail("cannot create the report folder", e))?;
     let probe = dir.join(".deepdry-write-test");
     std::fs::write(&probe, b"").map_err(|e| fail("cannot write in the report folder", e))?;

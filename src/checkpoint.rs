@@ -19,7 +19,7 @@ use std::path::{Path, PathBuf};
 /// Attribute value of `kind` that marks a checkpoint file.
 pub const CHECKPOINT_KIND: &str = "deepdry-checkpoint";
 /// Format version of checkpoint files; a file of another version is refused.
-pub const CHECKPOINT_FORMAT: &str = "1";
+pub const CHECKPOINT_FORMAT: &str = "2";
 
 /// FNV-1a 64-bit hash of a string, as 16 hex digits.
 pub fn fnv1a(text: &str) -> String {
@@ -110,10 +110,11 @@ pub struct Checkpoint {
 }
 
 fn e(path: &Path) -> impl Fn(hdf5::Error) -> Error + '_ {
-    move |err| Error::io(path, err)
+    move |err| crate::output::h5util::io_error(path, err)
 }
 
-/// Writes a checkpoint atomically to `path`.
+/// Writes a checkpoint atomically to `path`. On failure (e.g. a full disk) the partial
+/// temporary file is removed and any earlier file at `path` is left as it was.
 pub fn write(
     path: &Path,
     model: &Model,
@@ -123,10 +124,28 @@ pub fn write(
     info: &CheckpointInfo,
 ) -> Result<()> {
     let tmp = path.with_extension("h5.tmp");
+    write_via(&tmp, path, model, state, position, results_file, info).map_err(|err| {
+        let _ = std::fs::remove_file(&tmp);
+        Error::Io(format!(
+            "{}: checkpoint not written (earlier checkpoints are kept): {err}",
+            path.display()
+        ))
+    })
+}
+
+fn write_via(
+    tmp: &Path,
+    path: &Path,
+    model: &Model,
+    state: &StepState,
+    position: LoopPosition,
+    results_file: &Path,
+    info: &CheckpointInfo,
+) -> Result<()> {
     {
-        let file = File::create(&tmp).map_err(e(&tmp))?;
-        let root = file.as_group().map_err(e(&tmp))?;
-        let er = e(&tmp);
+        let file = File::create(tmp).map_err(e(tmp))?;
+        let root = file.as_group().map_err(e(tmp))?;
+        let er = e(tmp);
         attr_str(&root, "kind", CHECKPOINT_KIND).map_err(&er)?;
         attr_str(&root, "format", CHECKPOINT_FORMAT).map_err(&er)?;
         attr_str(&root, "title", &model.title).map_err(&er)?;
@@ -149,6 +168,7 @@ pub fn write(
         f64s("inflow", &state.inflow).map_err(&er)?;
         f64s("throughput", &state.throughput).map_err(&er)?;
         f64s("initial_totals", &state.initial_totals).map_err(&er)?;
+        f64s("initial_storage", &state.initial_storage).map_err(&er)?;
         f64s("face_depth", &model.mesh.faces).map_err(&er)?;
         if let (Some(a), Some(r)) = (info.balance_abs, info.balance_rel) {
             f64s("balance_error", &[a[0], a[1], r[0], r[1]]).map_err(&er)?;
@@ -211,10 +231,10 @@ pub fn write(
         file.flush().map_err(&er)?;
         // Every handle is dropped at the end of this block, which closes the file.
     }
-    let f = std::fs::File::open(&tmp).map_err(|err| Error::io(&tmp, err))?;
-    f.sync_all().map_err(|err| Error::io(&tmp, err))?;
+    let f = std::fs::File::open(tmp).map_err(|err| Error::io(tmp, err))?;
+    f.sync_all().map_err(|err| Error::io(tmp, err))?;
     drop(f);
-    std::fs::rename(&tmp, path)
+    std::fs::rename(tmp, path)
         .map_err(|err| Error::io(path, format!("cannot rename checkpoint: {err}")))?;
     if let Some(dir) = path.parent() {
         if let Ok(d) = std::fs::File::open(if dir.as_os_str().is_empty() {
@@ -337,6 +357,7 @@ pub fn read(path: &Path) -> Result<Checkpoint> {
             inflow: two("inflow")?,
             throughput: two("throughput")?,
             initial_totals: two("initial_totals")?,
+            initial_storage: v("initial_storage")?,
             counters: Counters {
                 steps: ints[0],
                 rejected: ints[1],
@@ -367,6 +388,9 @@ pub fn read(path: &Path) -> Result<Checkpoint> {
                 .and_then(|a| a.read_scalar::<f64>())
                 .unwrap_or(f64::NAN);
             info.parent = Some((p, t));
+        }
+        if state.initial_storage.len() != state.u.len() {
+            return Err(bad("initial_storage"));
         }
         if state.history.iter().any(|h| h.u.len() != state.u.len()) {
             return Err(bad("history"));

@@ -1,7 +1,7 @@
 //! `deepdry inspect`: a summary of a results or checkpoint file.
 
 use crate::checkpoint::{file_kind, CHECKPOINT_KIND};
-use crate::error::{Error, Result};
+use crate::error::Result;
 use crate::output::h5util::read_attr_str;
 use std::fmt::Write;
 use std::path::Path;
@@ -54,7 +54,7 @@ pub fn summary(path: &Path) -> Result<String> {
         let _ = writeln!(out, "physics hash: {}", ck.physics_hash);
         return Ok(out);
     }
-    let e = |err: hdf5::Error| Error::io(path, err);
+    let e = |err: hdf5::Error| crate::output::h5util::io_error(path, err);
     let file = hdf5::File::open(path).map_err(e)?;
     let root = file.as_group().map_err(e)?;
     let attr = |n: &str| read_attr_str(&root, n).unwrap_or_else(|_| "?".into());

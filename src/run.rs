@@ -282,6 +282,7 @@ pub fn steady_state(model: &Model, guess: Vec<f64>, solver: SolverKind) -> Resul
 /// A one-line message for a step that failed at the minimum Δt.
 pub fn numerical_message(sys: &System, f: &StepFailure, what: &str) -> Error {
     let names = ["energy balance", "water balance", "vapour equation"];
+    let unknowns = ["temperature", "head", "vapour density"];
     let (cell, row, res) = match &f.failure {
         NewtonFailure::NotConverged {
             cell,
@@ -304,11 +305,12 @@ pub fn numerical_message(sys: &System, f: &StepFailure, what: &str) -> Error {
     };
     let cell = cell.min(sys.n.saturating_sub(1));
     Error::Numerical(format!(
-        "{what}: step failed at t = {:.6e} yr with dt = {:.3e} s (the minimum): {kind}; worst {} residual {:.3e} (scaled) at depth {:.4} m (cell {cell})",
+        "{what}: step failed at t = {:.6e} yr with dt = {:.3e} s (the minimum): {kind}; worst {} residual {:.3e} (scaled; unknown {}) at depth {:.4} m (cell {cell})",
         f.t / SECONDS_PER_YEAR,
         f.dt,
         names[row.min(2)],
         res,
+        unknowns[row.min(2)],
         sys.centers[cell],
     ))
 }
@@ -447,10 +449,24 @@ fn interrupted() -> bool {
         .unwrap_or(false)
 }
 
-/// Checkpoint times inside (start, end] from the simulated-time interval.
-fn checkpoint_times(model: &Model) -> Vec<f64> {
+/// Most checkpoint times a run accepts from `[checkpoint] every_year`.
+pub const MAX_CHECKPOINT_TIMES: f64 = 1.0e6;
+
+/// Checkpoint times inside (start, end] from the simulated-time interval; an interval
+/// that would give more than [`MAX_CHECKPOINT_TIMES`] is refused (it would take the
+/// memory of the machine before the first step).
+fn checkpoint_times(model: &Model) -> Result<Vec<f64>> {
     let mut out = Vec::new();
     if let Some(every) = model.checkpoint.every {
+        let count = (model.time.end - model.time.start) / every;
+        if count.is_nan() || count > MAX_CHECKPOINT_TIMES {
+            return Err(Error::input(format!(
+                "checkpoint.every_year = {:e}: gives {count:.3e} checkpoints over the run ({:e} to {:e} yr); at most {MAX_CHECKPOINT_TIMES:e}: use a longer interval",
+                every / SECONDS_PER_YEAR,
+                model.time.start / SECONDS_PER_YEAR,
+                model.time.end / SECONDS_PER_YEAR
+            )));
+        }
         if every > 0.0 {
             let mut k = 1.0;
             loop {
@@ -463,7 +479,7 @@ fn checkpoint_times(model: &Model) -> Vec<f64> {
             }
         }
     }
-    out
+    Ok(out)
 }
 
 fn is_member(list: &[f64], t: f64) -> bool {
@@ -565,6 +581,8 @@ fn replace_earlier_run(folder: &std::path::Path, keep: Option<&std::path::Path>)
 /// Runs `model` (from its initial state, or as `opts.start` says) to its end time.
 pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
     let wall = Instant::now();
+    // Refused before any file is touched.
+    let ckpt_times = checkpoint_times(model)?;
     let folder = opts
         .out
         .clone()
@@ -703,7 +721,6 @@ pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
             .write_snapshot(r.st.state.t / SECONDS_PER_YEAR, &r.profile)?;
     }
 
-    let ckpt_times = checkpoint_times(model);
     let jumps = forcing_times(model);
     let mut syncs = sync_times(model);
     syncs.extend(ckpt_times.iter().cloned());

@@ -455,7 +455,7 @@ fn bad_checkpoints_give_one_line_errors_for_resume_start_from_and_inspect() {
         (&foreign, vec!["foreign.h5", "not written by deepdry"]),
         (
             &version,
-            vec!["version.h5", "checkpoint format 99", "reads format 1"],
+            vec!["version.h5", "checkpoint format 99", "reads format 2"],
         ),
         (
             &damaged,
@@ -518,7 +518,7 @@ fn inspect_describes_results_and_checkpoints() {
         "kind: checkpoint",
         "case title: small test column",
         "software version: ",
-        "checkpoint format: 1",
+        "checkpoint format: 2",
         "time: 5.000000e0 yr",
         "cells: 30",
         "snapshots",

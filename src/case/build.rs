@@ -230,8 +230,8 @@ fn read_mesh(root: &Table, depth: f64, layers: &[Layer]) -> R<Mesh> {
     let growth = opt_num(
         &t,
         "growth",
-        |g| (1.0..=2.0).contains(&g),
-        "must be in [1, 2] (ratio of neighbouring cell sizes; 1 = uniform cells)",
+        |g| g == 1.0 || (1.0 + 1e-6..=2.0).contains(&g),
+        "must be 1 (uniform cells) or in [1.000001, 2] (ratio of neighbouring cell sizes)",
     )?
     .unwrap_or(1.0);
     let size = |key: &str| {

@@ -1,6 +1,6 @@
 //! Command-line interface: argument types (clap) and dispatch to the library.
 
-use crate::error::Result;
+use crate::error::{Error, Result};
 use clap::{Parser, Subcommand};
 use std::path::PathBuf;
 
@@ -117,10 +117,39 @@ pub enum TableCommand {
     },
 }
 
+/// The same error with its message on one line (a message that quotes a library's text
+/// may carry line breaks; the binary promises one line on stderr).
+pub fn one_line(e: Error) -> Error {
+    let fix = |s: String| {
+        if s.contains(['\n', '\r']) {
+            s.split(['\n', '\r'])
+                .map(str::trim)
+                .filter(|p| !p.is_empty())
+                .collect::<Vec<_>>()
+                .join(" ")
+        } else {
+            s
+        }
+    };
+    match e {
+        Error::Input(s) => Error::Input(fix(s)),
+        Error::Io(s) => Error::Io(fix(s)),
+        Error::Numerical(s) => Error::Numerical(fix(s)),
+        Error::Interrupted(s) => Error::Interrupted(fix(s)),
+        // A verification report may be a table: left as it is.
+        Error::VerifyFailed(s) => Error::VerifyFailed(s),
+        Error::Internal(s) => Error::Internal(fix(s)),
+    }
+}
+
 /// Runs one command.
 pub fn dispatch(cli: Cli) -> Result<()> {
     // HDF5's own error stack printing would bury our one-line messages.
     hdf5::silence_errors(true);
+    run_command(cli).map_err(one_line)
+}
+
+fn run_command(cli: Cli) -> Result<()> {
     match cli.command {
         Command::Check { case } => {
             let model = crate::case::load(&case)?;

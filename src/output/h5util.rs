@@ -128,3 +128,30 @@ pub fn in_use_message(path: &std::path::Path, err: &hdf5::Error) -> Option<Strin
         None
     }
 }
+
+/// A short one-line form of an HDF5 error: the library's own chain of reasons without the
+/// low-level details it appends (time, file descriptor, buffer address, …), followed by
+/// the operating system's message when there is one, e.g.
+/// `H5Fflush(): unable to flush file's cached information: file write failed: No space left on device`.
+pub fn short_error(err: &hdf5::Error) -> String {
+    let text = err.to_string().replace(['\n', '\r'], " ");
+    let cut = [": time = ", ": name = ", ", errno = ", ": errno = "]
+        .iter()
+        .filter_map(|m| text.find(m))
+        .min()
+        .unwrap_or(text.len());
+    let head = text[..cut].trim_end();
+    let os = text
+        .split("error message = '")
+        .nth(1)
+        .and_then(|r| r.split('\'').next());
+    match os {
+        Some(m) if !m.is_empty() => format!("{head}: {m}"),
+        _ => head.to_string(),
+    }
+}
+
+/// An I/O error on `path` from an HDF5 error, in one line.
+pub fn io_error(path: &std::path::Path, err: hdf5::Error) -> crate::error::Error {
+    crate::error::Error::io(path, short_error(&err))
+}

@@ -105,7 +105,7 @@ fn same_time(a: Option<f64>, b: Option<f64>) -> bool {
 }
 
 fn h5(path: &Path) -> impl Fn(hdf5::Error) -> Error + '_ {
-    move |e| Error::io(path, e)
+    move |e| super::h5util::io_error(path, e)
 }
 
 impl ResultsFile {
@@ -244,10 +244,9 @@ impl ResultsFile {
             ))
         };
         let h5err = |err: hdf5::Error| {
-            let msg = err.to_string();
             damaged(format!(
                 "damaged or not an HDF5 file ({})",
-                msg.lines().next().unwrap_or("")
+                super::h5util::short_error(&err)
             ))
         };
         let file = File::open_rw(path).map_err(|err| match in_use_message(path, &err) {

@@ -78,8 +78,7 @@ pub struct NewtonWork {
     pub row: Vec<f64>,
     pub col: Vec<f64>,
     pub jac: BlockTri,
-    /// The iterate before the last update and that update (for backtracking).
-    pub u_prev: Vec<f64>,
+    /// The last (clipped) update.
     pub step: Vec<f64>,
 }
 
@@ -92,7 +91,6 @@ impl NewtonWork {
             row: vec![0.0; 3 * n],
             col: vec![0.0; 3 * n],
             jac: BlockTri::new(n),
-            u_prev: vec![0.0; 3 * n],
             step: vec![0.0; 3 * n],
         }
     }
@@ -134,8 +132,6 @@ pub fn solve(
     let mut last = f64::INFINITY;
     let mut growth = 0;
     let mut small_update = false;
-    let mut lambda = 1.0;
-    let mut backtracks = 0;
     for it in 0..=opts.max_iter {
         sys.assemble(t, u, c, hist, &mut w.res, Some(&mut w.jac))
             .map_err(NewtonFailure::NonFinite)?;
@@ -158,18 +154,6 @@ pub fn solve(
                 residual: r,
             });
         }
-        // Backtracking: a full step that made the residual worse is halved (up to 4 times)
-        // before a new direction is computed; this tames kinks such as the air-entry head.
-        if r > last && backtracks < 4 {
-            backtracks += 1;
-            lambda *= 0.5;
-            for k in 0..u.len() {
-                u[k] = w.u_prev[k] + lambda * w.step[k];
-            }
-            continue;
-        }
-        backtracks = 0;
-        lambda = 1.0;
         if r > last {
             growth += 1;
             if growth >= 3 {
@@ -229,7 +213,6 @@ pub fn solve(
             w.step[kh] = dh;
             w.step[kv] = drv;
         }
-        w.u_prev.copy_from_slice(u);
         for k in 0..u.len() {
             u[k] += w.step[k];
         }

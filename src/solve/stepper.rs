@@ -18,7 +18,7 @@
 
 use super::linear::LinearSolver;
 use super::newton::{self, NewtonFailure, NewtonOptions, NewtonWork};
-use crate::physics::{System, H, RV, T};
+use crate::physics::{System, ENERGY, H, RV, T, WATER};
 
 /// Which integrator and its tolerances.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -123,6 +123,10 @@ pub struct StepState {
     pub throughput: [f64; 2],
     /// Column totals at the start: [energy J m⁻², water kg m⁻²].
     pub initial_totals: [f64; 2],
+    /// Storages of every cell at the start (3 per cell, as [`System::storage_into`]):
+    /// the storage change is summed cell by cell from these, so its round-off is that of
+    /// the change, not of the whole column's content.
+    pub initial_storage: Vec<f64>,
     pub counters: Counters,
     /// Earlier accepted points, newest first (BDF only; at most max_order + 1).
     pub history: Vec<HistoryPoint>,
@@ -211,10 +215,13 @@ impl Stepper {
     /// Fresh state at time `t` from unknowns `u`.
     pub fn initial_state(sys: &mut System, t: f64, dt: f64, u: Vec<f64>) -> StepState {
         sys.evaluate(t, &u);
+        let mut initial_storage = vec![0.0; 3 * sys.n];
+        sys.storage_into(&mut initial_storage);
         StepState {
             t,
             dt,
             initial_totals: sys.totals(),
+            initial_storage,
             u,
             inflow: [0.0; 2],
             throughput: [0.0; 2],
@@ -248,11 +255,19 @@ impl Stepper {
     /// Balance errors: [energy J m⁻², water kg m⁻²] = storage change − net inflow, and the
     /// same relative to max(|storage change|, throughput). Uses the last evaluation.
     pub fn balance(&self, sys: &System) -> ([f64; 2], [f64; 2]) {
-        let tot = sys.totals();
+        // Storage change summed cell by cell: [energy, water].
+        let mut changes = [0.0; 2];
+        let m0 = &self.state.initial_storage;
+        for i in 0..sys.n {
+            let m = sys.storage(i);
+            let w = sys.widths[i];
+            changes[0] += w * (m[ENERGY] - m0[3 * i + ENERGY]);
+            changes[1] += w * (m[WATER] - m0[3 * i + WATER]);
+        }
         let mut abs = [0.0; 2];
         let mut rel = [0.0; 2];
         for k in 0..2 {
-            let change = tot[k] - self.state.initial_totals[k];
+            let change = changes[k];
             abs[k] = change - self.state.inflow[k];
             let denom = change.abs().max(self.state.throughput[k]);
             rel[k] = if denom > 0.0 {

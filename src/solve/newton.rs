@@ -41,7 +41,7 @@ impl Default for NewtonOptions {
             update_h_abs: 1e-9,
             update_rv_rel: 1e-10,
             update_rv_abs: 1e-16,
-            residual_tol_loose: 1e-8,
+            residual_tol_loose: 1e-7,
             max_dt_per_iter: 5.0,
             max_dh_factor: 10.0,
             max_dh_abs: 2.0,

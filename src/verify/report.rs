@@ -111,8 +111,8 @@ pub fn write(dir: &Path, cases: &[Case], outcomes: &[Outcome], total_s: f64) -> 
                 md,
                 "| {} | {} | {} | {:.3e} | {:.3e} | {} |",
                 o.name,
-                c.quantity,
-                c.source,
+                c.quantity.replace('|', "\\|"),
+                c.source.replace('|', "\\|"),
                 c.error,
                 c.tolerance,
                 verdict(c.passed())

@@ -7,7 +7,7 @@ use crate::props::constants::{CELSIUS_ZERO, WATER_DENSITY};
 /// Liquid content above the driest value in the column that marks the drying front
 /// [m³ m⁻³]. The drying-front depth is the shallowest depth (linearly interpolated
 /// between cell centres) where θl exceeds min(θl) + this threshold; 0 when the surface
-/// cell already does.
+/// cell already does, or when no cell does (nearly uniform content: no dry zone).
 pub const DRYING_FRONT_THRESHOLD: f64 = 0.01;
 
 /// Cell and face profiles at one time (reused buffers).
@@ -81,7 +81,9 @@ pub fn drying_front_depth(sys: &System) -> f64 {
             return z0 + f * (z1 - z0);
         }
     }
-    sys.faces_z[sys.n]
+    // No cell exceeds the column minimum by the threshold: the liquid content is nearly
+    // uniform and there is no dry zone above a wetter one.
+    0.0
 }
 
 /// One row of the time series.

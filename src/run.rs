@@ -397,14 +397,13 @@ pub fn step_options(model: &Model) -> StepOptions {
 /// The series record for the current (evaluated) state.
 pub fn series_record(sys: &System, st: &Stepper, dt: f64, iters: usize) -> SeriesRecord {
     let (abs, rel) = st.balance(sys);
-    let top = &sys.faces[0];
-    let bot = &sys.faces[sys.n];
+    let (top, bot) = sys.boundary_fluxes();
     SeriesRecord {
         time_year: st.state.t / SECONDS_PER_YEAR,
-        surface_water_flux: top.water().v,
-        bottom_water_flux: bot.water().v,
-        surface_heat_flux: top.energy().v,
-        bottom_heat_flux: bot.energy().v,
+        surface_water_flux: top[1],
+        bottom_water_flux: bot[1],
+        surface_heat_flux: top[0],
+        bottom_heat_flux: bot[0],
         water_storage: sys.totals()[1],
         water_balance_error: abs[1],
         energy_balance_error: abs[0],
@@ -804,8 +803,8 @@ pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
         counters: st.state.counters,
         balance_abs,
         balance_rel,
-        surface_flux_mm_yr: mm_per_year(sys.faces[0].water().v),
-        bottom_flux_mm_yr: mm_per_year(sys.faces[sys.n].water().v),
+        surface_flux_mm_yr: mm_per_year(sys.boundary_fluxes().0[1]),
+        bottom_flux_mm_yr: mm_per_year(sys.boundary_fluxes().1[1]),
         final_state: st.state.clone(),
     })
 }

@@ -159,15 +159,13 @@ impl System {
         [e, w]
     }
 
-    /// Net inflow rates through the boundaries from the last evaluation:
-    /// [energy W m⁻², water kg m⁻² s⁻¹] (top flux in minus bottom flux out).
-    pub fn net_inflow(&self) -> [f64; 2] {
-        let top = &self.faces[0];
-        let bot = &self.faces[self.n];
-        [
-            top.energy().v - bot.energy().v,
-            top.water().v - bot.water().v,
-        ]
+    /// Energy and water fluxes through the land surface and the bottom boundary from the
+    /// last evaluation, positive downward: ([energy W m⁻², water kg m⁻² s⁻¹] at the top,
+    /// the same at the bottom).
+    pub fn boundary_fluxes(&self) -> ([f64; 2], [f64; 2]) {
+        let top = &self.face_totals[0];
+        let bot = &self.face_totals[self.n];
+        ([top[ENERGY].v, top[WATER].v], [bot[ENERGY].v, bot[WATER].v])
     }
 
     /// Magnitude of the terms of every residual row (3 per cell) from the last evaluation:

@@ -505,16 +505,9 @@ impl Stepper {
             s.counters.steps += 1;
             // Cumulative inflow by the same formula as the storages:
             // α0 W_new + α1 W_old + Σ αj W_j = F_in(new).
-            let top = &sys.faces[0];
-            let bot = &sys.faces[n];
-            let fin = [
-                top.energy().v - bot.energy().v,
-                top.water().v - bot.water().v,
-            ];
-            let fabs = [
-                top.energy().v.abs() + bot.energy().v.abs(),
-                top.water().v.abs() + bot.water().v.abs(),
-            ];
+            let (top, bot) = sys.boundary_fluxes();
+            let fin = [top[0] - bot[0], top[1] - bot[1]];
+            let fabs = [top[0].abs() + bot[0].abs(), top[1].abs() + bot[1].abs()];
             let mut new_inflow = [0.0; 2];
             let mut new_throughput = [0.0; 2];
             for q in 0..2 {

@@ -85,12 +85,15 @@ pub struct Retention {
     pub dry_end: Option<DryEnd>,
 }
 
-/// ln(1 + eᵗ) without overflow.
-fn softplus(t: f64) -> f64 {
+/// The softplus pair (ln(1 + eᵗ), ln(1 + e⁻ᵗ)) without overflow, from one exponential
+/// and one logarithm.
+fn softplus_pair(t: f64) -> (f64, f64) {
     if t > 0.0 {
-        t + (-t).exp().ln_1p()
+        let a = (-t).exp().ln_1p();
+        (t + a, a)
     } else {
-        t.exp().ln_1p()
+        let b = t.exp().ln_1p();
+        (b, -t + b)
     }
 }
 
@@ -137,7 +140,7 @@ impl RetentionLaw {
                 let m = 1.0 - 1.0 / n;
                 let lx = (-alpha * h).ln(); // ln x, x = α|h|
                 let t = n * lx; // ln xⁿ
-                let sp = softplus(t); // ln(1 + xⁿ)
+                let (sp, sp_neg) = softplus_pair(t); // ln(1 + xⁿ), ln(1 + x⁻ⁿ)
                 let ln_se = -m * sp;
                 // d ln Se/dh = α m n w/x, w = xⁿ/(1 + xⁿ): w/x = exp((n − 1) ln x − sp)
                 let dln_se = alpha * m * n * ((n - 1.0) * lx - sp).exp();
@@ -148,7 +151,7 @@ impl RetentionLaw {
                     // d/dh ln(1 − w^m) → α n / x (relative error O(x⁻ⁿ) < 1e-13).
                     (m.ln() - t, alpha * n * (-lx).exp())
                 } else {
-                    let ln_w = -softplus(-t);
+                    let ln_w = -sp_neg;
                     let l1 = ln_one_minus_exp(m * ln_w);
                     // d/dh ln(1 − w^m) = α m n w^m (1 − w) / (x (1 − w^m))
                     let d = alpha * m * n * (m * ln_w - sp - lx - l1).exp();
@@ -252,12 +255,26 @@ impl Retention {
 
     /// Liquid content θ(h) [m³ m⁻³] and dθ/dh [m⁻¹].
     pub fn theta(&self, h: f64) -> (f64, f64) {
-        let ts = self.law.theta_s();
         if h >= 0.0 || h.is_nan() {
-            return (ts, 0.0);
+            return (self.law.theta_s(), 0.0);
         }
-        let tr = self.law.theta_r();
+        self.theta_from_base(h, &self.law.base(h))
+    }
+
+    /// θ(h) and dθ/dh, and Kr(h) and dKr/dh, from one evaluation of the base law (the
+    /// residual needs both at every cell).
+    pub fn theta_and_relative_conductivity(&self, h: f64) -> ((f64, f64), (f64, f64)) {
+        if h >= 0.0 || h.is_nan() {
+            return ((self.law.theta_s(), 0.0), (1.0, 0.0));
+        }
         let b = self.law.base(h);
+        let kr = b.ln_kr.exp();
+        (self.theta_from_base(h, &b), (kr, kr * b.dln_kr))
+    }
+
+    fn theta_from_base(&self, h: f64, b: &Base) -> (f64, f64) {
+        let ts = self.law.theta_s();
+        let tr = self.law.theta_r();
         let se = b.ln_se.exp();
         let dse = se * b.dln_se;
         match &self.dry_end {

@@ -61,15 +61,21 @@ impl ThermalConductivity {
             ThermalConductivity::Constant { value } => (value, 0.0),
             ThermalConductivity::Campbell { a, b, c, d, e } => {
                 let ct = c * th;
-                let u = ct.powf(e);
+                // The usual E = 4 by multiplication (the general power costs an exp and a log).
+                let u = if e == 4.0 {
+                    let c2 = ct * ct;
+                    c2 * c2
+                } else {
+                    ct.powf(e)
+                };
                 let ex = (-u).exp();
                 let lam = a + b * th - (a - d) * ex;
                 if clipped {
                     return (lam, 0.0);
                 }
-                // d/dθ (Cθ)^E = E C (Cθ)^(E−1)
+                // d/dθ (Cθ)^E = E C (Cθ)^(E−1) = E C u/(Cθ)
                 let du = if ct > 0.0 {
-                    e * c * ct.powf(e - 1.0)
+                    e * c * u / ct
                 } else if e == 1.0 {
                     c
                 } else {

@@ -39,6 +39,7 @@ struct Row {
     steps: u64,
     newton: u64,
     assembly: f64,
+    residual: f64,
     thomas: f64,
     sparse: f64,
 }
@@ -63,6 +64,10 @@ fn measure(label: &str, text: &str, origin: &str, base: &Path, out: &Path) -> Re
     let assembly = time_it(|| {
         let _ = sys.assemble(model.time.start, &u, c, &hist, &mut res, Some(&mut jac));
     });
+    let residual = time_it(|| {
+        let _ = sys.assemble(model.time.start, &u, c, &hist, &mut res, None);
+    });
+    let _ = sys.assemble(model.time.start, &u, c, &hist, &mut res, Some(&mut jac));
     // Make the system well scaled like Newton does (rows by their magnitudes).
     let mut scale = vec![0.0; 3 * n];
     sys.residual_scale_into(c, &hist, &mut scale);
@@ -95,6 +100,7 @@ fn measure(label: &str, text: &str, origin: &str, base: &Path, out: &Path) -> Re
         steps: summary.counters.steps,
         newton: summary.counters.newton_iterations,
         assembly,
+        residual,
         thomas,
         sparse,
     })
@@ -160,7 +166,7 @@ pub fn bench(case: &Path, cells: &[usize], span_years: f64) -> Result<String> {
     );
     let _ = writeln!(
         out,
-        "{:<16} {:>7} {:>9} {:>7} {:>8} {:>12} {:>12} {:>12} {:>12} {:>12}",
+        "{:<16} {:>7} {:>9} {:>7} {:>8} {:>12} {:>12} {:>12} {:>12} {:>12} {:>12}",
         "workload",
         "cells",
         "wall [s]",
@@ -169,6 +175,7 @@ pub fn bench(case: &Path, cells: &[usize], span_years: f64) -> Result<String> {
         "ms/step",
         "µs/it/cell",
         "assembly µs",
+        "residual µs",
         "thomas µs",
         "sparse-lu µs"
     );
@@ -176,7 +183,7 @@ pub fn bench(case: &Path, cells: &[usize], span_years: f64) -> Result<String> {
         let per_it_cell = r.wall / r.newton.max(1) as f64 / r.cells as f64 * 1e6;
         let _ = writeln!(
             out,
-            "{:<16} {:>7} {:>9.3} {:>7} {:>8} {:>12.3} {:>12.3} {:>12.1} {:>12.1} {:>12.1}",
+            "{:<16} {:>7} {:>9.3} {:>7} {:>8} {:>12.3} {:>12.3} {:>12.1} {:>12.1} {:>12.1} {:>12.1}",
             r.label,
             r.cells,
             r.wall,
@@ -185,13 +192,14 @@ pub fn bench(case: &Path, cells: &[usize], span_years: f64) -> Result<String> {
             r.wall / r.steps.max(1) as f64 * 1e3,
             per_it_cell,
             r.assembly * 1e6,
+            r.residual * 1e6,
             r.thomas * 1e6,
             r.sparse * 1e6
         );
     }
     let _ = writeln!(
         out,
-        "(assembly: one residual + exact Jacobian; thomas / sparse-lu: one bare factorise + solve of the same system)"
+        "(assembly: one residual + exact Jacobian; residual: the residual alone; thomas / sparse-lu: one bare factorise + solve of the same system)"
     );
     if let Some(m) = peak_memory_mib() {
         let _ = writeln!(out, "peak memory {m:.1} MiB");

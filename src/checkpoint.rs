@@ -223,6 +223,7 @@ fn write_via(
             position.snapshots,
             state.order as u64,
             state.steps_at_order as u64,
+            c.jacobians,
         ];
         file.new_dataset_builder()
             .with_data(&Array1::from_vec(ints))
@@ -328,7 +329,8 @@ pub fn read(path: &Path) -> Result<Checkpoint> {
             .and_then(|d| d.read_1d::<u64>())
             .map(|a| a.to_vec())
             .map_err(|_| bad("counters"))?;
-        if ints.len() != 9 {
+        // Nine entries in files written before Jacobian evaluations were counted.
+        if ints.len() != 9 && ints.len() != 10 {
             return Err(bad("counters"));
         }
         let hu = file
@@ -363,6 +365,7 @@ pub fn read(path: &Path) -> Result<Checkpoint> {
                 rejected: ints[1],
                 newton_iterations: ints[2],
                 factorizations: ints[3],
+                jacobians: ints.get(9).copied().unwrap_or(0),
             },
             history,
             order: ints[7] as usize,

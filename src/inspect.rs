@@ -28,8 +28,8 @@ pub fn summary(path: &Path) -> Result<String> {
         let _ = writeln!(out, "cells: {}", ck.state.u.len() / 3);
         let _ = writeln!(
             out,
-            "steps {} (rejected {}), Newton iterations {}, factorisations {}",
-            c.steps, c.rejected, c.newton_iterations, c.factorizations
+            "steps {} (rejected {}), Newton iterations {}, Jacobian evaluations {}, factorisations {}",
+            c.steps, c.rejected, c.newton_iterations, c.jacobians, c.factorizations
         );
         let _ = writeln!(
             out,

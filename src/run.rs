@@ -68,7 +68,7 @@ impl RunSummary {
         let c = &self.counters;
         format!(
             "run finished: {:.6} yr to {:.6} yr in {:.2} s wall time\n\
-             steps {} (rejected {}), Newton iterations {}, factorisations {}\n\
+             steps {} (rejected {}), Newton iterations {}, Jacobian evaluations {}, factorisations {}\n\
              water balance error {:.3e} kg m-2 (relative {:.2e}); energy balance error {:.3e} J m-2 (relative {:.2e})\n\
              water flux at the surface {:.6e} mm/yr, at the bottom {:.6e} mm/yr (positive downward)\n\
              results: {}\n",
@@ -78,6 +78,7 @@ impl RunSummary {
             c.steps,
             c.rejected,
             c.newton_iterations,
+            c.jacobians,
             c.factorizations,
             self.balance_abs[1],
             self.balance_rel[1],

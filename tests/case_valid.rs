@@ -155,7 +155,8 @@ fn benchmark_case_encodes_the_specification() {
     // Time: 0 to 1 Myr; output log-spaced, 5 per decade from year 1, end included.
     assert_eq!(m.time.start, 0.0);
     assert_eq!(m.time.end, 1.0e6 * YR);
-    assert_eq!(m.time.method, Method::BackwardEuler);
+    // Default integrator: error-controlled variable-order BDF up to order 5.
+    assert_eq!(m.time.method, Method::Bdf { max_order: 5 });
     let snaps = &m.output.snapshot_times;
     assert_eq!(snaps.len(), 31);
     assert!(close(snaps[0], YR, 1e-12));
@@ -226,8 +227,9 @@ fn unit_conversions() {
     }
     assert_eq!(m.time.start, -10.0 * YR);
     assert_eq!(YR, 365.25 * 86_400.0);
-    // Defaults: max step (end − start)/100, first step 1e-6 yr, smallest 1e-9 yr.
-    assert!(close(m.time.dt_max, 1.1 * YR, 1e-12));
+    // Defaults (BDF): max step the whole span end − start, first step 1e-6 yr, smallest
+    // 1e-9 yr.
+    assert!(close(m.time.dt_max, 110.0 * YR, 1e-12));
     assert!(close(m.time.dt_initial, 1e-6 * YR, 1e-12));
     assert!(close(m.time.dt_min, 1e-9 * YR, 1e-12));
     // Default output: only the end time, in out/<stem> next to the case.

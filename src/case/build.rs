@@ -1172,8 +1172,34 @@ fn read_time(root: &Table) -> R<TimeControl> {
         &format!("must be after start_year ({})", fmt_g(start)),
     )?;
     let span = end - start;
+    let method = match t.get("method") {
+        Some(v) => v.choice(&["backward-euler", "bdf"])?,
+        None => "bdf",
+    };
+    let method = if method == "bdf" {
+        let max_order = match t.get("max_order") {
+            Some(v) => {
+                let k = v.usize()?;
+                if !(1..=5).contains(&k) {
+                    return Err(v.err("must be 1 to 5"));
+                }
+                k
+            }
+            None => 5,
+        };
+        Method::Bdf { max_order }
+    } else {
+        t.only_with("max_order", "method = \"bdf\"")?;
+        Method::BackwardEuler
+    };
     let step = |key: &str| opt_num(&t, key, |x| x > 0.0, "must be > 0");
-    let dt_max = step("max_step_year")?.unwrap_or(span / 100.0);
+    // Error control sets BDF's steps, up to the whole span (near a steady state the step
+    // grows to the end); backward Euler's heuristics are capped at 1/100 of the span.
+    let default_max = match method {
+        Method::Bdf { .. } => span,
+        Method::BackwardEuler => span / 100.0,
+    };
+    let dt_max = step("max_step_year")?.unwrap_or(default_max);
     let dt_initial = step("initial_step_year")?.unwrap_or(1.0e-6_f64.min(dt_max));
     let dt_min = step("min_step_year")?.unwrap_or(1.0e-9_f64.min(dt_initial));
     if dt_initial > dt_max {
@@ -1200,30 +1226,10 @@ fn read_time(root: &Table) -> R<TimeControl> {
             fmt_g(dt_initial)
         )));
     }
-    let method = match t.get("method") {
-        Some(v) => v.choice(&["backward-euler", "bdf"])?,
-        None => "backward-euler",
-    };
-    let method = if method == "bdf" {
-        let max_order = match t.get("max_order") {
-            Some(v) => {
-                let k = v.usize()?;
-                if !(1..=5).contains(&k) {
-                    return Err(v.err("must be 1 to 5"));
-                }
-                k
-            }
-            None => 2,
-        };
-        Method::Bdf { max_order }
-    } else {
-        t.only_with("max_order", "method = \"bdf\"")?;
-        Method::BackwardEuler
-    };
     let tol = |key: &str, default: f64| -> R<f64> {
         Ok(opt_num(&t, key, |x| x > 0.0, "must be > 0")?.unwrap_or(default))
     };
-    let rtol = opt_num(&t, "rtol", |x| x > 0.0 && x < 1.0, "must be in (0, 1)")?.unwrap_or(1.0e-4);
+    let rtol = opt_num(&t, "rtol", |x| x > 0.0 && x < 1.0, "must be in (0, 1)")?.unwrap_or(1.0e-3);
     let max_newton = match t.get("max_newton_iterations") {
         Some(v) => {
             let k = v.usize()?;

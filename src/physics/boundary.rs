@@ -4,30 +4,41 @@
 //! derivatives are then folded into that cell's Jacobian block.
 
 use super::cell::{cell_props, equilibrium_vapor, head_from_rh, CellProps};
-use super::dual::{D3, D6};
+use super::dual::Dual;
 use super::flux::{face_flux, FaceFlux};
 use super::System;
 use crate::model::{BottomHeat, BottomWater, SurfaceHeat, SurfaceWater};
 
 impl System {
-    fn ghost(&self, cell: usize, t: D3, h: D3, rv: Option<D3>) -> CellProps {
+    fn ghost<const N: usize>(
+        &self,
+        cell: usize,
+        t: Dual<N>,
+        h: Dual<N>,
+        rv: Option<Dual<N>>,
+    ) -> CellProps<N> {
         let rv = rv.unwrap_or_else(|| equilibrium_vapor(t, h).3);
         cell_props(self.soil_of(cell), &self.physics, t, h, rv)
     }
 
-    /// Fluxes through the land surface (face 0), positive downward (into the soil).
-    pub fn top_face(&self, t: f64) -> FaceFlux {
+    /// Fluxes through the land surface (face 0) given the top cell's properties `c0`,
+    /// positive downward (into the soil).
+    pub fn top_face<const N: usize, const M: usize>(
+        &self,
+        t: f64,
+        c0: &CellProps<N>,
+    ) -> FaceFlux<M> {
         let bc = self.surface.at(t);
-        let c0 = self.cells[0];
+        let c0 = *c0;
         let d0 = self.d_above[0];
         let avg = self.physics.face_conductivity;
         let (tg, heat_flux) = match &bc.heat {
-            SurfaceHeat::Temperature(s) => (D3::cst(s.value(t)), None),
+            SurfaceHeat::Temperature(s) => (Dual::cst(s.value(t)), None),
             SurfaceHeat::Flux(s) => (c0.t, Some(s.value(t))),
         };
         let mut f = match &bc.water {
             SurfaceWater::Head(s) => {
-                let g = self.ghost(0, tg, D3::cst(s.value(t)), None);
+                let g = self.ghost(0, tg, Dual::cst(s.value(t)), None);
                 face_flux(&g, &c0, 0, 3, 0.0, d0, avg)
             }
             SurfaceWater::Atmosphere {
@@ -37,43 +48,43 @@ impl System {
                 let rh = relative_humidity.value(t);
                 let g = self.ghost(0, tg, head_from_rh(rh, tg), None);
                 let mut f = face_flux(&g, &c0, 0, 3, 0.0, d0, avg);
-                f.liquid_iso = D6::cst(0.0);
-                f.liquid_th = D6::cst(0.0);
+                f.liquid_iso = Dual::cst(0.0);
+                f.liquid_th = Dual::cst(0.0);
                 if let Some(r) = resistance {
                     let ra = r.value(t).max(0.0);
                     // jv = −(rv0 − rva)/(ra + d0/Dv0): air-side and soil-side resistances
                     // in series; reported as isothermal.
-                    let rv0 = D6::lift3(c0.rv, 3);
-                    let rva = D6::lift3(g.rv, 0);
-                    let dv0 = D6::lift3(c0.dv, 3);
+                    let rv0 = Dual::lift(c0.rv, 3);
+                    let rva = Dual::lift(g.rv, 0);
+                    let dv0 = Dual::lift(c0.dv, 3);
                     let total = if dv0.v > 0.0 {
                         (dv0.recip() * d0) + ra
                     } else {
-                        D6::cst(f64::INFINITY)
+                        Dual::cst(f64::INFINITY)
                     };
                     f.vapor_iso = if total.v.is_finite() {
                         -((rv0 - rva) / total)
                     } else {
-                        D6::cst(0.0)
+                        Dual::cst(0.0)
                     };
-                    f.vapor_th = D6::cst(0.0);
+                    f.vapor_th = Dual::cst(0.0);
                 }
                 f
             }
             SurfaceWater::Flux { flux, ponding_head } => {
-                let g = self.ghost(0, tg, D3::cst(*ponding_head), None);
+                let g = self.ghost(0, tg, Dual::cst(*ponding_head), None);
                 let mut f = face_flux(&g, &c0, 0, 3, 0.0, d0, avg);
                 let q = flux.value(t);
                 // Infiltration cannot exceed what the soil takes with the surface ponded.
                 let capacity = f.liquid_iso;
                 f.liquid_iso = if q <= capacity.v {
-                    D6::cst(q)
+                    Dual::cst(q)
                 } else {
                     capacity
                 };
-                f.liquid_th = D6::cst(0.0);
-                f.vapor_iso = D6::cst(0.0);
-                f.vapor_th = D6::cst(0.0);
+                f.liquid_th = Dual::cst(0.0);
+                f.vapor_iso = Dual::cst(0.0);
+                f.vapor_th = Dual::cst(0.0);
                 f
             }
             SurfaceWater::NoFlow => {
@@ -84,26 +95,31 @@ impl System {
             }
         };
         if let Some(q) = heat_flux {
-            f.conduction = D6::cst(q);
+            f.conduction = Dual::cst(q);
         }
         f
     }
 
-    /// Fluxes through the bottom boundary (face n), positive downward (out of the column).
-    pub fn bottom_face(&self, t: f64) -> FaceFlux {
+    /// Fluxes through the bottom boundary (face n) given the bottom cell's properties
+    /// `cn`, positive downward (out of the column).
+    pub fn bottom_face<const N: usize, const M: usize>(
+        &self,
+        t: f64,
+        cn: &CellProps<N>,
+    ) -> FaceFlux<M> {
         let n = self.n;
         let bc = self.bottom.at(t);
-        let cn = self.cells[n - 1];
+        let cn = *cn;
         let dn = self.d_below[n - 1];
         let avg = self.physics.face_conductivity;
         let (tg, heat_flux) = match &bc.heat {
-            BottomHeat::Temperature(s) => (D3::cst(s.value(t)), None),
+            BottomHeat::Temperature(s) => (Dual::cst(s.value(t)), None),
             // Geothermal flux is given positive upward; the face flux is positive downward.
             BottomHeat::GeothermalFlux(s) => (cn.t, Some(-s.value(t))),
         };
         let mut f = match &bc.water {
             BottomWater::WaterTable(s) => {
-                let g = self.ghost(n - 1, tg, D3::cst(s.value(t)), None);
+                let g = self.ghost(n - 1, tg, Dual::cst(s.value(t)), None);
                 face_flux(&cn, &g, 0, 3, dn, 0.0, avg)
             }
             BottomWater::FreeDrainage => {
@@ -111,7 +127,7 @@ impl System {
                 let mut f = face_flux(&cn, &g, 0, 3, dn, 0.0, avg);
                 zero_water(&mut f);
                 // Unit gradient: ql = K(h, T) of the bottom cell.
-                f.liquid_iso = D6::lift3(cn.k, 0);
+                f.liquid_iso = Dual::lift(cn.k, 0);
                 f
             }
             BottomWater::NoFlow => {
@@ -122,14 +138,14 @@ impl System {
             }
         };
         if let Some(q) = heat_flux {
-            f.conduction = D6::cst(q);
+            f.conduction = Dual::cst(q);
         }
         f
     }
 }
 
-fn zero_water(f: &mut FaceFlux) {
-    let z = D6::cst(0.0);
+fn zero_water<const M: usize>(f: &mut FaceFlux<M>) {
+    let z = Dual::cst(0.0);
     f.liquid_iso = z;
     f.liquid_th = z;
     f.vapor_iso = z;

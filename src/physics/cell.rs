@@ -1,7 +1,8 @@
 //! Per-cell material state: every property the residual needs, as `Dual<3>` values with
-//! derivatives with respect to the cell's own (T, h, rv).
+//! derivatives with respect to the cell's own (T, h, rv), or as `Dual<0>` (values only)
+//! on the residual-only path. Both paths run the same code, so their values agree bitwise.
 
-use super::dual::D3;
+use super::dual::Dual;
 use crate::model::{Physics, Soil};
 use crate::props::constants::{
     GAS_CONSTANT, GRAVITY, LATENT_HEAT_T0, MOLAR_MASS_WATER, T_REF, VAPOR_HEAT_CAPACITY,
@@ -11,39 +12,39 @@ use crate::props::{conductivity, vapor, water};
 
 /// Properties of one cell (or of a boundary "ghost" point), all per unit bulk volume.
 #[derive(Debug, Clone, Copy)]
-pub struct CellProps {
-    pub t: D3,
-    pub h: D3,
-    pub rv: D3,
+pub struct CellProps<const N: usize = 3> {
+    pub t: Dual<N>,
+    pub h: Dual<N>,
+    pub rv: Dual<N>,
     /// Liquid content θl [m³ m⁻³] and air-filled porosity θa.
-    pub theta: D3,
-    pub theta_a: D3,
+    pub theta: Dual<N>,
+    pub theta_a: Dual<N>,
     /// Kelvin relative humidity hr(h, T) [-].
-    pub hr: D3,
+    pub hr: Dual<N>,
     /// Saturated vapour density and its temperature derivative [kg m⁻³], [kg m⁻³ K⁻¹].
-    pub rvs: D3,
-    pub drvs: D3,
+    pub rvs: Dual<N>,
+    pub drvs: Dual<N>,
     /// Equilibrium vapour density hr·rvs [kg m⁻³].
-    pub rveq: D3,
+    pub rveq: Dual<N>,
     /// Hydraulic conductivity K(h, T) [m s⁻¹].
-    pub k: D3,
+    pub k: Dual<N>,
     /// Thermal liquid coefficient G·h·(dσ/dT)/σ [m K⁻¹] (0 when disabled).
-    pub kt: D3,
+    pub kt: Dual<N>,
     /// Effective vapour diffusivity Dv = τ θa Da [m² s⁻¹].
-    pub dv: D3,
+    pub dv: Dual<N>,
     /// Enhancement factor η [-].
-    pub eta: D3,
+    pub eta: Dual<N>,
     /// Thermal conductivity λ [W m⁻¹ K⁻¹].
-    pub lambda: D3,
+    pub lambda: Dual<N>,
     /// Storages per bulk volume: energy e [J m⁻³], total water [kg m⁻³], vapour [kg m⁻³].
-    pub energy: D3,
-    pub water: D3,
-    pub vapor: D3,
+    pub energy: Dual<N>,
+    pub water: Dual<N>,
+    pub vapor: Dual<N>,
 }
 
 /// Surface tension log-slope s = (dσ/dT)/σ [K⁻¹] with ds/dT, from the IAPWS (2014)
 /// correlation σ = B τ^μ (1 + b τ), τ = 1 − T/Tc.
-fn surface_tension_log_slope(t: D3) -> D3 {
+fn surface_tension_log_slope<const N: usize>(t: Dual<N>) -> Dual<N> {
     const TC: f64 = 647.096;
     const MU: f64 = 1.256;
     const B_SMALL: f64 = -0.625;
@@ -55,18 +56,22 @@ fn surface_tension_log_slope(t: D3) -> D3 {
 
 /// Specific enthalpy of vapour relative to liquid water at T0: L0 + cv (T − T0) [J kg⁻¹].
 #[inline]
-pub fn vapor_enthalpy<const N: usize>(t: super::dual::Dual<N>) -> super::dual::Dual<N> {
+pub fn vapor_enthalpy<const N: usize>(t: Dual<N>) -> Dual<N> {
     (t - T_REF) * VAPOR_HEAT_CAPACITY + LATENT_HEAT_T0
 }
 
 /// Equilibrium relative humidity and vapour density at (T, h) as duals.
-pub fn equilibrium_vapor(t: D3, h: D3) -> (D3, D3, D3, D3) {
+#[allow(clippy::type_complexity)]
+pub fn equilibrium_vapor<const N: usize>(
+    t: Dual<N>,
+    h: Dual<N>,
+) -> (Dual<N>, Dual<N>, Dual<N>, Dual<N>) {
     let (hr, dhr_dh, dhr_dt) = water::relative_humidity(h.v, t.v);
-    let mut hr_d = [0.0; 3];
+    let mut hr_d = [0.0; N];
     for (k, x) in hr_d.iter_mut().enumerate() {
         *x = dhr_dh * h.d[k] + dhr_dt * t.d[k];
     }
-    let hr = D3 { v: hr, d: hr_d };
+    let hr = Dual { v: hr, d: hr_d };
     let (s0, s1, s2) = water::saturated_vapor_density(t.v);
     let rvs = t.chain(s0, s1);
     let drvs = t.chain(s1, s2);
@@ -75,19 +80,24 @@ pub fn equilibrium_vapor(t: D3, h: D3) -> (D3, D3, D3, D3) {
 
 /// Head in equilibrium with relative humidity `rh` at temperature `t` (inverse Kelvin):
 /// h = R T ln(rh)/(g Mw) [m].
-pub fn head_from_rh(rh: f64, t: D3) -> D3 {
+pub fn head_from_rh<const N: usize>(rh: f64, t: Dual<N>) -> Dual<N> {
     t * (GAS_CONSTANT * rh.ln() / (GRAVITY * MOLAR_MASS_WATER))
 }
 
 /// Evaluates every property of a cell of `soil` at state (t, h, rv).
-pub fn cell_props(soil: &Soil, physics: &Physics, t: D3, h: D3, rv: D3) -> CellProps {
+pub fn cell_props<const N: usize>(
+    soil: &Soil,
+    physics: &Physics,
+    t: Dual<N>,
+    h: Dual<N>,
+    rv: Dual<N>,
+) -> CellProps<N> {
     let phi = soil.retention.theta_s();
-    let (th, dth) = soil.retention.theta(h.v);
+    let ((th, dth), (kr, dkr)) = soil.retention.theta_and_relative_conductivity(h.v);
     let theta = h.chain(th, dth);
-    let theta_a = (-theta + phi).max(D3::cst(0.0));
+    let theta_a = (-theta + phi).max(Dual::cst(0.0));
     let (hr, rvs, drvs, rveq) = equilibrium_vapor(t, h);
 
-    let (kr, dkr) = soil.retention.relative_conductivity(h.v);
     let mut k = h.chain(kr, dkr) * soil.saturated_conductivity;
     if physics.viscosity_correction {
         let (f, df) = conductivity::viscosity_factor(t.v, physics.reference_temperature);
@@ -95,7 +105,7 @@ pub fn cell_props(soil: &Soil, physics: &Physics, t: D3, h: D3, rv: D3) -> CellP
     }
     let kt = match physics.thermal_liquid_gain {
         Some(g) => h * surface_tension_log_slope(t) * g,
-        None => D3::cst(0.0),
+        None => Dual::cst(0.0),
     };
 
     let (da, dda) = physics.diffusivity.value(t.v, physics.air_pressure);
@@ -131,5 +141,30 @@ pub fn cell_props(soil: &Soil, physics: &Physics, t: D3, h: D3, rv: D3) -> CellP
         energy,
         water,
         vapor: vapor_store,
+    }
+}
+
+impl CellProps<3> {
+    /// The values alone (what the residual-only path computes).
+    pub fn values(&self) -> CellProps<0> {
+        CellProps {
+            t: self.t.value_only(),
+            h: self.h.value_only(),
+            rv: self.rv.value_only(),
+            theta: self.theta.value_only(),
+            theta_a: self.theta_a.value_only(),
+            hr: self.hr.value_only(),
+            rvs: self.rvs.value_only(),
+            drvs: self.drvs.value_only(),
+            rveq: self.rveq.value_only(),
+            k: self.k.value_only(),
+            kt: self.kt.value_only(),
+            dv: self.dv.value_only(),
+            eta: self.eta.value_only(),
+            lambda: self.lambda.value_only(),
+            energy: self.energy.value_only(),
+            water: self.water.value_only(),
+            vapor: self.vapor.value_only(),
+        }
     }
 }

@@ -25,7 +25,10 @@ impl<const N: usize> Dual<N> {
     #[inline]
     pub fn var(v: f64, k: usize) -> Self {
         let mut d = [0.0; N];
-        d[k] = 1.0;
+        // Without derivative slots (N = 0, the value-only path) this is a constant.
+        if let Some(x) = d.get_mut(k) {
+            *x = 1.0;
+        }
         Dual { v, d }
     }
     /// f(self) given f and f' at self.v (chain rule).
@@ -37,12 +40,21 @@ impl<const N: usize> Dual<N> {
         }
         Dual { v: f, d }
     }
-    /// Lifts a `Dual<3>` into slots `offset..offset + 3` of a wider dual.
+    /// Lifts a `Dual<M>` into slots `offset..offset + M` of a wider dual (a `Dual<3>` of
+    /// one cell into a face's `Dual<6>`; on the value-only path M = N = 0 and this copies
+    /// the value).
     #[inline]
-    pub fn lift3(x: Dual<3>, offset: usize) -> Self {
+    pub fn lift<const M: usize>(x: Dual<M>, offset: usize) -> Self {
         let mut d = [0.0; N];
-        d[offset..offset + 3].copy_from_slice(&x.d);
+        for (k, v) in x.d.iter().enumerate() {
+            d[offset + k] = *v;
+        }
         Dual { v: x.v, d }
+    }
+    /// The value alone, as a dual without derivative slots.
+    #[inline]
+    pub fn value_only(self) -> Dual<0> {
+        Dual { v: self.v, d: [] }
     }
     #[inline]
     pub fn exp(self) -> Self {
@@ -214,6 +226,8 @@ impl<const N: usize> Div<Dual<N>> for f64 {
     }
 }
 
+/// Value only (the residual path without derivatives).
+pub type D0 = Dual<0>;
 pub type D3 = Dual<3>;
 pub type D6 = Dual<6>;
 

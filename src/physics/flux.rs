@@ -3,34 +3,39 @@
 //! slots 3–5 to the lower one.
 
 use super::cell::{vapor_enthalpy, CellProps};
-use super::dual::{Dual, D3, D6};
+use super::dual::Dual;
 use crate::props::conductivity::FaceAveraging;
 use crate::props::constants::{T_REF, WATER_DENSITY, WATER_HEAT_CAPACITY};
 
 /// The parts of the fluxes through one face.
 #[derive(Debug, Clone, Copy)]
-pub struct FaceFlux {
+pub struct FaceFlux<const M: usize = 6> {
     /// Liquid flux, isothermal part −K(∂h/∂z − 1) [m s⁻¹].
-    pub liquid_iso: D6,
+    pub liquid_iso: Dual<M>,
     /// Liquid flux, thermal part −K G h (σ'/σ) ∂T/∂z [m s⁻¹].
-    pub liquid_th: D6,
+    pub liquid_th: Dual<M>,
     /// Vapour flux, isothermal part (what is left of jv after the thermal part) [kg m⁻² s⁻¹].
-    pub vapor_iso: D6,
+    pub vapor_iso: Dual<M>,
     /// Vapour flux, thermal part −η Dv hr (drvs/dT) ∂T/∂z [kg m⁻² s⁻¹].
-    pub vapor_th: D6,
+    pub vapor_th: Dual<M>,
     /// Heat conduction −λ ∂T/∂z [W m⁻²].
-    pub conduction: D6,
+    pub conduction: Dual<M>,
     /// Face temperature [K] (for the advected enthalpies).
-    pub t_face: D6,
+    pub t_face: Dual<M>,
     /// Magnitude of the largest terms that make up the water and energy fluxes
     /// [kg m⁻² s⁻¹], [W m⁻²]: the scale against which round-off is judged.
     pub scale_water: f64,
     pub scale_energy: f64,
+    /// Size of the operands whose differences make the water and energy fluxes
+    /// [kg m⁻² s⁻¹], [W m⁻²] (e.g. λ(|Ta| + |Tb|)/Δz): times the machine epsilon, the
+    /// round-off that no Newton iteration can remove.
+    pub operands_water: f64,
+    pub operands_energy: f64,
 }
 
-impl FaceFlux {
+impl<const M: usize> FaceFlux<M> {
     pub fn zero() -> Self {
-        let z = D6::cst(0.0);
+        let z = Dual::cst(0.0);
         FaceFlux {
             liquid_iso: z,
             liquid_th: z,
@@ -40,26 +45,28 @@ impl FaceFlux {
             t_face: z,
             scale_water: 0.0,
             scale_energy: 0.0,
+            operands_water: 0.0,
+            operands_energy: 0.0,
         }
     }
     /// Total vapour flux jv [kg m⁻² s⁻¹].
     #[inline]
-    pub fn vapor(&self) -> D6 {
+    pub fn vapor(&self) -> Dual<M> {
         self.vapor_iso + self.vapor_th
     }
     /// Total liquid flux ql [m s⁻¹].
     #[inline]
-    pub fn liquid(&self) -> D6 {
+    pub fn liquid(&self) -> Dual<M> {
         self.liquid_iso + self.liquid_th
     }
     /// Total water mass flux ρw ql + jv [kg m⁻² s⁻¹].
     #[inline]
-    pub fn water(&self) -> D6 {
+    pub fn water(&self) -> Dual<M> {
         self.liquid() * WATER_DENSITY + self.vapor()
     }
     /// Total energy flux −λ∂T/∂z + ρw cw ql (T − T0) + jv (L0 + cv (T − T0)) [W m⁻²].
     #[inline]
-    pub fn energy(&self) -> D6 {
+    pub fn energy(&self) -> Dual<M> {
         let dt0 = self.t_face - T_REF;
         self.conduction
             + self.liquid() * dt0 * (WATER_DENSITY * WATER_HEAT_CAPACITY)
@@ -69,14 +76,14 @@ impl FaceFlux {
 
 /// Distance-weighted linear interpolation to the face: (db·a + da·b)/(da + db).
 #[inline]
-fn interp(a: D6, b: D6, da: f64, db: f64) -> D6 {
+fn interp<const M: usize>(a: Dual<M>, b: Dual<M>, da: f64, db: f64) -> Dual<M> {
     let dz = da + db;
     (a * db + b * da) / dz
 }
 
 /// Distance-weighted harmonic mean (series conductance) dz/(da/a + db/b); 0 when either is 0.
 #[inline]
-fn harmonic(a: D6, b: D6, da: f64, db: f64) -> D6 {
+fn harmonic<const M: usize>(a: Dual<M>, b: Dual<M>, da: f64, db: f64) -> Dual<M> {
     // A ghost point on the face itself (zero distance) adds no resistance.
     if da == 0.0 {
         return b;
@@ -91,7 +98,7 @@ fn harmonic(a: D6, b: D6, da: f64, db: f64) -> D6 {
         if den.v > 0.0 {
             return a * b * (da + db) / den;
         }
-        return D6::cst(0.0);
+        return Dual::cst(0.0);
     }
     a * b * (da + db) / den
 }
@@ -105,16 +112,16 @@ const K_FLOOR: f64 = 1e-300;
 
 /// Fluxes between `up` (distance `da` above the face) and `lo` (distance `db` below);
 /// `off_up` and `off_lo` are the dual slot offsets of the two points (0 or 3).
-pub fn face_flux(
-    up: &CellProps,
-    lo: &CellProps,
+pub fn face_flux<const N: usize, const M: usize>(
+    up: &CellProps<N>,
+    lo: &CellProps<N>,
     off_up: usize,
     off_lo: usize,
     da: f64,
     db: f64,
     averaging: FaceAveraging,
-) -> FaceFlux {
-    let l = |x: D3, off: usize| -> D6 { Dual::lift3(x, off) };
+) -> FaceFlux<M> {
+    let l = |x: Dual<N>, off: usize| -> Dual<M> { Dual::lift(x, off) };
     let dz = da + db;
     let (ta, tb) = (l(up.t, off_up), l(lo.t, off_lo));
     let grad_t = (tb - ta) / dz;
@@ -127,8 +134,8 @@ pub fn face_flux(
         FaceAveraging::Arithmetic => interp(ka, kb, da, db),
         FaceAveraging::Harmonic => harmonic(ka, kb, da, db),
         FaceAveraging::Geometric => {
-            let la = ka.max(D6::cst(K_FLOOR)).ln();
-            let lb = kb.max(D6::cst(K_FLOOR)).ln();
+            let la = ka.max(Dual::cst(K_FLOOR)).ln();
+            let lb = kb.max(Dual::cst(K_FLOOR)).ln();
             interp(la, lb, da, db).exp()
         }
         FaceAveraging::Upstream => {
@@ -151,7 +158,7 @@ pub fn face_flux(
     let liquid_iso = -(k_face * drive);
     let kt_face = interp(l(up.kt, off_up), l(lo.kt, off_lo), da, db);
     let liquid_th = if kt_face.v == 0.0 && kt_face.d.iter().all(|x| *x == 0.0) {
-        D6::cst(0.0)
+        Dual::cst(0.0)
     } else {
         -(k_face * kt_face * grad_t)
     };
@@ -174,6 +181,10 @@ pub fn face_flux(
         + (eta.v * thermal_gradient_flux.v).abs();
     let scale_energy = conduction.v.abs()
         + scale_water * (WATER_HEAT_CAPACITY * (t_face.v - T_REF).abs() + vapor_enthalpy(t_face).v);
+    let operands_water = WATER_DENSITY * k_face.v * (up.h.v.abs() + lo.h.v.abs() + dz) / dz
+        + dv.v * (up.rv.v.abs() + lo.rv.v.abs()) / dz;
+    let operands_energy = lambda.v * (ta.v.abs() + tb.v.abs()) / dz
+        + operands_water * (WATER_HEAT_CAPACITY * t_face.v.abs() + vapor_enthalpy(t_face).v);
     FaceFlux {
         liquid_iso,
         liquid_th,
@@ -183,5 +194,25 @@ pub fn face_flux(
         t_face,
         scale_water,
         scale_energy,
+        operands_water,
+        operands_energy,
+    }
+}
+
+impl FaceFlux<6> {
+    /// The values alone (what the residual-only path computes).
+    pub fn values(&self) -> FaceFlux<0> {
+        FaceFlux {
+            liquid_iso: self.liquid_iso.value_only(),
+            liquid_th: self.liquid_th.value_only(),
+            vapor_iso: self.vapor_iso.value_only(),
+            vapor_th: self.vapor_th.value_only(),
+            conduction: self.conduction.value_only(),
+            t_face: self.t_face.value_only(),
+            scale_water: self.scale_water,
+            scale_energy: self.scale_energy,
+            operands_water: self.operands_water,
+            operands_energy: self.operands_energy,
+        }
     }
 }

@@ -18,7 +18,7 @@ pub mod flux;
 use crate::model::{BottomBc, Model, Periods, Physics, Soil, SurfaceBc, VaporMode};
 use crate::solve::blocktri::BlockTri;
 use cell::{cell_props, CellProps};
-use dual::{D3, D6};
+use dual::{Dual, D0, D3, D6};
 use flux::{face_flux, FaceFlux};
 
 /// Index of the energy, water and vapour rows/storages within a cell.
@@ -52,11 +52,62 @@ pub struct System {
     pub physics: Physics,
     pub surface: Periods<SurfaceBc>,
     pub bottom: Periods<BottomBc>,
-    /// Workspace: cell properties and face fluxes of the last evaluation.
-    pub cells: Vec<CellProps>,
-    pub faces: Vec<FaceFlux>,
-    /// Per face: total energy, water and vapour flux (computed once per evaluation).
-    pub face_totals: Vec<[D6; 3]>,
+    /// Values of the last evaluation (with or without derivatives): cell properties,
+    /// face fluxes and, per face, the total energy, water and vapour flux.
+    pub cells: Vec<CellProps<0>>,
+    pub faces: Vec<FaceFlux<0>>,
+    pub face_totals: Vec<[D0; 3]>,
+    /// The same with derivatives, from the last evaluation that asked for them (the
+    /// Jacobian's source).
+    cells_d: Vec<CellProps<3>>,
+    faces_d: Vec<FaceFlux<6>>,
+    face_totals_d: Vec<[D6; 3]>,
+}
+
+/// The storages of a cell as an array in row order: energy, water, vapour.
+#[inline]
+fn storage_rows(cp: &CellProps<3>) -> [D3; 3] {
+    [cp.energy, cp.water, cp.vapor]
+}
+
+/// Fills cell properties, face fluxes and face totals of `sys` at state `u`, time `t`,
+/// with `N` derivative slots per cell and `M` per face (3 and 6, or 0 and 0 for values).
+fn evaluate_into<const N: usize, const M: usize>(
+    sys: &System,
+    t: f64,
+    u: &[f64],
+    cells: &mut [CellProps<N>],
+    faces: &mut [FaceFlux<M>],
+    totals: &mut [[Dual<M>; 3]],
+) {
+    let n = sys.n;
+    for (i, c) in cells.iter_mut().enumerate() {
+        let soil = &sys.soils[sys.cell_soil[i]];
+        *c = cell_props(
+            soil,
+            &sys.physics,
+            Dual::var(u[3 * i + T], 0),
+            Dual::var(u[3 * i + H], 1),
+            Dual::var(u[3 * i + RV], 2),
+        );
+    }
+    let avg = sys.physics.face_conductivity;
+    for j in 1..n {
+        faces[j] = face_flux(
+            &cells[j - 1],
+            &cells[j],
+            0,
+            3,
+            sys.d_below[j - 1],
+            sys.d_above[j],
+            avg,
+        );
+    }
+    faces[0] = sys.top_face(t, &cells[0]);
+    faces[n] = sys.bottom_face(t, &cells[n - 1]);
+    for (tot, f) in totals.iter_mut().zip(faces.iter()) {
+        *tot = [f.energy(), f.water(), f.vapor()];
+    }
 }
 
 impl System {
@@ -65,7 +116,7 @@ impl System {
         let n = m.n_cells();
         let d_above = (0..n).map(|i| m.centers[i] - m.faces[i]).collect();
         let d_below = (0..n).map(|i| m.faces[i + 1] - m.centers[i]).collect();
-        let zero = cell_props(
+        let zero: CellProps<3> = cell_props(
             &model.soils[model.cell_soil[0]],
             &model.physics,
             D3::cst(293.15),
@@ -84,9 +135,12 @@ impl System {
             physics: model.physics.clone(),
             surface: model.surface.clone(),
             bottom: model.bottom.clone(),
-            cells: vec![zero; n],
+            cells: vec![zero.values(); n],
             faces: vec![FaceFlux::zero(); n + 1],
-            face_totals: vec![[D6::cst(0.0); 3]; n + 1],
+            face_totals: vec![[D0::cst(0.0); 3]; n + 1],
+            cells_d: vec![zero; n],
+            faces_d: vec![FaceFlux::zero(); n + 1],
+            face_totals_d: vec![[D6::cst(0.0); 3]; n + 1],
         }
     }
 
@@ -102,36 +156,37 @@ impl System {
         &self.soils[self.cell_soil[cell]]
     }
 
-    /// Evaluates cell properties and all face fluxes at state `u` and time `t` [s].
+    /// Evaluates cell properties and all face fluxes (values only) at state `u` and
+    /// time `t` [s].
     pub fn evaluate(&mut self, t: f64, u: &[f64]) {
-        let n = self.n;
-        for i in 0..n {
-            let soil = &self.soils[self.cell_soil[i]];
-            self.cells[i] = cell_props(
-                soil,
-                &self.physics,
-                D3::var(u[3 * i + T], 0),
-                D3::var(u[3 * i + H], 1),
-                D3::var(u[3 * i + RV], 2),
-            );
+        let mut cells = std::mem::take(&mut self.cells);
+        let mut faces = std::mem::take(&mut self.faces);
+        let mut totals = std::mem::take(&mut self.face_totals);
+        evaluate_into(self, t, u, &mut cells, &mut faces, &mut totals);
+        self.cells = cells;
+        self.faces = faces;
+        self.face_totals = totals;
+    }
+
+    /// As [`System::evaluate`], with the derivatives the Jacobian needs; the values are
+    /// copied to the value workspace, so both agree bitwise.
+    pub fn evaluate_with_derivatives(&mut self, t: f64, u: &[f64]) {
+        let mut cells = std::mem::take(&mut self.cells_d);
+        let mut faces = std::mem::take(&mut self.faces_d);
+        let mut totals = std::mem::take(&mut self.face_totals_d);
+        evaluate_into(self, t, u, &mut cells, &mut faces, &mut totals);
+        for (v, d) in self.cells.iter_mut().zip(cells.iter()) {
+            *v = d.values();
         }
-        let avg = self.physics.face_conductivity;
-        for j in 1..n {
-            self.faces[j] = face_flux(
-                &self.cells[j - 1],
-                &self.cells[j],
-                0,
-                3,
-                self.d_below[j - 1],
-                self.d_above[j],
-                avg,
-            );
+        for (v, d) in self.faces.iter_mut().zip(faces.iter()) {
+            *v = d.values();
         }
-        self.faces[0] = self.top_face(t);
-        self.faces[n] = self.bottom_face(t);
-        for (tot, f) in self.face_totals.iter_mut().zip(self.faces.iter()) {
-            *tot = [f.energy(), f.water(), f.vapor()];
+        for (v, d) in self.face_totals.iter_mut().zip(totals.iter()) {
+            *v = [d[0].value_only(), d[1].value_only(), d[2].value_only()];
         }
+        self.cells_d = cells;
+        self.faces_d = faces;
+        self.face_totals_d = totals;
     }
 
     /// Storage per bulk volume of cell i: [energy J m⁻³, water kg m⁻³, vapour kg m⁻³],
@@ -181,9 +236,9 @@ impl System {
             let cp = &self.cells[i];
             let (fa, fb) = (&self.faces[i], &self.faces[i + 1]);
             let (ta, tb) = (&self.face_totals[i], &self.face_totals[i + 1]);
-            let sw = |f: &FaceFlux, t: &[D6; 3]| f.scale_water.max(t[WATER].v.abs());
-            let se = |f: &FaceFlux, t: &[D6; 3]| f.scale_energy.max(t[ENERGY].v.abs());
-            let sv = |f: &FaceFlux| f.vapor_iso.v.abs() + f.vapor_th.v.abs();
+            let sw = |f: &FaceFlux<0>, t: &[D0; 3]| f.scale_water.max(t[WATER].v.abs());
+            let se = |f: &FaceFlux<0>, t: &[D0; 3]| f.scale_energy.max(t[ENERGY].v.abs());
+            let sv = |f: &FaceFlux<0>| f.vapor_iso.v.abs() + f.vapor_th.v.abs();
             out[3 * i + ENERGY] = w * ((c * cp.energy.v).abs() + hist[3 * i + ENERGY].abs())
                 + se(fa, ta)
                 + se(fb, tb);
@@ -201,6 +256,50 @@ impl System {
         }
     }
 
+    /// Round-off floor of every residual row (3 per cell) from the last evaluation:
+    /// 16 ε times the operands of the storage terms and of both faces' fluxes. A residual
+    /// below it is as small as floating point can make it.
+    pub fn roundoff_into(&self, c: f64, hist: &[f64], out: &mut [f64]) {
+        const K: f64 = 16.0 * f64::EPSILON;
+        for i in 0..self.n {
+            let w = self.widths[i];
+            let cp = &self.cells[i];
+            let (fa, fb) = (&self.faces[i], &self.faces[i + 1]);
+            out[3 * i + ENERGY] = K
+                * (w * ((c * cp.energy.v).abs() + hist[3 * i + ENERGY].abs())
+                    + fa.operands_energy
+                    + fb.operands_energy);
+            out[3 * i + WATER] = K
+                * (w * ((c * cp.water.v).abs() + hist[3 * i + WATER].abs())
+                    + fa.operands_water
+                    + fb.operands_water);
+            out[3 * i + VAPOR] = K * (cp.rv.v.abs() + cp.rveq.v.abs());
+        }
+    }
+
+    /// Derivative of the storage terms `w·M(u)` of each cell with respect to its own
+    /// unknowns (3×3 row-major block per cell), from the last evaluation with
+    /// derivatives: the part of the Jacobian that scales with the integrator coefficient
+    /// `c`, so a Jacobian built at `c` becomes the one at `c'` by adding `(c' − c)` times
+    /// these blocks. The algebraic vapour row of equilibrium mode has no storage part.
+    pub fn storage_jacobian_into(&self, out: &mut [crate::solve::blocktri::Block]) {
+        let kinetic = matches!(self.physics.vapor_mode, VaporMode::Kinetic { .. });
+        for (i, b) in out.iter_mut().enumerate().take(self.n) {
+            let w = self.widths[i];
+            let cp = &self.cells_d[i];
+            *b = [0.0; 9];
+            let mut rows = storage_rows(cp);
+            if !kinetic {
+                rows[VAPOR] = D3::cst(0.0);
+            }
+            for r in 0..3 {
+                for col in 0..3 {
+                    b[r * 3 + col] = w * rows[r].d[col];
+                }
+            }
+        }
+    }
+
     /// Fills the residual (and, when given, the Jacobian) at state `u`, time `t`, with
     /// integrator coefficient `c` and history `hist` (3 per cell).
     pub fn assemble(
@@ -212,7 +311,11 @@ impl System {
         res: &mut [f64],
         jac: Option<&mut BlockTri>,
     ) -> Result<(), NonFinite> {
-        self.evaluate(t, u);
+        if jac.is_some() {
+            self.evaluate_with_derivatives(t, u);
+        } else {
+            self.evaluate(t, u);
+        }
         let n = self.n;
         let kinetic = match self.physics.vapor_mode {
             VaporMode::Kinetic { rate } => Some(rate),
@@ -222,7 +325,7 @@ impl System {
         for i in 0..n {
             let w = self.widths[i];
             let cp = &self.cells[i];
-            let local: [D3; 3] = [
+            let local: [D0; 3] = [
                 (cp.energy * c - hist[3 * i + ENERGY]) * w,
                 (cp.water * c - hist[3 * i + WATER]) * w,
                 match kinetic {
@@ -266,7 +369,7 @@ impl System {
             jac.zero();
             for i in 0..n {
                 let w = self.widths[i];
-                let cp = &self.cells[i];
+                let cp = &self.cells_d[i];
                 let rows = [
                     cp.energy * (c * w),
                     cp.water * (c * w),
@@ -283,7 +386,7 @@ impl System {
                 }
             }
             for j in 0..=n {
-                let mut vals: [D6; 3] = self.face_totals[j];
+                let mut vals: [D6; 3] = self.face_totals_d[j];
                 if kinetic.is_none() {
                     vals[VAPOR] = D6::cst(0.0);
                 }

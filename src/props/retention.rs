@@ -85,24 +85,17 @@ pub struct Retention {
     pub dry_end: Option<DryEnd>,
 }
 
-/// The softplus pair (ln(1 + eᵗ), ln(1 + e⁻ᵗ)) without overflow, from one exponential
-/// and one logarithm.
-fn softplus_pair(t: f64) -> (f64, f64) {
+/// The softplus pair (ln(1 + eᵗ), ln(1 + e⁻ᵗ)) without overflow, with the logistic pair
+/// (1/(1 + e⁻ᵗ), 1/(1 + eᵗ)), from one exponential and one logarithm.
+fn softplus_pair(t: f64) -> (f64, f64, f64, f64) {
     if t > 0.0 {
-        let a = (-t).exp().ln_1p();
-        (t + a, a)
+        let e = (-t).exp();
+        let a = e.ln_1p();
+        (t + a, a, 1.0 / (1.0 + e), e / (1.0 + e))
     } else {
-        let b = t.exp().ln_1p();
-        (b, -t + b)
-    }
-}
-
-/// ln(1 − eᵃ) for a ≤ 0 (accurate near 0 and for very negative a).
-fn ln_one_minus_exp(a: f64) -> f64 {
-    if a > -std::f64::consts::LN_2 {
-        (-a.exp_m1()).ln()
-    } else {
-        (-a.exp()).ln_1p()
+        let e = t.exp();
+        let b = e.ln_1p();
+        (b, -t + b, e / (1.0 + e), 1.0 / (1.0 + e))
     }
 }
 
@@ -140,22 +133,29 @@ impl RetentionLaw {
                 let m = 1.0 - 1.0 / n;
                 let lx = (-alpha * h).ln(); // ln x, x = α|h|
                 let t = n * lx; // ln xⁿ
-                let (sp, sp_neg) = softplus_pair(t); // ln(1 + xⁿ), ln(1 + x⁻ⁿ)
+                                // ln(1 + xⁿ), ln(1 + x⁻ⁿ), w = xⁿ/(1 + xⁿ) and 1 − w.
+                let (sp, sp_neg, w, one_m_w) = softplus_pair(t);
                 let ln_se = -m * sp;
-                // d ln Se/dh = α m n w/x, w = xⁿ/(1 + xⁿ): w/x = exp((n − 1) ln x − sp)
-                let dln_se = alpha * m * n * ((n - 1.0) * lx - sp).exp();
+                // d ln Se/dh = α m n w/x = m n w/|h|  (α/x = 1/|h|)
+                let dln_se = m * n * w / (-h);
                 // Mualem: 1 − Se^(1/m) = w, Kr = Se^l (1 − w^m)².
-                // ln w = −softplus(−t), ln(1 − w) = −softplus(t).
                 let (ln_1mwm, dterm) = if t > 30.0 {
                     // w^m = exp(−m ln(1 + x⁻ⁿ)) ⇒ 1 − w^m = m x⁻ⁿ (1 + O(x⁻ⁿ)).
-                    // d/dh ln(1 − w^m) → α n / x (relative error O(x⁻ⁿ) < 1e-13).
-                    (m.ln() - t, alpha * n * (-lx).exp())
+                    // d/dh ln(1 − w^m) → α n / x = n/|h| (relative error O(x⁻ⁿ) < 1e-13).
+                    (m.ln() - t, n / (-h))
                 } else {
-                    let ln_w = -sp_neg;
-                    let l1 = ln_one_minus_exp(m * ln_w);
+                    let a = -m * sp_neg; // ln w^m
+                                         // w^m, 1 − w^m and ln(1 − w^m), accurate near w^m → 1 and w^m → 0.
+                    let (wm, one_m_wm, l1) = if a > -std::f64::consts::LN_2 {
+                        let one_m_wm = -a.exp_m1();
+                        (1.0 - one_m_wm, one_m_wm, one_m_wm.ln())
+                    } else {
+                        let wm = a.exp();
+                        (wm, 1.0 - wm, (-wm).ln_1p())
+                    };
                     // d/dh ln(1 − w^m) = α m n w^m (1 − w) / (x (1 − w^m))
-                    let d = alpha * m * n * (m * ln_w - sp - lx - l1).exp();
-                    (l1, d)
+                    //                  = m n w^m (1 − w) / (|h| (1 − w^m))
+                    (l1, m * n * wm * one_m_w / (-h * one_m_wm))
                 };
                 Base {
                     ln_se,

@@ -127,7 +127,9 @@ fn mat_vec(a: &Block, x: &[f64]) -> [f64; 3] {
 #[derive(Debug, Clone)]
 pub struct BlockThomas {
     n: usize,
-    lu: Vec<Lu3>,
+    /// Explicit inverses of the pivot blocks B'_i (from their pivoted LU): the solve is
+    /// then mat-vec products only, without the division chain of triangular solves.
+    inv: Vec<Block>,
     e: Vec<Block>,
     lower: Vec<Block>,
 }
@@ -136,7 +138,7 @@ impl BlockThomas {
     pub fn new(n: usize) -> Self {
         BlockThomas {
             n,
-            lu: vec![Lu3::default(); n],
+            inv: vec![[0.0; 9]; n],
             e: vec![[0.0; 9]; n],
             lower: vec![[0.0; 9]; n],
         }
@@ -155,19 +157,20 @@ impl LinearSolver for BlockThomas {
                 }
             }
             let lu = Lu3::factor(&bp, 3 * i)?;
-            if i + 1 < n {
-                // E_i = B'_i⁻¹ C_i, column by column.
-                let c = &a.upper[i];
-                let mut e = [0.0; 9];
-                for col in 0..3 {
-                    let x = lu.solve([c[col], c[3 + col], c[6 + col]]);
-                    e[col] = x[0];
-                    e[3 + col] = x[1];
-                    e[6 + col] = x[2];
-                }
-                self.e[i] = e;
+            let mut inv = [0.0; 9];
+            for col in 0..3 {
+                let mut unit = [0.0; 3];
+                unit[col] = 1.0;
+                let x = lu.solve(unit);
+                inv[col] = x[0];
+                inv[3 + col] = x[1];
+                inv[6 + col] = x[2];
             }
-            self.lu[i] = lu;
+            if i + 1 < n {
+                // E_i = B'_i⁻¹ C_i.
+                self.e[i] = mat_mul(&inv, &a.upper[i]);
+            }
+            self.inv[i] = inv;
             self.lower[i] = a.lower[i];
         }
         Ok(())
@@ -175,24 +178,28 @@ impl LinearSolver for BlockThomas {
 
     fn solve(&mut self, b: &mut [f64]) -> Result<(), LinearError> {
         let n = self.n;
+        let mut prev = [0.0; 3];
         for i in 0..n {
             let mut r = [b[3 * i], b[3 * i + 1], b[3 * i + 2]];
             if i > 0 {
-                let ay = mat_vec(&self.lower[i], &b[3 * (i - 1)..3 * i]);
+                let ay = mat_vec(&self.lower[i], &prev);
                 for k in 0..3 {
                     r[k] -= ay[k];
                 }
             }
-            let y = self.lu[i].solve(r);
-            b[3 * i..3 * i + 3].copy_from_slice(&y);
+            prev = mat_vec(&self.inv[i], &r);
+            b[3 * i..3 * i + 3].copy_from_slice(&prev);
         }
+        let mut next = prev;
         for i in (0..n.saturating_sub(1)).rev() {
-            let ex = mat_vec(&self.e[i], &b[3 * (i + 1)..3 * (i + 2)]);
+            let ex = mat_vec(&self.e[i], &next);
             for k in 0..3 {
                 b[3 * i + k] -= ex[k];
+                next[k] = b[3 * i + k];
             }
         }
-        if b.iter().all(|x| x.is_finite()) {
+        // x·0 is 0 for finite x and NaN for NaN or ±Inf: one branch-free pass.
+        if b.iter().fold(0.0, |a: f64, x| a + x * 0.0) == 0.0 {
             Ok(())
         } else {
             Err(LinearError::NonFinite)

@@ -245,14 +245,6 @@ pub fn solve(
             // J(c) from the kept parts, row scaling by the row magnitudes, column scaling
             // by typical variable sizes; then factorise.
             let jc = w.jac_c.unwrap_or(c);
-            copy_blocks(&w.jac_raw, &mut w.jac);
-            if c != jc {
-                for (d, s) in w.jac.diag.iter_mut().zip(w.storage.iter()) {
-                    for (x, y) in d.iter_mut().zip(s.iter()) {
-                        *x += (c - jc) * y;
-                    }
-                }
-            }
             for i in 0..n {
                 for k in 0..3 {
                     w.row[3 * i + k] = 1.0 / w.scale[3 * i + k];
@@ -261,7 +253,7 @@ pub fn solve(
                 w.col[3 * i + H] = 1.0 + u[3 * i + H].abs();
                 w.col[3 * i + RV] = 1e-3 + u[3 * i + RV].abs();
             }
-            w.jac.scale(&w.row, &w.col);
+            scaled_copy(&w.jac_raw, &w.storage, c - jc, &w.row, &w.col, &mut w.jac);
             if let Err(e) = lin.factor(&w.jac) {
                 w.invalidate();
                 if fresh {
@@ -318,9 +310,28 @@ pub fn solve(
     }
 }
 
-/// Copies the blocks of `a` into `b` (same size; no allocation).
-fn copy_blocks(a: &BlockTri, b: &mut BlockTri) {
-    b.lower.copy_from_slice(&a.lower);
-    b.diag.copy_from_slice(&a.diag);
-    b.upper.copy_from_slice(&a.upper);
+/// `b = diag(row) (a + dc·S) diag(col)` in one pass, with `S` the diagonal storage blocks
+/// (same size; no allocation).
+fn scaled_copy(a: &BlockTri, s: &[Block], dc: f64, row: &[f64], col: &[f64], b: &mut BlockTri) {
+    let n = a.n;
+    for i in 0..n {
+        for r in 0..3 {
+            let rs = row[3 * i + r];
+            for q in 0..3 {
+                let k = r * 3 + q;
+                let d = if dc != 0.0 {
+                    a.diag[i][k] + dc * s[i][k]
+                } else {
+                    a.diag[i][k]
+                };
+                b.diag[i][k] = d * (rs * col[3 * i + q]);
+                if i > 0 {
+                    b.lower[i][k] = a.lower[i][k] * (rs * col[3 * (i - 1) + q]);
+                }
+                if i + 1 < n {
+                    b.upper[i][k] = a.upper[i][k] * (rs * col[3 * (i + 1) + q]);
+                }
+            }
+        }
+    }
 }

@@ -74,11 +74,11 @@ impl<const M: usize> FaceFlux<M> {
     }
 }
 
-/// Distance-weighted linear interpolation to the face: (db·a + da·b)/(da + db).
+/// Distance-weighted linear interpolation to the face, wa·a + wb·b, with the weights
+/// wa = db/(da + db) and wb = da/(da + db) computed once per face.
 #[inline]
-fn interp<const M: usize>(a: Dual<M>, b: Dual<M>, da: f64, db: f64) -> Dual<M> {
-    let dz = da + db;
-    (a * db + b * da) / dz
+fn interp<const M: usize>(a: Dual<M>, b: Dual<M>, wa: f64, wb: f64) -> Dual<M> {
+    a * wa + b * wb
 }
 
 /// Distance-weighted harmonic mean (series conductance) dz/(da/a + db/b); 0 when either is 0.
@@ -123,20 +123,22 @@ pub fn face_flux<const N: usize, const M: usize>(
 ) -> FaceFlux<M> {
     let l = |x: Dual<N>, off: usize| -> Dual<M> { Dual::lift(x, off) };
     let dz = da + db;
+    let inv_dz = 1.0 / dz;
+    let (wa, wb) = (db * inv_dz, da * inv_dz);
     let (ta, tb) = (l(up.t, off_up), l(lo.t, off_lo));
-    let grad_t = (tb - ta) / dz;
-    let grad_h = (l(lo.h, off_lo) - l(up.h, off_up)) / dz;
-    let grad_rv = (l(lo.rv, off_lo) - l(up.rv, off_up)) / dz;
+    let grad_t = (tb - ta) * inv_dz;
+    let grad_h = (l(lo.h, off_lo) - l(up.h, off_up)) * inv_dz;
+    let grad_rv = (l(lo.rv, off_lo) - l(up.rv, off_up)) * inv_dz;
 
     let (ka, kb) = (l(up.k, off_up), l(lo.k, off_lo));
     let drive = grad_h - 1.0;
     let k_face = match averaging {
-        FaceAveraging::Arithmetic => interp(ka, kb, da, db),
+        FaceAveraging::Arithmetic => interp(ka, kb, wa, wb),
         FaceAveraging::Harmonic => harmonic(ka, kb, da, db),
         FaceAveraging::Geometric => {
             let la = ka.max(Dual::cst(K_FLOOR)).ln();
             let lb = kb.max(Dual::cst(K_FLOOR)).ln();
-            interp(la, lb, da, db).exp()
+            interp(la, lb, wa, wb).exp()
         }
         FaceAveraging::Upstream => {
             // The upper cell's K for downward flow (drive < 0), the lower's for upward;
@@ -156,7 +158,7 @@ pub fn face_flux<const N: usize, const M: usize>(
         }
     };
     let liquid_iso = -(k_face * drive);
-    let kt_face = interp(l(up.kt, off_up), l(lo.kt, off_lo), da, db);
+    let kt_face = interp(l(up.kt, off_up), l(lo.kt, off_lo), wa, wb);
     let liquid_th = if kt_face.v == 0.0 && kt_face.d.iter().all(|x| *x == 0.0) {
         Dual::cst(0.0)
     } else {
@@ -164,9 +166,9 @@ pub fn face_flux<const N: usize, const M: usize>(
     };
 
     let dv = harmonic(l(up.dv, off_up), l(lo.dv, off_lo), da, db);
-    let eta = interp(l(up.eta, off_up), l(lo.eta, off_lo), da, db);
-    let hr = interp(l(up.hr, off_up), l(lo.hr, off_lo), da, db);
-    let drvs = interp(l(up.drvs, off_up), l(lo.drvs, off_lo), da, db);
+    let eta = interp(l(up.eta, off_up), l(lo.eta, off_lo), wa, wb);
+    let hr = interp(l(up.hr, off_up), l(lo.hr, off_lo), wa, wb);
+    let drvs = interp(l(up.drvs, off_up), l(lo.drvs, off_lo), wa, wb);
     let thermal_gradient_flux = dv * hr * drvs * grad_t;
     // jv = −Dv ∂rv/∂z − (η − 1) Dv hr (drvs/dT) ∂T/∂z
     let jv = -(dv * grad_rv) - (eta - 1.0) * thermal_gradient_flux;
@@ -175,15 +177,15 @@ pub fn face_flux<const N: usize, const M: usize>(
 
     let lambda = harmonic(l(up.lambda, off_up), l(lo.lambda, off_lo), da, db);
     let conduction = -(lambda * grad_t);
-    let t_face = interp(ta, tb, da, db);
+    let t_face = interp(ta, tb, wa, wb);
     let scale_water = WATER_DENSITY * (k_face.v * (grad_h.v.abs() + 1.0) + liquid_th.v.abs())
         + (dv.v * grad_rv.v).abs()
         + (eta.v * thermal_gradient_flux.v).abs();
     let scale_energy = conduction.v.abs()
         + scale_water * (WATER_HEAT_CAPACITY * (t_face.v - T_REF).abs() + vapor_enthalpy(t_face).v);
-    let operands_water = WATER_DENSITY * k_face.v * (up.h.v.abs() + lo.h.v.abs() + dz) / dz
-        + dv.v * (up.rv.v.abs() + lo.rv.v.abs()) / dz;
-    let operands_energy = lambda.v * (ta.v.abs() + tb.v.abs()) / dz
+    let operands_water = WATER_DENSITY * k_face.v * (up.h.v.abs() + lo.h.v.abs() + dz) * inv_dz
+        + dv.v * (up.rv.v.abs() + lo.rv.v.abs()) * inv_dz;
+    let operands_energy = lambda.v * (ta.v.abs() + tb.v.abs()) * inv_dz
         + operands_water * (WATER_HEAT_CAPACITY * t_face.v.abs() + vapor_enthalpy(t_face).v);
     FaceFlux {
         liquid_iso,

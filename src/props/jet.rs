@@ -34,9 +34,10 @@ impl Jet {
     }
     pub fn sqrt(self) -> Jet {
         let s = self.v.sqrt();
-        let d = self.d / (2.0 * s);
+        let half_inv = 0.5 / s;
+        let d = self.d * half_inv;
         // a = s² ⇒ a'' = 2 s'² + 2 s s''.
-        let dd = (self.dd - 2.0 * d * d) / (2.0 * s);
+        let dd = (self.dd - 2.0 * d * d) * half_inv;
         Jet { v: s, d, dd }
     }
     pub fn exp(self) -> Jet {
@@ -99,9 +100,11 @@ impl Mul for Jet {
 impl Div for Jet {
     type Output = Jet;
     fn div(self, o: Jet) -> Jet {
-        let q = self.v / o.v;
-        let d = (self.d - q * o.d) / o.v;
-        let dd = (self.dd - 2.0 * d * o.d - q * o.dd) / o.v;
+        // One division; the rest by the reciprocal.
+        let inv = 1.0 / o.v;
+        let q = self.v * inv;
+        let d = (self.d - q * o.d) * inv;
+        let dd = (self.dd - 2.0 * d * o.d - q * o.dd) * inv;
         Jet { v: q, d, dd }
     }
 }
@@ -146,10 +149,11 @@ impl Mul<f64> for Jet {
 impl Div<f64> for Jet {
     type Output = Jet;
     fn div(self, c: f64) -> Jet {
+        let inv = 1.0 / c;
         Jet {
-            v: self.v / c,
-            d: self.d / c,
-            dd: self.dd / c,
+            v: self.v * inv,
+            d: self.d * inv,
+            dd: self.dd * inv,
         }
     }
 }

@@ -105,8 +105,10 @@ struct Base {
     /// ln Se and d ln Se/dh [m⁻¹].
     ln_se: f64,
     dln_se: f64,
-    /// ln Kr and d ln Kr/dh [m⁻¹].
-    ln_kr: f64,
+    /// Se and Kr themselves (computed without going through their logarithms where
+    /// the law allows), and d ln Kr/dh [m⁻¹].
+    se: f64,
+    kr: f64,
     dln_kr: f64,
 }
 
@@ -139,28 +141,36 @@ impl RetentionLaw {
                 // d ln Se/dh = α m n w/x = m n w/|h|  (α/x = 1/|h|)
                 let dln_se = m * n * w / (-h);
                 // Mualem: 1 − Se^(1/m) = w, Kr = Se^l (1 − w^m)².
-                let (ln_1mwm, dterm) = if t > 30.0 {
+                let (one_m_wm, dterm) = if t > 30.0 {
                     // w^m = exp(−m ln(1 + x⁻ⁿ)) ⇒ 1 − w^m = m x⁻ⁿ (1 + O(x⁻ⁿ)).
                     // d/dh ln(1 − w^m) → α n / x = n/|h| (relative error O(x⁻ⁿ) < 1e-13).
-                    (m.ln() - t, n / (-h))
+                    (m * (-t).exp(), n / (-h))
                 } else {
                     let a = -m * sp_neg; // ln w^m
-                                         // w^m, 1 − w^m and ln(1 − w^m), accurate near w^m → 1 and w^m → 0.
-                    let (wm, one_m_wm, l1) = if a > -std::f64::consts::LN_2 {
+                                         // w^m and 1 − w^m, accurate near w^m → 1 and w^m → 0.
+                    let (wm, one_m_wm) = if a > -std::f64::consts::LN_2 {
                         let one_m_wm = -a.exp_m1();
-                        (1.0 - one_m_wm, one_m_wm, one_m_wm.ln())
+                        (1.0 - one_m_wm, one_m_wm)
                     } else {
                         let wm = a.exp();
-                        (wm, 1.0 - wm, (-wm).ln_1p())
+                        (wm, 1.0 - wm)
                     };
                     // d/dh ln(1 − w^m) = α m n w^m (1 − w) / (x (1 − w^m))
                     //                  = m n w^m (1 − w) / (|h| (1 − w^m))
-                    (l1, m * n * wm * one_m_w / (-h * one_m_wm))
+                    (one_m_wm, m * n * wm * one_m_w / (-h * one_m_wm))
+                };
+                let se = ln_se.exp();
+                // Se^l: the square root for Mualem's l = 1/2 (common practice).
+                let se_l = if l == 0.5 {
+                    se.sqrt()
+                } else {
+                    (l * ln_se).exp()
                 };
                 Base {
                     ln_se,
                     dln_se,
-                    ln_kr: l * ln_se + 2.0 * ln_1mwm,
+                    se,
+                    kr: se_l * one_m_wm * one_m_wm,
                     dln_kr: l * dln_se + 2.0 * dterm,
                 }
             }
@@ -174,7 +184,8 @@ impl RetentionLaw {
                     Base {
                         ln_se: 0.0,
                         dln_se: 0.0,
-                        ln_kr: 0.0,
+                        se: 1.0,
+                        kr: 1.0,
                         dln_kr: 0.0,
                     }
                 } else {
@@ -184,17 +195,22 @@ impl RetentionLaw {
                     Base {
                         ln_se,
                         dln_se,
-                        ln_kr: p * ln_se,
+                        se: ln_se.exp(),
+                        kr: (p * ln_se).exp(),
                         dln_kr: p * dln_se,
                     }
                 }
             }
-            RetentionLaw::Exponential { alpha, .. } => Base {
-                ln_se: alpha * h,
-                dln_se: alpha,
-                ln_kr: alpha * h,
-                dln_kr: alpha,
-            },
+            RetentionLaw::Exponential { alpha, .. } => {
+                let e = (alpha * h).exp();
+                Base {
+                    ln_se: alpha * h,
+                    dln_se: alpha,
+                    se: e,
+                    kr: e,
+                    dln_kr: alpha,
+                }
+            }
         }
     }
 
@@ -249,8 +265,7 @@ impl Retention {
             return (1.0, 0.0);
         }
         let b = self.law.base(h);
-        let se = b.ln_se.exp();
-        (se, se * b.dln_se)
+        (b.se, b.se * b.dln_se)
     }
 
     /// Liquid content θ(h) [m³ m⁻³] and dθ/dh [m⁻¹].
@@ -268,14 +283,14 @@ impl Retention {
             return ((self.law.theta_s(), 0.0), (1.0, 0.0));
         }
         let b = self.law.base(h);
-        let kr = b.ln_kr.exp();
+        let kr = b.kr;
         (self.theta_from_base(h, &b), (kr, kr * b.dln_kr))
     }
 
     fn theta_from_base(&self, h: f64, b: &Base) -> (f64, f64) {
         let ts = self.law.theta_s();
         let tr = self.law.theta_r();
-        let se = b.ln_se.exp();
+        let se = b.se;
         let dse = se * b.dln_se;
         match &self.dry_end {
             None => (tr + (ts - tr) * se, (ts - tr) * dse),
@@ -310,8 +325,7 @@ impl Retention {
             return (1.0, 0.0);
         }
         let b = self.law.base(h);
-        let kr = b.ln_kr.exp();
-        (kr, kr * b.dln_kr)
+        (b.kr, b.kr * b.dln_kr)
     }
 
     /// Head [m] at which θ(h) = `theta`; `None` when `theta` is outside the curve's range.

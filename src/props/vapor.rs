@@ -87,7 +87,7 @@ pub fn tortuosity(theta_a: f64, porosity: f64) -> (f64, f64) {
         return (0.0, 0.0);
     }
     let p2 = porosity * porosity;
-    let t43 = theta_a * theta_a.cbrt(); // θa^(4/3)
+    let t43 = theta_a * super::cbrt_positive(theta_a); // θa^(4/3)
     (t43 * theta_a / p2, 7.0 / 3.0 * t43 / p2)
 }
 

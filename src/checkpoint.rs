@@ -229,6 +229,10 @@ fn write_via(
             .with_data(&Array1::from_vec(ints))
             .create("counters")
             .map_err(&er)?;
+        file.new_dataset_builder()
+            .with_data(&Array1::from_vec(vec![state.last_error]))
+            .create("last_error_estimate")
+            .map_err(&er)?;
         file.flush().map_err(&er)?;
         // Every handle is dropped at the end of this block, which closes the file.
     }
@@ -370,6 +374,11 @@ pub fn read(path: &Path) -> Result<Checkpoint> {
             history,
             order: ints[7] as usize,
             steps_at_order: ints[8] as usize,
+            // Absent in checkpoints written before the predictive controller: no estimate.
+            last_error: v("last_error_estimate")
+                .ok()
+                .and_then(|x| x.first().copied())
+                .unwrap_or(0.0),
         };
         // Optional records (absent in older checkpoints of this format).
         let mut info = CheckpointInfo::default();

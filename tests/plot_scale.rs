@@ -175,3 +175,28 @@ fn real_value_labels() {
     assert_eq!(deepdry::plot::format_years(1.23456), "1.235");
     assert_eq!(deepdry::plot::format_years(3e6), "3×10⁶");
 }
+
+/// Thick raster lines are joined with mitres; a hairpin turn (a flux spike at a layer
+/// interface, out and back in one row of pixels) makes a mitre that reaches across the
+/// figure. `gentle_runs` splits a line wherever it turns by more than 90° (geometry:
+/// the dot product of consecutive direction vectors is negative), so no join is sharp.
+#[test]
+fn lines_split_at_hairpin_turns_only() {
+    use deepdry::plot::chart::gentle_runs;
+    // Straight and gently bending lines stay whole.
+    assert_eq!(
+        gentle_runs(&[(0, 0), (10, 1), (20, 3), (25, 10)]),
+        vec![(0, 3)]
+    );
+    // A right angle is not a hairpin.
+    assert_eq!(gentle_runs(&[(0, 0), (10, 0), (10, 10)]), vec![(0, 2)]);
+    // A spike out to x = 478 and back, one pixel lower (as in a profile): split at its tip.
+    let spike = [(300, 200), (322, 215), (478, 216), (322, 217), (300, 230)];
+    assert_eq!(gentle_runs(&spike), vec![(0, 2), (2, 4)]);
+    // Repeated pixels do not hide the reversal.
+    let rep = [(0, 0), (10, 0), (10, 0), (0, 1)];
+    assert_eq!(gentle_runs(&rep), vec![(0, 2), (2, 3)]);
+    // Degenerate inputs.
+    assert_eq!(gentle_runs(&[(1, 1)]), vec![(0, 0)]);
+    assert_eq!(gentle_runs(&[(1, 1), (1, 1)]), vec![(0, 1)]);
+}

@@ -200,11 +200,53 @@ fn draw_panel<DB: DrawingBackend>(
                     line.color.filled(),
                 )))?;
             } else {
-                chart.draw_series(LineSeries::new(seg, line.color.stroke_width(line.width)))?;
+                // Thick lines are joined with mitres, which at a hairpin turn (a flux
+                // spike at a layer interface) reach far across the figure in the raster
+                // output: draw the line in runs that turn by at most 90° at each point.
+                let px: Vec<(i32, i32)> = seg.iter().map(|&q| chart.backend_coord(&q)).collect();
+                for (a, b) in gentle_runs(&px) {
+                    chart.draw_series(LineSeries::new(
+                        seg[a..=b].iter().copied(),
+                        line.color.stroke_width(line.width),
+                    ))?;
+                }
             }
         }
     }
     Ok(())
+}
+
+/// Index ranges `(first, last)` (inclusive, consecutive ranges share their end point)
+/// that split a polyline in pixel coordinates wherever it turns by more than 90°
+/// (consecutive segment vectors with a negative dot product). Repeated points are
+/// skipped when judging the turn. A line of fewer than two points gives one range.
+pub fn gentle_runs(px: &[(i32, i32)]) -> Vec<(usize, usize)> {
+    let mut out = Vec::new();
+    if px.len() < 2 {
+        out.push((0, px.len().saturating_sub(1)));
+        return out;
+    }
+    let mut start = 0;
+    // Direction of the last segment of non-zero length in the current run.
+    let mut last: Option<(i64, i64)> = None;
+    for i in 1..px.len() {
+        let d = (
+            i64::from(px[i].0) - i64::from(px[i - 1].0),
+            i64::from(px[i].1) - i64::from(px[i - 1].1),
+        );
+        if d == (0, 0) {
+            continue;
+        }
+        if let Some(l) = last {
+            if l.0 * d.0 + l.1 * d.1 < 0 {
+                out.push((start, i - 1));
+                start = i - 1;
+            }
+        }
+        last = Some(d);
+    }
+    out.push((start, px.len() - 1));
+    out
 }
 
 /// Runs of consecutive points both axes can show and that lie on the axes.

@@ -326,17 +326,18 @@ impl ResultsFile {
                 last_snapshot_year
             )));
         }
-        let e = h5(path);
+        // A file damaged by a kill can pass every check above and still fail here (seen:
+        // "addr overflow" on the first flush): the same guided message as any damage.
         use super::h5util::truncate;
-        truncate(&profile_time, snapshots).map_err(&e)?;
+        truncate(&profile_time, snapshots).map_err(h5err)?;
         for d in cell_sets.iter().chain(face_sets.iter()) {
-            truncate(d, snapshots).map_err(&e)?;
+            truncate(d, snapshots).map_err(h5err)?;
         }
-        truncate(&series_time, series_rows).map_err(&e)?;
+        truncate(&series_time, series_rows).map_err(h5err)?;
         for d in &series_sets {
-            truncate(d, series_rows).map_err(&e)?;
+            truncate(d, series_rows).map_err(h5err)?;
         }
-        file.flush().map_err(&e)?;
+        file.flush().map_err(h5err)?;
         Ok(ResultsFile {
             path: path.to_path_buf(),
             file,

@@ -129,16 +129,31 @@ fn set_key(text: &str, key: &str, value: &str) -> String {
         .join("\n")
 }
 
-/// Runs the benchmark on `case` (the reference case) and a scaling series over `cells`
-/// for `span_years` on uniform meshes (the case's keys `cells`, `growth`, `end_year` are
-/// rewritten and `surface_cell_m`, `bottom_cell_m` dropped); returns the report table.
-pub fn bench(case: &Path, cells: &[usize], span_years: f64) -> Result<String> {
-    let text = std::fs::read_to_string(case).map_err(|e| {
+fn read_case(case: &Path) -> Result<String> {
+    std::fs::read_to_string(case).map_err(|e| {
         Error::input(format!(
             "{}: cannot read the case file: {e}",
             case.display()
         ))
-    })?;
+    })
+}
+
+/// The accuracy comparison of [`crate::accuracy`] for the case file `case`.
+pub fn accuracy(case: &Path) -> Result<String> {
+    let text = read_case(case)?;
+    let base = case.parent().unwrap_or(Path::new("."));
+    let tmp = std::env::temp_dir().join(format!("deepdry-accuracy-{}", std::process::id()));
+    std::fs::create_dir_all(&tmp).map_err(|e| Error::io(&tmp, e))?;
+    let report = crate::accuracy::accuracy(&text, &case.display().to_string(), base, &tmp);
+    let _ = std::fs::remove_dir_all(&tmp);
+    report
+}
+
+/// Runs the benchmark on `case` (the reference case) and a scaling series over `cells`
+/// for `span_years` on uniform meshes (the case's keys `cells`, `growth`, `end_year` are
+/// rewritten and `surface_cell_m`, `bottom_cell_m` dropped); returns the report table.
+pub fn bench(case: &Path, cells: &[usize], span_years: f64) -> Result<String> {
+    let text = read_case(case)?;
     let base = case.parent().unwrap_or(Path::new("."));
     let origin = case.display().to_string();
     let tmp = std::env::temp_dir().join(format!("deepdry-bench-{}", std::process::id()));

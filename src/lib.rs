@@ -16,6 +16,7 @@
 // Index loops read like the formulas they implement.
 #![allow(clippy::needless_range_loop)]
 
+pub mod accuracy;
 pub mod bench;
 pub mod case;
 pub mod checkpoint;

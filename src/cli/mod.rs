@@ -56,6 +56,10 @@ pub enum Command {
         /// Simulated span of the scaling runs [yr].
         #[arg(long, default_value_t = 1000.0)]
         span_years: f64,
+        /// Also compare the reference case with tight-tolerance runs on the same mesh and
+        /// on a mesh refined twice (surface flux, water lost, profiles at 1 to 1e6 yr).
+        #[arg(long)]
+        accuracy: bool,
     },
     /// Summarise a results or checkpoint file.
     Inspect {
@@ -191,8 +195,12 @@ fn run_command(cli: Cli) -> Result<()> {
             case,
             cells,
             span_years,
+            accuracy,
         } => {
             print!("{}", crate::bench::bench(&case, &cells, span_years)?);
+            if accuracy {
+                print!("{}", crate::bench::accuracy(&case)?);
+            }
             Ok(())
         }
         Command::Inspect { file } => {

@@ -1,0 +1,260 @@
+//! `deepdry bench --accuracy`: how far a case run at its own settings lies from two
+//! reference runs of the same case made here, one at a tight tolerance on the same mesh
+//! (the time-integration error) and one at a tight tolerance on a mesh refined twice
+//! (time and space together). Compared at 1, 100, 10⁴ and 10⁶ years (those within the
+//! run and among its snapshots): the surface water flux, the water lost from the column,
+//! and the liquid-content and relative-humidity profiles.
+
+use crate::error::{Error, Result};
+use crate::plot::data::{read, Results};
+use crate::run::{run, RunOptions};
+use std::fmt::Write;
+use std::path::Path;
+
+/// Relative tolerance of the reference runs.
+pub const REFERENCE_RTOL: f64 = 1e-8;
+/// Comparison times [yr].
+pub const TIMES_YEAR: [f64; 4] = [1.0, 1e2, 1e4, 1e6];
+
+/// Largest |a − b| over a profile relative to the largest |b|, with `b` given on its own
+/// depths `zb` and interpolated linearly to `za` (depths increasing) when the meshes
+/// differ; beyond the end points `b` is held constant. `None` for an empty or all-zero
+/// reference.
+pub fn profile_difference(za: &[f64], a: &[f64], zb: &[f64], b: &[f64]) -> Option<f64> {
+    if a.is_empty() || b.is_empty() || za.len() != a.len() || zb.len() != b.len() {
+        return None;
+    }
+    let scale = b.iter().fold(0.0f64, |m, x| m.max(x.abs()));
+    if scale == 0.0 || !scale.is_finite() {
+        return None;
+    }
+    let same = za == zb;
+    let mut worst = 0.0f64;
+    let mut j = 0;
+    for (i, (&z, &va)) in za.iter().zip(a.iter()).enumerate() {
+        let vb = if same {
+            b[i]
+        } else if z <= zb[0] {
+            b[0]
+        } else if z >= zb[zb.len() - 1] {
+            b[b.len() - 1]
+        } else {
+            while j + 1 < zb.len() && zb[j + 1] < z {
+                j += 1;
+            }
+            let f = (z - zb[j]) / (zb[j + 1] - zb[j]);
+            b[j] + f * (b[j + 1] - b[j])
+        };
+        worst = worst.max((va - vb).abs());
+    }
+    Some(worst / scale)
+}
+
+/// |a − b|/|b|; `None` when b is 0.
+fn relative(a: f64, b: f64) -> Option<f64> {
+    (b != 0.0 && b.is_finite()).then(|| (a - b).abs() / b.abs())
+}
+
+/// Index of the snapshot at `year` (within 1e-9 relative), if there is one.
+fn snapshot(r: &Results, year: f64) -> Option<usize> {
+    r.profiles
+        .time
+        .iter()
+        .position(|&t| (t - year).abs() <= 1e-9 * year.abs().max(1.0))
+}
+
+/// Index of the series record at `year` (within 1e-9 relative), if there is one.
+fn record(r: &Results, year: f64) -> Option<usize> {
+    r.series
+        .time
+        .iter()
+        .position(|&t| (t - year).abs() <= 1e-9 * year.abs().max(1.0))
+}
+
+/// Surface water flux [kg m⁻² s⁻¹] of snapshot `k`: the four parts at the top face.
+fn surface_flux(r: &Results, k: usize) -> f64 {
+    let p = &r.profiles;
+    p.liquid_flux_isothermal[k][0]
+        + p.liquid_flux_thermal[k][0]
+        + p.vapor_flux_isothermal[k][0]
+        + p.vapor_flux_thermal[k][0]
+}
+
+/// The four compared quantities of `a` against `b` at `year` (None where either run
+/// lacks the time or the reference value is zero).
+fn differences(a: &Results, b: &Results, year: f64) -> [Option<f64>; 4] {
+    let (sa, sb) = (snapshot(a, year), snapshot(b, year));
+    let (ra, rb) = (record(a, year), record(b, year));
+    let flux = sa
+        .zip(sb)
+        .and_then(|(i, j)| relative(surface_flux(a, i), surface_flux(b, j)));
+    let lost = ra.zip(rb).and_then(|(i, j)| {
+        let la = a.series.water_storage.first()? - a.series.water_storage[i];
+        let lb = b.series.water_storage.first()? - b.series.water_storage[j];
+        relative(la, lb)
+    });
+    let prof = |pa: &[Vec<f64>], pb: &[Vec<f64>]| {
+        sa.zip(sb)
+            .and_then(|(i, j)| profile_difference(&a.depth, &pa[i], &b.depth, &pb[j]))
+    };
+    [
+        flux,
+        lost,
+        prof(&a.profiles.liquid_content, &b.profiles.liquid_content),
+        prof(&a.profiles.relative_humidity, &b.profiles.relative_humidity),
+    ]
+}
+
+/// The case text with `[time] rtol` set to the reference tolerance and, when `refine`,
+/// the mesh refined twice: twice the cells, √growth, half the end cells (graded meshes
+/// given by `cells`; `max_cell_m` is halved instead).
+fn reference_text(text: &str, refine: bool) -> std::result::Result<String, String> {
+    let mut root: toml::Table = text.parse().map_err(|e| format!("{e}"))?;
+    let time = root
+        .entry("time")
+        .or_insert_with(|| toml::Value::Table(toml::Table::new()));
+    let time = time.as_table_mut().ok_or("[time] is not a table")?;
+    time.insert("rtol".into(), toml::Value::Float(REFERENCE_RTOL));
+    time.remove("method");
+    if refine {
+        let mesh = root
+            .get_mut("mesh")
+            .and_then(|m| m.as_table_mut())
+            .ok_or("no [mesh] table")?;
+        if let Some(n) = mesh.get("cells").and_then(|v| v.as_integer()) {
+            mesh.insert("cells".into(), toml::Value::Integer(2 * n));
+        }
+        let float = |v: &toml::Value| v.as_float().or(v.as_integer().map(|i| i as f64));
+        for key in [
+            "max_cell_m",
+            "surface_cell_m",
+            "bottom_cell_m",
+            "interface_cell_m",
+        ] {
+            if let Some(x) = mesh.get(key).and_then(float) {
+                mesh.insert(key.into(), toml::Value::Float(0.5 * x));
+            }
+        }
+        if let Some(g) = mesh.get("growth").and_then(float) {
+            mesh.insert("growth".into(), toml::Value::Float(g.sqrt()));
+        }
+    }
+    toml::to_string(&root).map_err(|e| format!("{e}"))
+}
+
+/// Runs `text` (origin and base folder as for `case::parse`) into `out` and reads back
+/// its results; returns them with the step count and wall time [s].
+fn run_text(text: &str, origin: &str, base: &Path, out: &Path) -> Result<(Results, u64, f64)> {
+    let model = crate::case::parse(text, origin, base)?;
+    let opts = RunOptions {
+        out: Some(out.to_path_buf()),
+        overwrite: true,
+        progress: false,
+        ..Default::default()
+    };
+    let summary = run(&model, &opts)?;
+    let r = read(&out.join("results.h5"))?;
+    Ok((r, summary.counters.steps, summary.wall_seconds))
+}
+
+fn fmt(x: Option<f64>) -> String {
+    x.map(|v| format!("{v:.1e}"))
+        .unwrap_or_else(|| "—".to_string())
+}
+
+/// Runs the case at its settings and the two references in `tmp`; returns the report.
+pub fn accuracy(text: &str, origin: &str, base: &Path, tmp: &Path) -> Result<String> {
+    let bad = |e: String| Error::input(format!("{origin}: cannot derive the reference case: {e}"));
+    let (a, steps_a, wall_a) = run_text(text, origin, base, &tmp.join("own"))?;
+    let same = reference_text(text, false).map_err(bad)?;
+    let (b, steps_b, wall_b) = run_text(&same, origin, base, &tmp.join("tight"))?;
+    let fine = reference_text(text, true).map_err(bad)?;
+    let (c, steps_c, wall_c) = run_text(&fine, origin, base, &tmp.join("refined"))?;
+    let mut out = String::new();
+    let _ = writeln!(
+        out,
+        "accuracy: {origin} at its settings ({} cells, {steps_a} steps, {wall_a:.2} s) against\n  \
+         same mesh, rtol {REFERENCE_RTOL:e} ({steps_b} steps, {wall_b:.2} s) and\n  \
+         mesh refined twice, rtol {REFERENCE_RTOL:e} ({} cells, {steps_c} steps, {wall_c:.2} s)",
+        a.depth.len(),
+        c.depth.len()
+    );
+    let _ = writeln!(
+        out,
+        "(relative differences; profiles: max over the column relative to the largest value, the refined reference interpolated in depth)"
+    );
+    let _ = writeln!(
+        out,
+        "{:<10} {:<22} {:>10} {:>10}",
+        "time [yr]", "quantity", "same mesh", "refined"
+    );
+    let names = [
+        "surface water flux",
+        "water lost",
+        "liquid content",
+        "relative humidity",
+    ];
+    let mut worst = [0.0f64; 2];
+    for year in TIMES_YEAR {
+        if snapshot(&a, year).is_none() {
+            continue;
+        }
+        let ds = differences(&a, &b, year);
+        let dr = differences(&a, &c, year);
+        for k in 0..4 {
+            let _ = writeln!(
+                out,
+                "{:<10} {:<22} {:>10} {:>10}",
+                format!("{year:e}"),
+                names[k],
+                fmt(ds[k]),
+                fmt(dr[k])
+            );
+            worst[0] = worst[0].max(ds[k].unwrap_or(0.0));
+            worst[1] = worst[1].max(dr[k].unwrap_or(0.0));
+        }
+    }
+    let _ = writeln!(
+        out,
+        "worst: {:.1e} against the same mesh, {:.1e} against the refined mesh",
+        worst[0], worst[1]
+    );
+    Ok(out)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Linear interpolation reproduces a linear profile exactly (common practice), and
+    /// a known offset shows as that offset over the largest value.
+    #[test]
+    fn profile_difference_interpolates_the_reference() {
+        let zb: Vec<f64> = (0..=10).map(|i| i as f64).collect();
+        let b: Vec<f64> = zb.iter().map(|z| 2.0 + 0.5 * z).collect(); // max 7
+        let za = [0.25, 3.5, 9.75];
+        let a: Vec<f64> = za.iter().map(|z| 2.0 + 0.5 * z).collect();
+        assert!(profile_difference(&za, &a, &zb, &b).unwrap() < 1e-15);
+        let shifted: Vec<f64> = a.iter().map(|v| v + 0.07).collect();
+        let d = profile_difference(&za, &shifted, &zb, &b).unwrap();
+        assert!((d - 0.01).abs() < 1e-12, "{d}");
+        // Same mesh: compared point by point.
+        assert_eq!(profile_difference(&zb, &b, &zb, &b), Some(0.0));
+        // Degenerate references.
+        assert_eq!(profile_difference(&za, &a, &zb, &[0.0; 11]), None);
+        assert_eq!(profile_difference(&za, &a, &[], &[]), None);
+    }
+
+    #[test]
+    fn reference_text_sets_rtol_and_refines_the_mesh() {
+        let text = "title = \"x\"\n[mesh]\ncells = 600\ngrowth = 1.05\nsurface_cell_m = 0.01\n[time]\nend_year = 1.0\nmethod = \"bdf\"\n";
+        let t: toml::Table = reference_text(text, true).unwrap().parse().unwrap();
+        assert_eq!(t["mesh"]["cells"].as_integer(), Some(1200));
+        assert!((t["mesh"]["growth"].as_float().unwrap() - 1.05f64.sqrt()).abs() < 1e-15);
+        assert_eq!(t["mesh"]["surface_cell_m"].as_float(), Some(0.005));
+        assert_eq!(t["time"]["rtol"].as_float(), Some(REFERENCE_RTOL));
+        assert!(t["time"].get("method").is_none());
+        let same: toml::Table = reference_text(text, false).unwrap().parse().unwrap();
+        assert_eq!(same["mesh"]["cells"].as_integer(), Some(600));
+    }
+}

@@ -7,7 +7,6 @@
 
 use crate::error::{Error, Result};
 use crate::plot::data::{read, Results};
-use crate::run::{run, RunOptions};
 use std::fmt::Write;
 use std::path::Path;
 
@@ -145,14 +144,7 @@ fn reference_text(text: &str, refine: bool) -> std::result::Result<String, Strin
 /// Runs `text` (origin and base folder as for `case::parse`) into `out` and reads back
 /// its results; returns them with the step count and wall time [s].
 fn run_text(text: &str, origin: &str, base: &Path, out: &Path) -> Result<(Results, u64, f64)> {
-    let model = crate::case::parse(text, origin, base)?;
-    let opts = RunOptions {
-        out: Some(out.to_path_buf()),
-        overwrite: true,
-        progress: false,
-        ..Default::default()
-    };
-    let summary = run(&model, &opts)?;
+    let (_, summary) = crate::bench::run_text_into(text, origin, base, out)?;
     let r = read(&out.join("results.h5"))?;
     Ok((r, summary.counters.steps, summary.wall_seconds))
 }

@@ -45,7 +45,14 @@ struct Row {
     sparse: f64,
 }
 
-fn measure(label: &str, text: &str, origin: &str, base: &Path, out: &Path) -> Result<Row> {
+/// Parses a case text (origin and base folder as for `case::parse`) and runs it into the
+/// folder `out`, replacing what is there, without a progress bar.
+pub(crate) fn run_text_into(
+    text: &str,
+    origin: &str,
+    base: &Path,
+    out: &Path,
+) -> Result<(crate::model::Model, crate::run::RunSummary)> {
     let model = crate::case::parse(text, origin, base)?;
     let opts = RunOptions {
         out: Some(out.to_path_buf()),
@@ -54,6 +61,11 @@ fn measure(label: &str, text: &str, origin: &str, base: &Path, out: &Path) -> Re
         ..Default::default()
     };
     let summary = run(&model, &opts)?;
+    Ok((model, summary))
+}
+
+fn measure(label: &str, text: &str, origin: &str, base: &Path, out: &Path) -> Result<Row> {
+    let (model, summary) = run_text_into(text, origin, base, out)?;
     // Component costs at the initial state.
     let mut sys = System::new(&model);
     let n = sys.n;

@@ -54,18 +54,9 @@ fn relative(a: f64, b: f64) -> Option<f64> {
     (b != 0.0 && b.is_finite()).then(|| (a - b).abs() / b.abs())
 }
 
-/// Index of the snapshot at `year` (within 1e-9 relative), if there is one.
-fn snapshot(r: &Results, year: f64) -> Option<usize> {
-    r.profiles
-        .time
-        .iter()
-        .position(|&t| (t - year).abs() <= 1e-9 * year.abs().max(1.0))
-}
-
-/// Index of the series record at `year` (within 1e-9 relative), if there is one.
-fn record(r: &Results, year: f64) -> Option<usize> {
-    r.series
-        .time
+/// Index of the entry of `times` [yr] at `year` (within 1e-9 relative), if there is one.
+fn at_year(times: &[f64], year: f64) -> Option<usize> {
+    times
         .iter()
         .position(|&t| (t - year).abs() <= 1e-9 * year.abs().max(1.0))
 }
@@ -82,8 +73,11 @@ fn surface_flux(r: &Results, k: usize) -> f64 {
 /// The four compared quantities of `a` against `b` at `year` (None where either run
 /// lacks the time or the reference value is zero).
 fn differences(a: &Results, b: &Results, year: f64) -> [Option<f64>; 4] {
-    let (sa, sb) = (snapshot(a, year), snapshot(b, year));
-    let (ra, rb) = (record(a, year), record(b, year));
+    let (sa, sb) = (
+        at_year(&a.profiles.time, year),
+        at_year(&b.profiles.time, year),
+    );
+    let (ra, rb) = (at_year(&a.series.time, year), at_year(&b.series.time, year));
     let flux = sa
         .zip(sb)
         .and_then(|(i, j)| relative(surface_flux(a, i), surface_flux(b, j)));
@@ -154,10 +148,17 @@ fn fmt(x: Option<f64>) -> String {
         .unwrap_or_else(|| "—".to_string())
 }
 
-/// Runs the case at its settings and the two references in `tmp`; returns the report.
-pub fn accuracy(text: &str, origin: &str, base: &Path, tmp: &Path) -> Result<String> {
+/// Compares `own` (the results of the case `text` run at its settings, with its step
+/// count and wall time [s]) with the two reference runs, made in `tmp`; returns the report.
+pub fn accuracy(
+    text: &str,
+    origin: &str,
+    base: &Path,
+    own: (Results, u64, f64),
+    tmp: &Path,
+) -> Result<String> {
     let bad = |e: String| Error::input(format!("{origin}: cannot derive the reference case: {e}"));
-    let (a, steps_a, wall_a) = run_text(text, origin, base, &tmp.join("own"))?;
+    let (a, steps_a, wall_a) = own;
     let same = reference_text(text, false).map_err(bad)?;
     let (b, steps_b, wall_b) = run_text(&same, origin, base, &tmp.join("tight"))?;
     let fine = reference_text(text, true).map_err(bad)?;
@@ -188,7 +189,7 @@ pub fn accuracy(text: &str, origin: &str, base: &Path, tmp: &Path) -> Result<Str
     ];
     let mut worst = [0.0f64; 2];
     for year in TIMES_YEAR {
-        if snapshot(&a, year).is_none() {
+        if at_year(&a.profiles.time, year).is_none() {
             continue;
         }
         let ds = differences(&a, &b, year);

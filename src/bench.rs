@@ -141,39 +141,43 @@ fn set_key(text: &str, key: &str, value: &str) -> String {
         .join("\n")
 }
 
-fn read_case(case: &Path) -> Result<String> {
-    std::fs::read_to_string(case).map_err(|e| {
+/// Runs the benchmark on `case` (the reference case) and a scaling series over `cells`
+/// for `span_years` on uniform meshes (the case's keys `cells`, `growth`, `end_year` are
+/// rewritten and `surface_cell_m`, `bottom_cell_m` dropped); returns the report table.
+/// With `accuracy`, the reference case's results are also compared with tight-tolerance
+/// runs ([`crate::accuracy`]) and the comparison appended.
+pub fn bench(case: &Path, cells: &[usize], span_years: f64, accuracy: bool) -> Result<String> {
+    let text = std::fs::read_to_string(case).map_err(|e| {
         Error::input(format!(
             "{}: cannot read the case file: {e}",
             case.display()
         ))
-    })
-}
-
-/// The accuracy comparison of [`crate::accuracy`] for the case file `case`.
-pub fn accuracy(case: &Path) -> Result<String> {
-    let text = read_case(case)?;
-    let base = case.parent().unwrap_or(Path::new("."));
-    let tmp = std::env::temp_dir().join(format!("deepdry-accuracy-{}", std::process::id()));
-    std::fs::create_dir_all(&tmp).map_err(|e| Error::io(&tmp, e))?;
-    let report = crate::accuracy::accuracy(&text, &case.display().to_string(), base, &tmp);
-    let _ = std::fs::remove_dir_all(&tmp);
-    report
-}
-
-/// Runs the benchmark on `case` (the reference case) and a scaling series over `cells`
-/// for `span_years` on uniform meshes (the case's keys `cells`, `growth`, `end_year` are
-/// rewritten and `surface_cell_m`, `bottom_cell_m` dropped); returns the report table.
-pub fn bench(case: &Path, cells: &[usize], span_years: f64) -> Result<String> {
-    let text = read_case(case)?;
+    })?;
     let base = case.parent().unwrap_or(Path::new("."));
     let origin = case.display().to_string();
     let tmp = std::env::temp_dir().join(format!("deepdry-bench-{}", std::process::id()));
     std::fs::create_dir_all(&tmp).map_err(|e| Error::io(&tmp, e))?;
-    let mut rows = vec![measure("reference case", &text, &origin, base, &tmp)?];
+    let report = bench_in(&text, &origin, base, &tmp, cells, span_years, accuracy);
+    let _ = std::fs::remove_dir_all(&tmp);
+    report
+}
+
+/// [`bench`] with its scratch folder `tmp` (removed by the caller).
+fn bench_in(
+    text: &str,
+    origin: &str,
+    base: &Path,
+    tmp: &Path,
+    cells: &[usize],
+    span_years: f64,
+    accuracy: bool,
+) -> Result<String> {
+    // The reference case in a folder of its own: its results stay for the comparison.
+    let own = tmp.join("reference");
+    let mut rows = vec![measure("reference case", text, origin, base, &own)?];
     for &n in cells {
         // Uniform cells, so the series differs only in the cell count.
-        let t = set_key(&text, "cells", &n.to_string());
+        let t = set_key(text, "cells", &n.to_string());
         let t = set_key(&t, "growth", "1.0");
         let t = set_key(&t, "surface_cell_m", "# (uniform)");
         let t = set_key(&t, "bottom_cell_m", "# (uniform)");
@@ -181,17 +185,15 @@ pub fn bench(case: &Path, cells: &[usize], span_years: f64) -> Result<String> {
         rows.push(measure(
             &format!("{span_years} yr span"),
             &t,
-            &origin,
+            origin,
             base,
-            &tmp,
+            tmp,
         )?);
     }
-    let _ = std::fs::remove_dir_all(&tmp);
     let mut out = String::new();
     let _ = writeln!(
         out,
-        "deepdry benchmark: {} (single thread, release build)",
-        case.display()
+        "deepdry benchmark: {origin} (single thread, release build)"
     );
     let _ = writeln!(
         out,
@@ -234,6 +236,16 @@ pub fn bench(case: &Path, cells: &[usize], span_years: f64) -> Result<String> {
     );
     if let Some(m) = peak_memory_mib() {
         let _ = writeln!(out, "peak memory {m:.1} MiB");
+    }
+    if accuracy {
+        let own_results = crate::plot::data::read(&own.join("results.h5"))?;
+        out.push_str(&crate::accuracy::accuracy(
+            text,
+            origin,
+            base,
+            (own_results, rows[0].steps, rows[0].wall),
+            tmp,
+        )?);
     }
     Ok(out)
 }

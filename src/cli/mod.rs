@@ -197,10 +197,10 @@ fn run_command(cli: Cli) -> Result<()> {
             span_years,
             accuracy,
         } => {
-            print!("{}", crate::bench::bench(&case, &cells, span_years)?);
-            if accuracy {
-                print!("{}", crate::bench::accuracy(&case)?);
-            }
+            print!(
+                "{}",
+                crate::bench::bench(&case, &cells, span_years, accuracy)?
+            );
             Ok(())
         }
         Command::Inspect { file } => {

@@ -51,7 +51,14 @@ pub fn physics_hash(m: &Model) -> String {
         m.surface,
         m.bottom,
         m.initial,
-        (t.start, t.dt_initial, t.dt_min, t.dt_max, t.max_newton),
+        (
+            t.start,
+            t.dt_initial,
+            t.dt_min,
+            t.dt_max,
+            t.max_newton,
+            t.newton_tolerance
+        ),
         t.method,
         (
             t.rtol,

@@ -216,6 +216,9 @@ pub struct TimeControl {
     pub atol_theta: f64,
     /// Newton iteration limit per step.
     pub max_newton: usize,
+    /// Newton converges when every residual row is within this fraction of the size of
+    /// the terms that make it up [-].
+    pub newton_tolerance: f64,
 }
 
 #[derive(Debug, Clone, Copy, PartialEq)]

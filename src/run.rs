@@ -248,6 +248,7 @@ pub fn steady_state(model: &Model, guess: Vec<f64>, solver: SolverKind) -> Resul
         integrator: crate::solve::stepper::Integrator::BackwardEuler,
         newton: crate::solve::newton::NewtonOptions {
             max_iter: model.time.max_newton,
+            residual_tol: model.time.newton_tolerance,
             ..Default::default()
         },
     };
@@ -389,6 +390,7 @@ pub fn step_options(model: &Model) -> StepOptions {
         },
         newton: crate::solve::newton::NewtonOptions {
             max_iter: model.time.max_newton,
+            residual_tol: model.time.newton_tolerance,
             ..Default::default()
         },
         ..Default::default()

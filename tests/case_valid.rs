@@ -370,7 +370,7 @@ fn other_options() {
         ),
         (
             "end_year = 100.0",
-            "end_year = 100.0\nmethod = \"bdf\"\nmax_order = 3\nrtol = 1e-5\nmax_newton_iterations = 8",
+            "end_year = 100.0\nmethod = \"bdf\"\nmax_order = 3\nrtol = 1e-5\nmax_newton_iterations = 8\nnewton_tolerance = 1e-10",
         ),
         ("thermal_conductivity_W_per_m_K = 1.5", "johansen = { dry_W_per_m_K = 0.3, saturated_W_per_m_K = 2.0, texture = \"fine\" }"),
         ("solid_heat_capacity_J_per_m3_K = 1.2e6", "particle_density_kg_per_m3 = 2650.0\nsolid_specific_heat_J_per_kg_K = 800.0\nenhancement = { cass_clay_fraction = 0.1 }\ndry_end = \"fayer-simmons\"\noven_dry_head_m = -5.0e4"),
@@ -395,6 +395,7 @@ fn other_options() {
     assert_eq!(m.time.method, Method::Bdf { max_order: 3 });
     assert_eq!(m.time.rtol, 1e-5);
     assert_eq!(m.time.max_newton, 8);
+    assert_eq!(m.time.newton_tolerance, 1e-10);
     let s = &m.soils[0];
     assert_eq!(
         s.thermal,

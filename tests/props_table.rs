@@ -167,6 +167,7 @@ fn model() -> Model {
             atol_vapor: 1e-9,
             atol_theta: 1e-5,
             max_newton: 10,
+            newton_tolerance: deepdry::solve::newton::DEFAULT_RESIDUAL_TOL,
         },
         output: OutputControl {
             folder: std::path::PathBuf::from("."),

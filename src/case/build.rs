@@ -1160,6 +1160,7 @@ const TIME_KEYS: &[&str] = &[
     "atol_vapor_kg_per_m3",
     "atol_liquid_content",
     "max_newton_iterations",
+    "newton_tolerance",
 ];
 
 fn read_time(root: &Table) -> R<TimeControl> {
@@ -1240,6 +1241,13 @@ fn read_time(root: &Table) -> R<TimeControl> {
         }
         None => 15,
     };
+    let newton_tolerance = opt_num(
+        &t,
+        "newton_tolerance",
+        |x| (1e-14..=1e-4).contains(&x),
+        "must be 1e-14 to 1e-4",
+    )?
+    .unwrap_or(crate::solve::newton::DEFAULT_RESIDUAL_TOL);
     Ok(TimeControl {
         start: start * SECONDS_PER_YEAR,
         end: end * SECONDS_PER_YEAR,
@@ -1253,6 +1261,7 @@ fn read_time(root: &Table) -> R<TimeControl> {
         atol_vapor: tol("atol_vapor_kg_per_m3", 1.0e-8)?,
         atol_theta: tol("atol_liquid_content", 1.0e-5)?,
         max_newton,
+        newton_tolerance,
     })
 }
 

@@ -291,7 +291,7 @@ pub fn summary(m: &Model) -> String {
     let _ = writeln!(
         o,
         "Time: year {} to {}; first step {} yr, steps {} to {} yr; {}; at most {} Newton \
-         iterations; rtol {}, atol {} K, {} m, {} kg/m³",
+         iterations (tolerance {}); rtol {}, atol {} K, {} m, {} kg/m³",
         yr(t.start),
         yr(t.end),
         yr(t.dt_initial),
@@ -302,6 +302,7 @@ pub fn summary(m: &Model) -> String {
             Method::Bdf { max_order } => format!("BDF up to order {max_order}"),
         },
         t.max_newton,
+        fmt_g(t.newton_tolerance),
         fmt_g(t.rtol),
         fmt_g(t.atol_temperature),
         fmt_g(t.atol_head),

@@ -104,6 +104,7 @@ pub fn column(
             atol_vapor: 1e-8,
             atol_theta: 1e-5,
             max_newton: 15,
+            newton_tolerance: deepdry::solve::newton::DEFAULT_RESIDUAL_TOL,
         },
         output: OutputControl {
             folder: std::env::temp_dir(),

@@ -172,6 +172,7 @@ fn write_via(
         f64s("time_s", &[state.t]).map_err(&er)?;
         f64s("dt_s", &[state.dt]).map_err(&er)?;
         f64s("unknowns", &state.u).map_err(&er)?;
+        f64s("storage", &state.storage).map_err(&er)?;
         f64s("inflow", &state.inflow).map_err(&er)?;
         f64s("throughput", &state.throughput).map_err(&er)?;
         f64s("initial_totals", &state.initial_totals).map_err(&er)?;
@@ -196,9 +197,11 @@ fn write_via(
         let hlen = state.history.len();
         let width = state.u.len();
         let mut hu = Vec::with_capacity(hlen * width);
+        let mut hs = Vec::with_capacity(hlen * width);
         let mut hmeta = Vec::with_capacity(hlen * 5);
         for hp in &state.history {
             hu.extend_from_slice(&hp.u);
+            hs.extend_from_slice(&hp.storage);
             hmeta.extend_from_slice(&[
                 hp.t,
                 hp.inflow[0],
@@ -213,6 +216,14 @@ fn write_via(
             .with_data(&a)
             .create("history_unknowns")
             .map_err(&er)?;
+        if hs.len() == hlen * width {
+            let a = ndarray::Array2::from_shape_vec((hlen, width), hs)
+                .map_err(|x| Error::Internal(x.to_string()))?;
+            file.new_dataset_builder()
+                .with_data(&a)
+                .create("history_storage")
+                .map_err(&er)?;
+        }
         let a = ndarray::Array2::from_shape_vec((hlen, 5), hmeta)
             .map_err(|x| Error::Internal(x.to_string()))?;
         file.new_dataset_builder()
@@ -355,10 +366,22 @@ pub fn read(path: &Path) -> Result<Checkpoint> {
         if hu.nrows() != hm.nrows() || hm.ncols() != 5 {
             return Err(bad("history"));
         }
+        // Storages of the history points (absent in older checkpoints: recomputed).
+        let hs = match file.dataset("history_storage") {
+            Ok(d) => {
+                let a = d.read_2d::<f64>().map_err(|_| bad("history_storage"))?;
+                if a.dim() != hu.dim() {
+                    return Err(bad("history_storage"));
+                }
+                Some(a)
+            }
+            Err(_) => None,
+        };
         let history = (0..hu.nrows())
             .map(|k| crate::solve::stepper::HistoryPoint {
                 t: hm[[k, 0]],
                 u: hu.row(k).to_vec(),
+                storage: hs.as_ref().map(|a| a.row(k).to_vec()).unwrap_or_default(),
                 inflow: [hm[[k, 1]], hm[[k, 2]]],
                 throughput: [hm[[k, 3]], hm[[k, 4]]],
             })
@@ -367,6 +390,11 @@ pub fn read(path: &Path) -> Result<Checkpoint> {
             t: one("time_s")?,
             dt: one("dt_s")?,
             u: v("unknowns")?,
+            // Absent in older checkpoints: recomputed by the stepper.
+            storage: match file.dataset("storage") {
+                Ok(_) => v("storage")?,
+                Err(_) => Vec::new(),
+            },
             inflow: two("inflow")?,
             throughput: two("throughput")?,
             initial_totals: two("initial_totals")?,
@@ -410,6 +438,9 @@ pub fn read(path: &Path) -> Result<Checkpoint> {
         }
         if state.initial_storage.len() != state.u.len() {
             return Err(bad("initial_storage"));
+        }
+        if !state.storage.is_empty() && state.storage.len() != state.u.len() {
+            return Err(bad("storage"));
         }
         if state.history.iter().any(|h| h.u.len() != state.u.len()) {
             return Err(bad("history"));

@@ -145,6 +145,29 @@ pub fn cell_props<const N: usize>(
 }
 
 impl CellProps<3> {
+    /// The properties at the state (t, h, rv), displaced by `du` = (t, h, rv) − the state
+    /// of this evaluation, to first order (the unknowns themselves exactly).
+    pub fn taylor(&self, t: f64, h: f64, rv: f64, du: &[f64; 3]) -> CellProps<0> {
+        CellProps {
+            t: Dual::cst(t),
+            h: Dual::cst(h),
+            rv: Dual::cst(rv),
+            theta: self.theta.taylor(du),
+            theta_a: self.theta_a.taylor(du),
+            hr: self.hr.taylor(du),
+            rvs: self.rvs.taylor(du),
+            drvs: self.drvs.taylor(du),
+            rveq: self.rveq.taylor(du),
+            k: self.k.taylor(du),
+            kt: self.kt.taylor(du),
+            dv: self.dv.taylor(du),
+            eta: self.eta.taylor(du),
+            lambda: self.lambda.taylor(du),
+            energy: self.energy.taylor(du),
+            water: self.water.taylor(du),
+            vapor: self.vapor.taylor(du),
+        }
+    }
     /// The values alone (what the residual-only path computes).
     pub fn values(&self) -> CellProps<0> {
         CellProps {

@@ -51,6 +51,16 @@ impl<const N: usize> Dual<N> {
         }
         Dual { v: x.v, d }
     }
+    /// The first-order Taylor value at a point displaced by `du` from where this dual was
+    /// evaluated, v + Σ dₖ duₖ, as a dual without derivative slots.
+    #[inline]
+    pub fn taylor(&self, du: &[f64; N]) -> Dual<0> {
+        let mut v = self.v;
+        for (d, x) in self.d.iter().zip(du.iter()) {
+            v += d * x;
+        }
+        Dual { v, d: [] }
+    }
     /// The value alone, as a dual without derivative slots.
     #[inline]
     pub fn value_only(self) -> Dual<0> {

@@ -202,6 +202,22 @@ pub fn face_flux<const N: usize, const M: usize>(
 }
 
 impl FaceFlux<6> {
+    /// The fluxes with the unknowns of the two points displaced by `du` (slots as the
+    /// derivatives), to first order; the magnitudes are kept.
+    pub fn taylor(&self, du: &[f64; 6]) -> FaceFlux<0> {
+        FaceFlux {
+            liquid_iso: self.liquid_iso.taylor(du),
+            liquid_th: self.liquid_th.taylor(du),
+            vapor_iso: self.vapor_iso.taylor(du),
+            vapor_th: self.vapor_th.taylor(du),
+            conduction: self.conduction.taylor(du),
+            t_face: self.t_face.taylor(du),
+            scale_water: self.scale_water,
+            scale_energy: self.scale_energy,
+            operands_water: self.operands_water,
+            operands_energy: self.operands_energy,
+        }
+    }
     /// The values alone (what the residual-only path computes).
     pub fn values(&self) -> FaceFlux<0> {
         FaceFlux {

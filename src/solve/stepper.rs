@@ -96,6 +96,9 @@ pub struct StepInfo {
 pub struct HistoryPoint {
     pub t: f64,
     pub u: Vec<f64>,
+    /// Storages at `u` (3 per cell, as [`StepState::storage`]); empty when not known
+    /// (checkpoints written before they were kept), then recomputed.
+    pub storage: Vec<f64>,
     pub inflow: [f64; 2],
     pub throughput: [f64; 2],
 }
@@ -105,6 +108,7 @@ impl HistoryPoint {
         HistoryPoint {
             t: 0.0,
             u: vec![0.0; len],
+            storage: vec![0.0; len],
             inflow: [0.0; 2],
             throughput: [0.0; 2],
         }
@@ -120,6 +124,11 @@ pub struct StepState {
     pub dt: f64,
     /// Unknowns, 3 per cell (T, h, rv).
     pub u: Vec<f64>,
+    /// Storages at `u` (3 per cell, as [`System::storage_into`]) from the evaluation that
+    /// accepted it: the multistep formula advances these, so they are part of the state
+    /// (a re-evaluation may differ in the last bits, see `System::evaluate`). Empty when
+    /// not known (older checkpoints), then recomputed.
+    pub storage: Vec<f64>,
     /// Cumulative net boundary inflow since the start: [energy J m⁻², water kg m⁻²].
     pub inflow: [f64; 2],
     /// Cumulative |top flux| + |bottom flux| (for relative balance errors).
@@ -147,13 +156,8 @@ pub struct Stepper {
     lin: Box<dyn LinearSolver>,
     work: NewtonWork,
     u_old: Vec<f64>,
-    m_old: Vec<f64>,
-    /// Storages at the current state (kept from the last accepted step's evaluation).
-    m_cur: Vec<f64>,
     hist: Vec<f64>,
     pred: Vec<f64>,
-    /// Storages of the history points (recomputed from `history[k].u` when it changes).
-    m_hist: Vec<Vec<f64>>,
 }
 
 /// Largest step ratio Δt_{n+1}/Δt_n for the BDF order (index = order).
@@ -200,22 +204,30 @@ impl Stepper {
         lin: Box<dyn LinearSolver>,
     ) -> Self {
         let n = sys.n;
+        let mut state = state;
+        // Storages not known (older checkpoints): from a full evaluation.
+        sys.forget_linearization();
+        for hp in state.history.iter_mut() {
+            if hp.storage.len() != 3 * n {
+                sys.evaluate(hp.t, &hp.u);
+                hp.storage = vec![0.0; 3 * n];
+                sys.storage_into(&mut hp.storage);
+            }
+        }
         sys.evaluate(state.t, &state.u);
-        let mut s = Stepper {
+        if state.storage.len() != 3 * n {
+            state.storage = vec![0.0; 3 * n];
+            sys.storage_into(&mut state.storage);
+        }
+        Stepper {
             state,
             opts,
             lin,
             work: NewtonWork::new(n),
             u_old: vec![0.0; 3 * n],
-            m_old: vec![0.0; 3 * n],
-            m_cur: vec![0.0; 3 * n],
             hist: vec![0.0; 3 * n],
             pred: vec![0.0; 3 * n],
-            m_hist: Vec::new(),
-        };
-        s.refresh_history_storage(sys);
-        sys.storage_into(&mut s.m_cur);
-        s
+        }
     }
 
     /// Fresh state at time `t` from unknowns `u`.
@@ -227,6 +239,7 @@ impl Stepper {
             t,
             dt,
             initial_totals: sys.totals(),
+            storage: initial_storage.clone(),
             initial_storage,
             u,
             inflow: [0.0; 2],
@@ -239,22 +252,10 @@ impl Stepper {
         }
     }
 
-    fn refresh_history_storage(&mut self, sys: &mut System) {
-        let n = sys.n;
-        self.m_hist
-            .resize(self.state.history.len(), vec![0.0; 3 * n]);
-        for (k, hp) in self.state.history.iter().enumerate() {
-            sys.evaluate(hp.t, &hp.u);
-            sys.storage_into(&mut self.m_hist[k]);
-        }
-        sys.evaluate(self.state.t, &self.state.u);
-    }
-
     /// Forgets the multistep history (after a discontinuity in the forcing): the next
     /// step is of order 1.
     pub fn restart_history(&mut self) {
         self.state.history.clear();
-        self.m_hist.clear();
         self.state.order = 1;
         self.state.steps_at_order = 0;
         self.state.last_error = 0.0;
@@ -318,8 +319,8 @@ impl Stepper {
             })
         };
         let pm = |k: usize| -> f64 {
-            (1..=q).fold(lag[0] * self.m_old[k], |a, j| {
-                a + lag[j] * self.m_hist[j - 1][k]
+            (1..=q).fold(lag[0] * s.storage[k], |a, j| {
+                a + lag[j] * s.history[j - 1].storage[k]
             })
         };
         let mut err = 0.0f64;
@@ -355,7 +356,6 @@ impl Stepper {
     pub fn step(&mut self, sys: &mut System, t_stop: f64) -> Result<StepInfo, StepFailure> {
         let n = sys.n;
         self.u_old.copy_from_slice(&self.state.u);
-        self.m_old.copy_from_slice(&self.m_cur);
         let bdf = match self.opts.integrator {
             Integrator::Bdf {
                 max_order,
@@ -411,9 +411,9 @@ impl Stepper {
             bdf_weights(&tau[..=k], &mut alpha);
             let c = alpha[0];
             for i in 0..3 * n {
-                let mut hsum = alpha[1] * self.m_old[i];
+                let mut hsum = alpha[1] * s.storage[i];
                 for j in 2..=k {
-                    hsum += alpha[j] * self.m_hist[j - 2][i];
+                    hsum += alpha[j] * s.history[j - 2].storage[i];
                 }
                 self.hist[i] = -hsum;
             }
@@ -630,25 +630,21 @@ impl Stepper {
                     None => 1,
                 };
                 // Reuse the oldest point's buffers once the history is full.
-                let (mut point, mut m) = if s.history.len() >= keep {
-                    (
-                        s.history
-                            .pop()
-                            .unwrap_or_else(|| HistoryPoint::empty(3 * n)),
-                        self.m_hist.pop().unwrap_or_else(|| vec![0.0; 3 * n]),
-                    )
+                let mut point = if s.history.len() >= keep {
+                    s.history
+                        .pop()
+                        .unwrap_or_else(|| HistoryPoint::empty(3 * n))
                 } else {
-                    (HistoryPoint::empty(3 * n), vec![0.0; 3 * n])
+                    HistoryPoint::empty(3 * n)
                 };
                 point.t = s.t;
                 point.u.copy_from_slice(&self.u_old);
                 point.inflow = s.inflow;
                 point.throughput = s.throughput;
-                m.copy_from_slice(&self.m_old);
+                // The old storages go with the point; the new ones are filled below.
+                std::mem::swap(&mut point.storage, &mut s.storage);
                 s.history.insert(0, point);
-                self.m_hist.insert(0, m);
                 s.history.truncate(keep);
-                self.m_hist.truncate(keep);
             }
             s.inflow = new_inflow;
             s.throughput = new_throughput;
@@ -656,7 +652,7 @@ impl Stepper {
             s.dt = (base * factor).clamp(self.opts.dt_min, self.opts.dt_max);
             s.t = t_new;
             // sys holds the evaluation at the new state (Newton's last assembly).
-            sys.storage_into(&mut self.m_cur);
+            sys.storage_into(&mut s.storage);
             return Ok(StepInfo {
                 dt,
                 newton_iterations: stats.iterations,

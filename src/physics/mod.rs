@@ -312,36 +312,50 @@ impl System {
         ([top[ENERGY].v, top[WATER].v], [bot[ENERGY].v, bot[WATER].v])
     }
 
+    /// Magnitude of the terms of row set of cell `i` from the last evaluation (storage
+    /// terms plus the flux scales of both faces), and its round-off floor (16 ε times the
+    /// operands of the storage terms and of both faces' fluxes): [energy, water, vapour].
+    #[inline]
+    fn row_terms(&self, i: usize, c: f64, hist: &[f64]) -> ([f64; 3], [f64; 3]) {
+        const K: f64 = 16.0 * f64::EPSILON;
+        let w = self.widths[i];
+        let cp = &self.cells[i];
+        let (fa, fb) = (&self.faces[i], &self.faces[i + 1]);
+        let (ta, tb) = (&self.face_totals[i], &self.face_totals[i + 1]);
+        let store_e = w * ((c * cp.energy.v).abs() + hist[3 * i + ENERGY].abs());
+        let store_w = w * ((c * cp.water.v).abs() + hist[3 * i + WATER].abs());
+        let se = |f: &FaceFlux<0>, t: &[D0; 3]| f.scale_energy.max(t[ENERGY].v.abs());
+        let sw = |f: &FaceFlux<0>, t: &[D0; 3]| f.scale_water.max(t[WATER].v.abs());
+        let vapor_algebraic = cp.rv.v.abs() + cp.rveq.v.abs();
+        let vapor_scale = match self.physics.vapor_mode {
+            VaporMode::Kinetic { rate: b } => {
+                let sv = |f: &FaceFlux<0>| f.vapor_iso.v.abs() + f.vapor_th.v.abs();
+                w * ((c * cp.vapor.v).abs() + hist[3 * i + VAPOR].abs() + b * vapor_algebraic)
+                    + sv(fa)
+                    + sv(fb)
+            }
+            VaporMode::Equilibrium => vapor_algebraic,
+        };
+        (
+            [
+                store_e + se(fa, ta) + se(fb, tb),
+                store_w + sw(fa, ta) + sw(fb, tb),
+                vapor_scale + 1e-300,
+            ],
+            [
+                K * (store_e + fa.operands_energy + fb.operands_energy),
+                K * (store_w + fa.operands_water + fb.operands_water),
+                K * vapor_algebraic,
+            ],
+        )
+    }
+
     /// Magnitude of the terms of every residual row (3 per cell) from the last evaluation:
     /// storage terms plus the flux scales of both faces. Newton judges convergence by
     /// |R| against this, so round-off in large cancelling terms is not mistaken for error.
     pub fn residual_scale_into(&self, c: f64, hist: &[f64], out: &mut [f64]) {
-        let rate = match self.physics.vapor_mode {
-            VaporMode::Kinetic { rate } => Some(rate),
-            VaporMode::Equilibrium => None,
-        };
         for i in 0..self.n {
-            let w = self.widths[i];
-            let cp = &self.cells[i];
-            let (fa, fb) = (&self.faces[i], &self.faces[i + 1]);
-            let (ta, tb) = (&self.face_totals[i], &self.face_totals[i + 1]);
-            let sw = |f: &FaceFlux<0>, t: &[D0; 3]| f.scale_water.max(t[WATER].v.abs());
-            let se = |f: &FaceFlux<0>, t: &[D0; 3]| f.scale_energy.max(t[ENERGY].v.abs());
-            let sv = |f: &FaceFlux<0>| f.vapor_iso.v.abs() + f.vapor_th.v.abs();
-            out[3 * i + ENERGY] = w * ((c * cp.energy.v).abs() + hist[3 * i + ENERGY].abs())
-                + se(fa, ta)
-                + se(fb, tb);
-            out[3 * i + WATER] =
-                w * ((c * cp.water.v).abs() + hist[3 * i + WATER].abs()) + sw(fa, ta) + sw(fb, tb);
-            out[3 * i + VAPOR] = if let Some(b) = rate {
-                w * ((c * cp.vapor.v).abs()
-                    + hist[3 * i + VAPOR].abs()
-                    + b * (cp.rv.v.abs() + cp.rveq.v.abs()))
-                    + sv(fa)
-                    + sv(fb)
-            } else {
-                cp.rv.v.abs() + cp.rveq.v.abs()
-            } + 1e-300;
+            out[3 * i..3 * i + 3].copy_from_slice(&self.row_terms(i, c, hist).0);
         }
     }
 
@@ -349,21 +363,39 @@ impl System {
     /// 16 ε times the operands of the storage terms and of both faces' fluxes. A residual
     /// below it is as small as floating point can make it.
     pub fn roundoff_into(&self, c: f64, hist: &[f64], out: &mut [f64]) {
-        const K: f64 = 16.0 * f64::EPSILON;
         for i in 0..self.n {
+            out[3 * i..3 * i + 3].copy_from_slice(&self.row_terms(i, c, hist).1);
+        }
+    }
+
+    /// What Newton's convergence test needs from the last evaluation, in one pass: per
+    /// row, the scale against which `tol` is applied (the terms' magnitude, or the
+    /// round-off floor / `tol` where that is larger, so that a row converges at its
+    /// floor), into `scale`; and for the balance test, per conserved quantity [energy,
+    /// water], the round-off floors summed over the column and what the cells' storages
+    /// move, Σ w |c M − hist|.
+    pub fn convergence_scales_into(
+        &self,
+        c: f64,
+        hist: &[f64],
+        tol: f64,
+        scale: &mut [f64],
+    ) -> ([f64; 2], [f64; 2]) {
+        let mut floor_sum = [0.0; 2];
+        let mut moved = [0.0; 2];
+        for i in 0..self.n {
+            let (s, f) = self.row_terms(i, c, hist);
+            for r in 0..3 {
+                scale[3 * i + r] = s[r].max(f[r] / tol);
+            }
             let w = self.widths[i];
             let cp = &self.cells[i];
-            let (fa, fb) = (&self.faces[i], &self.faces[i + 1]);
-            out[3 * i + ENERGY] = K
-                * (w * ((c * cp.energy.v).abs() + hist[3 * i + ENERGY].abs())
-                    + fa.operands_energy
-                    + fb.operands_energy);
-            out[3 * i + WATER] = K
-                * (w * ((c * cp.water.v).abs() + hist[3 * i + WATER].abs())
-                    + fa.operands_water
-                    + fb.operands_water);
-            out[3 * i + VAPOR] = K * (cp.rv.v.abs() + cp.rveq.v.abs());
+            floor_sum[0] += f[ENERGY];
+            floor_sum[1] += f[WATER];
+            moved[0] += w * (c * cp.energy.v - hist[3 * i + ENERGY]).abs();
+            moved[1] += w * (c * cp.water.v - hist[3 * i + WATER]).abs();
         }
+        (floor_sum, moved)
     }
 
     /// Derivative of the storage terms `w·M(u)` of each cell with respect to its own

@@ -107,8 +107,6 @@ pub enum NewtonFailure {
 pub struct NewtonWork {
     pub res: Vec<f64>,
     pub scale: Vec<f64>,
-    /// Round-off floor of each row.
-    pub floor: Vec<f64>,
     pub dx: Vec<f64>,
     pub row: Vec<f64>,
     pub col: Vec<f64>,
@@ -130,7 +128,6 @@ impl NewtonWork {
         NewtonWork {
             res: vec![0.0; 3 * n],
             scale: vec![0.0; 3 * n],
-            floor: vec![0.0; 3 * n],
             dx: vec![0.0; 3 * n],
             row: vec![0.0; 3 * n],
             col: vec![0.0; 3 * n],
@@ -212,15 +209,12 @@ pub fn solve(
             sys.assemble(t, u, c, hist, &mut w.res, None)
                 .map_err(NewtonFailure::NonFinite)?;
         }
-        sys.residual_scale_into(c, hist, &mut w.scale);
         // Each row converges at tol × its scale or at its round-off floor, whichever is
         // larger: folded into the scale.
-        sys.roundoff_into(c, hist, &mut w.floor);
-        for (s, f) in w.scale.iter_mut().zip(w.floor.iter()) {
-            *s = s.max(f / opts.residual_tol);
-        }
+        let (floor_sum, moved) =
+            sys.convergence_scales_into(c, hist, opts.residual_tol, &mut w.scale);
         let (r, cell, row) = worst(&w.res, &w.scale);
-        let balanced = balance_closed(sys, c, hist, &w.res, &w.floor, opts.balance_tol);
+        let balanced = balance_closed(sys, &w.res, floor_sum, moved, opts.balance_tol);
         log::trace!(
             "newton t {t:.6e} it {} worst scaled residual {r:.3e} at cell {cell} row {row} (fresh Jacobian: {fresh})",
             stats.iterations
@@ -331,29 +325,16 @@ pub fn solve(
 /// plus the storage changes of the cells, Σ w |c M − hist| — plus the round-off of the
 /// sum. The sum is the step's balance error: the storage change minus the net boundary
 /// inflow (the face fluxes between cells cancel in it).
-fn balance_closed(
-    sys: &System,
-    c: f64,
-    hist: &[f64],
-    res: &[f64],
-    floor: &[f64],
-    tol: f64,
-) -> bool {
+/// `floor` and `moved` per quantity [energy, water] as from
+/// [`System::convergence_scales_into`].
+fn balance_closed(sys: &System, res: &[f64], floor: [f64; 2], moved: [f64; 2], tol: f64) -> bool {
     let (top, bot) = sys.boundary_fluxes();
-    for (k, row) in [ENERGY, WATER].into_iter().enumerate() {
-        let mut sum = 0.0;
-        let mut fl = 0.0;
-        let mut moved = top[k].abs() + bot[k].abs();
-        for i in 0..sys.n {
-            sum += res[3 * i + row];
-            fl += floor[3 * i + row];
-            moved += sys.widths[i] * (c * sys.storage(i)[row] - hist[3 * i + row]).abs();
-        }
-        if sum.abs() > tol * moved + fl {
-            return false;
-        }
+    let mut sum = [0.0; 2];
+    for r in res.chunks_exact(3) {
+        sum[0] += r[ENERGY];
+        sum[1] += r[WATER];
     }
-    true
+    (0..2).all(|k| sum[k].abs() <= tol * (moved[k] + top[k].abs() + bot[k].abs()) + floor[k])
 }
 
 /// `b = diag(row) (a + dc·S) diag(col)` in one pass, with `S` the diagonal storage blocks

@@ -72,7 +72,13 @@ pub fn equilibrium_vapor<const N: usize>(
         *x = dhr_dh * h.d[k] + dhr_dt * t.d[k];
     }
     let hr = Dual { v: hr, d: hr_d };
-    let (s0, s1, s2) = water::saturated_vapor_density(t.v);
+    // Without derivative slots (the residual-only path) d²rvs/dT² is not needed.
+    let (s0, s1, s2) = if N == 0 {
+        let (s0, s1) = water::saturated_vapor_density_d1(t.v);
+        (s0, s1, 0.0)
+    } else {
+        water::saturated_vapor_density(t.v)
+    };
     let rvs = t.chain(s0, s1);
     let drvs = t.chain(s1, s2);
     (hr, rvs, drvs, hr * rvs)

@@ -5,19 +5,23 @@
 
 use std::ops::{Add, Div, Mul, Neg, Sub};
 
+///
+/// With `SECOND = false` the second derivative is not computed (it stays 0): the value and
+/// first derivative come from the very same operations as with `SECOND = true`, so both
+/// agree bitwise (the residual-only path of the solver relies on that).
 #[derive(Debug, Clone, Copy, PartialEq)]
-pub(crate) struct Jet {
+pub(crate) struct Jet<const SECOND: bool = true> {
     /// Value.
     pub v: f64,
     /// First derivative.
     pub d: f64,
-    /// Second derivative.
+    /// Second derivative (0 when `SECOND` is false).
     pub dd: f64,
 }
 
-impl Jet {
+impl<const S: bool> Jet<S> {
     /// The independent variable x (dx/dx = 1).
-    pub fn var(x: f64) -> Jet {
+    pub fn var(x: f64) -> Self {
         Jet {
             v: x,
             d: 1.0,
@@ -25,51 +29,64 @@ impl Jet {
         }
     }
     /// A constant.
-    pub fn cst(c: f64) -> Jet {
+    pub fn cst(c: f64) -> Self {
         Jet {
             v: c,
             d: 0.0,
             dd: 0.0,
         }
     }
-    pub fn sqrt(self) -> Jet {
+    pub fn sqrt(self) -> Self {
         let s = self.v.sqrt();
         let half_inv = 0.5 / s;
         let d = self.d * half_inv;
         // a = s² ⇒ a'' = 2 s'² + 2 s s''.
-        let dd = (self.dd - 2.0 * d * d) * half_inv;
+        let dd = if S {
+            (self.dd - 2.0 * d * d) * half_inv
+        } else {
+            0.0
+        };
         Jet { v: s, d, dd }
     }
-    pub fn exp(self) -> Jet {
+    pub fn exp(self) -> Self {
         let e = self.v.exp();
         Jet {
             v: e,
             d: e * self.d,
-            dd: e * (self.dd + self.d * self.d),
+            dd: if S {
+                e * (self.dd + self.d * self.d)
+            } else {
+                0.0
+            },
         }
     }
     /// self^n for a constant integer exponent.
-    pub fn powi(self, n: i32) -> Jet {
+    pub fn powi(self, n: i32) -> Self {
         match n {
-            0 => Jet::cst(1.0),
+            0 => Jet::<S>::cst(1.0),
             1 => self,
             _ => {
                 let p = self.v.powi(n);
                 let p1 = f64::from(n) * self.v.powi(n - 1);
-                let p2 = f64::from(n) * f64::from(n - 1) * self.v.powi(n - 2);
+                let dd = if S {
+                    let p2 = f64::from(n) * f64::from(n - 1) * self.v.powi(n - 2);
+                    p2 * self.d * self.d + p1 * self.dd
+                } else {
+                    0.0
+                };
                 Jet {
                     v: p,
                     d: p1 * self.d,
-                    dd: p2 * self.d * self.d + p1 * self.dd,
+                    dd,
                 }
             }
         }
     }
 }
 
-impl Add for Jet {
-    type Output = Jet;
-    fn add(self, o: Jet) -> Jet {
+impl<const S: bool> Add for Jet<S> {
+    type Output = Self;
+    fn add(self, o: Self) -> Self {
         Jet {
             v: self.v + o.v,
             d: self.d + o.d,
@@ -77,9 +94,9 @@ impl Add for Jet {
         }
     }
 }
-impl Sub for Jet {
-    type Output = Jet;
-    fn sub(self, o: Jet) -> Jet {
+impl<const S: bool> Sub for Jet<S> {
+    type Output = Self;
+    fn sub(self, o: Self) -> Self {
         Jet {
             v: self.v - o.v,
             d: self.d - o.d,
@@ -87,30 +104,38 @@ impl Sub for Jet {
         }
     }
 }
-impl Mul for Jet {
-    type Output = Jet;
-    fn mul(self, o: Jet) -> Jet {
+impl<const S: bool> Mul for Jet<S> {
+    type Output = Self;
+    fn mul(self, o: Self) -> Self {
         Jet {
             v: self.v * o.v,
             d: self.d * o.v + self.v * o.d,
-            dd: self.dd * o.v + 2.0 * self.d * o.d + self.v * o.dd,
+            dd: if S {
+                self.dd * o.v + 2.0 * self.d * o.d + self.v * o.dd
+            } else {
+                0.0
+            },
         }
     }
 }
-impl Div for Jet {
-    type Output = Jet;
-    fn div(self, o: Jet) -> Jet {
+impl<const S: bool> Div for Jet<S> {
+    type Output = Self;
+    fn div(self, o: Self) -> Self {
         // One division; the rest by the reciprocal.
         let inv = 1.0 / o.v;
         let q = self.v * inv;
         let d = (self.d - q * o.d) * inv;
-        let dd = (self.dd - 2.0 * d * o.d - q * o.dd) * inv;
+        let dd = if S {
+            (self.dd - 2.0 * d * o.d - q * o.dd) * inv
+        } else {
+            0.0
+        };
         Jet { v: q, d, dd }
     }
 }
-impl Neg for Jet {
-    type Output = Jet;
-    fn neg(self) -> Jet {
+impl<const S: bool> Neg for Jet<S> {
+    type Output = Self;
+    fn neg(self) -> Self {
         Jet {
             v: -self.v,
             d: -self.d,
@@ -118,27 +143,27 @@ impl Neg for Jet {
         }
     }
 }
-impl Add<f64> for Jet {
-    type Output = Jet;
-    fn add(self, c: f64) -> Jet {
+impl<const S: bool> Add<f64> for Jet<S> {
+    type Output = Self;
+    fn add(self, c: f64) -> Self {
         Jet {
             v: self.v + c,
             ..self
         }
     }
 }
-impl Sub<f64> for Jet {
-    type Output = Jet;
-    fn sub(self, c: f64) -> Jet {
+impl<const S: bool> Sub<f64> for Jet<S> {
+    type Output = Self;
+    fn sub(self, c: f64) -> Self {
         Jet {
             v: self.v - c,
             ..self
         }
     }
 }
-impl Mul<f64> for Jet {
-    type Output = Jet;
-    fn mul(self, c: f64) -> Jet {
+impl<const S: bool> Mul<f64> for Jet<S> {
+    type Output = Self;
+    fn mul(self, c: f64) -> Self {
         Jet {
             v: self.v * c,
             d: self.d * c,
@@ -146,9 +171,9 @@ impl Mul<f64> for Jet {
         }
     }
 }
-impl Div<f64> for Jet {
-    type Output = Jet;
-    fn div(self, c: f64) -> Jet {
+impl<const S: bool> Div<f64> for Jet<S> {
+    type Output = Self;
+    fn div(self, c: f64) -> Self {
         let inv = 1.0 / c;
         Jet {
             v: self.v * inv,
@@ -157,28 +182,28 @@ impl Div<f64> for Jet {
         }
     }
 }
-impl Add<Jet> for f64 {
-    type Output = Jet;
-    fn add(self, j: Jet) -> Jet {
+impl<const S: bool> Add<Jet<S>> for f64 {
+    type Output = Jet<S>;
+    fn add(self, j: Jet<S>) -> Jet<S> {
         j + self
     }
 }
-impl Sub<Jet> for f64 {
-    type Output = Jet;
-    fn sub(self, j: Jet) -> Jet {
+impl<const S: bool> Sub<Jet<S>> for f64 {
+    type Output = Jet<S>;
+    fn sub(self, j: Jet<S>) -> Jet<S> {
         -j + self
     }
 }
-impl Mul<Jet> for f64 {
-    type Output = Jet;
-    fn mul(self, j: Jet) -> Jet {
+impl<const S: bool> Mul<Jet<S>> for f64 {
+    type Output = Jet<S>;
+    fn mul(self, j: Jet<S>) -> Jet<S> {
         j * self
     }
 }
-impl Div<Jet> for f64 {
-    type Output = Jet;
-    fn div(self, j: Jet) -> Jet {
-        Jet::cst(self) / j
+impl<const S: bool> Div<Jet<S>> for f64 {
+    type Output = Jet<S>;
+    fn div(self, j: Jet<S>) -> Jet<S> {
+        Jet::<S>::cst(self) / j
     }
 }
 
@@ -193,7 +218,7 @@ mod tests {
     #[test]
     fn jet_matches_closed_form() {
         let x = 2.0_f64;
-        let j = Jet::var(x);
+        let j: Jet = Jet::var(x);
         let f = j.sqrt() * (1.0 / j).exp() + j.powi(4) / 4.0;
         let e = (1.0 / x).exp();
         let s = x.sqrt();

@@ -51,7 +51,7 @@ const N4: [f64; 10] = [
 
 /// A jet in T, or a constant when T lies outside [lo, hi] (the law is then held at the
 /// value of the nearest end, derivatives 0).
-fn clamped_var(t: f64, lo: f64, hi: f64) -> Jet {
+fn clamped_var<const S: bool>(t: f64, lo: f64, hi: f64) -> Jet<S> {
     if t.is_finite() && !(lo..=hi).contains(&t) {
         Jet::cst(t.clamp(lo, hi))
     } else {
@@ -60,7 +60,7 @@ fn clamped_var(t: f64, lo: f64, hi: f64) -> Jet {
 }
 
 /// IF97 Eq. 30 on a jet in T: psat [Pa].
-fn psat_of(tj: Jet) -> Jet {
+fn psat_of<const S: bool>(tj: Jet<S>) -> Jet<S> {
     let n = &N4;
     // ϑ = T/T* + n9/(T/T* − n10), T* = 1 K
     let th = tj + n[8] / (tj - n[9]);
@@ -100,9 +100,20 @@ pub fn saturation_pressure_d2(t: f64) -> (f64, f64, f64) {
 /// 60 °C and 1.2 % at 90 °C (vapour non-ideality; see tests/props_water.rs). The derivatives
 /// are exact derivatives of this expression (psat from [`saturation_pressure`], same range).
 pub fn saturated_vapor_density(t: f64) -> (f64, f64, f64) {
-    let tj = clamped_var(t, SATURATION_T_EVAL_MIN, CRITICAL_TEMPERATURE);
-    let r = psat_of(tj) * (MOLAR_MASS_WATER / GAS_CONSTANT) / tj;
+    let r = saturated_vapor_density_jet::<true>(t);
     (r.v, r.d, r.dd)
+}
+
+/// The value and first derivative of [`saturated_vapor_density`], bitwise the same,
+/// without the cost of the second derivative.
+pub fn saturated_vapor_density_d1(t: f64) -> (f64, f64) {
+    let r = saturated_vapor_density_jet::<false>(t);
+    (r.v, r.d)
+}
+
+fn saturated_vapor_density_jet<const S: bool>(t: f64) -> Jet<S> {
+    let tj = clamped_var::<S>(t, SATURATION_T_EVAL_MIN, CRITICAL_TEMPERATURE);
+    psat_of(tj) * (MOLAR_MASS_WATER / GAS_CONSTANT) / tj
 }
 
 /// dL/dT of the model latent heat, cv − cw [J kg⁻¹ K⁻¹].
@@ -319,4 +330,23 @@ pub fn head_from_relative_humidity(hr: f64, t: f64) -> f64 {
     }
     let hr = if hr > 0.0 { hr } else { f64::MIN_POSITIVE };
     t * hr.ln() / KELVIN
+}
+
+#[cfg(test)]
+mod tests {
+    /// The first-derivative variant gives bitwise the value and slope of the full one,
+    /// inside and outside the evaluated range (the residual-only path relies on it).
+    #[test]
+    fn first_derivative_variant_matches_bitwise() {
+        for k in 0..=2000 {
+            let t = 200.0 + 0.25 * f64::from(k);
+            let (v, d, _) = super::saturated_vapor_density(t);
+            let (v1, d1) = super::saturated_vapor_density_d1(t);
+            assert_eq!(
+                (v.to_bits(), d.to_bits()),
+                (v1.to_bits(), d1.to_bits()),
+                "T = {t}"
+            );
+        }
+    }
 }

@@ -39,7 +39,7 @@ impl System {
         let mut f = match &bc.water {
             SurfaceWater::Head(s) => {
                 let g = self.ghost(0, tg, Dual::cst(s.value(t)), None);
-                face_flux(&g, &c0, 0, 3, 0.0, d0, avg)
+                face_flux(&g, &c0, 0, N, 0.0, d0, avg)
             }
             SurfaceWater::Atmosphere {
                 relative_humidity,
@@ -47,16 +47,16 @@ impl System {
             } => {
                 let rh = relative_humidity.value(t);
                 let g = self.ghost(0, tg, head_from_rh(rh, tg), None);
-                let mut f = face_flux(&g, &c0, 0, 3, 0.0, d0, avg);
+                let mut f = face_flux(&g, &c0, 0, N, 0.0, d0, avg);
                 f.liquid_iso = Dual::cst(0.0);
                 f.liquid_th = Dual::cst(0.0);
                 if let Some(r) = resistance {
                     let ra = r.value(t).max(0.0);
                     // jv = −(rv0 − rva)/(ra + d0/Dv0): air-side and soil-side resistances
                     // in series; reported as isothermal.
-                    let rv0 = Dual::lift(c0.rv, 3);
+                    let rv0 = Dual::lift(c0.rv, N);
                     let rva = Dual::lift(g.rv, 0);
-                    let dv0 = Dual::lift(c0.dv, 3);
+                    let dv0 = Dual::lift(c0.dv, N);
                     let total = if dv0.v > 0.0 {
                         (dv0.recip() * d0) + ra
                     } else {
@@ -73,7 +73,7 @@ impl System {
             }
             SurfaceWater::Flux { flux, ponding_head } => {
                 let g = self.ghost(0, tg, Dual::cst(*ponding_head), None);
-                let mut f = face_flux(&g, &c0, 0, 3, 0.0, d0, avg);
+                let mut f = face_flux(&g, &c0, 0, N, 0.0, d0, avg);
                 let q = flux.value(t);
                 // Infiltration cannot exceed what the soil takes with the surface ponded.
                 let capacity = f.liquid_iso;
@@ -89,7 +89,7 @@ impl System {
             }
             SurfaceWater::NoFlow => {
                 let g = self.ghost(0, tg, c0.h, Some(c0.rv));
-                let mut f = face_flux(&g, &c0, 0, 3, 0.0, d0, avg);
+                let mut f = face_flux(&g, &c0, 0, N, 0.0, d0, avg);
                 zero_water(&mut f);
                 f
             }
@@ -120,11 +120,11 @@ impl System {
         let mut f = match &bc.water {
             BottomWater::WaterTable(s) => {
                 let g = self.ghost(n - 1, tg, Dual::cst(s.value(t)), None);
-                face_flux(&cn, &g, 0, 3, dn, 0.0, avg)
+                face_flux(&cn, &g, 0, N, dn, 0.0, avg)
             }
             BottomWater::FreeDrainage => {
                 let g = self.ghost(n - 1, tg, cn.h, Some(cn.rv));
-                let mut f = face_flux(&cn, &g, 0, 3, dn, 0.0, avg);
+                let mut f = face_flux(&cn, &g, 0, N, dn, 0.0, avg);
                 zero_water(&mut f);
                 // Unit gradient: ql = K(h, T) of the bottom cell.
                 f.liquid_iso = Dual::lift(cn.k, 0);
@@ -132,7 +132,7 @@ impl System {
             }
             BottomWater::NoFlow => {
                 let g = self.ghost(n - 1, tg, cn.h, Some(cn.rv));
-                let mut f = face_flux(&cn, &g, 0, 3, dn, 0.0, avg);
+                let mut f = face_flux(&cn, &g, 0, N, dn, 0.0, avg);
                 zero_water(&mut f);
                 f
             }

@@ -1,9 +1,10 @@
-//! Per-cell material state: every property the residual needs, as `Dual<3>` values with
-//! derivatives with respect to the cell's own (T, h, rv), or as `Dual<0>` (values only)
-//! on the residual-only path. Both paths run the same code, so their values agree bitwise.
+//! Per-cell material state: every property the residual needs, as `Dual<N>` values with
+//! derivatives with respect to the cell's own (T, h, rv) (N = 3, kinetic mode) or (T, h)
+//! (N = 2, equilibrium mode, where rv = rveq(T, h)), or as `Dual<0>` (values only) on the
+//! residual-only path. All paths run the same code, so their values agree bitwise.
 
 use super::dual::Dual;
-use crate::model::{Physics, Soil};
+use crate::model::{Physics, Soil, VaporMode};
 use crate::props::constants::{
     GAS_CONSTANT, GRAVITY, LATENT_HEAT_T0, MOLAR_MASS_WATER, T_REF, VAPOR_HEAT_CAPACITY,
     WATER_DENSITY, WATER_HEAT_CAPACITY,
@@ -103,6 +104,13 @@ pub fn cell_props<const N: usize>(
     let theta = h.chain(th, dth);
     let theta_a = (-theta + phi).max(Dual::cst(0.0));
     let (hr, rvs, drvs, rveq) = equilibrium_vapor(t, h);
+    // In equilibrium the vapour density is rveq(T, h) itself (the `rv` given is ignored):
+    // the physics then depends on T and h alone, and the algebraic vapour row of the
+    // system decouples (see `System::assemble`).
+    let rv = match physics.vapor_mode {
+        VaporMode::Equilibrium => rveq,
+        VaporMode::Kinetic { .. } => rv,
+    };
 
     let mut k = h.chain(kr, dkr) * soil.saturated_conductivity;
     if physics.viscosity_correction {
@@ -150,14 +158,19 @@ pub fn cell_props<const N: usize>(
     }
 }
 
-impl CellProps<3> {
-    /// The properties at the state (t, h, rv), displaced by `du` = (t, h, rv) − the state
-    /// of this evaluation, to first order (the unknowns themselves exactly).
-    pub fn taylor(&self, t: f64, h: f64, rv: f64, du: &[f64; 3]) -> CellProps<0> {
+impl<const N: usize> CellProps<N> {
+    /// The properties at the state (t, h, rv), displaced by `du` (the first N of
+    /// t, h, rv) from the state of this evaluation, to first order; the unknowns
+    /// themselves exactly (`rv`: None where it is not an unknown, equilibrium mode, and is
+    /// linearised like the other properties).
+    pub fn taylor(&self, t: f64, h: f64, rv: Option<f64>, du: &[f64; N]) -> CellProps<0> {
         CellProps {
             t: Dual::cst(t),
             h: Dual::cst(h),
-            rv: Dual::cst(rv),
+            rv: match rv {
+                Some(rv) => Dual::cst(rv),
+                None => self.rv.taylor(du),
+            },
             theta: self.theta.taylor(du),
             theta_a: self.theta_a.taylor(du),
             hr: self.hr.taylor(du),
@@ -174,6 +187,7 @@ impl CellProps<3> {
             vapor: self.vapor.taylor(du),
         }
     }
+
     /// The values alone (what the residual-only path computes).
     pub fn values(&self) -> CellProps<0> {
         CellProps {

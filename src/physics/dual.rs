@@ -1,8 +1,9 @@
 //! Forward-mode dual numbers with a fixed number of derivative slots.
 //!
 //! The residual is written once in terms of [`Dual`] values; the exact Jacobian falls out.
-//! Per-cell quantities use `Dual<3>` (slots: T, h, rv of the cell); face fluxes use
-//! `Dual<6>` (slots 0–2: the cell above, 3–5: the cell below). Constitutive laws return
+//! Per-cell quantities use `Dual<N>` (slots: T, h and, in kinetic mode, rv of the cell);
+//! face fluxes use `Dual<2N>` (slots 0..N: the cell above, N..2N: the cell below).
+//! Constitutive laws return
 //! value and derivative as plain `f64`s and are lifted with [`Dual::chain`].
 
 use std::ops::{Add, Div, Mul, Neg, Sub};

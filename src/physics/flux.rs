@@ -1,6 +1,7 @@
 //! Fluxes at a face between two points (cells or a cell and a boundary ghost point),
-//! positive downward. Face values are `Dual<6>`: slots 0–2 belong to the upper point,
-//! slots 3–5 to the lower one.
+//! positive downward. Face values are `Dual<M>` with M = 2N: slots 0..N belong to the
+//! upper point, slots N..2N to the lower one (N = 3: T, h, rv in kinetic mode; N = 2: T, h
+//! in equilibrium mode).
 
 use super::cell::{vapor_enthalpy, CellProps};
 use super::dual::Dual;
@@ -201,10 +202,10 @@ pub fn face_flux<const N: usize, const M: usize>(
     }
 }
 
-impl FaceFlux<6> {
+impl<const M: usize> FaceFlux<M> {
     /// The fluxes with the unknowns of the two points displaced by `du` (slots as the
     /// derivatives), to first order; the magnitudes are kept.
-    pub fn taylor(&self, du: &[f64; 6]) -> FaceFlux<0> {
+    pub fn taylor(&self, du: &[f64; M]) -> FaceFlux<0> {
         FaceFlux {
             liquid_iso: self.liquid_iso.taylor(du),
             liquid_th: self.liquid_th.taylor(du),

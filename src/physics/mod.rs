@@ -12,13 +12,15 @@
 
 pub mod boundary;
 pub mod cell;
+mod derivs;
 pub mod dual;
 pub mod flux;
 
 use crate::model::{BottomBc, Model, Periods, Physics, Soil, SurfaceBc, VaporMode};
 use crate::solve::blocktri::BlockTri;
 use cell::{cell_props, CellProps};
-use dual::{Dual, D0, D3, D6};
+use derivs::Derivs;
+use dual::{Dual, D0};
 use flux::{face_flux, FaceFlux};
 
 /// Index of the energy, water and vapour rows/storages within a cell.
@@ -57,29 +59,17 @@ pub struct System {
     pub cells: Vec<CellProps<0>>,
     pub faces: Vec<FaceFlux<0>>,
     pub face_totals: Vec<[D0; 3]>,
-    /// The same with derivatives, from the last evaluation that asked for them (the
-    /// Jacobian's source).
-    cells_d: Vec<CellProps<3>>,
-    faces_d: Vec<FaceFlux<6>>,
-    face_totals_d: Vec<[D6; 3]>,
-    /// The state of the evaluation with derivatives (empty before the first), and per
-    /// cell whether the last evaluation took its properties by linearisation from it.
-    state_d: Vec<f64>,
+    /// The last evaluation with derivatives (the Jacobian's source): 3 slots per cell
+    /// in kinetic mode, 2 in equilibrium mode (see `derivs`).
+    d_full: Derivs<3, 6>,
+    d_reduced: Derivs<2, 4>,
+    /// Per cell, whether the last value evaluation took it by linearisation.
     linear: Vec<bool>,
 }
 
-/// Largest relative change of a cell's unknowns since the evaluation with derivatives for
-/// which its properties are taken by linearisation from that evaluation.
-const LINEAR_CHANGE: f64 = 1e-10;
-
-/// The storages of a cell as an array in row order: energy, water, vapour.
-#[inline]
-fn storage_rows(cp: &CellProps<3>) -> [D3; 3] {
-    [cp.energy, cp.water, cp.vapor]
-}
-
 /// Fills cell properties, face fluxes and face totals of `sys` at state `u`, time `t`,
-/// with `N` derivative slots per cell and `M` per face (3 and 6, or 0 and 0 for values).
+/// with `N` derivative slots per cell and `M` = 2N per face (3 and 6, 2 and 4, or 0 and 0
+/// for values).
 fn evaluate_into<const N: usize, const M: usize>(
     sys: &System,
     t: f64,
@@ -105,7 +95,7 @@ fn evaluate_into<const N: usize, const M: usize>(
             &cells[j - 1],
             &cells[j],
             0,
-            3,
+            N,
             sys.d_below[j - 1],
             sys.d_above[j],
             avg,
@@ -124,12 +114,12 @@ impl System {
         let n = m.n_cells();
         let d_above = (0..n).map(|i| m.centers[i] - m.faces[i]).collect();
         let d_below = (0..n).map(|i| m.faces[i + 1] - m.centers[i]).collect();
-        let zero: CellProps<3> = cell_props(
+        let zero: CellProps<0> = cell_props(
             &model.soils[model.cell_soil[0]],
             &model.physics,
-            D3::cst(293.15),
-            D3::cst(-1.0),
-            D3::cst(0.01),
+            D0::cst(293.15),
+            D0::cst(-1.0),
+            D0::cst(0.01),
         );
         System {
             n,
@@ -143,13 +133,11 @@ impl System {
             physics: model.physics.clone(),
             surface: model.surface.clone(),
             bottom: model.bottom.clone(),
-            cells: vec![zero.values(); n],
+            cells: vec![zero; n],
             faces: vec![FaceFlux::zero(); n + 1],
             face_totals: vec![[D0::cst(0.0); 3]; n + 1],
-            cells_d: vec![zero; n],
-            faces_d: vec![FaceFlux::zero(); n + 1],
-            face_totals_d: vec![[D6::cst(0.0); 3]; n + 1],
-            state_d: Vec::new(),
+            d_full: Derivs::default(),
+            d_reduced: Derivs::default(),
             linear: vec![false; n],
         }
     }
@@ -169,14 +157,21 @@ impl System {
     /// Drops the evaluation with derivatives as the base of linearised evaluations: the
     /// next [`System::evaluate`] computes every cell in full.
     pub fn forget_linearization(&mut self) {
-        self.state_d.clear();
+        self.d_full.forget();
+        self.d_reduced.forget();
+    }
+
+    /// Whether the vapour unknown is algebraic (equilibrium mode): the evaluations with
+    /// derivatives then carry 2 slots per cell (T, h), not 3.
+    fn reduced(&self) -> bool {
+        matches!(self.physics.vapor_mode, VaporMode::Equilibrium)
     }
 
     /// Evaluates cell properties and all face fluxes (values only) at state `u` and
     /// time `t` [s].
     ///
     /// After an evaluation with derivatives (the Jacobian's), a cell whose unknowns moved
-    /// from that evaluation's by at most [`LINEAR_CHANGE`] relative (head: relative to
+    /// from that evaluation's by at most 1e-10 relative (head: relative to
     /// max(|h|, 0.01 m)) takes its properties by linearisation, value + derivatives ·
     /// change, and a face between two such cells its fluxes likewise. The error is of
     /// second order in the change, ~1e-20 relative times the square of the laws' slopes
@@ -188,94 +183,35 @@ impl System {
         let mut cells = std::mem::take(&mut self.cells);
         let mut faces = std::mem::take(&mut self.faces);
         let mut totals = std::mem::take(&mut self.face_totals);
-        if self.state_d.len() != u.len() {
-            evaluate_into(self, t, u, &mut cells, &mut faces, &mut totals);
+        let mut linear = std::mem::take(&mut self.linear);
+        let done = if self.reduced() {
+            self.d_reduced
+                .linearised(self, t, u, &mut cells, &mut faces, &mut totals, &mut linear)
         } else {
-            let n = self.n;
-            for (i, c) in cells.iter_mut().enumerate() {
-                let x = &u[3 * i..3 * i + 3];
-                let x0 = &self.state_d[3 * i..3 * i + 3];
-                let du = [x[0] - x0[0], x[1] - x0[1], x[2] - x0[2]];
-                let small = du[0].abs() <= LINEAR_CHANGE * x0[0].abs()
-                    && du[1].abs() <= LINEAR_CHANGE * x0[1].abs().max(1e-2)
-                    && du[2].abs() <= LINEAR_CHANGE * x0[2].abs();
-                self.linear[i] = small;
-                *c = if small {
-                    self.cells_d[i].taylor(x[0], x[1], x[2], &du)
-                } else {
-                    cell_props(
-                        &self.soils[self.cell_soil[i]],
-                        &self.physics,
-                        D0::var(x[0], 0),
-                        D0::var(x[1], 1),
-                        D0::var(x[2], 2),
-                    )
-                };
-            }
-            let avg = self.physics.face_conductivity;
-            for j in 1..n {
-                if self.linear[j - 1] && self.linear[j] {
-                    let a = &u[3 * (j - 1)..3 * j + 3];
-                    let b = &self.state_d[3 * (j - 1)..3 * j + 3];
-                    let du = [
-                        a[0] - b[0],
-                        a[1] - b[1],
-                        a[2] - b[2],
-                        a[3] - b[3],
-                        a[4] - b[4],
-                        a[5] - b[5],
-                    ];
-                    faces[j] = self.faces_d[j].taylor(&du);
-                    let td = &self.face_totals_d[j];
-                    totals[j] = [td[0].taylor(&du), td[1].taylor(&du), td[2].taylor(&du)];
-                } else {
-                    let f = face_flux(
-                        &cells[j - 1],
-                        &cells[j],
-                        0,
-                        3,
-                        self.d_below[j - 1],
-                        self.d_above[j],
-                        avg,
-                    );
-                    totals[j] = [f.energy(), f.water(), f.vapor()];
-                    faces[j] = f;
-                }
-            }
-            for (j, f) in [
-                (0, self.top_face(t, &cells[0])),
-                (n, self.bottom_face(t, &cells[n - 1])),
-            ] {
-                totals[j] = [f.energy(), f.water(), f.vapor()];
-                faces[j] = f;
-            }
+            self.d_full
+                .linearised(self, t, u, &mut cells, &mut faces, &mut totals, &mut linear)
+        };
+        if !done {
+            evaluate_into(self, t, u, &mut cells, &mut faces, &mut totals);
         }
         self.cells = cells;
         self.faces = faces;
         self.face_totals = totals;
+        self.linear = linear;
     }
 
     /// As [`System::evaluate`], with the derivatives the Jacobian needs; the values are
     /// copied to the value workspace, so both agree bitwise.
     pub fn evaluate_with_derivatives(&mut self, t: f64, u: &[f64]) {
-        let mut cells = std::mem::take(&mut self.cells_d);
-        let mut faces = std::mem::take(&mut self.faces_d);
-        let mut totals = std::mem::take(&mut self.face_totals_d);
-        evaluate_into(self, t, u, &mut cells, &mut faces, &mut totals);
-        for (v, d) in self.cells.iter_mut().zip(cells.iter()) {
-            *v = d.values();
+        if self.reduced() {
+            let mut d = std::mem::take(&mut self.d_reduced);
+            d.evaluate(self, t, u);
+            self.d_reduced = d;
+        } else {
+            let mut d = std::mem::take(&mut self.d_full);
+            d.evaluate(self, t, u);
+            self.d_full = d;
         }
-        for (v, d) in self.faces.iter_mut().zip(faces.iter()) {
-            *v = d.values();
-        }
-        for (v, d) in self.face_totals.iter_mut().zip(totals.iter()) {
-            *v = [d[0].value_only(), d[1].value_only(), d[2].value_only()];
-        }
-        self.cells_d = cells;
-        self.faces_d = faces;
-        self.face_totals_d = totals;
-        self.state_d.clear();
-        self.state_d.extend_from_slice(u);
     }
 
     /// Storage per bulk volume of cell i: [energy J m⁻³, water kg m⁻³, vapour kg m⁻³],
@@ -404,20 +340,10 @@ impl System {
     /// `c`, so a Jacobian built at `c` becomes the one at `c'` by adding `(c' − c)` times
     /// these blocks. The algebraic vapour row of equilibrium mode has no storage part.
     pub fn storage_jacobian_into(&self, out: &mut [crate::solve::blocktri::Block]) {
-        let kinetic = matches!(self.physics.vapor_mode, VaporMode::Kinetic { .. });
-        for (i, b) in out.iter_mut().enumerate().take(self.n) {
-            let w = self.widths[i];
-            let cp = &self.cells_d[i];
-            *b = [0.0; 9];
-            let mut rows = storage_rows(cp);
-            if !kinetic {
-                rows[VAPOR] = D3::cst(0.0);
-            }
-            for r in 0..3 {
-                for col in 0..3 {
-                    b[r * 3 + col] = w * rows[r].d[col];
-                }
-            }
+        if self.reduced() {
+            self.d_reduced.storage_blocks_into(self, out);
+        } else {
+            self.d_full.storage_blocks_into(self, out);
         }
     }
 
@@ -450,7 +376,9 @@ impl System {
                 (cp.energy * c - hist[3 * i + ENERGY]) * w,
                 (cp.water * c - hist[3 * i + WATER]) * w,
                 match kinetic {
-                    None => cp.rv - cp.rveq,
+                    // In equilibrium the physics uses rveq itself; this row makes the
+                    // vapour unknown follow it.
+                    None => D0::cst(u[3 * i + RV]) - cp.rveq,
                     Some(b) => {
                         (cp.vapor * c - hist[3 * i + VAPOR]) * w - (cp.rveq - cp.rv) * (b * w)
                     }
@@ -487,49 +415,10 @@ impl System {
             }
         }
         if let Some(jac) = jac {
-            jac.zero();
-            for i in 0..n {
-                let w = self.widths[i];
-                let cp = &self.cells_d[i];
-                let rows = [
-                    cp.energy * (c * w),
-                    cp.water * (c * w),
-                    match kinetic {
-                        None => cp.rv - cp.rveq,
-                        Some(b) => cp.vapor * (c * w) - (cp.rveq - cp.rv) * (b * w),
-                    },
-                ];
-                let d = &mut jac.diag[i];
-                for r in 0..3 {
-                    for col in 0..3 {
-                        d[r * 3 + col] += rows[r].d[col];
-                    }
-                }
-            }
-            for j in 0..=n {
-                let mut vals: [D6; 3] = self.face_totals_d[j];
-                if kinetic.is_none() {
-                    vals[VAPOR] = D6::cst(0.0);
-                }
-                let col_up = if j == 0 { 0 } else { j - 1 };
-                let col_dn = if j == n { n - 1 } else { j };
-                for (rb, sign) in [(j.wrapping_sub(1), 1.0), (j, -1.0)] {
-                    if rb >= n {
-                        continue;
-                    }
-                    for (r, v) in vals.iter().enumerate() {
-                        {
-                            let b = jac.block_mut(rb, col_up);
-                            for col in 0..3 {
-                                b[r * 3 + col] += sign * v.d[col];
-                            }
-                        }
-                        let b = jac.block_mut(rb, col_dn);
-                        for col in 0..3 {
-                            b[r * 3 + col] += sign * v.d[3 + col];
-                        }
-                    }
-                }
+            if self.reduced() {
+                self.d_reduced.jacobian_into(self, c, jac);
+            } else {
+                self.d_full.jacobian_into(self, c, jac);
             }
             for blocks in [&jac.lower, &jac.diag, &jac.upper] {
                 for (i, b) in blocks.iter().enumerate() {

@@ -98,6 +98,16 @@ impl Lu3 {
     }
 }
 
+/// `NonFinite` when the solution holds NaN or ±Inf (x·0 is 0 for finite x and NaN
+/// otherwise: one branch-free pass).
+fn all_finite(x: &[f64]) -> Result<(), LinearError> {
+    if x.iter().fold(0.0, |a: f64, v| a + v * 0.0) == 0.0 {
+        Ok(())
+    } else {
+        Err(LinearError::NonFinite)
+    }
+}
+
 #[inline]
 fn mat_mul(a: &Block, b: &Block) -> Block {
     let mut c = [0.0; 9];
@@ -124,6 +134,11 @@ fn mat_vec(a: &Block, x: &[f64]) -> [f64; 3] {
 /// Block-tridiagonal LU (block Thomas algorithm):
 /// B'_0 = B_0; E_i = B'_i⁻¹ C_i; B'_i = B_i − A_i E_{i−1};
 /// forward y_i = B'_i⁻¹ (r_i − A_i y_{i−1}); back x_i = y_i − E_i x_{i+1}.
+///
+/// When the third unknown of every cell is decoupled — it appears in no other row than its
+/// own, and its own row couples only within the cell (the algebraic vapour row of
+/// equilibrium mode) — the first two unknowns form a block-tridiagonal system with 2×2
+/// blocks, solved alone, and the third follows cell by cell from its row.
 #[derive(Debug, Clone)]
 pub struct BlockThomas {
     n: usize,
@@ -132,6 +147,13 @@ pub struct BlockThomas {
     inv: Vec<Block>,
     e: Vec<Block>,
     lower: Vec<Block>,
+    /// The same for the decoupled pattern: 2×2 blocks (row-major) and, per cell, the
+    /// third row (a, b, 1/c) of x₂ = (r₂ − a x₀ − b x₁)/c.
+    reduced: bool,
+    inv2: Vec<[f64; 4]>,
+    e2: Vec<[f64; 4]>,
+    lower2: Vec<[f64; 4]>,
+    third: Vec<[f64; 3]>,
 }
 
 impl BlockThomas {
@@ -141,12 +163,100 @@ impl BlockThomas {
             inv: vec![[0.0; 9]; n],
             e: vec![[0.0; 9]; n],
             lower: vec![[0.0; 9]; n],
+            reduced: false,
+            inv2: vec![[0.0; 4]; n],
+            e2: vec![[0.0; 4]; n],
+            lower2: vec![[0.0; 4]; n],
+            third: vec![[0.0; 3]; n],
+        }
+    }
+
+    /// Whether the third unknown of every cell is decoupled (see the type's doc).
+    fn decoupled(a: &BlockTri) -> bool {
+        let off =
+            |b: &Block| b[2] == 0.0 && b[5] == 0.0 && b[6] == 0.0 && b[7] == 0.0 && b[8] == 0.0;
+        (0..a.n).all(|i| a.diag[i][2] == 0.0 && a.diag[i][5] == 0.0)
+            && a.lower.iter().all(off)
+            && a.upper.iter().all(off)
+    }
+
+    fn factor_reduced(&mut self, a: &BlockTri) -> Result<(), LinearError> {
+        let n = self.n;
+        let sub = |b: &Block| [b[0], b[1], b[3], b[4]];
+        for i in 0..n {
+            let mut bp = sub(&a.diag[i]);
+            let low = sub(&a.lower[i]);
+            if i > 0 {
+                let e = &self.e2[i - 1];
+                bp[0] -= low[0] * e[0] + low[1] * e[2];
+                bp[1] -= low[0] * e[1] + low[1] * e[3];
+                bp[2] -= low[2] * e[0] + low[3] * e[2];
+                bp[3] -= low[2] * e[1] + low[3] * e[3];
+            }
+            // Inverse by the adjugate, with the determinant's size judged against the
+            // entries (a zero or non-finite pivot block is singular).
+            let det = bp[0] * bp[3] - bp[1] * bp[2];
+            let size = bp.iter().fold(0.0f64, |m, x| m.max(x.abs()));
+            if !(det.is_finite() && det.abs() > f64::EPSILON * f64::EPSILON * size * size) {
+                return Err(LinearError::Singular { index: 3 * i });
+            }
+            let r = 1.0 / det;
+            let inv = [bp[3] * r, -bp[1] * r, -bp[2] * r, bp[0] * r];
+            if i + 1 < n {
+                let c = sub(&a.upper[i]);
+                self.e2[i] = [
+                    inv[0] * c[0] + inv[1] * c[2],
+                    inv[0] * c[1] + inv[1] * c[3],
+                    inv[2] * c[0] + inv[3] * c[2],
+                    inv[2] * c[1] + inv[3] * c[3],
+                ];
+            }
+            self.inv2[i] = inv;
+            self.lower2[i] = low;
+            let d = &a.diag[i];
+            if d[8] == 0.0 || !d[8].is_finite() {
+                return Err(LinearError::Singular { index: 3 * i + 2 });
+            }
+            self.third[i] = [d[6], d[7], 1.0 / d[8]];
+        }
+        Ok(())
+    }
+
+    fn solve_reduced(&self, b: &mut [f64]) {
+        let n = self.n;
+        let mut prev = [0.0; 2];
+        for i in 0..n {
+            let mut r = [b[3 * i], b[3 * i + 1]];
+            if i > 0 {
+                let l = &self.lower2[i];
+                r[0] -= l[0] * prev[0] + l[1] * prev[1];
+                r[1] -= l[2] * prev[0] + l[3] * prev[1];
+            }
+            let v = &self.inv2[i];
+            prev = [v[0] * r[0] + v[1] * r[1], v[2] * r[0] + v[3] * r[1]];
+            b[3 * i] = prev[0];
+            b[3 * i + 1] = prev[1];
+        }
+        let mut next = prev;
+        for i in (0..n.saturating_sub(1)).rev() {
+            let e = &self.e2[i];
+            b[3 * i] -= e[0] * next[0] + e[1] * next[1];
+            b[3 * i + 1] -= e[2] * next[0] + e[3] * next[1];
+            next = [b[3 * i], b[3 * i + 1]];
+        }
+        for i in 0..n {
+            let [p, q, rc] = self.third[i];
+            b[3 * i + 2] = (b[3 * i + 2] - p * b[3 * i] - q * b[3 * i + 1]) * rc;
         }
     }
 }
 
 impl LinearSolver for BlockThomas {
     fn factor(&mut self, a: &BlockTri) -> Result<(), LinearError> {
+        self.reduced = Self::decoupled(a);
+        if self.reduced {
+            return self.factor_reduced(a);
+        }
         let n = self.n;
         for i in 0..n {
             let mut bp = a.diag[i];
@@ -177,6 +287,10 @@ impl LinearSolver for BlockThomas {
     }
 
     fn solve(&mut self, b: &mut [f64]) -> Result<(), LinearError> {
+        if self.reduced {
+            self.solve_reduced(b);
+            return all_finite(b);
+        }
         let n = self.n;
         let mut prev = [0.0; 3];
         for i in 0..n {
@@ -198,12 +312,7 @@ impl LinearSolver for BlockThomas {
                 next[k] = b[3 * i + k];
             }
         }
-        // x·0 is 0 for finite x and NaN for NaN or ±Inf: one branch-free pass.
-        if b.iter().fold(0.0, |a: f64, x| a + x * 0.0) == 0.0 {
-            Ok(())
-        } else {
-            Err(LinearError::NonFinite)
-        }
+        all_finite(b)
     }
 
     fn name(&self) -> &'static str {

@@ -67,6 +67,17 @@ pub struct System {
     linear: Vec<bool>,
 }
 
+/// Magnitudes of the flux terms through one face: the scales of the energy and water
+/// fluxes (at least the fluxes themselves), the vapour flux parts, and the operands whose
+/// round-off the face contributes.
+struct FaceMagnitudes {
+    energy: f64,
+    water: f64,
+    vapor: f64,
+    operands_energy: f64,
+    operands_water: f64,
+}
+
 /// Fills cell properties, face fluxes and face totals of `sys` at state `u`, time `t`,
 /// with `N` derivative slots per cell and `M` = 2N per face (3 and 6, 2 and 4, or 0 and 0
 /// for values).
@@ -248,34 +259,52 @@ impl System {
         ([top[ENERGY].v, top[WATER].v], [bot[ENERGY].v, bot[WATER].v])
     }
 
-    /// Magnitude of the terms of row set of cell `i` from the last evaluation (storage
-    /// terms plus the flux scales of both faces), and its round-off floor (16 ε times the
-    /// operands of the storage terms and of both faces' fluxes): [energy, water, vapour].
+    /// Magnitudes of the flux terms through face `j` from the last evaluation.
     #[inline]
-    fn row_terms(&self, i: usize, c: f64, hist: &[f64]) -> ([f64; 3], [f64; 3]) {
+    fn face_magnitudes(&self, j: usize) -> FaceMagnitudes {
+        let f = &self.faces[j];
+        let t = &self.face_totals[j];
+        FaceMagnitudes {
+            energy: f.scale_energy.max(t[ENERGY].v.abs()),
+            water: f.scale_water.max(t[WATER].v.abs()),
+            vapor: f.vapor_iso.v.abs() + f.vapor_th.v.abs(),
+            operands_energy: f.operands_energy,
+            operands_water: f.operands_water,
+        }
+    }
+
+    /// Magnitude of the terms of the rows of cell `i` from the last evaluation (storage
+    /// terms plus the flux magnitudes `fa`, `fb` of its upper and lower face), and their
+    /// round-off floors (16 ε times the operands of the storage terms and of both faces'
+    /// fluxes): [energy, water, vapour].
+    #[inline]
+    fn row_terms(
+        &self,
+        i: usize,
+        c: f64,
+        hist: &[f64],
+        fa: &FaceMagnitudes,
+        fb: &FaceMagnitudes,
+        rate: Option<f64>,
+    ) -> ([f64; 3], [f64; 3]) {
         const K: f64 = 16.0 * f64::EPSILON;
         let w = self.widths[i];
         let cp = &self.cells[i];
-        let (fa, fb) = (&self.faces[i], &self.faces[i + 1]);
-        let (ta, tb) = (&self.face_totals[i], &self.face_totals[i + 1]);
         let store_e = w * ((c * cp.energy.v).abs() + hist[3 * i + ENERGY].abs());
         let store_w = w * ((c * cp.water.v).abs() + hist[3 * i + WATER].abs());
-        let se = |f: &FaceFlux<0>, t: &[D0; 3]| f.scale_energy.max(t[ENERGY].v.abs());
-        let sw = |f: &FaceFlux<0>, t: &[D0; 3]| f.scale_water.max(t[WATER].v.abs());
         let vapor_algebraic = cp.rv.v.abs() + cp.rveq.v.abs();
-        let vapor_scale = match self.physics.vapor_mode {
-            VaporMode::Kinetic { rate: b } => {
-                let sv = |f: &FaceFlux<0>| f.vapor_iso.v.abs() + f.vapor_th.v.abs();
+        let vapor_scale = match rate {
+            Some(b) => {
                 w * ((c * cp.vapor.v).abs() + hist[3 * i + VAPOR].abs() + b * vapor_algebraic)
-                    + sv(fa)
-                    + sv(fb)
+                    + fa.vapor
+                    + fb.vapor
             }
-            VaporMode::Equilibrium => vapor_algebraic,
+            None => vapor_algebraic,
         };
         (
             [
-                store_e + se(fa, ta) + se(fb, tb),
-                store_w + sw(fa, ta) + sw(fb, tb),
+                store_e + fa.energy + fb.energy,
+                store_w + fa.water + fb.water,
                 vapor_scale + 1e-300,
             ],
             [
@@ -286,22 +315,44 @@ impl System {
         )
     }
 
+    /// The kinetic phase-change rate, or None in equilibrium mode.
+    fn kinetic_rate(&self) -> Option<f64> {
+        match self.physics.vapor_mode {
+            VaporMode::Kinetic { rate } => Some(rate),
+            VaporMode::Equilibrium => None,
+        }
+    }
+
+    /// Row terms and floors of every cell, each face's magnitudes computed once.
+    #[inline]
+    fn for_each_row_terms(
+        &self,
+        c: f64,
+        hist: &[f64],
+        mut f: impl FnMut(usize, [f64; 3], [f64; 3]),
+    ) {
+        let rate = self.kinetic_rate();
+        let mut fa = self.face_magnitudes(0);
+        for i in 0..self.n {
+            let fb = self.face_magnitudes(i + 1);
+            let (s, fl) = self.row_terms(i, c, hist, &fa, &fb, rate);
+            f(i, s, fl);
+            fa = fb;
+        }
+    }
+
     /// Magnitude of the terms of every residual row (3 per cell) from the last evaluation:
     /// storage terms plus the flux scales of both faces. Newton judges convergence by
     /// |R| against this, so round-off in large cancelling terms is not mistaken for error.
     pub fn residual_scale_into(&self, c: f64, hist: &[f64], out: &mut [f64]) {
-        for i in 0..self.n {
-            out[3 * i..3 * i + 3].copy_from_slice(&self.row_terms(i, c, hist).0);
-        }
+        self.for_each_row_terms(c, hist, |i, s, _| out[3 * i..3 * i + 3].copy_from_slice(&s));
     }
 
     /// Round-off floor of every residual row (3 per cell) from the last evaluation:
     /// 16 ε times the operands of the storage terms and of both faces' fluxes. A residual
     /// below it is as small as floating point can make it.
     pub fn roundoff_into(&self, c: f64, hist: &[f64], out: &mut [f64]) {
-        for i in 0..self.n {
-            out[3 * i..3 * i + 3].copy_from_slice(&self.row_terms(i, c, hist).1);
-        }
+        self.for_each_row_terms(c, hist, |i, _, f| out[3 * i..3 * i + 3].copy_from_slice(&f));
     }
 
     /// What Newton's convergence test needs from the last evaluation, in one pass: per
@@ -317,12 +368,12 @@ impl System {
         tol: f64,
         scale: &mut [f64],
     ) -> ([f64; 2], [f64; 2]) {
+        let inv_tol = 1.0 / tol;
         let mut floor_sum = [0.0; 2];
         let mut moved = [0.0; 2];
-        for i in 0..self.n {
-            let (s, f) = self.row_terms(i, c, hist);
+        self.for_each_row_terms(c, hist, |i, s, f| {
             for r in 0..3 {
-                scale[3 * i + r] = s[r].max(f[r] / tol);
+                scale[3 * i + r] = s[r].max(f[r] * inv_tol);
             }
             let w = self.widths[i];
             let cp = &self.cells[i];
@@ -330,7 +381,7 @@ impl System {
             floor_sum[1] += f[WATER];
             moved[0] += w * (c * cp.energy.v - hist[3 * i + ENERGY]).abs();
             moved[1] += w * (c * cp.water.v - hist[3 * i + WATER]).abs();
-        }
+        });
         (floor_sum, moved)
     }
 

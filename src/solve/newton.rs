@@ -121,6 +121,10 @@ pub struct NewtonWork {
     jac_c: Option<f64>,
     /// Coefficient of the current factorisation (None: no valid factorisation).
     factor_c: Option<f64>,
+    /// Coefficient for which `scale` and `balance_scales` were computed, at the state of
+    /// the kept Jacobian's evaluation (None: to be computed).
+    scale_c: Option<f64>,
+    balance_scales: ([f64; 2], [f64; 2]),
 }
 
 impl NewtonWork {
@@ -137,6 +141,8 @@ impl NewtonWork {
             storage: vec![[0.0; 9]; n],
             jac_c: None,
             factor_c: None,
+            scale_c: None,
+            balance_scales: ([0.0; 2], [0.0; 2]),
         }
     }
 
@@ -144,6 +150,7 @@ impl NewtonWork {
     pub fn invalidate(&mut self) {
         self.jac_c = None;
         self.factor_c = None;
+        self.scale_c = None;
     }
 }
 
@@ -210,9 +217,15 @@ pub fn solve(
                 .map_err(NewtonFailure::NonFinite)?;
         }
         // Each row converges at tol × its scale or at its round-off floor, whichever is
-        // larger: folded into the scale.
-        let (floor_sum, moved) =
-            sys.convergence_scales_into(c, hist, opts.residual_tol, &mut w.scale);
+        // larger: folded into the scale. The scales are magnitudes, taken at the state
+        // where the Jacobian was evaluated and kept over the iterations that reuse it
+        // (for the same coefficient), as an error weight is kept over a step.
+        if fresh || w.scale_c != Some(c) {
+            w.balance_scales =
+                sys.convergence_scales_into(c, hist, opts.residual_tol, &mut w.scale);
+            w.scale_c = Some(c);
+        }
+        let (floor_sum, moved) = w.balance_scales;
         let (r, cell, row) = worst(&w.res, &w.scale);
         let balanced = balance_closed(sys, &w.res, floor_sum, moved, opts.balance_tol);
         log::trace!(

@@ -85,8 +85,9 @@ fn check(model: &Model, seed: u64, label: &str) {
         let mut rscale = vec![0.0; 3 * n];
         sys.residual_scale_into(c, &hist, &mut rscale);
         // Linearised evaluation (`System::evaluate` after an evaluation with derivatives,
-        // for unknowns within 1e-10 relative of it): the same residual as a direct
-        // evaluation to 1e-14 of the row's terms (its error is of second order, ~1e-20).
+        // for unknowns within 1e-8 relative of it): the same residual as a direct
+        // evaluation to 1e-13 of the row's terms (its error is of second order: with
+        // d ln psat/d ln T ≈ 18, (18 · 1e-8)²/2 ≈ 2e-14).
         let mut near = u.clone();
         for (k, x) in near.iter_mut().enumerate() {
             let size = if k % 3 == 1 {
@@ -94,7 +95,7 @@ fn check(model: &Model, seed: u64, label: &str) {
             } else {
                 x.abs()
             };
-            *x += 9e-11 * size * (2.0 * rng.next() - 1.0);
+            *x += 9e-9 * size * (2.0 * rng.next() - 1.0);
         }
         let mut res_lin = vec![0.0; 3 * n];
         sys.assemble(t, &u, c, &hist, &mut res_lin, Some(&mut jac2))
@@ -112,7 +113,7 @@ fn check(model: &Model, seed: u64, label: &str) {
         );
         for k in 0..3 * n {
             assert!(
-                (res_lin[k] - res_direct[k]).abs() <= 1e-14 * rscale[k],
+                (res_lin[k] - res_direct[k]).abs() <= 1e-13 * rscale[k],
                 "{label} trial {trial}: linearised residual {k}: {:e} vs {:e} (scale {:e})",
                 res_lin[k],
                 res_direct[k],

@@ -19,7 +19,7 @@ use crate::solve::blocktri::{Block, BlockTri};
 /// Largest relative change of a cell's unknowns since the evaluation with derivatives for
 /// which its properties are taken by linearisation from that evaluation (head: relative
 /// to max(|h|, 0.01 m)).
-pub(super) const LINEAR_CHANGE: f64 = 1e-10;
+pub(super) const LINEAR_CHANGE: f64 = 1e-8;
 
 /// Cell properties, face fluxes and face totals with `N` (`M`) derivative slots, and the
 /// state they were evaluated at (empty before the first evaluation).

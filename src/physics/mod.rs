@@ -182,12 +182,13 @@ impl System {
     /// time `t` [s].
     ///
     /// After an evaluation with derivatives (the Jacobian's), a cell whose unknowns moved
-    /// from that evaluation's by at most 1e-10 relative (head: relative to
+    /// from that evaluation's by at most 1e-8 relative (head: relative to
     /// max(|h|, 0.01 m)) takes its properties by linearisation, value + derivatives ·
     /// change, and a face between two such cells its fluxes likewise. The error is of
-    /// second order in the change, ~1e-20 relative times the square of the laws' slopes
-    /// in log–log terms (about 25 for the Mualem conductivity of a sandy loam): far below
-    /// the round-off of a direct evaluation (`tests/jacobian.rs` checks 1e-14). Within a Newton solve most cells away from a
+    /// second order in the change, ~1e-16 relative times the square of the laws' slopes
+    /// in log–log terms (about 18 for the saturation pressure in T, a few for the Mualem
+    /// conductivity in h): a few 1e-14, at the round-off of a direct evaluation and far
+    /// below the Newton tolerance (`tests/jacobian.rs` checks 1e-13). Within a Newton solve most cells away from a
     /// moving front qualify after the first iteration (two thirds of the cell evaluations
     /// on the benchmark case). Boundary faces are always evaluated directly.
     pub fn evaluate(&mut self, t: f64, u: &[f64]) {

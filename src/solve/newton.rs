@@ -164,11 +164,11 @@ pub struct NewtonStats {
     pub jacobians: usize,
 }
 
-/// Worst scaled residual: (value, cell, row).
-fn worst(res: &[f64], scale: &[f64]) -> (f64, usize, usize) {
+/// Worst scaled residual, given the reciprocal row scales: (value, cell, row).
+fn worst(res: &[f64], inv_scale: &[f64]) -> (f64, usize, usize) {
     let mut best = (0.0, 0, 0);
-    for (k, (r, s)) in res.iter().zip(scale.iter()).enumerate() {
-        let v = r.abs() / s;
+    for (k, (r, s)) in res.iter().zip(inv_scale.iter()).enumerate() {
+        let v = r.abs() * s;
         if v > best.0 || v.is_nan() {
             best = (v, k / 3, k % 3);
         }
@@ -224,9 +224,12 @@ pub fn solve(
             w.balance_scales =
                 sys.convergence_scales_into(c, hist, opts.residual_tol, &mut w.scale);
             w.scale_c = Some(c);
+            for (r, s) in w.row.iter_mut().zip(w.scale.iter()) {
+                *r = 1.0 / s;
+            }
         }
         let (floor_sum, moved) = w.balance_scales;
-        let (r, cell, row) = worst(&w.res, &w.scale);
+        let (r, cell, row) = worst(&w.res, &w.row);
         let balanced = balance_closed(sys, &w.res, floor_sum, moved, opts.balance_tol);
         log::trace!(
             "newton t {t:.6e} it {} worst scaled residual {r:.3e} at cell {cell} row {row} (fresh Jacobian: {fresh})",
@@ -269,9 +272,6 @@ pub fn solve(
             // by typical variable sizes; then factorise.
             let jc = w.jac_c.unwrap_or(c);
             for i in 0..n {
-                for k in 0..3 {
-                    w.row[3 * i + k] = 1.0 / w.scale[3 * i + k];
-                }
                 w.col[3 * i + T] = 1.0;
                 w.col[3 * i + H] = 1.0 + u[3 * i + H].abs();
                 w.col[3 * i + RV] = 1e-3 + u[3 * i + RV].abs();

@@ -323,30 +323,41 @@ impl Stepper {
                 a + lag[j] * s.history[j - 1].storage[k]
             })
         };
+        // The largest ratio |error| / weight, compared by cross-multiplication (a division
+        // only where a new largest is found).
         let mut err = 0.0f64;
         let mut worst = (0usize, 0usize);
+        let mut consider = |num: f64, den: f64, at: (usize, usize)| {
+            if num > err * den || num.is_nan() {
+                err = num / den;
+                worst = at;
+            }
+        };
         for i in 0..sys.n {
             for (kk, atol) in [(T, tol.atol_t), (RV, tol.atol_rv)] {
                 let y = s.u[3 * i + kk];
-                let e = (scale * (y - pu(3 * i + kk))).abs()
-                    / (atol + tol.rtol * y.abs().max(self.u_old[3 * i + kk].abs()));
-                if e > err {
-                    err = e;
-                    worst = (i, kk);
-                }
+                consider(
+                    (scale * (y - pu(3 * i + kk))).abs(),
+                    atol + tol.rtol * y.abs().max(self.u_old[3 * i + kk].abs()),
+                    (i, kk),
+                );
             }
             let th = sys.cells[i].theta.v;
-            let e = if th >= sys.soil_of(i).retention.theta_s() {
+            if th >= sys.soil_of(i).retention.theta_s() {
                 let y = s.u[3 * i + H];
-                (scale * (y - pu(3 * i + H))).abs() / (tol.atol_h + tol.rtol * y.abs())
+                consider(
+                    (scale * (y - pu(3 * i + H))).abs(),
+                    tol.atol_h + tol.rtol * y.abs(),
+                    (i, H),
+                );
             } else {
                 let m = sys.storage(i)[WATER];
                 let m_p = pm(3 * i + WATER);
-                (scale * (m - m_p) / WATER_DENSITY).abs() / (tol.atol_theta + tol.rtol * th)
-            };
-            if e > err {
-                err = e;
-                worst = (i, H);
+                consider(
+                    (scale * (m - m_p) / WATER_DENSITY).abs(),
+                    tol.atol_theta + tol.rtol * th,
+                    (i, H),
+                );
             }
         }
         (err, worst)

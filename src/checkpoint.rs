@@ -173,6 +173,8 @@ fn write_via(
         f64s("dt_s", &[state.dt]).map_err(&er)?;
         f64s("unknowns", &state.u).map_err(&er)?;
         f64s("storage", &state.storage).map_err(&er)?;
+        f64s("linearization_cells", &state.linearization_cells).map_err(&er)?;
+        f64s("linearization_faces", &state.linearization_faces).map_err(&er)?;
         f64s("inflow", &state.inflow).map_err(&er)?;
         f64s("throughput", &state.throughput).map_err(&er)?;
         f64s("initial_totals", &state.initial_totals).map_err(&er)?;
@@ -395,6 +397,9 @@ pub fn read(path: &Path) -> Result<Checkpoint> {
                 Ok(_) => v("storage")?,
                 Err(_) => Vec::new(),
             },
+            // Absent in older checkpoints: no kept evaluations.
+            linearization_cells: v("linearization_cells").unwrap_or_default(),
+            linearization_faces: v("linearization_faces").unwrap_or_default(),
             inflow: two("inflow")?,
             throughput: two("throughput")?,
             initial_totals: two("initial_totals")?,

@@ -513,6 +513,7 @@ impl Runner<'_> {
         // next step computes: every step evaluates its start state afresh).
         self.sys.evaluate(self.st.state.t, &self.st.state.u);
         let (abs, rel) = self.st.balance(&self.sys);
+        self.st.sync_state(&self.sys);
         let info = crate::checkpoint::CheckpointInfo {
             balance_abs: Some(abs),
             balance_rel: Some(rel),

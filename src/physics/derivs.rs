@@ -11,85 +11,254 @@
 
 use super::cell::{cell_props, CellProps};
 use super::dual::Dual;
-use super::flux::FaceFlux;
-use super::{evaluate_into, System, ENERGY, H, RV, T, VAPOR, WATER};
+use super::flux::{face_flux, FaceFlux};
+use super::{System, ENERGY, H, RV, T, VAPOR, WATER};
 use crate::model::VaporMode;
 use crate::solve::blocktri::{Block, BlockTri};
 
-/// Largest relative change of a cell's unknowns since the evaluation with derivatives for
-/// which its properties are taken by linearisation from that evaluation (head: relative
-/// to max(|h|, 0.01 m)).
+/// Largest relative change of a cell's unknowns from the base of a kept evaluation with
+/// derivatives (head: relative to max(|h|, 0.01 m)), within which its values are taken
+/// by linearisation from it.
 pub(super) const LINEAR_CHANGE: f64 = 1e-8;
 
-/// Cell properties, face fluxes and face totals with `N` (`M`) derivative slots, and the
-/// state they were evaluated at (empty before the first evaluation).
+/// Whether the unknowns `x` of a cell (T, h, rv) lie within [`LINEAR_CHANGE`] of `x0`
+/// (rv only when it is an unknown of the derivatives, `with_rv`). False when `x0` is
+/// NaN (no base).
+#[inline]
+fn near(x: &[f64], x0: &[f64], with_rv: bool) -> bool {
+    (x[T] - x0[T]).abs() <= LINEAR_CHANGE * x0[T].abs()
+        && (x[H] - x0[H]).abs() <= LINEAR_CHANGE * x0[H].abs().max(1e-2)
+        && (!with_rv || (x[RV] - x0[RV]).abs() <= LINEAR_CHANGE * x0[RV].abs())
+}
+
+/// The first `N` differences x − x0 (the derivative slots of one cell).
+#[inline]
+fn change<const N: usize>(x: &[f64], x0: &[f64]) -> [f64; N] {
+    let mut du = [0.0; N];
+    for (k, d) in du.iter_mut().enumerate() {
+        *d = x[k] - x0[k];
+    }
+    du
+}
+
+/// Cell properties and interior-face fluxes with `N` (`M`) derivative slots, each kept
+/// with the state it was evaluated at (its *base*; NaN: none): a cell's own unknowns,
+/// and for a face the unknowns of both its cells. An evaluation with derivatives
+/// re-evaluates a cell only when it moved more than [`LINEAR_CHANGE`] from its base or
+/// one of its faces must be re-evaluated (a face is evaluated from its two cells
+/// evaluated at the same state), and a face only when one of its cells moved that far
+/// from the face's base; the others keep their base (derivatives at the base, values
+/// linearised to the current state). So every base entry is a direct evaluation at its
+/// base state, a pure function of the base states: restoring them restores it exactly
+/// ([`Derivs::restore`], for resuming a run).
 #[derive(Debug, Clone)]
 pub(super) struct Derivs<const N: usize, const M: usize> {
     cells: Vec<CellProps<N>>,
+    cell_base: Vec<f64>,
     faces: Vec<FaceFlux<M>>,
     totals: Vec<[Dual<M>; 3]>,
-    state: Vec<f64>,
+    face_base: Vec<[f64; 6]>,
+    /// Scratch: per cell, whether it is evaluated directly; per face, whether it keeps
+    /// its base.
+    direct: Vec<bool>,
+    face_kept: Vec<bool>,
 }
 
 impl<const N: usize, const M: usize> Default for Derivs<N, M> {
     fn default() -> Self {
         Derivs {
             cells: Vec::new(),
+            cell_base: Vec::new(),
             faces: Vec::new(),
             totals: Vec::new(),
-            state: Vec::new(),
+            face_base: Vec::new(),
+            direct: Vec::new(),
+            face_kept: Vec::new(),
         }
     }
 }
 
 impl<const N: usize, const M: usize> Derivs<N, M> {
-    /// Forgets the state (the next value evaluation is direct).
-    pub fn forget(&mut self) {
-        self.state.clear();
+    /// Whether the vapour density is one of the derivative slots (kinetic mode).
+    const WITH_RV: bool = N > RV;
+
+    /// Sizes the workspace for `sys` (no bases).
+    fn allocate(&mut self, sys: &System) {
+        let n = sys.n;
+        if self.cells.len() == n {
+            return;
+        }
+        let any = cell_props(
+            sys.soil_of(0),
+            &sys.physics,
+            Dual::cst(293.15),
+            Dual::cst(-1.0),
+            Dual::cst(0.01),
+        );
+        self.cells = vec![any; n];
+        self.cell_base = vec![f64::NAN; 3 * n];
+        self.faces = vec![FaceFlux::zero(); n + 1];
+        self.totals = vec![[Dual::cst(0.0); 3]; n + 1];
+        self.face_base = vec![[f64::NAN; 6]; n + 1];
+        self.direct = vec![true; n];
+        self.face_kept = vec![false; n + 1];
     }
 
-    /// Evaluates `sys` at (t, u) with derivatives and copies the values into its value
-    /// workspace (so both agree bitwise).
+    /// Forgets every base (the next evaluations are direct).
+    pub fn forget(&mut self) {
+        self.cell_base.fill(f64::NAN);
+        for b in self.face_base.iter_mut() {
+            *b = [f64::NAN; 6];
+        }
+    }
+
+    /// The base states: of the cells (3 per cell) and of the faces (6 per face: the
+    /// unknowns of the cell above and below); NaN where there is none. Empty before the
+    /// first evaluation.
+    pub fn bases(&self) -> (Vec<f64>, Vec<f64>) {
+        (
+            self.cell_base.clone(),
+            self.face_base.iter().flatten().copied().collect(),
+        )
+    }
+
+    /// Re-evaluates the bases at the given base states (as from [`Derivs::bases`]);
+    /// bases of the wrong size are ignored (all direct).
+    pub fn restore(&mut self, sys: &System, cells: &[f64], faces: &[f64]) {
+        let n = sys.n;
+        self.allocate(sys);
+        self.forget();
+        if cells.len() != 3 * n || faces.len() != 6 * (n + 1) {
+            return;
+        }
+        let props = |i: usize, x: &[f64]| {
+            cell_props::<N>(
+                sys.soil_of(i),
+                &sys.physics,
+                Dual::var(x[T], 0),
+                Dual::var(x[H], 1),
+                Dual::var(x[RV], 2),
+            )
+        };
+        for i in 0..n {
+            let x = &cells[3 * i..3 * i + 3];
+            if x.iter().all(|v| v.is_finite()) {
+                self.cells[i] = props(i, x);
+                self.cell_base[3 * i..3 * i + 3].copy_from_slice(x);
+            }
+        }
+        let avg = sys.physics.face_conductivity;
+        for j in 1..n {
+            let x = &faces[6 * j..6 * j + 6];
+            if x.iter().all(|v| v.is_finite()) {
+                let f = face_flux(
+                    &props(j - 1, &x[..3]),
+                    &props(j, &x[3..]),
+                    0,
+                    N,
+                    sys.d_below[j - 1],
+                    sys.d_above[j],
+                    avg,
+                );
+                self.totals[j] = [f.energy(), f.water(), f.vapor()];
+                self.faces[j] = f;
+                self.face_base[j].copy_from_slice(x);
+            }
+        }
+    }
+
+    /// Evaluates `sys` at (t, u) with derivatives (re-evaluating what moved, see the
+    /// type's doc) and writes the values into its value workspace.
     pub fn evaluate(&mut self, sys: &mut System, t: f64, u: &[f64]) {
         let n = sys.n;
-        if self.cells.len() != n {
-            let any = cell_props(
-                sys.soil_of(0),
-                &sys.physics,
-                Dual::cst(293.15),
-                Dual::cst(-1.0),
-                Dual::cst(0.01),
-            );
-            self.cells = vec![any; n];
-            self.faces = vec![FaceFlux::zero(); n + 1];
-            self.totals = vec![[Dual::cst(0.0); 3]; n + 1];
+        self.allocate(sys);
+        // Faces that keep their base: both cells near the face's base. Boundary faces
+        // depend on time and are always evaluated.
+        self.face_kept[0] = false;
+        self.face_kept[n] = false;
+        for j in 1..n {
+            let b = &self.face_base[j];
+            self.face_kept[j] = near(&u[3 * (j - 1)..3 * j], &b[..3], Self::WITH_RV)
+                && near(&u[3 * j..3 * j + 3], &b[3..], Self::WITH_RV);
         }
-        evaluate_into(
-            sys,
-            t,
-            u,
-            &mut self.cells,
-            &mut self.faces,
-            &mut self.totals,
-        );
-        for (v, d) in sys.cells.iter_mut().zip(self.cells.iter()) {
-            *v = d.values();
+        for i in 0..n {
+            let x = &u[3 * i..3 * i + 3];
+            let direct = !near(x, &self.cell_base[3 * i..3 * i + 3], Self::WITH_RV)
+                || !self.face_kept[i]
+                || !self.face_kept[i + 1];
+            self.direct[i] = direct;
+            if direct {
+                self.cells[i] = cell_props(
+                    sys.soil_of(i),
+                    &sys.physics,
+                    Dual::var(x[T], 0),
+                    Dual::var(x[H], 1),
+                    Dual::var(x[RV], 2),
+                );
+                self.cell_base[3 * i..3 * i + 3].copy_from_slice(x);
+                sys.cells[i] = self.cells[i].values();
+            } else {
+                let x0 = &self.cell_base[3 * i..3 * i + 3];
+                sys.cells[i] = self.cells[i].taylor(
+                    x[T],
+                    x[H],
+                    Self::WITH_RV.then_some(x[RV]),
+                    &change::<N>(x, x0),
+                );
+            }
         }
-        for (v, d) in sys.faces.iter_mut().zip(self.faces.iter()) {
-            *v = d.values();
+        let avg = sys.physics.face_conductivity;
+        for j in 1..n {
+            if self.face_kept[j] {
+                let du = self.face_change(j, u);
+                sys.faces[j] = self.faces[j].taylor(&du);
+                let td = &self.totals[j];
+                sys.face_totals[j] = [td[0].taylor(&du), td[1].taylor(&du), td[2].taylor(&du)];
+            } else {
+                let f = face_flux(
+                    &self.cells[j - 1],
+                    &self.cells[j],
+                    0,
+                    N,
+                    sys.d_below[j - 1],
+                    sys.d_above[j],
+                    avg,
+                );
+                self.totals[j] = [f.energy(), f.water(), f.vapor()];
+                self.faces[j] = f;
+                self.face_base[j][..3].copy_from_slice(&u[3 * (j - 1)..3 * j]);
+                self.face_base[j][3..].copy_from_slice(&u[3 * j..3 * j + 3]);
+                sys.faces[j] = f.values();
+                sys.face_totals[j] = value_totals(&self.totals[j]);
+            }
         }
-        for (v, d) in sys.face_totals.iter_mut().zip(self.totals.iter()) {
-            *v = [d[0].value_only(), d[1].value_only(), d[2].value_only()];
+        // The end cells are always direct (their boundary faces are evaluated).
+        let top = sys.top_face(t, &self.cells[0]);
+        let bottom = sys.bottom_face(t, &self.cells[n - 1]);
+        for (j, f) in [(0, top), (n, bottom)] {
+            self.totals[j] = [f.energy(), f.water(), f.vapor()];
+            self.faces[j] = f;
+            sys.faces[j] = f.values();
+            sys.face_totals[j] = value_totals(&self.totals[j]);
         }
-        self.state.clear();
-        self.state.extend_from_slice(u);
     }
 
-    /// The value evaluation at (t, u) by linearisation where the cells moved less than
-    /// [`LINEAR_CHANGE`] from this evaluation's state, directly elsewhere, into `cells`,
-    /// `faces`, `totals` (`linear`: per cell, whether it was linearised). False, and
-    /// nothing written, when there is no evaluation of this system to start from.
-    #[allow(clippy::too_many_arguments)]
+    /// The change of the unknowns of face `j`'s two cells from the face's base, in the
+    /// face's derivative slots.
+    #[inline]
+    fn face_change(&self, j: usize, u: &[f64]) -> [f64; M] {
+        let b = &self.face_base[j];
+        let mut du = [0.0; M];
+        for k in 0..N {
+            du[k] = u[3 * (j - 1) + k] - b[k];
+            du[N + k] = u[3 * j + k] - b[3 + k];
+        }
+        du
+    }
+
+    /// The value evaluation at (t, u): cells and faces near their bases by
+    /// linearisation, the others directly, into `cells`, `faces`, `totals`. False, and
+    /// nothing written, when the workspace is not set up for this system.
     pub fn linearised(
         &self,
         sys: &System,
@@ -98,26 +267,21 @@ impl<const N: usize, const M: usize> Derivs<N, M> {
         cells: &mut [super::CellProps<0>],
         faces: &mut [FaceFlux<0>],
         totals: &mut [[Dual<0>; 3]],
-        linear: &mut [bool],
     ) -> bool {
         let n = sys.n;
-        if self.state.len() != u.len() || self.cells.len() != n {
+        if self.cells.len() != n || u.len() != 3 * n {
             return false;
         }
-        let rv_unknown = N > RV;
         for (i, c) in cells.iter_mut().enumerate() {
             let x = &u[3 * i..3 * i + 3];
-            let x0 = &self.state[3 * i..3 * i + 3];
-            let mut du = [0.0; N];
-            for (k, d) in du.iter_mut().enumerate() {
-                *d = x[k] - x0[k];
-            }
-            let small = (x[T] - x0[T]).abs() <= LINEAR_CHANGE * x0[T].abs()
-                && (x[H] - x0[H]).abs() <= LINEAR_CHANGE * x0[H].abs().max(1e-2)
-                && (!rv_unknown || (x[RV] - x0[RV]).abs() <= LINEAR_CHANGE * x0[RV].abs());
-            linear[i] = small;
-            *c = if small {
-                self.cells[i].taylor(x[T], x[H], rv_unknown.then_some(x[RV]), &du)
+            let x0 = &self.cell_base[3 * i..3 * i + 3];
+            *c = if near(x, x0, Self::WITH_RV) {
+                self.cells[i].taylor(
+                    x[T],
+                    x[H],
+                    Self::WITH_RV.then_some(x[RV]),
+                    &change::<N>(x, x0),
+                )
             } else {
                 cell_props(
                     sys.soil_of(i),
@@ -130,17 +294,16 @@ impl<const N: usize, const M: usize> Derivs<N, M> {
         }
         let avg = sys.physics.face_conductivity;
         for j in 1..n {
-            if linear[j - 1] && linear[j] {
-                let mut du = [0.0; M];
-                for k in 0..N {
-                    du[k] = u[3 * (j - 1) + k] - self.state[3 * (j - 1) + k];
-                    du[N + k] = u[3 * j + k] - self.state[3 * j + k];
-                }
+            let b = &self.face_base[j];
+            if near(&u[3 * (j - 1)..3 * j], &b[..3], Self::WITH_RV)
+                && near(&u[3 * j..3 * j + 3], &b[3..], Self::WITH_RV)
+            {
+                let du = self.face_change(j, u);
                 faces[j] = self.faces[j].taylor(&du);
                 let td = &self.totals[j];
                 totals[j] = [td[0].taylor(&du), td[1].taylor(&du), td[2].taylor(&du)];
             } else {
-                let f = super::flux::face_flux(
+                let f = face_flux(
                     &cells[j - 1],
                     &cells[j],
                     0,
@@ -239,4 +402,10 @@ impl<const N: usize, const M: usize> Derivs<N, M> {
             }
         }
     }
+}
+
+/// The values of a face's totals.
+#[inline]
+fn value_totals<const M: usize>(t: &[Dual<M>; 3]) -> [Dual<0>; 3] {
+    [t[0].value_only(), t[1].value_only(), t[2].value_only()]
 }

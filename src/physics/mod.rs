@@ -63,8 +63,6 @@ pub struct System {
     /// in kinetic mode, 2 in equilibrium mode (see `derivs`).
     d_full: Derivs<3, 6>,
     d_reduced: Derivs<2, 4>,
-    /// Per cell, whether the last value evaluation took it by linearisation.
-    linear: Vec<bool>,
 }
 
 /// Magnitudes of the flux terms through one face: the scales of the energy and water
@@ -149,7 +147,6 @@ impl System {
             face_totals: vec![[D0::cst(0.0); 3]; n + 1],
             d_full: Derivs::default(),
             d_reduced: Derivs::default(),
-            linear: vec![false; n],
         }
     }
 
@@ -165,11 +162,38 @@ impl System {
         &self.soils[self.cell_soil[cell]]
     }
 
-    /// Drops the evaluation with derivatives as the base of linearised evaluations: the
-    /// next [`System::evaluate`] computes every cell in full.
+    /// Drops the evaluations with derivatives kept as bases of linearised evaluations:
+    /// the next evaluations compute every cell and face directly.
     pub fn forget_linearization(&mut self) {
         self.d_full.forget();
         self.d_reduced.forget();
+    }
+
+    /// The states at which the kept evaluations with derivatives were made (see
+    /// [`System::evaluate`]): of the cells (3 per cell) and of the interior faces (6 per
+    /// face, the unknowns of the cells above and below); NaN where there is none. With
+    /// [`System::restore_linearization`] they restore those evaluations exactly.
+    pub fn linearization_states(&self) -> (Vec<f64>, Vec<f64>) {
+        if self.reduced() {
+            self.d_reduced.bases()
+        } else {
+            self.d_full.bases()
+        }
+    }
+
+    /// Re-evaluates the kept evaluations with derivatives at the given states (as from
+    /// [`System::linearization_states`]; empty or mis-sized: none kept).
+    pub fn restore_linearization(&mut self, cells: &[f64], faces: &[f64]) {
+        self.forget_linearization();
+        if self.reduced() {
+            let mut d = std::mem::take(&mut self.d_reduced);
+            d.restore(self, cells, faces);
+            self.d_reduced = d;
+        } else {
+            let mut d = std::mem::take(&mut self.d_full);
+            d.restore(self, cells, faces);
+            self.d_full = d;
+        }
     }
 
     /// Whether the vapour unknown is algebraic (equilibrium mode): the evaluations with
@@ -181,27 +205,29 @@ impl System {
     /// Evaluates cell properties and all face fluxes (values only) at state `u` and
     /// time `t` [s].
     ///
-    /// After an evaluation with derivatives (the Jacobian's), a cell whose unknowns moved
-    /// from that evaluation's by at most 1e-8 relative (head: relative to
-    /// max(|h|, 0.01 m)) takes its properties by linearisation, value + derivatives ·
-    /// change, and a face between two such cells its fluxes likewise. The error is of
+    /// The evaluations with derivatives (the Jacobian's) are kept per cell and per face
+    /// with the state they were made at (see `derivs::Derivs`): a cell whose unknowns
+    /// lie within 1e-8 relative of its kept state (head: relative to max(|h|, 0.01 m))
+    /// takes its properties by linearisation, value + derivatives · change, and a face
+    /// whose two cells lie that near its kept state its fluxes likewise. The error is of
     /// second order in the change, ~1e-16 relative times the square of the laws' slopes
     /// in log–log terms (about 18 for the saturation pressure in T, a few for the Mualem
     /// conductivity in h): a few 1e-14, at the round-off of a direct evaluation and far
-    /// below the Newton tolerance (`tests/jacobian.rs` checks 1e-13). Within a Newton solve most cells away from a
-    /// moving front qualify after the first iteration (two thirds of the cell evaluations
-    /// on the benchmark case). Boundary faces are always evaluated directly.
+    /// below the Newton tolerance (`tests/jacobian.rs` checks 1e-13). Cells away from a
+    /// moving front mostly qualify (on the benchmark case, two thirds of the cell
+    /// evaluations of the residual-only Newton iterations, and 38 % of those of the
+    /// Jacobian evaluations, which keep them). Boundary faces are always evaluated
+    /// directly.
     pub fn evaluate(&mut self, t: f64, u: &[f64]) {
         let mut cells = std::mem::take(&mut self.cells);
         let mut faces = std::mem::take(&mut self.faces);
         let mut totals = std::mem::take(&mut self.face_totals);
-        let mut linear = std::mem::take(&mut self.linear);
         let done = if self.reduced() {
             self.d_reduced
-                .linearised(self, t, u, &mut cells, &mut faces, &mut totals, &mut linear)
+                .linearised(self, t, u, &mut cells, &mut faces, &mut totals)
         } else {
             self.d_full
-                .linearised(self, t, u, &mut cells, &mut faces, &mut totals, &mut linear)
+                .linearised(self, t, u, &mut cells, &mut faces, &mut totals)
         };
         if !done {
             evaluate_into(self, t, u, &mut cells, &mut faces, &mut totals);
@@ -209,7 +235,6 @@ impl System {
         self.cells = cells;
         self.faces = faces;
         self.face_totals = totals;
-        self.linear = linear;
     }
 
     /// As [`System::evaluate`], with the derivatives the Jacobian needs; the values are

@@ -148,6 +148,11 @@ pub struct StepState {
     /// Error estimate of the last accepted BDF step (0: none since the last restart),
     /// for the predictive step controller.
     pub last_error: f64,
+    /// The states at which the system's kept evaluations with derivatives were made
+    /// (cells, faces; see `System::linearization_states`): part of the state because
+    /// later steps linearise from them. Filled by [`Stepper::sync_state`]; empty: none.
+    pub linearization_cells: Vec<f64>,
+    pub linearization_faces: Vec<f64>,
 }
 
 pub struct Stepper {
@@ -219,6 +224,8 @@ impl Stepper {
             state.storage = vec![0.0; 3 * n];
             sys.storage_into(&mut state.storage);
         }
+        // The kept evaluations with derivatives of the run this state comes from.
+        sys.restore_linearization(&state.linearization_cells, &state.linearization_faces);
         Stepper {
             state,
             opts,
@@ -249,7 +256,18 @@ impl Stepper {
             order: 1,
             steps_at_order: 0,
             last_error: 0.0,
+            linearization_cells: Vec::new(),
+            linearization_faces: Vec::new(),
         }
+    }
+
+    /// Copies into the state what it takes from the system (the states of its kept
+    /// evaluations with derivatives), so that it continues the run exactly: call before
+    /// saving the state.
+    pub fn sync_state(&mut self, sys: &System) {
+        let (cells, faces) = sys.linearization_states();
+        self.state.linearization_cells = cells;
+        self.state.linearization_faces = faces;
     }
 
     /// Forgets the multistep history (after a discontinuity in the forcing): the next

@@ -169,7 +169,8 @@ fn worst(res: &[f64], inv_scale: &[f64]) -> (f64, usize, usize) {
     let mut best = (0.0, 0, 0);
     for (k, (r, s)) in res.iter().zip(inv_scale.iter()).enumerate() {
         let v = r.abs() * s;
-        if v > best.0 || v.is_nan() {
+        // (The residual is finite here: `System::assemble` refuses NaN and Inf.)
+        if v > best.0 {
             best = (v, k / 3, k % 3);
         }
     }
@@ -287,8 +288,8 @@ pub fn solve(
             w.factor_c = Some(c);
             stats.factorizations += 1;
         }
-        for k in 0..3 * n {
-            w.dx[k] = -w.res[k] * w.row[k];
+        for ((d, r), s) in w.dx.iter_mut().zip(w.res.iter()).zip(w.row.iter()) {
+            *d = -r * s;
         }
         if let Err(e) = lin.solve(&mut w.dx) {
             w.invalidate();
@@ -299,36 +300,38 @@ pub fn solve(
         }
         stats.iterations += 1;
         small_update = true;
-        for i in 0..n {
-            let kt = 3 * i + T;
-            let kh = 3 * i + H;
-            let kv = 3 * i + RV;
-            let mut dt = w.dx[kt] * w.col[kt];
-            let mut dh = w.dx[kh] * w.col[kh];
-            let mut drv = w.dx[kv] * w.col[kv];
-            dt = dt.clamp(-opts.max_dt_per_iter, opts.max_dt_per_iter);
+        let shrink = 1.0 / opts.max_dh_factor;
+        for (((x, d), c), s) in u
+            .chunks_exact_mut(3)
+            .zip(w.dx.chunks_exact(3))
+            .zip(w.col.chunks_exact(3))
+            .zip(w.step.chunks_exact_mut(3))
+        {
+            let dt = (d[T] * c[T]).clamp(-opts.max_dt_per_iter, opts.max_dt_per_iter);
             // Heads move at most by the factor `max_dh_factor` per iteration in |h| (dry
             // soil spans decades), plus `max_dh_abs` near saturation.
-            let h = u[kh];
+            let h = x[H];
             let lo = h.min(0.0) * opts.max_dh_factor - opts.max_dh_abs;
-            let hi = if h < 0.0 { h / opts.max_dh_factor } else { h } + opts.max_dh_abs;
-            dh = dh.clamp(lo - h, hi - h);
+            let hi = if h < 0.0 { h * shrink } else { h } + opts.max_dh_abs;
+            let dh = (d[H] * c[H]).clamp(lo - h, hi - h);
             // Vapour density stays positive.
-            if u[kv] + drv < 0.1 * u[kv] {
-                drv = -0.9 * u[kv];
+            let rv = x[RV];
+            let mut drv = d[RV] * c[RV];
+            if rv + drv < 0.1 * rv {
+                drv = -0.9 * rv;
             }
             if dt.abs() > opts.update_t
-                || dh.abs() > opts.update_h_abs + opts.update_h_rel * u[kh].abs()
-                || drv.abs() > opts.update_rv_abs + opts.update_rv_rel * u[kv].abs()
+                || dh.abs() > opts.update_h_abs + opts.update_h_rel * h.abs()
+                || drv.abs() > opts.update_rv_abs + opts.update_rv_rel * rv.abs()
             {
                 small_update = false;
             }
-            w.step[kt] = dt;
-            w.step[kh] = dh;
-            w.step[kv] = drv;
-        }
-        for k in 0..u.len() {
-            u[k] += w.step[k];
+            s[T] = dt;
+            s[H] = dh;
+            s[RV] = drv;
+            x[T] += dt;
+            x[H] += dh;
+            x[RV] += drv;
         }
     }
 }

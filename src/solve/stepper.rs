@@ -162,7 +162,6 @@ pub struct Stepper {
     work: NewtonWork,
     u_old: Vec<f64>,
     hist: Vec<f64>,
-    pred: Vec<f64>,
 }
 
 /// Largest step ratio Δt_{n+1}/Δt_n for the BDF order (index = order).
@@ -233,7 +232,6 @@ impl Stepper {
             work: NewtonWork::new(n),
             u_old: vec![0.0; 3 * n],
             hist: vec![0.0; 3 * n],
-            pred: vec![0.0; 3 * n],
         }
     }
 
@@ -306,79 +304,92 @@ impl Stepper {
         (abs, rel)
     }
 
-    /// Weighted max norm of the local error estimate of order `q` for the step to `t_new`
-    /// of size `dt` just solved (state in `self.state.u`, its evaluation in `sys`): the
-    /// difference between the solution and the extrapolation through the q+1 newest points,
-    /// times `dt/(t_new − t_{n−q})`. Temperature and vapour density are tested directly;
-    /// moisture in liquid content through the water storage (in head where the soil is
-    /// saturated and θl is flat). Needs `q` ≤ history length + 1. Returns the norm and
-    /// the worst (cell, variable).
-    fn error_norm(
+    /// Weighted max norms of the local error estimates of the orders `orders` (at most
+    /// three) for the step to `t_new` of size `dt` just solved (state in
+    /// `self.state.u`, its evaluation in `sys`), in one pass over the cells: for order q,
+    /// the difference between the solution and the extrapolation through the q+1 newest
+    /// points, times `dt/(t_new − t_{n−q})`. Temperature and vapour density are tested
+    /// directly; moisture in liquid content through the water storage (in head where the
+    /// soil is saturated and θl is flat). Needs every q ≤ history length + 1. Returns per
+    /// order the norm and the worst (cell, variable).
+    fn error_norms(
         &self,
         sys: &System,
-        q: usize,
+        orders: &[usize],
         t_new: f64,
         dt: f64,
         tol: &Tolerances,
-    ) -> (f64, (usize, usize)) {
+    ) -> [(f64, (usize, usize)); 3] {
         let s = &self.state;
-        let mut ptau = [0.0f64; 7];
-        let mut lag = [0.0f64; 7];
-        ptau[0] = s.t;
-        for j in 1..=q {
-            ptau[j] = s.history[j - 1].t;
+        let nq = orders.len().min(3);
+        let mut lag = [[0.0f64; 7]; 3];
+        let mut scale = [0.0f64; 3];
+        let mut q_max = 0;
+        for (o, &q) in orders.iter().take(nq).enumerate() {
+            let mut ptau = [0.0f64; 7];
+            ptau[0] = s.t;
+            for j in 1..=q {
+                ptau[j] = s.history[j - 1].t;
+            }
+            lagrange_values(&ptau[..=q], t_new, &mut lag[o]);
+            scale[o] = dt / (t_new - ptau[q]);
+            q_max = q_max.max(q);
         }
-        lagrange_values(&ptau[..=q], t_new, &mut lag);
-        let scale = dt / (t_new - ptau[q]);
-        // Extrapolated unknown `k` and water storage of cell `i`.
-        let pu = |k: usize| -> f64 {
-            (1..=q).fold(lag[0] * self.u_old[k], |a, j| {
-                a + lag[j] * s.history[j - 1].u[k]
-            })
-        };
-        let pm = |k: usize| -> f64 {
-            (1..=q).fold(lag[0] * s.storage[k], |a, j| {
-                a + lag[j] * s.history[j - 1].storage[k]
-            })
-        };
-        // The largest ratio |error| / weight, compared by cross-multiplication (a division
-        // only where a new largest is found).
-        let mut err = 0.0f64;
-        let mut worst = (0usize, 0usize);
-        let mut consider = |num: f64, den: f64, at: (usize, usize)| {
-            if num > err * den || num.is_nan() {
-                err = num / den;
-                worst = at;
+        // The largest ratio |error| / weight per order, compared by cross-multiplication
+        // (a division only where a new largest is found).
+        let mut out = [(0.0f64, (0usize, 0usize)); 3];
+        // For each order: the solution `y` against the extrapolation of `points`
+        // (current, then history), with weight `den`.
+        let mut test = |points: &[f64; 7], y: f64, factor: f64, den: f64, at: (usize, usize)| {
+            for o in 0..nq {
+                let q = orders[o];
+                let p = (1..=q).fold(lag[o][0] * points[0], |a, j| a + lag[o][j] * points[j]);
+                let num = (scale[o] * (y - p) * factor).abs();
+                let (err, worst) = &mut out[o];
+                if num > *err * den || num.is_nan() {
+                    *err = num / den;
+                    *worst = at;
+                }
             }
         };
+        let mut points = [0.0f64; 7];
         for i in 0..sys.n {
             for (kk, atol) in [(T, tol.atol_t), (RV, tol.atol_rv)] {
-                let y = s.u[3 * i + kk];
-                consider(
-                    (scale * (y - pu(3 * i + kk))).abs(),
-                    atol + tol.rtol * y.abs().max(self.u_old[3 * i + kk].abs()),
-                    (i, kk),
-                );
+                let k = 3 * i + kk;
+                points[0] = self.u_old[k];
+                for j in 1..=q_max {
+                    points[j] = s.history[j - 1].u[k];
+                }
+                let y = s.u[k];
+                let den = atol + tol.rtol * y.abs().max(self.u_old[k].abs());
+                test(&points, y, 1.0, den, (i, kk));
             }
             let th = sys.cells[i].theta.v;
             if th >= sys.soil_of(i).retention.theta_s() {
-                let y = s.u[3 * i + H];
-                consider(
-                    (scale * (y - pu(3 * i + H))).abs(),
-                    tol.atol_h + tol.rtol * y.abs(),
-                    (i, H),
-                );
+                let k = 3 * i + H;
+                points[0] = self.u_old[k];
+                for j in 1..=q_max {
+                    points[j] = s.history[j - 1].u[k];
+                }
+                let y = s.u[k];
+                test(&points, y, 1.0, tol.atol_h + tol.rtol * y.abs(), (i, H));
             } else {
+                let k = 3 * i + WATER;
+                points[0] = s.storage[k];
+                for j in 1..=q_max {
+                    points[j] = s.history[j - 1].storage[k];
+                }
                 let m = sys.storage(i)[WATER];
-                let m_p = pm(3 * i + WATER);
-                consider(
-                    (scale * (m - m_p) / WATER_DENSITY).abs(),
+                test(
+                    &points,
+                    m,
+                    1.0 / WATER_DENSITY,
                     tol.atol_theta + tol.rtol * th,
                     (i, H),
                 );
             }
         }
-        (err, worst)
+        out
     }
 
     /// Takes one accepted step that does not pass `t_stop` (retrying with smaller Δt).
@@ -439,12 +450,18 @@ impl Stepper {
             }
             bdf_weights(&tau[..=k], &mut alpha);
             let c = alpha[0];
-            for i in 0..3 * n {
-                let mut hsum = alpha[1] * s.storage[i];
-                for j in 2..=k {
-                    hsum += alpha[j] * s.history[j - 2].storage[i];
+            // hist = −(α1 M_n + Σ αj M_{n+1−j}), accumulated point by point.
+            for (h, m) in self.hist.iter_mut().zip(s.storage.iter()) {
+                *h = alpha[1] * m;
+            }
+            for j in 2..=k {
+                let a = alpha[j];
+                for (h, m) in self.hist.iter_mut().zip(s.history[j - 2].storage.iter()) {
+                    *h += a * m;
                 }
-                self.hist[i] = -hsum;
+            }
+            for h in self.hist.iter_mut() {
+                *h = -*h;
             }
             // Predictor: extrapolation through the last k+1 points (as many as exist).
             let np = (k + 1).min(s.history.len() + 1);
@@ -454,25 +471,27 @@ impl Stepper {
                 ptau[j] = s.history[j - 1].t;
             }
             lagrange_values(&ptau[..np], t_new, &mut lag);
-            for i in 0..3 * n {
-                let mut v = lag[0] * self.u_old[i];
-                for j in 1..np {
-                    v += lag[j] * s.history[j - 1].u[i];
-                }
-                self.pred[i] = v;
-            }
             // Newton starts from the predictor (backward Euler: linear extrapolation of the
-            // last two points), kept physical: vapour density positive, head not above 0
-            // where the old head was below.
-            for i in 0..n {
-                if self.pred[3 * i + RV].is_nan() || self.pred[3 * i + RV] <= 0.0 {
-                    self.pred[3 * i + RV] = self.u_old[3 * i + RV];
-                }
-                if self.u_old[3 * i + H] < 0.0 && self.pred[3 * i + H] > 0.0 {
-                    self.pred[3 * i + H] = 0.5 * self.u_old[3 * i + H];
+            // last two points), accumulated point by point into the unknowns ...
+            for (p, x) in s.u.iter_mut().zip(self.u_old.iter()) {
+                *p = lag[0] * x;
+            }
+            for j in 1..np {
+                let l = lag[j];
+                for (p, x) in s.u.iter_mut().zip(s.history[j - 1].u.iter()) {
+                    *p += l * x;
                 }
             }
-            s.u.copy_from_slice(&self.pred);
+            // ... and kept physical: vapour density positive, head not above 0 where the
+            // old head was below.
+            for (p, old) in s.u.chunks_exact_mut(3).zip(self.u_old.chunks_exact(3)) {
+                if p[RV].is_nan() || p[RV] <= 0.0 {
+                    p[RV] = old[RV];
+                }
+                if old[H] < 0.0 && p[H] > 0.0 {
+                    p[H] = 0.5 * old[H];
+                }
+            }
             let result = newton::solve(
                 sys,
                 self.lin.as_mut(),
@@ -524,8 +543,32 @@ impl Stepper {
                     atol_theta,
                 };
                 let have_pred = s.history.len() + 1 > k; // k+1 points were available
+                                                         // The estimates of orders k and, when the order is to be chosen after
+                                                         // this step (see below), k + 1 and k − 1, in one pass.
+                let choose = have_pred && s.steps_at_order + 1 > k;
+                let up = choose && k < max_order && s.history.len() > k;
+                let down = choose && k > 1;
+                let mut orders = [k, 0, 0];
+                let mut count = 1;
+                for (q, wanted) in [(k + 1, up), (k.saturating_sub(1), down)] {
+                    if wanted {
+                        orders[count] = q;
+                        count += 1;
+                    }
+                }
+                let norms = if have_pred {
+                    self.error_norms(sys, &orders[..count], t_new, dt, &tol)
+                } else {
+                    [(0.0, (0, 0)); 3]
+                };
+                let estimate = |q: usize| {
+                    orders[..count]
+                        .iter()
+                        .position(|&o| o == q)
+                        .map(|p| norms[p].0)
+                };
                 let err = if have_pred {
-                    let (err, worst) = self.error_norm(sys, k, t_new, dt, &tol);
+                    let (err, worst) = norms[0];
                     log::trace!(
                         "t {:.6e} dt {dt:.3e} order {k} error {err:.3e} at cell {} variable {}",
                         self.state.t,
@@ -583,15 +626,13 @@ impl Stepper {
                 let mut next_order = s.order.max(k);
                 if have_pred && s.steps_at_order + 1 > k {
                     let mut best = (k, factor);
-                    if k < max_order && self.state.history.len() > k {
-                        let (e, _) = self.error_norm(sys, k + 1, t_new, dt, &tol);
+                    if let Some(e) = estimate(k + 1).filter(|_| up) {
                         let f = growth_factor(e, k + 1, cap);
                         if f >= 1.2 * factor || (f >= cap && factor >= cap) {
                             best = (k + 1, f);
                         }
                     }
-                    if best.0 == k && k > 1 {
-                        let (e, _) = self.error_norm(sys, k - 1, t_new, dt, &tol);
+                    if let Some(e) = estimate(k - 1).filter(|_| best.0 == k && down) {
                         let f = growth_factor(e, k - 1, cap);
                         if f > 1.2 * factor {
                             best = (k - 1, f);

@@ -357,24 +357,36 @@ fn balance_closed(sys: &System, res: &[f64], floor: [f64; 2], moved: [f64; 2], t
 /// (same size; no allocation).
 fn scaled_copy(a: &BlockTri, s: &[Block], dc: f64, row: &[f64], col: &[f64], b: &mut BlockTri) {
     let n = a.n;
-    for i in 0..n {
+    // One block: out = diag(rs) blk diag(cs).
+    let scaled = |blk: &Block, rs: &[f64], cs: &[f64], out: &mut Block| {
         for r in 0..3 {
-            let rs = row[3 * i + r];
             for q in 0..3 {
-                let k = r * 3 + q;
-                let d = if dc != 0.0 {
-                    a.diag[i][k] + dc * s[i][k]
-                } else {
-                    a.diag[i][k]
-                };
-                b.diag[i][k] = d * (rs * col[3 * i + q]);
-                if i > 0 {
-                    b.lower[i][k] = a.lower[i][k] * (rs * col[3 * (i - 1) + q]);
-                }
-                if i + 1 < n {
-                    b.upper[i][k] = a.upper[i][k] * (rs * col[3 * (i + 1) + q]);
-                }
+                out[r * 3 + q] = blk[r * 3 + q] * (rs[r] * cs[q]);
             }
+        }
+    };
+    for i in 0..n {
+        let rs = &row[3 * i..3 * i + 3];
+        let cs = &col[3 * i..3 * i + 3];
+        if dc != 0.0 {
+            let mut d = a.diag[i];
+            for (x, y) in d.iter_mut().zip(s[i].iter()) {
+                *x += dc * y;
+            }
+            scaled(&d, rs, cs, &mut b.diag[i]);
+        } else {
+            scaled(&a.diag[i], rs, cs, &mut b.diag[i]);
+        }
+        if i > 0 {
+            scaled(&a.lower[i], rs, &col[3 * (i - 1)..3 * i], &mut b.lower[i]);
+        }
+        if i + 1 < n {
+            scaled(
+                &a.upper[i],
+                rs,
+                &col[3 * (i + 1)..3 * i + 6],
+                &mut b.upper[i],
+            );
         }
     }
 }

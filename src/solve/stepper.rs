@@ -340,9 +340,20 @@ impl Stepper {
         let mut out = [(0.0f64, (0usize, 0usize)); 3];
         // For each order: the solution `y` against the extrapolation of `points`
         // (current, then history), with weight `den`.
-        let mut test = |points: &[f64; 7], y: f64, factor: f64, den: f64, at: (usize, usize)| {
-            for o in 0..nq {
-                let q = orders[o];
+        #[inline(always)]
+        #[allow(clippy::too_many_arguments)]
+        fn test(
+            out: &mut [(f64, (usize, usize)); 3],
+            orders: &[usize],
+            lag: &[[f64; 7]; 3],
+            scale: &[f64; 3],
+            points: &[f64; 7],
+            y: f64,
+            factor: f64,
+            den: f64,
+            at: (usize, usize),
+        ) {
+            for (o, &q) in orders.iter().enumerate() {
                 let p = (1..=q).fold(lag[o][0] * points[0], |a, j| a + lag[o][j] * points[j]);
                 let num = (scale[o] * (y - p) * factor).abs();
                 let (err, worst) = &mut out[o];
@@ -351,6 +362,10 @@ impl Stepper {
                     *worst = at;
                 }
             }
+        }
+        let orders = &orders[..nq];
+        let mut test = |points: &[f64; 7], y: f64, factor: f64, den: f64, at: (usize, usize)| {
+            test(&mut out, orders, &lag, &scale, points, y, factor, den, at)
         };
         let mut points = [0.0f64; 7];
         for i in 0..sys.n {

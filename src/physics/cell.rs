@@ -160,32 +160,38 @@ pub fn cell_props<const N: usize>(
 
 impl<const N: usize> CellProps<N> {
     /// The properties at the state (t, h, rv), displaced by `du` (the first N of
-    /// t, h, rv) from the state of this evaluation, to first order; the unknowns
-    /// themselves exactly (`rv`: None where it is not an unknown, equilibrium mode, and is
-    /// linearised like the other properties).
-    pub fn taylor(&self, t: f64, h: f64, rv: Option<f64>, du: &[f64; N]) -> CellProps<0> {
-        CellProps {
-            t: Dual::cst(t),
-            h: Dual::cst(h),
-            rv: match rv {
-                Some(rv) => Dual::cst(rv),
-                None => self.rv.taylor(du),
-            },
-            theta: self.theta.taylor(du),
-            theta_a: self.theta_a.taylor(du),
-            hr: self.hr.taylor(du),
-            rvs: self.rvs.taylor(du),
-            drvs: self.drvs.taylor(du),
-            rveq: self.rveq.taylor(du),
-            k: self.k.taylor(du),
-            kt: self.kt.taylor(du),
-            dv: self.dv.taylor(du),
-            eta: self.eta.taylor(du),
-            lambda: self.lambda.taylor(du),
-            energy: self.energy.taylor(du),
-            water: self.water.taylor(du),
-            vapor: self.vapor.taylor(du),
-        }
+    /// t, h, rv) from the state of this evaluation, to first order, into `out` (written in
+    /// place: no copy of the whole record); the unknowns themselves exactly (`rv`: None
+    /// where it is not an unknown, equilibrium mode, and is linearised like the other
+    /// properties).
+    pub fn taylor_into(
+        &self,
+        t: f64,
+        h: f64,
+        rv: Option<f64>,
+        du: &[f64; N],
+        out: &mut CellProps<0>,
+    ) {
+        out.t = Dual::cst(t);
+        out.h = Dual::cst(h);
+        out.rv = match rv {
+            Some(rv) => Dual::cst(rv),
+            None => self.rv.taylor(du),
+        };
+        out.theta = self.theta.taylor(du);
+        out.theta_a = self.theta_a.taylor(du);
+        out.hr = self.hr.taylor(du);
+        out.rvs = self.rvs.taylor(du);
+        out.drvs = self.drvs.taylor(du);
+        out.rveq = self.rveq.taylor(du);
+        out.k = self.k.taylor(du);
+        out.kt = self.kt.taylor(du);
+        out.dv = self.dv.taylor(du);
+        out.eta = self.eta.taylor(du);
+        out.lambda = self.lambda.taylor(du);
+        out.energy = self.energy.taylor(du);
+        out.water = self.water.taylor(du);
+        out.vapor = self.vapor.taylor(du);
     }
 
     /// The values alone (what the residual-only path computes).

@@ -199,11 +199,12 @@ impl<const N: usize, const M: usize> Derivs<N, M> {
                 sys.cells[i] = self.cells[i].values();
             } else {
                 let x0 = &self.cell_base[3 * i..3 * i + 3];
-                sys.cells[i] = self.cells[i].taylor(
+                self.cells[i].taylor_into(
                     x[T],
                     x[H],
                     Self::WITH_RV.then_some(x[RV]),
                     &change::<N>(x, x0),
+                    &mut sys.cells[i],
                 );
             }
         }
@@ -211,7 +212,7 @@ impl<const N: usize, const M: usize> Derivs<N, M> {
         for j in 1..n {
             if self.face_kept[j] {
                 let du = self.face_change(j, u);
-                sys.faces[j] = self.faces[j].taylor(&du);
+                self.faces[j].taylor_into(&du, &mut sys.faces[j]);
                 let td = &self.totals[j];
                 sys.face_totals[j] = [td[0].taylor(&du), td[1].taylor(&du), td[2].taylor(&du)];
             } else {
@@ -275,22 +276,23 @@ impl<const N: usize, const M: usize> Derivs<N, M> {
         for (i, c) in cells.iter_mut().enumerate() {
             let x = &u[3 * i..3 * i + 3];
             let x0 = &self.cell_base[3 * i..3 * i + 3];
-            *c = if near(x, x0, Self::WITH_RV) {
-                self.cells[i].taylor(
+            if near(x, x0, Self::WITH_RV) {
+                self.cells[i].taylor_into(
                     x[T],
                     x[H],
                     Self::WITH_RV.then_some(x[RV]),
                     &change::<N>(x, x0),
-                )
+                    c,
+                );
             } else {
-                cell_props(
+                *c = cell_props(
                     sys.soil_of(i),
                     &sys.physics,
                     Dual::var(x[T], 0),
                     Dual::var(x[H], 1),
                     Dual::var(x[RV], 2),
-                )
-            };
+                );
+            }
         }
         let avg = sys.physics.face_conductivity;
         for j in 1..n {
@@ -299,7 +301,7 @@ impl<const N: usize, const M: usize> Derivs<N, M> {
                 && near(&u[3 * j..3 * j + 3], &b[3..], Self::WITH_RV)
             {
                 let du = self.face_change(j, u);
-                faces[j] = self.faces[j].taylor(&du);
+                self.faces[j].taylor_into(&du, &mut faces[j]);
                 let td = &self.totals[j];
                 totals[j] = [td[0].taylor(&du), td[1].taylor(&du), td[2].taylor(&du)];
             } else {

@@ -65,6 +65,13 @@ pub struct System {
     d_reduced: Derivs<2, 4>,
 }
 
+/// Whether every value is finite, in one branch-free pass (x·0 is 0 for finite x and
+/// NaN for NaN or ±Inf).
+#[inline]
+fn all_finite(x: &[f64]) -> bool {
+    x.iter().fold(0.0, |a: f64, v| a + v * 0.0) == 0.0
+}
+
 /// Magnitudes of the flux terms through one face: the scales of the energy and water
 /// fluxes (at least the fluxes themselves), the vapour flux parts, and the operands whose
 /// round-off the face contributes.
@@ -483,13 +490,12 @@ impl System {
                 }
             }
         }
-        for (k, r) in res.iter().enumerate().take(3 * n) {
-            if !r.is_finite() {
-                return Err(NonFinite {
-                    cell: k / 3,
-                    row: k % 3,
-                });
-            }
+        if !all_finite(&res[..3 * n]) {
+            let k = res.iter().position(|r| !r.is_finite()).unwrap_or(0);
+            return Err(NonFinite {
+                cell: k / 3,
+                row: k % 3,
+            });
         }
         if let Some(jac) = jac {
             if self.reduced() {
@@ -498,6 +504,9 @@ impl System {
                 self.d_full.jacobian_into(self, c, jac);
             }
             for blocks in [&jac.lower, &jac.diag, &jac.upper] {
+                if blocks.iter().all(|b| all_finite(b)) {
+                    continue;
+                }
                 for (i, b) in blocks.iter().enumerate() {
                     if let Some(k) = b.iter().position(|x| !x.is_finite()) {
                         return Err(NonFinite {

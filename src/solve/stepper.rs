@@ -357,7 +357,8 @@ impl Stepper {
                 let p = (1..=q).fold(lag[o][0] * points[0], |a, j| a + lag[o][j] * points[j]);
                 let num = (scale[o] * (y - p) * factor).abs();
                 let (err, worst) = &mut out[o];
-                if num > *err * den || num.is_nan() {
+                // (The state is finite here: Newton refuses NaN and Inf.)
+                if num > *err * den {
                     *err = num / den;
                     *worst = at;
                 }

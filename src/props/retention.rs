@@ -129,6 +129,7 @@ impl RetentionLaw {
     }
 
     /// ln Se, ln Kr and their h-derivatives for h < 0.
+    #[inline]
     fn base(&self, h: f64) -> Base {
         match *self {
             RetentionLaw::VanGenuchten { alpha, n, l, .. } => {
@@ -278,6 +279,7 @@ impl Retention {
 
     /// θ(h) and dθ/dh, and Kr(h) and dKr/dh, from one evaluation of the base law (the
     /// residual needs both at every cell).
+    #[inline]
     pub fn theta_and_relative_conductivity(&self, h: f64) -> ((f64, f64), (f64, f64)) {
         if h >= 0.0 || h.is_nan() {
             return ((self.law.theta_s(), 0.0), (1.0, 0.0));

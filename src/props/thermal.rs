@@ -54,6 +54,7 @@ impl ThermalConductivity {
     }
 
     /// λ(θ) [W m⁻¹ K⁻¹] and dλ/dθ, with `porosity` φ for laws written in saturation.
+    #[inline]
     pub fn value(&self, theta: f64, porosity: f64) -> (f64, f64) {
         let clipped = theta.is_nan() || theta < 0.0;
         let th = if clipped { 0.0 } else { theta };

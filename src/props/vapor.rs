@@ -65,6 +65,7 @@ impl Diffusivity {
     }
 
     /// D(T, p) [m² s⁻¹] and dD/dT.
+    #[inline]
     pub fn value(&self, t: f64, p: f64) -> (f64, f64) {
         let d = self.d0 * (t / self.t0).powf(self.exponent) * (self.p0 / p);
         (d, self.exponent * d / t)
@@ -82,6 +83,7 @@ impl Default for Diffusivity {
 ///
 /// θa < 0 is clipped to 0 (τ = 0, derivative 0); at θa = 0 the derivative is 0 (finite).
 /// Requires φ > 0.
+#[inline]
 pub fn tortuosity(theta_a: f64, porosity: f64) -> (f64, f64) {
     if theta_a.is_nan() || theta_a <= 0.0 {
         return (0.0, 0.0);
@@ -108,6 +110,7 @@ pub enum Enhancement {
 
 impl Enhancement {
     /// η(θ) [-] and dη/dθ.
+    #[inline]
     pub fn value(&self, theta: f64, porosity: f64) -> (f64, f64) {
         match *self {
             Enhancement::None => (1.0, 0.0),

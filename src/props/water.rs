@@ -310,6 +310,7 @@ const KELVIN: f64 = GRAVITY * MOLAR_MASS_WATER / GAS_CONSTANT;
 ///
 /// For h ≥ 0 (saturated soil) hr = 1 with zero derivatives. For very negative heads hr
 /// underflows gracefully to 0 (finite derivatives). Requires T > 0.
+#[inline]
 pub fn relative_humidity(h: f64, t: f64) -> (f64, f64, f64) {
     if h >= 0.0 {
         return (1.0, 0.0, 0.0);

@@ -35,7 +35,9 @@ fn time_it(mut f: impl FnMut()) -> f64 {
 struct Row {
     label: String,
     cells: usize,
+    /// Wall time of the run [s]: the shortest and the median of the repetitions.
     wall: f64,
+    wall_median: f64,
     steps: u64,
     newton: u64,
     jacobians: u64,
@@ -64,8 +66,36 @@ pub(crate) fn run_text_into(
     Ok((model, summary))
 }
 
-fn measure(label: &str, text: &str, origin: &str, base: &Path, out: &Path) -> Result<Row> {
-    let (model, summary) = run_text_into(text, origin, base, out)?;
+/// Runs `text` `repeat` times (at least once) into `out`; the last run's model and summary
+/// with the shortest and the median wall time [s].
+fn run_repeated(
+    text: &str,
+    origin: &str,
+    base: &Path,
+    out: &Path,
+    repeat: usize,
+) -> Result<(crate::model::Model, crate::run::RunSummary, f64, f64)> {
+    let mut walls = Vec::with_capacity(repeat.max(1));
+    let mut last = None;
+    for _ in 0..repeat.max(1) {
+        let (model, summary) = run_text_into(text, origin, base, out)?;
+        walls.push(summary.wall_seconds);
+        last = Some((model, summary));
+    }
+    walls.sort_by(f64::total_cmp);
+    let (model, summary) = last.ok_or_else(|| Error::Internal("no benchmark run".into()))?;
+    Ok((model, summary, walls[0], walls[walls.len() / 2]))
+}
+
+fn measure(
+    label: &str,
+    text: &str,
+    origin: &str,
+    base: &Path,
+    out: &Path,
+    repeat: usize,
+) -> Result<Row> {
+    let (model, summary, wall, wall_median) = run_repeated(text, origin, base, out, repeat)?;
     // Component costs at the initial state.
     let mut sys = System::new(&model);
     let n = sys.n;
@@ -112,7 +142,8 @@ fn measure(label: &str, text: &str, origin: &str, base: &Path, out: &Path) -> Re
     Ok(Row {
         label: label.to_string(),
         cells: n,
-        wall: summary.wall_seconds,
+        wall,
+        wall_median,
         steps: summary.counters.steps,
         newton: summary.counters.newton_iterations,
         jacobians: summary.counters.jacobians,
@@ -149,7 +180,15 @@ fn set_key(text: &str, key: &str, value: &str) -> String {
 /// rewritten and `surface_cell_m`, `bottom_cell_m` dropped); returns the report table.
 /// With `accuracy`, the reference case's results are also compared with tight-tolerance
 /// runs ([`crate::accuracy`]) and the comparison appended.
-pub fn bench(case: &Path, cells: &[usize], span_years: f64, accuracy: bool) -> Result<String> {
+/// Every run is repeated `repeat` times; the table gives the shortest wall time (the
+/// least disturbed by other work on the machine) and the median.
+pub fn bench(
+    case: &Path,
+    cells: &[usize],
+    span_years: f64,
+    accuracy: bool,
+    repeat: usize,
+) -> Result<String> {
     let text = std::fs::read_to_string(case).map_err(|e| {
         Error::input(format!(
             "{}: cannot read the case file: {e}",
@@ -160,12 +199,15 @@ pub fn bench(case: &Path, cells: &[usize], span_years: f64, accuracy: bool) -> R
     let origin = case.display().to_string();
     let tmp = std::env::temp_dir().join(format!("deepdry-bench-{}", std::process::id()));
     std::fs::create_dir_all(&tmp).map_err(|e| Error::io(&tmp, e))?;
-    let report = bench_in(&text, &origin, base, &tmp, cells, span_years, accuracy);
+    let report = bench_in(
+        &text, &origin, base, &tmp, cells, span_years, accuracy, repeat,
+    );
     let _ = std::fs::remove_dir_all(&tmp);
     report
 }
 
 /// [`bench`] with its scratch folder `tmp` (removed by the caller).
+#[allow(clippy::too_many_arguments)]
 fn bench_in(
     text: &str,
     origin: &str,
@@ -174,10 +216,11 @@ fn bench_in(
     cells: &[usize],
     span_years: f64,
     accuracy: bool,
+    repeat: usize,
 ) -> Result<String> {
     // The reference case in a folder of its own: its results stay for the comparison.
     let own = tmp.join("reference");
-    let mut rows = vec![measure("reference case", text, origin, base, &own)?];
+    let mut rows = vec![measure("reference case", text, origin, base, &own, repeat)?];
     for &n in cells {
         // Uniform cells, so the series differs only in the cell count.
         let t = set_key(text, "cells", &n.to_string());
@@ -191,19 +234,22 @@ fn bench_in(
             origin,
             base,
             tmp,
+            repeat,
         )?);
     }
     let mut out = String::new();
     let _ = writeln!(
         out,
-        "deepdry benchmark: {origin} (single thread, release build)"
+        "deepdry benchmark: {origin} (single thread, release build; wall: shortest and median of {} runs)",
+        repeat.max(1)
     );
     let _ = writeln!(
         out,
-        "{:<16} {:>7} {:>9} {:>7} {:>8} {:>9} {:>12} {:>12} {:>12} {:>12} {:>12} {:>12}",
+        "{:<16} {:>7} {:>9} {:>10} {:>7} {:>8} {:>9} {:>12} {:>12} {:>12} {:>12} {:>12} {:>12}",
         "workload",
         "cells",
         "wall [s]",
+        "median [s]",
         "steps",
         "Newton",
         "Jacobians",
@@ -218,10 +264,11 @@ fn bench_in(
         let per_it_cell = r.wall / r.newton.max(1) as f64 / r.cells as f64 * 1e6;
         let _ = writeln!(
             out,
-            "{:<16} {:>7} {:>9.3} {:>7} {:>8} {:>9} {:>12.3} {:>12.3} {:>12.1} {:>12.1} {:>12.1} {:>12.1}",
+            "{:<16} {:>7} {:>9.3} {:>10.3} {:>7} {:>8} {:>9} {:>12.3} {:>12.3} {:>12.1} {:>12.1} {:>12.1} {:>12.1}",
             r.label,
             r.cells,
             r.wall,
+            r.wall_median,
             r.steps,
             r.newton,
             r.jacobians,

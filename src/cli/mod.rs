@@ -60,6 +60,9 @@ pub enum Command {
         /// on a mesh refined twice (surface flux, water lost, profiles at 1 to 1e6 yr).
         #[arg(long)]
         accuracy: bool,
+        /// Runs of every workload; the table gives the shortest and the median wall time.
+        #[arg(long, default_value_t = 5, value_parser = clap::value_parser!(u16).range(1..=100))]
+        repeat: u16,
     },
     /// Summarise a results or checkpoint file.
     Inspect {
@@ -196,10 +199,11 @@ fn run_command(cli: Cli) -> Result<()> {
             cells,
             span_years,
             accuracy,
+            repeat,
         } => {
             print!(
                 "{}",
-                crate::bench::bench(&case, &cells, span_years, accuracy)?
+                crate::bench::bench(&case, &cells, span_years, accuracy, repeat as usize)?
             );
             Ok(())
         }

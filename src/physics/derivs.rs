@@ -258,8 +258,11 @@ impl<const N: usize, const M: usize> Derivs<N, M> {
     }
 
     /// The value evaluation at (t, u): cells and faces near their bases by
-    /// linearisation, the others directly, into `cells`, `faces`, `totals`. False, and
+    /// linearisation, the others directly, into `cells`, `faces`, `totals`. Without
+    /// `parts`, a linearised face gets its totals only (what the residual needs), its
+    /// flux parts are left as they were (see [`Derivs::complete_parts`]). False, and
     /// nothing written, when the workspace is not set up for this system.
+    #[allow(clippy::too_many_arguments)]
     pub fn linearised(
         &self,
         sys: &System,
@@ -268,6 +271,7 @@ impl<const N: usize, const M: usize> Derivs<N, M> {
         cells: &mut [super::CellProps<0>],
         faces: &mut [FaceFlux<0>],
         totals: &mut [[Dual<0>; 3]],
+        parts: bool,
     ) -> bool {
         let n = sys.n;
         if self.cells.len() != n || u.len() != 3 * n {
@@ -301,7 +305,9 @@ impl<const N: usize, const M: usize> Derivs<N, M> {
                 && near(&u[3 * j..3 * j + 3], &b[3..], Self::WITH_RV)
             {
                 let du = self.face_change(j, u);
-                self.faces[j].taylor_into(&du, &mut faces[j]);
+                if parts {
+                    self.faces[j].taylor_into(&du, &mut faces[j]);
+                }
                 let td = &self.totals[j];
                 totals[j] = [td[0].taylor(&du), td[1].taylor(&du), td[2].taylor(&du)];
             } else {
@@ -326,6 +332,23 @@ impl<const N: usize, const M: usize> Derivs<N, M> {
             faces[j] = f;
         }
         true
+    }
+
+    /// The flux parts of the linearised interior faces at `u`, left out by
+    /// [`Derivs::linearised`] without `parts` at the same `u` (the totals and the other
+    /// faces are already there).
+    pub fn complete_parts(&self, sys: &System, u: &[f64], faces: &mut [FaceFlux<0>]) {
+        if self.cells.len() != sys.n {
+            return;
+        }
+        for j in 1..sys.n {
+            let b = &self.face_base[j];
+            if near(&u[3 * (j - 1)..3 * j], &b[..3], Self::WITH_RV)
+                && near(&u[3 * j..3 * j + 3], &b[3..], Self::WITH_RV)
+            {
+                self.faces[j].taylor_into(&self.face_change(j, u), &mut faces[j]);
+            }
+        }
     }
 
     /// The Jacobian of the residual of [`System::assemble`] with coefficient `c` into

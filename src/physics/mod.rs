@@ -63,6 +63,8 @@ pub struct System {
     /// in kinetic mode, 2 in equilibrium mode (see `derivs`).
     d_full: Derivs<3, 6>,
     d_reduced: Derivs<2, 4>,
+    /// Whether the last evaluation left out the flux parts of linearised faces.
+    parts_left_out: bool,
 }
 
 /// Whether every value is finite, in one branch-free pass (x·0 is 0 for finite x and
@@ -154,6 +156,7 @@ impl System {
             face_totals: vec![[D0::cst(0.0); 3]; n + 1],
             d_full: Derivs::default(),
             d_reduced: Derivs::default(),
+            parts_left_out: false,
         }
     }
 
@@ -226,22 +229,46 @@ impl System {
     /// Jacobian evaluations, which keep them). Boundary faces are always evaluated
     /// directly.
     pub fn evaluate(&mut self, t: f64, u: &[f64]) {
+        self.evaluate_values(t, u, true);
+    }
+
+    /// [`System::evaluate`]; without `parts`, the flux parts of linearised faces are left
+    /// out (the residual needs the totals only) until [`System::complete_face_parts`].
+    fn evaluate_values(&mut self, t: f64, u: &[f64], parts: bool) {
         let mut cells = std::mem::take(&mut self.cells);
         let mut faces = std::mem::take(&mut self.faces);
         let mut totals = std::mem::take(&mut self.face_totals);
         let done = if self.reduced() {
             self.d_reduced
-                .linearised(self, t, u, &mut cells, &mut faces, &mut totals)
+                .linearised(self, t, u, &mut cells, &mut faces, &mut totals, parts)
         } else {
             self.d_full
-                .linearised(self, t, u, &mut cells, &mut faces, &mut totals)
+                .linearised(self, t, u, &mut cells, &mut faces, &mut totals, parts)
         };
         if !done {
             evaluate_into(self, t, u, &mut cells, &mut faces, &mut totals);
         }
+        self.parts_left_out = done && !parts;
         self.cells = cells;
         self.faces = faces;
         self.face_totals = totals;
+    }
+
+    /// Completes the last evaluation, made at `u` by [`System::assemble`] without the
+    /// Jacobian, with the flux parts it left out, so that everything read from the
+    /// system (fluxes by mechanism, for the results) belongs to `u`.
+    pub fn complete_face_parts(&mut self, u: &[f64]) {
+        if !self.parts_left_out {
+            return;
+        }
+        let mut faces = std::mem::take(&mut self.faces);
+        if self.reduced() {
+            self.d_reduced.complete_parts(self, u, &mut faces);
+        } else {
+            self.d_full.complete_parts(self, u, &mut faces);
+        }
+        self.faces = faces;
+        self.parts_left_out = false;
     }
 
     /// As [`System::evaluate`], with the derivatives the Jacobian needs; the values are
@@ -256,6 +283,7 @@ impl System {
             d.evaluate(self, t, u);
             self.d_full = d;
         }
+        self.parts_left_out = false;
     }
 
     /// Storage per bulk volume of cell i: [energy J m⁻³, water kg m⁻³, vapour kg m⁻³],
@@ -445,7 +473,8 @@ impl System {
         if jac.is_some() {
             self.evaluate_with_derivatives(t, u);
         } else {
-            self.evaluate(t, u);
+            // The residual needs the face totals, not the flux parts.
+            self.evaluate_values(t, u, false);
         }
         let n = self.n;
         let kinetic = match self.physics.vapor_mode {

@@ -240,6 +240,8 @@ pub fn solve(
             return Err(NewtonFailure::NonFinite(NonFinite { cell, row }));
         }
         if (r <= opts.residual_tol && balanced) || (small_update && r <= opts.residual_tol_loose) {
+            // The accepted state's evaluation complete (fluxes by mechanism for output).
+            sys.complete_face_parts(u);
             return Ok(stats);
         }
         if stats.iterations >= opts.max_iter {

@@ -212,26 +212,21 @@ fn write_via(
                 hp.throughput[1],
             ]);
         }
-        let a = ndarray::Array2::from_shape_vec((hlen, width), hu)
-            .map_err(|x| Error::Internal(x.to_string()))?;
-        file.new_dataset_builder()
-            .with_data(&a)
-            .create("history_unknowns")
-            .map_err(&er)?;
-        if hs.len() == hlen * width {
-            let a = ndarray::Array2::from_shape_vec((hlen, width), hs)
+        // A 2-D dataset of `rows` rows from row-major values.
+        let table = |name: &str, rows: usize, cols: usize, v: Vec<f64>| -> Result<()> {
+            let a = ndarray::Array2::from_shape_vec((rows, cols), v)
                 .map_err(|x| Error::Internal(x.to_string()))?;
             file.new_dataset_builder()
                 .with_data(&a)
-                .create("history_storage")
+                .create(name)
                 .map_err(&er)?;
+            Ok(())
+        };
+        table("history_unknowns", hlen, width, hu)?;
+        if hs.len() == hlen * width {
+            table("history_storage", hlen, width, hs)?;
         }
-        let a = ndarray::Array2::from_shape_vec((hlen, 5), hmeta)
-            .map_err(|x| Error::Internal(x.to_string()))?;
-        file.new_dataset_builder()
-            .with_data(&a)
-            .create("history_time_inflow")
-            .map_err(&er)?;
+        table("history_time_inflow", hlen, 5, hmeta)?;
         let c = &state.counters;
         let ints: Vec<u64> = vec![
             c.steps,

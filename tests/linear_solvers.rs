@@ -60,6 +60,16 @@ fn decoupled_system(n: usize, seed: u64) -> (BlockTri, Vec<f64>) {
     (a, b)
 }
 
+/// max |A x − b|.
+fn residual(a: &BlockTri, x: &[f64], b: &[f64]) -> f64 {
+    let mut ax = vec![0.0; x.len()];
+    a.mul_vec_into(x, &mut ax);
+    ax.iter()
+        .zip(b)
+        .map(|(p, q)| (p - q).abs())
+        .fold(0.0, f64::max)
+}
+
 #[test]
 fn block_thomas_and_sparse_lu_agree() {
     let cases = [(1usize, 7u64), (2, 11), (50, 13), (600, 17)];
@@ -80,13 +90,7 @@ fn block_thomas_and_sparse_lu_agree() {
         let mut lu = SparseLu::new(n);
         lu.factor(&a).unwrap();
         lu.solve(&mut x2).unwrap();
-        let mut ax = vec![0.0; 3 * n];
-        a.mul_vec_into(&x1, &mut ax);
-        let res = ax
-            .iter()
-            .zip(&b)
-            .map(|(p, q)| (p - q).abs())
-            .fold(0.0, f64::max);
+        let res = residual(&a, &x1, &b);
         let diff = x1
             .iter()
             .zip(&x2)
@@ -120,13 +124,7 @@ fn refactor_reuses_the_pattern() {
             s.factor(second).unwrap();
             let mut x = b.clone();
             s.solve(&mut x).unwrap();
-            let mut ax = vec![0.0; 3 * n];
-            second.mul_vec_into(&x, &mut ax);
-            let res = ax
-                .iter()
-                .zip(&b)
-                .map(|(p, q)| (p - q).abs())
-                .fold(0.0, f64::max);
+            let res = residual(second, &x, &b);
             assert!(res < 1e-12, "{}: residual {res}", s.name());
         }
     }

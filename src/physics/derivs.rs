@@ -78,6 +78,29 @@ impl<const N: usize, const M: usize> Default for Derivs<N, M> {
     }
 }
 
+/// What the system asks of its kept evaluations, whatever their number of slots (the
+/// methods of [`Derivs`], see there).
+pub(super) trait Kept {
+    fn forget(&mut self);
+    fn bases(&self) -> (Vec<f64>, Vec<f64>);
+    fn restore(&mut self, sys: &System, cells: &[f64], faces: &[f64]);
+    fn evaluate(&mut self, sys: &mut System, t: f64, u: &[f64]);
+    #[allow(clippy::too_many_arguments)]
+    fn linearised(
+        &self,
+        sys: &System,
+        t: f64,
+        u: &[f64],
+        cells: &mut [super::CellProps<0>],
+        faces: &mut [FaceFlux<0>],
+        totals: &mut [[Dual<0>; 3]],
+        parts: bool,
+    ) -> bool;
+    fn complete_parts(&self, sys: &System, u: &[f64], faces: &mut [FaceFlux<0>]);
+    fn jacobian_into(&self, sys: &System, c: f64, jac: &mut BlockTri);
+    fn storage_blocks_into(&self, sys: &System, out: &mut [Block]);
+}
+
 impl<const N: usize, const M: usize> Derivs<N, M> {
     /// Whether the vapour density is one of the derivative slots (kinetic mode).
     const WITH_RV: bool = N > RV;
@@ -104,8 +127,23 @@ impl<const N: usize, const M: usize> Derivs<N, M> {
         self.face_kept = vec![false; n + 1];
     }
 
+    /// The change of the unknowns of face `j`'s two cells from the face's base, in the
+    /// face's derivative slots.
+    #[inline]
+    fn face_change(&self, j: usize, u: &[f64]) -> [f64; M] {
+        let b = &self.face_base[j];
+        let mut du = [0.0; M];
+        for k in 0..N {
+            du[k] = u[3 * (j - 1) + k] - b[k];
+            du[N + k] = u[3 * j + k] - b[3 + k];
+        }
+        du
+    }
+}
+
+impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
     /// Forgets every base (the next evaluations are direct).
-    pub fn forget(&mut self) {
+    fn forget(&mut self) {
         self.cell_base.fill(f64::NAN);
         for b in self.face_base.iter_mut() {
             *b = [f64::NAN; 6];
@@ -115,7 +153,7 @@ impl<const N: usize, const M: usize> Derivs<N, M> {
     /// The base states: of the cells (3 per cell) and of the faces (6 per face: the
     /// unknowns of the cell above and below); NaN where there is none. Empty before the
     /// first evaluation.
-    pub fn bases(&self) -> (Vec<f64>, Vec<f64>) {
+    fn bases(&self) -> (Vec<f64>, Vec<f64>) {
         (
             self.cell_base.clone(),
             self.face_base.iter().flatten().copied().collect(),
@@ -124,7 +162,7 @@ impl<const N: usize, const M: usize> Derivs<N, M> {
 
     /// Re-evaluates the bases at the given base states (as from [`Derivs::bases`]);
     /// bases of the wrong size are ignored (all direct).
-    pub fn restore(&mut self, sys: &System, cells: &[f64], faces: &[f64]) {
+    fn restore(&mut self, sys: &System, cells: &[f64], faces: &[f64]) {
         let n = sys.n;
         self.allocate(sys);
         self.forget();
@@ -169,7 +207,7 @@ impl<const N: usize, const M: usize> Derivs<N, M> {
 
     /// Evaluates `sys` at (t, u) with derivatives (re-evaluating what moved, see the
     /// type's doc) and writes the values into its value workspace.
-    pub fn evaluate(&mut self, sys: &mut System, t: f64, u: &[f64]) {
+    fn evaluate(&mut self, sys: &mut System, t: f64, u: &[f64]) {
         let n = sys.n;
         self.allocate(sys);
         // Faces that keep their base: both cells near the face's base. Boundary faces
@@ -244,26 +282,13 @@ impl<const N: usize, const M: usize> Derivs<N, M> {
         }
     }
 
-    /// The change of the unknowns of face `j`'s two cells from the face's base, in the
-    /// face's derivative slots.
-    #[inline]
-    fn face_change(&self, j: usize, u: &[f64]) -> [f64; M] {
-        let b = &self.face_base[j];
-        let mut du = [0.0; M];
-        for k in 0..N {
-            du[k] = u[3 * (j - 1) + k] - b[k];
-            du[N + k] = u[3 * j + k] - b[3 + k];
-        }
-        du
-    }
-
     /// The value evaluation at (t, u): cells and faces near their bases by
     /// linearisation, the others directly, into `cells`, `faces`, `totals`. Without
     /// `parts`, a linearised face gets its totals only (what the residual needs), its
     /// flux parts are left as they were (see [`Derivs::complete_parts`]). False, and
     /// nothing written, when the workspace is not set up for this system.
     #[allow(clippy::too_many_arguments)]
-    pub fn linearised(
+    fn linearised(
         &self,
         sys: &System,
         t: f64,
@@ -337,7 +362,7 @@ impl<const N: usize, const M: usize> Derivs<N, M> {
     /// The flux parts of the linearised interior faces at `u`, left out by
     /// [`Derivs::linearised`] without `parts` at the same `u` (the totals and the other
     /// faces are already there).
-    pub fn complete_parts(&self, sys: &System, u: &[f64], faces: &mut [FaceFlux<0>]) {
+    fn complete_parts(&self, sys: &System, u: &[f64], faces: &mut [FaceFlux<0>]) {
         if self.cells.len() != sys.n {
             return;
         }
@@ -353,7 +378,7 @@ impl<const N: usize, const M: usize> Derivs<N, M> {
 
     /// The Jacobian of the residual of [`System::assemble`] with coefficient `c` into
     /// `jac` (zeroed first).
-    pub fn jacobian_into(&self, sys: &System, c: f64, jac: &mut BlockTri) {
+    fn jacobian_into(&self, sys: &System, c: f64, jac: &mut BlockTri) {
         let n = sys.n;
         let rate = match sys.physics.vapor_mode {
             VaporMode::Kinetic { rate } => Some(rate),
@@ -412,7 +437,7 @@ impl<const N: usize, const M: usize> Derivs<N, M> {
     }
 
     /// The storage-derivative blocks (see [`System::storage_jacobian_into`]).
-    pub fn storage_blocks_into(&self, sys: &System, out: &mut [Block]) {
+    fn storage_blocks_into(&self, sys: &System, out: &mut [Block]) {
         let kinetic = matches!(sys.physics.vapor_mode, VaporMode::Kinetic { .. });
         for (i, b) in out.iter_mut().enumerate().take(sys.n) {
             let w = sys.widths[i];

@@ -19,7 +19,7 @@ pub mod flux;
 use crate::model::{BottomBc, Model, Periods, Physics, Soil, SurfaceBc, VaporMode};
 use crate::solve::blocktri::BlockTri;
 use cell::{cell_props, CellProps};
-use derivs::Derivs;
+use derivs::{Derivs, Kept};
 use dual::{Dual, D0};
 use flux::{face_flux, FaceFlux};
 
@@ -184,32 +184,45 @@ impl System {
     /// face, the unknowns of the cells above and below); NaN where there is none. With
     /// [`System::restore_linearization`] they restore those evaluations exactly.
     pub fn linearization_states(&self) -> (Vec<f64>, Vec<f64>) {
-        if self.reduced() {
-            self.d_reduced.bases()
-        } else {
-            self.d_full.bases()
-        }
+        self.kept().bases()
     }
 
     /// Re-evaluates the kept evaluations with derivatives at the given states (as from
     /// [`System::linearization_states`]; empty or mis-sized: none kept).
     pub fn restore_linearization(&mut self, cells: &[f64], faces: &[f64]) {
         self.forget_linearization();
-        if self.reduced() {
-            let mut d = std::mem::take(&mut self.d_reduced);
-            d.restore(self, cells, faces);
-            self.d_reduced = d;
-        } else {
-            let mut d = std::mem::take(&mut self.d_full);
-            d.restore(self, cells, faces);
-            self.d_full = d;
-        }
+        self.with_kept_mut(|d, sys| d.restore(sys, cells, faces));
     }
 
     /// Whether the vapour unknown is algebraic (equilibrium mode): the evaluations with
     /// derivatives then carry 2 slots per cell (T, h), not 3.
     fn reduced(&self) -> bool {
         matches!(self.physics.vapor_mode, VaporMode::Equilibrium)
+    }
+
+    /// The kept evaluations with derivatives of this system's vapour mode.
+    fn kept(&self) -> &dyn Kept {
+        if self.reduced() {
+            &self.d_reduced
+        } else {
+            &self.d_full
+        }
+    }
+
+    /// Runs `f` on the kept evaluations, taken out of the system for the call (so that
+    /// `f` may also change the system).
+    fn with_kept_mut<R>(&mut self, f: impl FnOnce(&mut dyn Kept, &mut System) -> R) -> R {
+        if self.reduced() {
+            let mut d = std::mem::take(&mut self.d_reduced);
+            let r = f(&mut d, self);
+            self.d_reduced = d;
+            r
+        } else {
+            let mut d = std::mem::take(&mut self.d_full);
+            let r = f(&mut d, self);
+            self.d_full = d;
+            r
+        }
     }
 
     /// Evaluates cell properties and all face fluxes (values only) at state `u` and
@@ -238,13 +251,9 @@ impl System {
         let mut cells = std::mem::take(&mut self.cells);
         let mut faces = std::mem::take(&mut self.faces);
         let mut totals = std::mem::take(&mut self.face_totals);
-        let done = if self.reduced() {
-            self.d_reduced
-                .linearised(self, t, u, &mut cells, &mut faces, &mut totals, parts)
-        } else {
-            self.d_full
-                .linearised(self, t, u, &mut cells, &mut faces, &mut totals, parts)
-        };
+        let done = self
+            .kept()
+            .linearised(self, t, u, &mut cells, &mut faces, &mut totals, parts);
         if !done {
             evaluate_into(self, t, u, &mut cells, &mut faces, &mut totals);
         }
@@ -262,11 +271,7 @@ impl System {
             return;
         }
         let mut faces = std::mem::take(&mut self.faces);
-        if self.reduced() {
-            self.d_reduced.complete_parts(self, u, &mut faces);
-        } else {
-            self.d_full.complete_parts(self, u, &mut faces);
-        }
+        self.kept().complete_parts(self, u, &mut faces);
         self.faces = faces;
         self.parts_left_out = false;
     }
@@ -274,15 +279,7 @@ impl System {
     /// As [`System::evaluate`], with the derivatives the Jacobian needs; the values are
     /// copied to the value workspace, so both agree bitwise.
     pub fn evaluate_with_derivatives(&mut self, t: f64, u: &[f64]) {
-        if self.reduced() {
-            let mut d = std::mem::take(&mut self.d_reduced);
-            d.evaluate(self, t, u);
-            self.d_reduced = d;
-        } else {
-            let mut d = std::mem::take(&mut self.d_full);
-            d.evaluate(self, t, u);
-            self.d_full = d;
-        }
+        self.with_kept_mut(|d, sys| d.evaluate(sys, t, u));
         self.parts_left_out = false;
     }
 
@@ -452,11 +449,7 @@ impl System {
     /// `c`, so a Jacobian built at `c` becomes the one at `c'` by adding `(c' − c)` times
     /// these blocks. The algebraic vapour row of equilibrium mode has no storage part.
     pub fn storage_jacobian_into(&self, out: &mut [crate::solve::blocktri::Block]) {
-        if self.reduced() {
-            self.d_reduced.storage_blocks_into(self, out);
-        } else {
-            self.d_full.storage_blocks_into(self, out);
-        }
+        self.kept().storage_blocks_into(self, out);
     }
 
     /// Fills the residual (and, when given, the Jacobian) at state `u`, time `t`, with
@@ -527,11 +520,7 @@ impl System {
             });
         }
         if let Some(jac) = jac {
-            if self.reduced() {
-                self.d_reduced.jacobian_into(self, c, jac);
-            } else {
-                self.d_full.jacobian_into(self, c, jac);
-            }
+            self.kept().jacobian_into(self, c, jac);
             for blocks in [&jac.lower, &jac.diag, &jac.upper] {
                 if blocks.iter().all(|b| all_finite(b)) {
                     continue;

@@ -406,13 +406,6 @@ impl System {
         self.for_each_row_terms(c, hist, |i, s, _| out[3 * i..3 * i + 3].copy_from_slice(&s));
     }
 
-    /// Round-off floor of every residual row (3 per cell) from the last evaluation:
-    /// 16 ε times the operands of the storage terms and of both faces' fluxes. A residual
-    /// below it is as small as floating point can make it.
-    pub fn roundoff_into(&self, c: f64, hist: &[f64], out: &mut [f64]) {
-        self.for_each_row_terms(c, hist, |i, _, f| out[3 * i..3 * i + 3].copy_from_slice(&f));
-    }
-
     /// What Newton's convergence test needs from the last evaluation, in one pass: per
     /// row, the scale against which `tol` is applied (the terms' magnitude, or the
     /// round-off floor / `tol` where that is larger, so that a row converges at its

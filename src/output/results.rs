@@ -84,6 +84,23 @@ pub struct ResultsFile {
     /// Time [yr] of the last series row and of the last snapshot written to the file.
     pub last_series_year: Option<f64>,
     pub last_snapshot_year: Option<f64>,
+    /// Opened to continue a run ([`ResultsFile::open_append`]) and not yet written to: a
+    /// file damaged by a kill can pass every check there and fail only at its first write
+    /// (seen: "addr overflow" at the first flush), which then gets the same guided message.
+    continued: bool,
+}
+
+/// How to go on when a results file cannot be continued.
+const CONTINUE_ADVICE: &str =
+    "run again from the start with --overwrite (deterministic: the same results), \
+     or branch from the checkpoint into a new folder with --start-from CHECKPOINT --out FOLDER";
+
+/// The one-line error for a results file `path` that cannot be continued because of `what`.
+fn cannot_continue(path: &Path, what: &str) -> Error {
+    Error::Io(format!(
+        "{}: the results file cannot be continued: {what}; {CONTINUE_ADVICE}",
+        path.display()
+    ))
 }
 
 /// The last value of a 1-D f64 dataset of `len` rows.
@@ -209,6 +226,7 @@ impl ResultsFile {
             records: 0,
             last_series_year: None,
             last_snapshot_year: None,
+            continued: false,
         })
     }
 
@@ -229,20 +247,13 @@ impl ResultsFile {
         last_series_year: Option<f64>,
         last_snapshot_year: Option<f64>,
     ) -> Result<Self> {
-        let how = "run again from the start with --overwrite (deterministic: the same results), \
-                   or branch from the checkpoint into a new folder with --start-from CHECKPOINT --out FOLDER";
         if !path.exists() {
             return Err(Error::Io(format!(
-                "{}: no such file; the checkpoint continues this results file; {how}",
+                "{}: no such file; the checkpoint continues this results file; {CONTINUE_ADVICE}",
                 path.display()
             )));
         }
-        let damaged = |what: String| {
-            Error::Io(format!(
-                "{}: the results file cannot be continued: {what}; {how}",
-                path.display()
-            ))
-        };
+        let damaged = |what: String| cannot_continue(path, &what);
         let h5err = |err: hdf5::Error| {
             damaged(format!(
                 "damaged or not an HDF5 file ({})",
@@ -351,6 +362,7 @@ impl ResultsFile {
             records: series_rows,
             last_series_year: last_row,
             last_snapshot_year: last_snap,
+            continued: true,
         })
     }
 
@@ -367,8 +379,7 @@ impl ResultsFile {
 
     /// Writes a snapshot at `time_year`, then everything queued, then flushes the file.
     pub fn write_snapshot(&mut self, time_year: f64, p: &Profile) -> Result<()> {
-        let path = self.path.clone();
-        let e = h5(&path);
+        let e = self.write_error();
         append_1d(&self.profile_time, &[time_year]).map_err(&e)?;
         let cells = [
             &p.temperature_c,
@@ -397,8 +408,7 @@ impl ResultsFile {
 
     /// Writes queued series rows and flushes the file to disk.
     pub fn flush(&mut self) -> Result<()> {
-        let path = self.path.clone();
-        let e = h5(&path);
+        let e = self.write_error();
         if !self.pending.is_empty() {
             let times: Vec<f64> = self.pending.iter().map(|r| r.time_year).collect();
             append_1d(&self.series_time, &times).map_err(&e)?;
@@ -410,6 +420,28 @@ impl ResultsFile {
             self.last_series_year = self.pending.last().map(|r| r.time_year);
             self.pending.clear();
         }
-        self.file.flush().map_err(&e)
+        self.file.flush().map_err(&e)?;
+        self.continued = false;
+        Ok(())
+    }
+
+    /// How a failed write is reported: as an I/O error of the file, or, at the first write
+    /// to a continued file, as a file that cannot be continued.
+    fn write_error(&self) -> impl Fn(hdf5::Error) -> Error {
+        let path = self.path.clone();
+        let continued = self.continued;
+        move |err| {
+            if continued {
+                cannot_continue(
+                    &path,
+                    &format!(
+                        "damaged by an interruption ({})",
+                        super::h5util::short_error(&err)
+                    ),
+                )
+            } else {
+                super::h5util::io_error(&path, err)
+            }
+        }
     }
 }

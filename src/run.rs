@@ -716,7 +716,7 @@ pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
         parent,
     };
     if fresh_output {
-        r.sys.evaluate(r.st.state.t, &r.st.state.u);
+        r.sys.evaluate_direct(r.st.state.t, &r.st.state.u);
         r.profile.fill(&r.sys);
         let rec = series_record(&r.sys, &r.st, 0.0, 0);
         r.results.push_series(rec);
@@ -768,6 +768,9 @@ pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
                 r.since_series = 0;
             }
             if at_snapshot {
+                // The profiles of the state evaluated directly, not linearised: the same
+                // whatever the solver kept (a branch from this state shows the same).
+                r.sys.evaluate_direct(r.st.state.t, &r.st.state.u);
                 r.profile.fill(&r.sys);
                 r.results
                     .write_snapshot(r.st.state.t / SECONDS_PER_YEAR, &r.profile)?;

@@ -85,9 +85,9 @@ fn check(model: &Model, seed: u64, label: &str) {
         let mut rscale = vec![0.0; 3 * n];
         sys.residual_scale_into(c, &hist, &mut rscale);
         // Linearised evaluation (`System::evaluate` after an evaluation with derivatives,
-        // for unknowns within 1e-8 relative of it): the same residual as a direct
-        // evaluation to 1e-13 of the row's terms (its error is of second order: with
-        // d ln psat/d ln T ≈ 18, (18 · 1e-8)²/2 ≈ 2e-14).
+        // for unknowns within 1e-7 relative of it): the same residual as a direct
+        // evaluation to 1e-11 of the row's terms (its error is of second order: with
+        // d ln psat/d ln T ≈ 18, (18 · 1e-7)²/2 ≈ 2e-12).
         let mut near = u.clone();
         for (k, x) in near.iter_mut().enumerate() {
             let size = if k % 3 == 1 {
@@ -95,7 +95,7 @@ fn check(model: &Model, seed: u64, label: &str) {
             } else {
                 x.abs()
             };
-            *x += 9e-9 * size * (2.0 * rng.next() - 1.0);
+            *x += 9e-8 * size * (2.0 * rng.next() - 1.0);
         }
         let mut res_lin = vec![0.0; 3 * n];
         sys.assemble(t, &u, c, &hist, &mut res_lin, Some(&mut jac2))
@@ -137,7 +137,7 @@ fn check(model: &Model, seed: u64, label: &str) {
         );
         for k in 0..3 * n {
             assert!(
-                (res_lin[k] - res_direct[k]).abs() <= 1e-13 * rscale[k],
+                (res_lin[k] - res_direct[k]).abs() <= 1e-11 * rscale[k],
                 "{label} trial {trial}: linearised residual {k}: {:e} vs {:e} (scale {:e})",
                 res_lin[k],
                 res_direct[k],
@@ -145,9 +145,9 @@ fn check(model: &Model, seed: u64, label: &str) {
             );
         }
         // An evaluation with derivatives where the first half of the cells moved beyond
-        // 1e-8 (evaluated afresh) and the rest within it (kept, linearised): the residual
-        // as a direct evaluation's to 1e-13 of the terms, the Jacobian as a fresh one's to
-        // 1e-6 of each row's largest entry (first order in the 1e-8 change, times the
+        // 1e-7 (evaluated afresh) and the rest within it (kept, linearised): the residual
+        // as a direct evaluation's to 1e-11 of the terms, the Jacobian as a fresh one's to
+        // 1e-5 of each row's largest entry (first order in the 1e-7 change, times the
         // laws' slopes); a system restored from the kept states then continues bitwise.
         let mut moved = near.clone();
         for (k, x) in moved.iter_mut().enumerate().take(3 * (n / 2)) {
@@ -168,7 +168,7 @@ fn check(model: &Model, seed: u64, label: &str) {
             .unwrap();
         for k in 0..3 * n {
             assert!(
-                (res_lin[k] - res_direct[k]).abs() <= 1e-13 * rscale[k],
+                (res_lin[k] - res_direct[k]).abs() <= 1e-11 * rscale[k],
                 "{label} trial {trial}: kept evaluation, residual {k}: {:e} vs {:e}",
                 res_lin[k],
                 res_direct[k]
@@ -182,7 +182,7 @@ fn check(model: &Model, seed: u64, label: &str) {
             ] {
                 for k in 0..9 {
                     assert!(
-                        (a[k] - b[k]).abs() <= 1e-6 * row_scale(&jac_fresh, i, k / 3),
+                        (a[k] - b[k]).abs() <= 1e-5 * row_scale(&jac_fresh, i, k / 3),
                         "{label} trial {trial}: kept Jacobian, block row {i} entry {k}: {:e} vs {:e}",
                         a[k],
                         b[k]

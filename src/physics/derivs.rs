@@ -19,7 +19,7 @@ use crate::solve::blocktri::{Block, BlockTri};
 /// Largest relative change of a cell's unknowns from the base of a kept evaluation with
 /// derivatives (head: relative to max(|h|, 0.01 m)), within which its values are taken
 /// by linearisation from it.
-pub(super) const LINEAR_CHANGE: f64 = 1e-8;
+pub(super) const LINEAR_CHANGE: f64 = 1e-7;
 
 /// Whether the unknowns `x` of a cell (T, h, rv) lie within [`LINEAR_CHANGE`] of `x0`
 /// (rv only when it is an unknown of the derivatives, `with_rv`). False when `x0` is

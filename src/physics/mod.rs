@@ -230,19 +230,32 @@ impl System {
     ///
     /// The evaluations with derivatives (the Jacobian's) are kept per cell and per face
     /// with the state they were made at (see `derivs::Derivs`): a cell whose unknowns
-    /// lie within 1e-8 relative of its kept state (head: relative to max(|h|, 0.01 m))
+    /// lie within 1e-7 relative of its kept state (head: relative to max(|h|, 0.01 m))
     /// takes its properties by linearisation, value + derivatives · change, and a face
     /// whose two cells lie that near its kept state its fluxes likewise. The error is of
     /// second order in the change, ~1e-16 relative times the square of the laws' slopes
     /// in log–log terms (about 18 for the saturation pressure in T, a few for the Mualem
-    /// conductivity in h): a few 1e-14, at the round-off of a direct evaluation and far
-    /// below the Newton tolerance (`tests/jacobian.rs` checks 1e-13). Cells away from a
-    /// moving front mostly qualify (on the benchmark case, two thirds of the cell
-    /// evaluations of the residual-only Newton iterations, and 38 % of those of the
+    /// conductivity in h): at most ~2e-12 of the terms, 500 times below the Newton
+    /// tolerance (`tests/jacobian.rs` checks 1e-11). Cells away from a
+    /// moving front mostly qualify (on the benchmark case, three quarters of the cell
+    /// evaluations of the residual-only Newton iterations, and 43 % of those of the
     /// Jacobian evaluations, which keep them). Boundary faces are always evaluated
     /// directly.
     pub fn evaluate(&mut self, t: f64, u: &[f64]) {
         self.evaluate_values(t, u, true);
+    }
+
+    /// Evaluates every cell and face directly (values only, no linearisation), as a
+    /// system without kept evaluations would: what the results file shows of a state.
+    pub fn evaluate_direct(&mut self, t: f64, u: &[f64]) {
+        let mut cells = std::mem::take(&mut self.cells);
+        let mut faces = std::mem::take(&mut self.faces);
+        let mut totals = std::mem::take(&mut self.face_totals);
+        evaluate_into(self, t, u, &mut cells, &mut faces, &mut totals);
+        self.parts_left_out = false;
+        self.cells = cells;
+        self.faces = faces;
+        self.face_totals = totals;
     }
 
     /// [`System::evaluate`]; without `parts`, the flux parts of linearised faces are left

@@ -23,8 +23,8 @@ use crate::physics::{NonFinite, System, ENERGY, H, RV, T, WATER};
 
 /// Default Newton residual tolerance (scaled, see [`NewtonOptions::residual_tol`]).
 /// Measured on the benchmark case: 1e-11 needs ~30 % more iterations for no gain in
-/// accuracy; it closes the balance of the `balance-closure` verification case to 7e-13
-/// of the throughput instead of 1.6e-10 (README, performance).
+/// accuracy; it closes the balance of the `balance-closure` verification case to 1e-12
+/// of the throughput instead of 1e-10 (README, performance).
 pub const DEFAULT_RESIDUAL_TOL: f64 = 1e-9;
 
 /// Newton settings.
@@ -73,7 +73,7 @@ impl Default for NewtonOptions {
             // A safeguard for columns whose storage terms dwarf their fluxes (a single thick
             // cell, the first seconds of a run), where rows can pass their test with a
             // step balance error of 1e-4 of the flow. Free on the benchmark case (the same
-            // iterations; its cumulative balance errors are 7e-10 water, 2e-11 energy).
+            // iterations; its cumulative balance errors are 5e-11 water, 2e-11 energy).
             balance_tol: 1e-6,
             max_dt_per_iter: 5.0,
             max_dh_factor: 10.0,

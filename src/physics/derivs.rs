@@ -13,7 +13,6 @@ use super::cell::{cell_props, CellProps};
 use super::dual::Dual;
 use super::flux::{face_flux, FaceFlux};
 use super::{System, ENERGY, H, RV, T, VAPOR, WATER};
-use crate::model::VaporMode;
 use crate::solve::blocktri::{Block, BlockTri};
 
 /// Largest relative change of a cell's unknowns from the base of a kept evaluation with
@@ -58,9 +57,7 @@ pub(super) struct Derivs<const N: usize, const M: usize> {
     faces: Vec<FaceFlux<M>>,
     totals: Vec<[Dual<M>; 3]>,
     face_base: Vec<[f64; 6]>,
-    /// Scratch: per cell, whether it is evaluated directly; per face, whether it keeps
-    /// its base.
-    direct: Vec<bool>,
+    /// Scratch: per face, whether it keeps its base.
     face_kept: Vec<bool>,
 }
 
@@ -72,7 +69,6 @@ impl<const N: usize, const M: usize> Default for Derivs<N, M> {
             faces: Vec::new(),
             totals: Vec::new(),
             face_base: Vec::new(),
-            direct: Vec::new(),
             face_kept: Vec::new(),
         }
     }
@@ -123,8 +119,22 @@ impl<const N: usize, const M: usize> Derivs<N, M> {
         self.faces = vec![FaceFlux::zero(); n + 1];
         self.totals = vec![[Dual::cst(0.0); 3]; n + 1];
         self.face_base = vec![[f64::NAN; 6]; n + 1];
-        self.direct = vec![true; n];
         self.face_kept = vec![false; n + 1];
+    }
+
+    /// Whether the unknowns of face `j`'s two cells lie near the face's base.
+    #[inline]
+    fn face_near(&self, j: usize, u: &[f64]) -> bool {
+        let b = &self.face_base[j];
+        near(&u[3 * (j - 1)..3 * j], &b[..3], Self::WITH_RV)
+            && near(&u[3 * j..3 * j + 3], &b[3..], Self::WITH_RV)
+    }
+
+    /// Face `j`'s totals linearised to the change `du` from its base.
+    #[inline]
+    fn totals_at(&self, j: usize, du: &[f64; M]) -> [Dual<0>; 3] {
+        let td = &self.totals[j];
+        [td[0].taylor(du), td[1].taylor(du), td[2].taylor(du)]
     }
 
     /// The change of the unknowns of face `j`'s two cells from the face's base, in the
@@ -169,15 +179,7 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
         if cells.len() != 3 * n || faces.len() != 6 * (n + 1) {
             return;
         }
-        let props = |i: usize, x: &[f64]| {
-            cell_props::<N>(
-                sys.soil_of(i),
-                &sys.physics,
-                Dual::var(x[T], 0),
-                Dual::var(x[H], 1),
-                Dual::var(x[RV], 2),
-            )
-        };
+        let props = |i: usize, x: &[f64]| sys.props_at::<N>(i, x);
         for i in 0..n {
             let x = &cells[3 * i..3 * i + 3];
             if x.iter().all(|v| v.is_finite()) {
@@ -198,7 +200,7 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
                     sys.d_above[j],
                     avg,
                 );
-                self.totals[j] = [f.energy(), f.water(), f.vapor()];
+                self.totals[j] = f.totals();
                 self.faces[j] = f;
                 self.face_base[j].copy_from_slice(x);
             }
@@ -215,24 +217,15 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
         self.face_kept[0] = false;
         self.face_kept[n] = false;
         for j in 1..n {
-            let b = &self.face_base[j];
-            self.face_kept[j] = near(&u[3 * (j - 1)..3 * j], &b[..3], Self::WITH_RV)
-                && near(&u[3 * j..3 * j + 3], &b[3..], Self::WITH_RV);
+            self.face_kept[j] = self.face_near(j, u);
         }
         for i in 0..n {
             let x = &u[3 * i..3 * i + 3];
             let direct = !near(x, &self.cell_base[3 * i..3 * i + 3], Self::WITH_RV)
                 || !self.face_kept[i]
                 || !self.face_kept[i + 1];
-            self.direct[i] = direct;
             if direct {
-                self.cells[i] = cell_props(
-                    sys.soil_of(i),
-                    &sys.physics,
-                    Dual::var(x[T], 0),
-                    Dual::var(x[H], 1),
-                    Dual::var(x[RV], 2),
-                );
+                self.cells[i] = sys.props_at(i, x);
                 self.cell_base[3 * i..3 * i + 3].copy_from_slice(x);
                 sys.cells[i] = self.cells[i].values();
             } else {
@@ -251,8 +244,7 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
             if self.face_kept[j] {
                 let du = self.face_change(j, u);
                 self.faces[j].taylor_into(&du, &mut sys.faces[j]);
-                let td = &self.totals[j];
-                sys.face_totals[j] = [td[0].taylor(&du), td[1].taylor(&du), td[2].taylor(&du)];
+                sys.face_totals[j] = self.totals_at(j, &du);
             } else {
                 let f = face_flux(
                     &self.cells[j - 1],
@@ -263,7 +255,7 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
                     sys.d_above[j],
                     avg,
                 );
-                self.totals[j] = [f.energy(), f.water(), f.vapor()];
+                self.totals[j] = f.totals();
                 self.faces[j] = f;
                 self.face_base[j][..3].copy_from_slice(&u[3 * (j - 1)..3 * j]);
                 self.face_base[j][3..].copy_from_slice(&u[3 * j..3 * j + 3]);
@@ -275,7 +267,7 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
         let top = sys.top_face(t, &self.cells[0]);
         let bottom = sys.bottom_face(t, &self.cells[n - 1]);
         for (j, f) in [(0, top), (n, bottom)] {
-            self.totals[j] = [f.energy(), f.water(), f.vapor()];
+            self.totals[j] = f.totals();
             self.faces[j] = f;
             sys.faces[j] = f.values();
             sys.face_totals[j] = value_totals(&self.totals[j]);
@@ -314,27 +306,17 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
                     c,
                 );
             } else {
-                *c = cell_props(
-                    sys.soil_of(i),
-                    &sys.physics,
-                    Dual::var(x[T], 0),
-                    Dual::var(x[H], 1),
-                    Dual::var(x[RV], 2),
-                );
+                *c = sys.props_at(i, x);
             }
         }
         let avg = sys.physics.face_conductivity;
         for j in 1..n {
-            let b = &self.face_base[j];
-            if near(&u[3 * (j - 1)..3 * j], &b[..3], Self::WITH_RV)
-                && near(&u[3 * j..3 * j + 3], &b[3..], Self::WITH_RV)
-            {
+            if self.face_near(j, u) {
                 let du = self.face_change(j, u);
                 if parts {
                     self.faces[j].taylor_into(&du, &mut faces[j]);
                 }
-                let td = &self.totals[j];
-                totals[j] = [td[0].taylor(&du), td[1].taylor(&du), td[2].taylor(&du)];
+                totals[j] = self.totals_at(j, &du);
             } else {
                 let f = face_flux(
                     &cells[j - 1],
@@ -345,7 +327,7 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
                     sys.d_above[j],
                     avg,
                 );
-                totals[j] = [f.energy(), f.water(), f.vapor()];
+                totals[j] = f.totals();
                 faces[j] = f;
             }
         }
@@ -353,7 +335,7 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
             (0, sys.top_face(t, &cells[0])),
             (n, sys.bottom_face(t, &cells[n - 1])),
         ] {
-            totals[j] = [f.energy(), f.water(), f.vapor()];
+            totals[j] = f.totals();
             faces[j] = f;
         }
         true
@@ -367,10 +349,7 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
             return;
         }
         for j in 1..sys.n {
-            let b = &self.face_base[j];
-            if near(&u[3 * (j - 1)..3 * j], &b[..3], Self::WITH_RV)
-                && near(&u[3 * j..3 * j + 3], &b[3..], Self::WITH_RV)
-            {
+            if self.face_near(j, u) {
                 self.faces[j].taylor_into(&self.face_change(j, u), &mut faces[j]);
             }
         }
@@ -380,10 +359,7 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
     /// `jac` (zeroed first).
     fn jacobian_into(&self, sys: &System, c: f64, jac: &mut BlockTri) {
         let n = sys.n;
-        let rate = match sys.physics.vapor_mode {
-            VaporMode::Kinetic { rate } => Some(rate),
-            VaporMode::Equilibrium => None,
-        };
+        let rate = sys.kinetic_rate();
         jac.zero();
         for i in 0..n {
             let w = sys.widths[i];
@@ -438,7 +414,7 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
 
     /// The storage-derivative blocks (see [`System::storage_jacobian_into`]).
     fn storage_blocks_into(&self, sys: &System, out: &mut [Block]) {
-        let kinetic = matches!(sys.physics.vapor_mode, VaporMode::Kinetic { .. });
+        let kinetic = sys.kinetic_rate().is_some();
         for (i, b) in out.iter_mut().enumerate().take(sys.n) {
             let w = sys.widths[i];
             let cp = &self.cells[i];

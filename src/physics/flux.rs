@@ -65,6 +65,11 @@ impl<const M: usize> FaceFlux<M> {
     pub fn water(&self) -> Dual<M> {
         self.liquid() * WATER_DENSITY + self.vapor()
     }
+    /// The totals [energy, water, vapour] (the residual's face terms).
+    #[inline]
+    pub fn totals(&self) -> [Dual<M>; 3] {
+        [self.energy(), self.water(), self.vapor()]
+    }
     /// Total energy flux −λ∂T/∂z + ρw cw ql (T − T0) + jv (L0 + cv (T − T0)) [W m⁻²].
     #[inline]
     pub fn energy(&self) -> Dual<M> {

@@ -98,14 +98,7 @@ fn evaluate_into<const N: usize, const M: usize>(
 ) {
     let n = sys.n;
     for (i, c) in cells.iter_mut().enumerate() {
-        let soil = &sys.soils[sys.cell_soil[i]];
-        *c = cell_props(
-            soil,
-            &sys.physics,
-            Dual::var(u[3 * i + T], 0),
-            Dual::var(u[3 * i + H], 1),
-            Dual::var(u[3 * i + RV], 2),
-        );
+        *c = sys.props_at(i, &u[3 * i..3 * i + 3]);
     }
     let avg = sys.physics.face_conductivity;
     for j in 1..n {
@@ -122,7 +115,7 @@ fn evaluate_into<const N: usize, const M: usize>(
     faces[0] = sys.top_face(t, &cells[0]);
     faces[n] = sys.bottom_face(t, &cells[n - 1]);
     for (tot, f) in totals.iter_mut().zip(faces.iter()) {
-        *tot = [f.energy(), f.water(), f.vapor()];
+        *tot = f.totals();
     }
 }
 
@@ -170,6 +163,19 @@ impl System {
 
     pub fn soil_of(&self, cell: usize) -> &Soil {
         &self.soils[self.cell_soil[cell]]
+    }
+
+    /// The properties of cell `i` at its unknowns `x` (T, h, rv) with `N` derivative
+    /// slots (T, h and, for N = 3, rv).
+    #[inline]
+    fn props_at<const N: usize>(&self, i: usize, x: &[f64]) -> CellProps<N> {
+        cell_props(
+            self.soil_of(i),
+            &self.physics,
+            Dual::var(x[T], 0),
+            Dual::var(x[H], 1),
+            Dual::var(x[RV], 2),
+        )
     }
 
     /// Drops the evaluations with derivatives kept as bases of linearised evaluations:
@@ -242,31 +248,26 @@ impl System {
     /// Jacobian evaluations, which keep them). Boundary faces are always evaluated
     /// directly.
     pub fn evaluate(&mut self, t: f64, u: &[f64]) {
-        self.evaluate_values(t, u, true);
+        self.evaluate_values(t, u, true, true);
     }
 
     /// Evaluates every cell and face directly (values only, no linearisation), as a
     /// system without kept evaluations would: what the results file shows of a state.
     pub fn evaluate_direct(&mut self, t: f64, u: &[f64]) {
-        let mut cells = std::mem::take(&mut self.cells);
-        let mut faces = std::mem::take(&mut self.faces);
-        let mut totals = std::mem::take(&mut self.face_totals);
-        evaluate_into(self, t, u, &mut cells, &mut faces, &mut totals);
-        self.parts_left_out = false;
-        self.cells = cells;
-        self.faces = faces;
-        self.face_totals = totals;
+        self.evaluate_values(t, u, true, false);
     }
 
-    /// [`System::evaluate`]; without `parts`, the flux parts of linearised faces are left
-    /// out (the residual needs the totals only) until [`System::complete_face_parts`].
-    fn evaluate_values(&mut self, t: f64, u: &[f64], parts: bool) {
+    /// [`System::evaluate`] (`linearise`) or [`System::evaluate_direct`]; without
+    /// `parts`, the flux parts of linearised faces are left out (the residual needs the
+    /// totals only) until [`System::complete_face_parts`].
+    fn evaluate_values(&mut self, t: f64, u: &[f64], parts: bool, linearise: bool) {
         let mut cells = std::mem::take(&mut self.cells);
         let mut faces = std::mem::take(&mut self.faces);
         let mut totals = std::mem::take(&mut self.face_totals);
-        let done = self
-            .kept()
-            .linearised(self, t, u, &mut cells, &mut faces, &mut totals, parts);
+        let done = linearise
+            && self
+                .kept()
+                .linearised(self, t, u, &mut cells, &mut faces, &mut totals, parts);
         if !done {
             evaluate_into(self, t, u, &mut cells, &mut faces, &mut totals);
         }
@@ -473,13 +474,10 @@ impl System {
             self.evaluate_with_derivatives(t, u);
         } else {
             // The residual needs the face totals, not the flux parts.
-            self.evaluate_values(t, u, false);
+            self.evaluate_values(t, u, false, true);
         }
         let n = self.n;
-        let kinetic = match self.physics.vapor_mode {
-            VaporMode::Kinetic { rate } => Some(rate),
-            VaporMode::Equilibrium => None,
-        };
+        let kinetic = self.kinetic_rate();
         // Storage and source terms (cell-local).
         for i in 0..n {
             let w = self.widths[i];

@@ -155,6 +155,19 @@ pub struct StepState {
     pub linearization_faces: Vec<f64>,
 }
 
+impl StepState {
+    /// The times of the current point and the `count − 1` newest history points (at most
+    /// 7 in all), newest first: the nodes of the extrapolation polynomials.
+    fn nodes(&self, count: usize) -> [f64; 7] {
+        let mut tau = [0.0f64; 7];
+        tau[0] = self.t;
+        for j in 1..count {
+            tau[j] = self.history[j - 1].t;
+        }
+        tau
+    }
+}
+
 pub struct Stepper {
     pub state: StepState,
     pub opts: StepOptions,
@@ -326,11 +339,7 @@ impl Stepper {
         let mut scale = [0.0f64; 3];
         let mut q_max = 0;
         for (o, &q) in orders.iter().take(nq).enumerate() {
-            let mut ptau = [0.0f64; 7];
-            ptau[0] = s.t;
-            for j in 1..=q {
-                ptau[j] = s.history[j - 1].t;
-            }
+            let ptau = s.nodes(q + 1);
             lagrange_values(&ptau[..=q], t_new, &mut lag[o]);
             scale[o] = dt / (t_new - ptau[q]);
             q_max = q_max.max(q);
@@ -368,14 +377,21 @@ impl Stepper {
         let mut test = |points: &[f64; 7], y: f64, factor: f64, den: f64, at: (usize, usize)| {
             test(&mut out, orders, &lag, &scale, points, y, factor, den, at)
         };
+        // Entry `k` of the current point and the q_max newest history points, of the
+        // unknowns or (`storage`) of the storages.
         let mut points = [0.0f64; 7];
+        let mut gather = |k: usize, storage: bool| -> [f64; 7] {
+            points[0] = if storage { s.storage[k] } else { self.u_old[k] };
+            for j in 1..=q_max {
+                let h = &s.history[j - 1];
+                points[j] = if storage { h.storage[k] } else { h.u[k] };
+            }
+            points
+        };
         for i in 0..sys.n {
             for (kk, atol) in [(T, tol.atol_t), (RV, tol.atol_rv)] {
                 let k = 3 * i + kk;
-                points[0] = self.u_old[k];
-                for j in 1..=q_max {
-                    points[j] = s.history[j - 1].u[k];
-                }
+                let points = gather(k, false);
                 let y = s.u[k];
                 let den = atol + tol.rtol * y.abs().max(self.u_old[k].abs());
                 test(&points, y, 1.0, den, (i, kk));
@@ -383,18 +399,11 @@ impl Stepper {
             let th = sys.cells[i].theta.v;
             if th >= sys.soil_of(i).retention.theta_s() {
                 let k = 3 * i + H;
-                points[0] = self.u_old[k];
-                for j in 1..=q_max {
-                    points[j] = s.history[j - 1].u[k];
-                }
+                let points = gather(k, false);
                 let y = s.u[k];
                 test(&points, y, 1.0, tol.atol_h + tol.rtol * y.abs(), (i, H));
             } else {
-                let k = 3 * i + WATER;
-                points[0] = s.storage[k];
-                for j in 1..=q_max {
-                    points[j] = s.history[j - 1].storage[k];
-                }
+                let points = gather(3 * i + WATER, true);
                 let m = sys.storage(i)[WATER];
                 test(
                     &points,
@@ -481,11 +490,7 @@ impl Stepper {
             }
             // Predictor: extrapolation through the last k+1 points (as many as exist).
             let np = (k + 1).min(s.history.len() + 1);
-            let mut ptau = [0.0f64; 7];
-            ptau[0] = s.t;
-            for j in 1..np {
-                ptau[j] = s.history[j - 1].t;
-            }
+            let ptau = s.nodes(np);
             lagrange_values(&ptau[..np], t_new, &mut lag);
             // Newton starts from the predictor (backward Euler: linear extrapolation of the
             // last two points), accumulated point by point into the unknowns ...

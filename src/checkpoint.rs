@@ -379,8 +379,8 @@ pub fn read(path: &Path) -> Result<Checkpoint> {
                 t: hm[[k, 0]],
                 u: hu.row(k).to_vec(),
                 storage: hs.as_ref().map(|a| a.row(k).to_vec()).unwrap_or_default(),
-                inflow: [hm[[k, 1]], hm[[k, 2]]],
-                throughput: [hm[[k, 3]], hm[[k, 4]]],
+                inflow: vec![hm[[k, 1]], hm[[k, 2]]],
+                throughput: vec![hm[[k, 3]], hm[[k, 4]]],
             })
             .collect();
         let state = StepState {
@@ -395,9 +395,9 @@ pub fn read(path: &Path) -> Result<Checkpoint> {
             // Absent in older checkpoints: no kept evaluations.
             linearization_cells: v("linearization_cells").unwrap_or_default(),
             linearization_faces: v("linearization_faces").unwrap_or_default(),
-            inflow: two("inflow")?,
-            throughput: two("throughput")?,
-            initial_totals: two("initial_totals")?,
+            inflow: two("inflow")?.to_vec(),
+            throughput: two("throughput")?.to_vec(),
+            initial_totals: two("initial_totals")?.to_vec(),
             initial_storage: v("initial_storage")?,
             counters: Counters {
                 steps: ints[0],

@@ -50,7 +50,7 @@ fn check(model: &Model, seed: u64, label: &str) {
         // The residual-only path (values without derivatives, used by the modified Newton
         // iterations) runs the same code on `Dual<0>`: its residual must equal the one
         // computed with derivatives bitwise.
-        let mut storage = vec![[0.0; 9]; n];
+        let mut storage = vec![[[0.0; 3]; 3]; n];
         sys.storage_jacobian_into(&mut storage);
         let mut res_values = vec![0.0; 3 * n];
         sys.assemble(t, &u, c, &hist, &mut res_values, None)
@@ -63,10 +63,11 @@ fn check(model: &Model, seed: u64, label: &str) {
         sys.assemble(t, &u, c2, &hist, &mut res_values, Some(&mut jac2))
             .unwrap();
         for (i, blk) in storage.iter().enumerate() {
-            for (k, sv) in blk.iter().enumerate() {
-                let expect = jac.diag[i][k] + (c2 - c) * sv;
-                let got = jac2.diag[i][k];
-                let size = jac2.diag[i][k].abs().max(jac.diag[i][k].abs());
+            for (k, sv) in blk.as_flattened().iter().enumerate() {
+                let (j1, j2) = (jac.diag[i].as_flattened(), jac2.diag[i].as_flattened());
+                let expect = j1[k] + (c2 - c) * sv;
+                let got = j2[k];
+                let size = got.abs().max(j1[k].abs());
                 assert!(
                     (got - expect).abs() <= 1e-12 * size.max(1e-300),
                     "{label}: storage split, cell {i} entry {k}: {got:e} vs {expect:e}"
@@ -180,6 +181,7 @@ fn check(model: &Model, seed: u64, label: &str) {
                 (&jac_kept.diag[i], &jac_fresh.diag[i]),
                 (&jac_kept.upper[i], &jac_fresh.upper[i]),
             ] {
+                let (a, b) = (a.as_flattened(), b.as_flattened());
                 for k in 0..9 {
                     assert!(
                         (a[k] - b[k]).abs() <= 1e-5 * row_scale(&jac_fresh, i, k / 3),
@@ -240,7 +242,7 @@ fn check(model: &Model, seed: u64, label: &str) {
                     let d1 = (rp[row] - rm[row]) / (2.0 * step);
                     let d2 = (rp2[row] - rm2[row]) / step;
                     let fd = (4.0 * d2 - d1) / 3.0;
-                    let an = jac.block_mut(rb, cb)[r * 3 + col % 3];
+                    let an = jac.block_mut(rb, cb)[r][col % 3];
                     // Relative agreement, with a floor for round-off in the differenced
                     // residual (1e-16 of its largest terms, amplified by 1/step) and for
                     // couplings negligible against the row's largest entry.
@@ -277,11 +279,11 @@ fn check(model: &Model, seed: u64, label: &str) {
     );
 }
 
-fn row_scale(jac: &BlockTri, rb: usize, r: usize) -> f64 {
+fn row_scale(jac: &BlockTri<3>, rb: usize, r: usize) -> f64 {
     let mut m = 0.0f64;
     for b in [&jac.lower[rb], &jac.diag[rb], &jac.upper[rb]] {
-        for c in 0..3 {
-            m = m.max(b[r * 3 + c].abs());
+        for x in b[r].iter() {
+            m = m.max(x.abs());
         }
     }
     m

@@ -1,8 +1,11 @@
 //! The block-tridiagonal solver and faer's sparse LU give the same solution of the same
-//! system, and that solution satisfies A x = b (exact linear algebra; common practice).
+//! system, for every block size, and that solution satisfies A x = b (exact linear
+//! algebra; common practice). The sparse LU also takes a general pattern assembled with
+//! `sprs`, checked against the dense solution of the same system.
 
 use deepdry::solve::blocktri::BlockTri;
-use deepdry::solve::linear::{BlockThomas, LinearSolver, SparseLu};
+use deepdry::solve::linear::{BlockThomas, LinearError, LinearSolver, SparseLu};
+use sprs::TriMat;
 
 /// A deterministic pseudo-random generator (xorshift64*), so the test is repeatable.
 struct Rng(u64);
@@ -16,52 +19,61 @@ impl Rng {
     }
 }
 
-fn random_system(n: usize, seed: u64) -> (BlockTri, Vec<f64>) {
+fn random_system<const B: usize>(n: usize, seed: u64) -> (BlockTri<B>, Vec<f64>) {
     let mut rng = Rng(seed);
-    let mut a = BlockTri::new(n);
+    let mut a = BlockTri::<B>::new(n);
     for i in 0..n {
-        for k in 0..9 {
-            a.diag[i][k] = rng.next();
-            if i > 0 {
-                a.lower[i][k] = 0.3 * rng.next();
-            }
-            if i + 1 < n {
-                a.upper[i][k] = 0.3 * rng.next();
+        for r in 0..B {
+            for c in 0..B {
+                a.diag[i][r][c] = rng.next();
+                if i > 0 {
+                    a.lower[i][r][c] = 0.3 * rng.next();
+                }
+                if i + 1 < n {
+                    a.upper[i][r][c] = 0.3 * rng.next();
+                }
             }
         }
-        // Diagonally dominant blocks, with one row that needs pivoting inside the block
-        // (zero leading entry), as the algebraic vapour row can.
-        for r in 0..3 {
-            a.diag[i][r * 3 + r] += 4.0 * (1.0 + r as f64);
+        // Diagonally dominant blocks, with (for B ≥ 2) one row that needs pivoting
+        // inside the block (zero leading entry), as the algebraic vapour row can.
+        for r in 0..B {
+            a.diag[i][r][r] += 4.0 * (1.0 + r as f64);
         }
-        a.diag[i][0] = 0.0;
-        a.diag[i][1] = 5.0;
-        a.diag[i][3] = 6.0;
+        if B >= 2 {
+            a.diag[i][0][0] = 0.0;
+            a.diag[i][0][1] = 5.0;
+            a.diag[i][1][0] = 6.0;
+        }
     }
-    let b = (0..3 * n).map(|_| rng.next()).collect();
+    let b = (0..B * n).map(|_| rng.next()).collect();
     (a, b)
 }
 
-/// The pattern of equilibrium mode: the third unknown of each cell appears only in its own
-/// row, which couples only within the cell (the algebraic vapour row).
-fn decoupled_system(n: usize, seed: u64) -> (BlockTri, Vec<f64>) {
-    let (mut a, b) = random_system(n, seed);
+/// The pattern of equilibrium mode: the last unknown of each block appears only in its
+/// own row, which couples only within the block (the algebraic vapour row).
+fn decoupled_system<const B: usize>(n: usize, seed: u64) -> (BlockTri<B>, Vec<f64>) {
+    let (mut a, b) = random_system::<B>(n, seed);
+    let m = B - 1;
     for i in 0..n {
-        for k in [2, 5] {
-            a.diag[i][k] = 0.0;
+        for r in 0..m {
+            a.diag[i][r][m] = 0.0;
         }
-        for k in [2, 5, 6, 7, 8] {
-            a.lower[i][k] = 0.0;
-            a.upper[i][k] = 0.0;
+        for r in 0..B {
+            for c in 0..B {
+                if r == m || c == m {
+                    a.lower[i][r][c] = 0.0;
+                    a.upper[i][r][c] = 0.0;
+                }
+            }
         }
-        // Rows 0 and 1 need no pivoting beyond the 2×2 block here; keep them regular.
-        a.diag[i][0] = 3.0;
+        // Keep the leading block regular without pivoting beyond it.
+        a.diag[i][0][0] = 3.0;
     }
     (a, b)
 }
 
 /// max |A x − b|.
-fn residual(a: &BlockTri, x: &[f64], b: &[f64]) -> f64 {
+fn residual<const B: usize>(a: &BlockTri<B>, x: &[f64], b: &[f64]) -> f64 {
     let mut ax = vec![0.0; x.len()];
     a.mul_vec_into(x, &mut ax);
     ax.iter()
@@ -70,54 +82,68 @@ fn residual(a: &BlockTri, x: &[f64], b: &[f64]) -> f64 {
         .fold(0.0, f64::max)
 }
 
-#[test]
-fn block_thomas_and_sparse_lu_agree() {
+fn max_diff(x: &[f64], y: &[f64]) -> f64 {
+    x.iter()
+        .zip(y)
+        .map(|(p, q)| (p - q).abs())
+        .fold(0.0, f64::max)
+}
+
+/// Both solvers on the full and the decoupled pattern of block size B.
+fn agree<const B: usize>() {
     let cases = [(1usize, 7u64), (2, 11), (50, 13), (600, 17)];
-    let systems = cases
+    let mut systems: Vec<(usize, (BlockTri<B>, Vec<f64>))> = cases
         .iter()
-        .map(|&(n, seed)| (n, random_system(n, seed)))
-        .chain(
+        .map(|&(n, seed)| (n, random_system::<B>(n, seed)))
+        .collect();
+    if B >= 2 {
+        systems.extend(
             cases
                 .iter()
-                .map(|&(n, seed)| (n, decoupled_system(n, seed + 100))),
+                .map(|&(n, seed)| (n, decoupled_system::<B>(n, seed + 100))),
         );
+    }
     for (n, (a, b)) in systems {
         let mut x1 = b.clone();
-        let mut bt = BlockThomas::new(n);
+        let mut bt = BlockThomas::<B>::new(n);
         bt.factor(&a).unwrap();
         bt.solve(&mut x1).unwrap();
         let mut x2 = b.clone();
-        let mut lu = SparseLu::new(n);
-        lu.factor(&a).unwrap();
-        lu.solve(&mut x2).unwrap();
+        let mut lu = SparseLu::block_tridiagonal(B, n);
+        LinearSolver::<B>::factor(&mut lu, &a).unwrap();
+        LinearSolver::<B>::solve(&mut lu, &mut x2).unwrap();
         let res = residual(&a, &x1, &b);
-        let diff = x1
-            .iter()
-            .zip(&x2)
-            .map(|(p, q)| (p - q).abs())
-            .fold(0.0, f64::max);
+        let diff = max_diff(&x1, &x2);
         let scale = x1.iter().map(|v| v.abs()).fold(0.0, f64::max);
-        assert!(res < 1e-12, "n = {n}: residual {res}");
+        assert!(res < 1e-12, "B = {B}, n = {n}: residual {res}");
         assert!(
             diff < 1e-11 * scale.max(1.0),
-            "n = {n}: solvers differ by {diff}"
+            "B = {B}, n = {n}: solvers differ by {diff}"
         );
     }
+}
+
+#[test]
+fn block_thomas_and_sparse_lu_agree_for_block_sizes_1_to_4() {
+    agree::<1>();
+    agree::<2>();
+    agree::<3>();
+    agree::<4>();
 }
 
 #[test]
 fn refactor_reuses_the_pattern() {
     // A second factorisation with new values must give the new solution (no stale state).
     let n = 40;
-    let (a1, b) = random_system(n, 3);
-    let (a2, _) = random_system(n, 5);
-    let (d1, _) = decoupled_system(n, 7);
-    let (d2, _) = decoupled_system(n, 9);
+    let (a1, b) = random_system::<3>(n, 3);
+    let (a2, _) = random_system::<3>(n, 5);
+    let (d1, _) = decoupled_system::<3>(n, 7);
+    let (d2, _) = decoupled_system::<3>(n, 9);
     // Also from one pattern to the other (the block solver switches its method).
     for (first, second) in [(&a1, &a2), (&d1, &d2), (&d1, &a2), (&a1, &d2)] {
         for solver in [
-            Box::new(BlockThomas::new(n)) as Box<dyn LinearSolver>,
-            Box::new(SparseLu::new(n)),
+            Box::new(BlockThomas::<3>::new(n)) as Box<dyn LinearSolver<3>>,
+            Box::new(SparseLu::block_tridiagonal(3, n)),
         ] {
             let mut s = solver;
             s.factor(first).unwrap();
@@ -133,11 +159,62 @@ fn refactor_reuses_the_pattern() {
 #[test]
 fn singular_block_is_an_error_not_a_panic() {
     let n = 3;
-    let a = BlockTri::new(n); // all zeros
-    let mut bt = BlockThomas::new(n);
+    let a = BlockTri::<3>::new(n); // all zeros
+    let mut bt = BlockThomas::<3>::new(n);
     assert!(bt.factor(&a).is_err());
-    let mut lu = SparseLu::new(n);
-    let r = lu.factor(&a);
+    let mut lu = SparseLu::block_tridiagonal(3, n);
+    let r = LinearSolver::<3>::factor(&mut lu, &a);
     let mut x = vec![1.0; 3 * n];
-    assert!(r.is_err() || lu.solve(&mut x).is_err());
+    assert!(r.is_err() || LinearSolver::<3>::solve(&mut lu, &mut x).is_err());
+}
+
+#[test]
+fn a_matrix_of_another_size_is_refused() {
+    let (a, _) = random_system::<3>(5, 1);
+    let mut bt = BlockThomas::<3>::new(4);
+    assert_eq!(bt.factor(&a), Err(LinearError::Pattern));
+    let mut lu = SparseLu::block_tridiagonal(3, 4);
+    assert_eq!(
+        LinearSolver::<3>::factor(&mut lu, &a),
+        Err(LinearError::Pattern)
+    );
+}
+
+/// A general (not block-tridiagonal) pattern through `sprs` and the sparse LU: an arrow
+/// matrix (dense last row and column, as a column-integrated unknown would couple to
+/// every cell), solved and checked against A x = b computed by `sprs` itself.
+#[test]
+fn sparse_lu_solves_a_general_pattern_assembled_with_sprs() {
+    let dim = 30;
+    let mut rng = Rng(23);
+    let mut tri = TriMat::new((dim, dim));
+    for i in 0..dim {
+        tri.add_triplet(i, i, 5.0 + rng.next());
+        if i + 1 < dim {
+            tri.add_triplet(i, i + 1, 0.5 * rng.next());
+            tri.add_triplet(i + 1, i, 0.5 * rng.next());
+        }
+        if i + 1 < dim {
+            tri.add_triplet(dim - 1, i, 0.2 * rng.next());
+            tri.add_triplet(i, dim - 1, 0.2 * rng.next());
+        }
+    }
+    let a = tri.to_csc::<usize>();
+    let b: Vec<f64> = (0..dim).map(|_| rng.next()).collect();
+    let mut lu = SparseLu::new(&a);
+    lu.factor_csc(&a).unwrap();
+    let mut x = b.clone();
+    lu.solve_in_place(&mut x).unwrap();
+    let ax = &a * &ndarray::Array1::from(x.clone());
+    let res = max_diff(ax.as_slice().unwrap(), &b);
+    assert!(res < 1e-13, "residual {res}");
+    // Another pattern is refused, not misread.
+    let mut other = TriMat::new((dim, dim));
+    for i in 0..dim {
+        other.add_triplet(i, i, 1.0);
+    }
+    assert_eq!(
+        lu.factor_csc(&other.to_csc::<usize>()),
+        Err(LinearError::Pattern)
+    );
 }

@@ -12,8 +12,9 @@
 use super::cell::{cell_props, CellProps};
 use super::dual::Dual;
 use super::flux::{face_flux, FaceFlux};
+use super::BLOCK;
 use super::{System, ENERGY, H, RV, T, VAPOR, WATER};
-use crate::solve::blocktri::{Block, BlockTri};
+use crate::solve::blocktri::{zero_block, Block, BlockTri};
 
 /// Largest relative change of a cell's unknowns from the base of a kept evaluation with
 /// derivatives (head: relative to max(|h|, 0.01 m)), within which its values are taken
@@ -93,8 +94,8 @@ pub(super) trait Kept {
         parts: bool,
     ) -> bool;
     fn complete_parts(&self, sys: &System, u: &[f64], faces: &mut [FaceFlux<0>]);
-    fn jacobian_into(&self, sys: &System, c: f64, jac: &mut BlockTri);
-    fn storage_blocks_into(&self, sys: &System, out: &mut [Block]);
+    fn jacobian_into(&self, sys: &System, c: f64, jac: &mut BlockTri<BLOCK>);
+    fn storage_blocks_into(&self, sys: &System, out: &mut [Block<BLOCK>]);
 }
 
 impl<const N: usize, const M: usize> Derivs<N, M> {
@@ -357,7 +358,7 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
 
     /// The Jacobian of the residual of [`System::assemble`] with coefficient `c` into
     /// `jac` (zeroed first).
-    fn jacobian_into(&self, sys: &System, c: f64, jac: &mut BlockTri) {
+    fn jacobian_into(&self, sys: &System, c: f64, jac: &mut BlockTri<BLOCK>) {
         let n = sys.n;
         let rate = sys.kinetic_rate();
         jac.zero();
@@ -368,22 +369,22 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
             let energy = cp.energy * (c * w);
             let water = cp.water * (c * w);
             for col in 0..N {
-                d[ENERGY * 3 + col] += energy.d[col];
-                d[WATER * 3 + col] += water.d[col];
+                d[ENERGY][col] += energy.d[col];
+                d[WATER][col] += water.d[col];
             }
             match rate {
                 Some(b) => {
                     let vapor = cp.vapor * (c * w) - (cp.rveq - cp.rv) * (b * w);
                     for col in 0..N {
-                        d[VAPOR * 3 + col] += vapor.d[col];
+                        d[VAPOR][col] += vapor.d[col];
                     }
                 }
                 None => {
                     // rv − rveq(T, h): 1 for the vapour unknown, −∂rveq for T and h.
                     for col in 0..N {
-                        d[VAPOR * 3 + col] -= cp.rveq.d[col];
+                        d[VAPOR][col] -= cp.rveq.d[col];
                     }
-                    d[VAPOR * 3 + RV] += 1.0;
+                    d[VAPOR][RV] += 1.0;
                 }
             }
         }
@@ -400,12 +401,12 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
                     {
                         let b = jac.block_mut(rb, col_up);
                         for col in 0..N {
-                            b[r * 3 + col] += sign * v.d[col];
+                            b[r][col] += sign * v.d[col];
                         }
                     }
                     let b = jac.block_mut(rb, col_dn);
                     for col in 0..N {
-                        b[r * 3 + col] += sign * v.d[N + col];
+                        b[r][col] += sign * v.d[N + col];
                     }
                 }
             }
@@ -413,17 +414,17 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
     }
 
     /// The storage-derivative blocks (see [`System::storage_jacobian_into`]).
-    fn storage_blocks_into(&self, sys: &System, out: &mut [Block]) {
+    fn storage_blocks_into(&self, sys: &System, out: &mut [Block<BLOCK>]) {
         let kinetic = sys.kinetic_rate().is_some();
         for (i, b) in out.iter_mut().enumerate().take(sys.n) {
             let w = sys.widths[i];
             let cp = &self.cells[i];
-            *b = [0.0; 9];
+            *b = zero_block();
             let rows = [cp.energy, cp.water, cp.vapor];
             let used = if kinetic { 3 } else { 2 };
             for (r, row) in rows.iter().enumerate().take(used) {
                 for col in 0..N {
-                    b[r * 3 + col] = w * row.d[col];
+                    b[r][col] = w * row.d[col];
                 }
             }
         }

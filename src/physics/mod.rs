@@ -15,9 +15,23 @@ pub mod cell;
 mod derivs;
 pub mod dual;
 pub mod flux;
+mod rules;
 
 use crate::model::{BottomBc, Model, Periods, Physics, Soil, SurfaceBc, VaporMode};
-use crate::solve::blocktri::BlockTri;
+use crate::solve::blocktri::{Block, BlockTri};
+pub use crate::solve::problem::NonFinite;
+pub use rules::{VariableRules, BLOCK};
+
+/// The time stepper for the soil column (blocks of T, h, rv).
+pub type ColumnStepper = crate::solve::stepper::Stepper<BLOCK>;
+
+/// Balance errors of the column since the start, from the stepper's accumulators and
+/// the last evaluation: ([energy J m⁻², water kg m⁻²] storage change − net inflow, the
+/// same relative to max(|storage change|, throughput)).
+pub fn column_balance(sys: &System, st: &ColumnStepper) -> ([f64; 2], [f64; 2]) {
+    let (abs, rel) = st.balance(sys);
+    ([abs[0], abs[1]], [rel[0], rel[1]])
+}
 use cell::{cell_props, CellProps};
 use derivs::{Derivs, Kept};
 use dual::{Dual, D0};
@@ -31,13 +45,6 @@ pub const VAPOR: usize = 2;
 pub const T: usize = 0;
 pub const H: usize = 1;
 pub const RV: usize = 2;
-
-/// A residual or property that is not a finite number: a recoverable step failure.
-#[derive(Debug, Clone, PartialEq)]
-pub struct NonFinite {
-    pub cell: usize,
-    pub row: usize,
-}
 
 /// The discretised column: geometry, materials, boundary conditions and workspace.
 #[derive(Debug, Clone)]
@@ -54,6 +61,9 @@ pub struct System {
     pub physics: Physics,
     pub surface: Periods<SurfaceBc>,
     pub bottom: Periods<BottomBc>,
+    /// What the unknowns mean to the solvers: update limits, error measures and
+    /// tolerances, step-change targets (see `rules`).
+    pub rules: VariableRules,
     /// Values of the last evaluation (with or without derivatives): cell properties,
     /// face fluxes and, per face, the total energy, water and vapour flux.
     pub cells: Vec<CellProps<0>>,
@@ -144,6 +154,7 @@ impl System {
             physics: model.physics.clone(),
             surface: model.surface.clone(),
             bottom: model.bottom.clone(),
+            rules: VariableRules::for_model(model),
             cells: vec![zero; n],
             faces: vec![FaceFlux::zero(); n + 1],
             face_totals: vec![[D0::cst(0.0); 3]; n + 1],
@@ -455,7 +466,7 @@ impl System {
     /// derivatives: the part of the Jacobian that scales with the integrator coefficient
     /// `c`, so a Jacobian built at `c` becomes the one at `c'` by adding `(c' − c)` times
     /// these blocks. The algebraic vapour row of equilibrium mode has no storage part.
-    pub fn storage_jacobian_into(&self, out: &mut [crate::solve::blocktri::Block]) {
+    pub fn storage_jacobian_into(&self, out: &mut [Block<BLOCK>]) {
         self.kept().storage_blocks_into(self, out);
     }
 
@@ -468,7 +479,7 @@ impl System {
         c: f64,
         hist: &[f64],
         res: &mut [f64],
-        jac: Option<&mut BlockTri>,
+        jac: Option<&mut BlockTri<BLOCK>>,
     ) -> Result<(), NonFinite> {
         if jac.is_some() {
             self.evaluate_with_derivatives(t, u);
@@ -526,15 +537,12 @@ impl System {
         if let Some(jac) = jac {
             self.kept().jacobian_into(self, c, jac);
             for blocks in [&jac.lower, &jac.diag, &jac.upper] {
-                if blocks.iter().all(|b| all_finite(b)) {
+                if blocks.iter().all(|b| b.iter().all(|r| all_finite(r))) {
                     continue;
                 }
                 for (i, b) in blocks.iter().enumerate() {
-                    if let Some(k) = b.iter().position(|x| !x.is_finite()) {
-                        return Err(NonFinite {
-                            cell: i,
-                            row: k / 3,
-                        });
+                    if let Some(row) = b.iter().position(|r| !all_finite(r)) {
+                        return Err(NonFinite { cell: i, row });
                     }
                 }
             }

@@ -1,15 +1,17 @@
 //! Linear solvers for the Newton systems, behind one trait.
 //!
-//! - [`BlockThomas`]: block-tridiagonal LU (3×3 blocks, partial pivoting inside each block);
-//!   the fast path for the 1-D pattern.
+//! - [`BlockThomas`]: block-tridiagonal LU (B×B blocks, partial pivoting inside each
+//!   block); the fast path for the 1-D pattern.
 //! - [`SparseLu`]: faer's sparse LU with the symbolic analysis done once per pattern; the
-//!   general path and the reference the fast path is tested against.
+//!   general path (any sparsity pattern, assembled with `sprs`) and the reference the
+//!   fast path is tested against.
 
-use super::blocktri::{Block, BlockTri};
+use super::blocktri::{zero_block, Block, BlockTri};
 use faer::dyn_stack::{MemBuffer, MemStack};
 use faer::sparse::linalg::lu::{factorize_symbolic_lu, NumericLu, SymbolicLu};
 use faer::sparse::{SparseColMatRef, SymbolicSparseColMatRef};
 use faer::{Conj, MatMut, Par};
+use sprs::{CsMat, TriMat};
 
 /// A failed factorisation or solve: recoverable (the step is cut).
 #[derive(Debug, Clone, PartialEq)]
@@ -18,12 +20,14 @@ pub enum LinearError {
     Singular { index: usize },
     /// The solution contains NaN or Inf.
     NonFinite,
+    /// A matrix whose sparsity pattern differs from the one the solver was built for.
+    Pattern,
 }
 
-/// Factor once, solve many times.
-pub trait LinearSolver {
+/// Factor once, solve many times, for block-tridiagonal matrices with B×B blocks.
+pub trait LinearSolver<const B: usize> {
     /// Numeric factorisation of `a` (same pattern on every call).
-    fn factor(&mut self, a: &BlockTri) -> Result<(), LinearError>;
+    fn factor(&mut self, a: &BlockTri<B>) -> Result<(), LinearError>;
     /// Solves A x = b in place (b becomes x) with the last factorisation.
     fn solve(&mut self, b: &mut [f64]) -> Result<(), LinearError>;
     fn name(&self) -> &'static str;
@@ -36,30 +40,34 @@ pub enum SolverKind {
     SparseLu,
 }
 
-/// Creates the solver for `n` cells.
-pub fn make_solver(kind: SolverKind, n: usize) -> Box<dyn LinearSolver> {
+/// Creates the solver for `n` blocks of B unknowns.
+pub fn make_solver<const B: usize>(kind: SolverKind, n: usize) -> Box<dyn LinearSolver<B>> {
     match kind {
-        SolverKind::BlockThomas => Box::new(BlockThomas::new(n)),
-        SolverKind::SparseLu => Box::new(SparseLu::new(n)),
+        SolverKind::BlockThomas => Box::new(BlockThomas::<B>::new(n)),
+        SolverKind::SparseLu => Box::new(SparseLu::block_tridiagonal(B, n)),
     }
 }
 
-/// LU of a 3×3 block with partial pivoting.
-#[derive(Debug, Clone, Copy, Default)]
-struct Lu3 {
-    lu: Block,
-    piv: [usize; 3],
+/// LU of a B×B block with partial pivoting.
+#[derive(Debug, Clone, Copy)]
+struct LuBlock<const B: usize> {
+    lu: Block<B>,
+    piv: [usize; B],
 }
 
-impl Lu3 {
-    fn factor(a: &Block, base: usize) -> Result<Lu3, LinearError> {
+impl<const B: usize> LuBlock<B> {
+    /// Factorises `a`; `base` is the index of its first unknown (for the error).
+    fn factor(a: &Block<B>, base: usize) -> Result<Self, LinearError> {
         let mut lu = *a;
-        let mut piv = [0usize, 1, 2];
-        for k in 0..3 {
+        let mut piv = [0usize; B];
+        for (k, p) in piv.iter_mut().enumerate() {
+            *p = k;
+        }
+        for k in 0..B {
             let mut p = k;
-            let mut best = lu[k * 3 + k].abs();
-            for r in k + 1..3 {
-                let v = lu[r * 3 + k].abs();
+            let mut best = lu[k][k].abs();
+            for (r, row) in lu.iter().enumerate().skip(k + 1) {
+                let v = row[k].abs();
                 if v > best {
                     best = v;
                     p = r;
@@ -69,32 +77,60 @@ impl Lu3 {
                 return Err(LinearError::Singular { index: base + k });
             }
             if p != k {
-                for c in 0..3 {
-                    lu.swap(k * 3 + c, p * 3 + c);
-                }
+                lu.swap(k, p);
                 piv.swap(k, p);
             }
-            let d = lu[k * 3 + k];
-            for r in k + 1..3 {
-                let f = lu[r * 3 + k] / d;
-                lu[r * 3 + k] = f;
-                for c in k + 1..3 {
-                    lu[r * 3 + c] -= f * lu[k * 3 + c];
+            let pivot_row = lu[k];
+            let d = pivot_row[k];
+            for row in lu.iter_mut().skip(k + 1) {
+                let f = row[k] / d;
+                row[k] = f;
+                for c in k + 1..B {
+                    row[c] -= f * pivot_row[c];
                 }
             }
         }
-        Ok(Lu3 { lu, piv })
+        Ok(LuBlock { lu, piv })
     }
+
+    /// Solves with the factorisation: forward substitution with the unit lower factor,
+    /// then back substitution, each row's terms subtracted in column order.
     #[inline]
-    fn solve(&self, b: [f64; 3]) -> [f64; 3] {
+    fn solve(&self, b: [f64; B]) -> [f64; B] {
         let lu = &self.lu;
-        let mut y = [b[self.piv[0]], b[self.piv[1]], b[self.piv[2]]];
-        y[1] -= lu[3] * y[0];
-        y[2] -= lu[6] * y[0] + lu[7] * y[1];
-        y[2] /= lu[8];
-        y[1] = (y[1] - lu[5] * y[2]) / lu[4];
-        y[0] = (y[0] - lu[1] * y[1] - lu[2] * y[2]) / lu[0];
+        let mut y = [0.0; B];
+        for r in 0..B {
+            y[r] = b[self.piv[r]];
+        }
+        for r in 1..B {
+            let mut s = lu[r][0] * y[0];
+            for c in 1..r {
+                s += lu[r][c] * y[c];
+            }
+            y[r] -= s;
+        }
+        for r in (0..B).rev() {
+            let mut s = y[r];
+            for c in r + 1..B {
+                s -= lu[r][c] * y[c];
+            }
+            y[r] = s / lu[r][r];
+        }
         y
+    }
+
+    /// The explicit inverse, column by column.
+    fn inverse(&self) -> Block<B> {
+        let mut inv = zero_block::<B>();
+        for col in 0..B {
+            let mut unit = [0.0; B];
+            unit[col] = 1.0;
+            let x = self.solve(unit);
+            for r in 0..B {
+                inv[r][col] = x[r];
+            }
+        }
+        inv
     }
 }
 
@@ -108,151 +144,209 @@ fn all_finite(x: &[f64]) -> Result<(), LinearError> {
     }
 }
 
+/// a b, each entry summed in the order of k.
 #[inline]
-fn mat_mul(a: &Block, b: &Block) -> Block {
-    let mut c = [0.0; 9];
-    for r in 0..3 {
-        for k in 0..3 {
-            let a_rk = a[r * 3 + k];
-            for col in 0..3 {
-                c[r * 3 + col] += a_rk * b[k * 3 + col];
+fn mat_mul<const B: usize>(a: &Block<B>, b: &Block<B>) -> Block<B> {
+    let mut c = zero_block::<B>();
+    for r in 0..B {
+        for k in 0..B {
+            let a_rk = a[r][k];
+            for col in 0..B {
+                c[r][col] += a_rk * b[k][col];
             }
         }
     }
     c
 }
 
+/// a x over the first `m` rows and columns (m ≤ B), each row summed in column order.
 #[inline]
-fn mat_vec(a: &Block, x: &[f64]) -> [f64; 3] {
-    [
-        a[0] * x[0] + a[1] * x[1] + a[2] * x[2],
-        a[3] * x[0] + a[4] * x[1] + a[5] * x[2],
-        a[6] * x[0] + a[7] * x[1] + a[8] * x[2],
-    ]
+fn mat_vec<const B: usize>(a: &Block<B>, x: &[f64; B], m: usize) -> [f64; B] {
+    let mut y = [0.0; B];
+    for r in 0..m {
+        let mut s = a[r][0] * x[0];
+        for c in 1..m {
+            s += a[r][c] * x[c];
+        }
+        y[r] = s;
+    }
+    y
 }
 
 /// Block-tridiagonal LU (block Thomas algorithm):
 /// B'_0 = B_0; E_i = B'_i⁻¹ C_i; B'_i = B_i − A_i E_{i−1};
 /// forward y_i = B'_i⁻¹ (r_i − A_i y_{i−1}); back x_i = y_i − E_i x_{i+1}.
 ///
-/// When the third unknown of every cell is decoupled — it appears in no other row than its
-/// own, and its own row couples only within the cell (the algebraic vapour row of
-/// equilibrium mode) — the first two unknowns form a block-tridiagonal system with 2×2
-/// blocks, solved alone, and the third follows cell by cell from its row.
+/// When the last unknown of every block is decoupled — it appears in no other row than
+/// its own, and its own row couples only within the block (the algebraic vapour row of
+/// equilibrium mode) — the other B − 1 unknowns form a block-tridiagonal system of
+/// (B−1)×(B−1) blocks, solved alone, and the last follows block by block from its row.
 #[derive(Debug, Clone)]
-pub struct BlockThomas {
+pub struct BlockThomas<const B: usize> {
     n: usize,
     /// Explicit inverses of the pivot blocks B'_i (from their pivoted LU): the solve is
     /// then mat-vec products only, without the division chain of triangular solves.
-    inv: Vec<Block>,
-    e: Vec<Block>,
-    lower: Vec<Block>,
-    /// The same for the decoupled pattern: 2×2 blocks (row-major) and, per cell, the
-    /// third row (a, b, 1/c) of x₂ = (r₂ − a x₀ − b x₁)/c.
+    inv: Vec<Block<B>>,
+    e: Vec<Block<B>>,
+    lower: Vec<Block<B>>,
+    /// Whether the last factorisation used the decoupled pattern; then `inv`, `e` and
+    /// `lower` hold the reduced blocks in their leading (B−1)×(B−1) part, and `last`,
+    /// per block, the last row (a_0 … a_{B−2}, 1/a_{B−1}) of
+    /// x_{B−1} = (r_{B−1} − Σ a_c x_c) / a_{B−1}.
     reduced: bool,
-    inv2: Vec<[f64; 4]>,
-    e2: Vec<[f64; 4]>,
-    lower2: Vec<[f64; 4]>,
-    third: Vec<[f64; 3]>,
+    last: Vec<[f64; B]>,
 }
 
-impl BlockThomas {
+impl<const B: usize> BlockThomas<B> {
     pub fn new(n: usize) -> Self {
         BlockThomas {
             n,
-            inv: vec![[0.0; 9]; n],
-            e: vec![[0.0; 9]; n],
-            lower: vec![[0.0; 9]; n],
+            inv: vec![zero_block(); n],
+            e: vec![zero_block(); n],
+            lower: vec![zero_block(); n],
             reduced: false,
-            inv2: vec![[0.0; 4]; n],
-            e2: vec![[0.0; 4]; n],
-            lower2: vec![[0.0; 4]; n],
-            third: vec![[0.0; 3]; n],
+            last: vec![[0.0; B]; n],
         }
     }
 
-    /// Whether the third unknown of every cell is decoupled (see the type's doc).
-    fn decoupled(a: &BlockTri) -> bool {
-        let off =
-            |b: &Block| b[2] == 0.0 && b[5] == 0.0 && b[6] == 0.0 && b[7] == 0.0 && b[8] == 0.0;
-        (0..a.n).all(|i| a.diag[i][2] == 0.0 && a.diag[i][5] == 0.0)
+    /// Whether the last unknown of every block is decoupled (see the type's doc).
+    fn decoupled(a: &BlockTri<B>) -> bool {
+        if B < 2 {
+            return false;
+        }
+        let m = B - 1;
+        let off = |b: &Block<B>| b[m].iter().all(|&x| x == 0.0) && b.iter().all(|r| r[m] == 0.0);
+        (0..a.n).all(|i| a.diag[i][..m].iter().all(|r| r[m] == 0.0))
             && a.lower.iter().all(off)
             && a.upper.iter().all(off)
     }
 
-    fn factor_reduced(&mut self, a: &BlockTri) -> Result<(), LinearError> {
+    /// Inverse of the leading (B−1)×(B−1) part of `bp` (the rest zero), or `None` when
+    /// it is singular. For 2×2: by the adjugate, with the determinant's size judged
+    /// against the entries; otherwise by pivoted LU of the block with a unit last pivot.
+    fn reduced_inverse(bp: &Block<B>) -> Option<Block<B>> {
+        let m = B - 1;
+        let mut inv = zero_block::<B>();
+        if m == 2 {
+            let det = bp[0][0] * bp[1][1] - bp[0][1] * bp[1][0];
+            let size = [bp[0][0], bp[0][1], bp[1][0], bp[1][1]]
+                .iter()
+                .fold(0.0f64, |s, x| s.max(x.abs()));
+            if !(det.is_finite() && det.abs() > f64::EPSILON * f64::EPSILON * size * size) {
+                return None;
+            }
+            let r = 1.0 / det;
+            inv[0][0] = bp[1][1] * r;
+            inv[0][1] = -bp[0][1] * r;
+            inv[1][0] = -bp[1][0] * r;
+            inv[1][1] = bp[0][0] * r;
+            return Some(inv);
+        }
+        let mut t = zero_block::<B>();
+        for r in 0..m {
+            t[r][..m].copy_from_slice(&bp[r][..m]);
+        }
+        t[m][m] = 1.0;
+        let full = LuBlock::factor(&t, 0).ok()?.inverse();
+        for r in 0..m {
+            inv[r][..m].copy_from_slice(&full[r][..m]);
+        }
+        Some(inv)
+    }
+
+    fn factor_reduced(&mut self, a: &BlockTri<B>) -> Result<(), LinearError> {
         let n = self.n;
-        let sub = |b: &Block| [b[0], b[1], b[3], b[4]];
+        let m = B - 1;
+        // The leading (m×m) part of a block.
+        let sub = |b: &Block<B>| {
+            let mut s = zero_block::<B>();
+            for r in 0..m {
+                s[r][..m].copy_from_slice(&b[r][..m]);
+            }
+            s
+        };
         for i in 0..n {
             let mut bp = sub(&a.diag[i]);
             let low = sub(&a.lower[i]);
             if i > 0 {
-                let e = &self.e2[i - 1];
-                bp[0] -= low[0] * e[0] + low[1] * e[2];
-                bp[1] -= low[0] * e[1] + low[1] * e[3];
-                bp[2] -= low[2] * e[0] + low[3] * e[2];
-                bp[3] -= low[2] * e[1] + low[3] * e[3];
+                let e = &self.e[i - 1];
+                for r in 0..m {
+                    for c in 0..m {
+                        let mut s = low[r][0] * e[0][c];
+                        for k in 1..m {
+                            s += low[r][k] * e[k][c];
+                        }
+                        bp[r][c] -= s;
+                    }
+                }
             }
-            // Inverse by the adjugate, with the determinant's size judged against the
-            // entries (a zero or non-finite pivot block is singular).
-            let det = bp[0] * bp[3] - bp[1] * bp[2];
-            let size = bp.iter().fold(0.0f64, |m, x| m.max(x.abs()));
-            if !(det.is_finite() && det.abs() > f64::EPSILON * f64::EPSILON * size * size) {
-                return Err(LinearError::Singular { index: 3 * i });
-            }
-            let r = 1.0 / det;
-            let inv = [bp[3] * r, -bp[1] * r, -bp[2] * r, bp[0] * r];
+            let inv = Self::reduced_inverse(&bp).ok_or(LinearError::Singular { index: B * i })?;
             if i + 1 < n {
                 let c = sub(&a.upper[i]);
-                self.e2[i] = [
-                    inv[0] * c[0] + inv[1] * c[2],
-                    inv[0] * c[1] + inv[1] * c[3],
-                    inv[2] * c[0] + inv[3] * c[2],
-                    inv[2] * c[1] + inv[3] * c[3],
-                ];
+                let e = &mut self.e[i];
+                for r in 0..m {
+                    for q in 0..m {
+                        let mut s = inv[r][0] * c[0][q];
+                        for k in 1..m {
+                            s += inv[r][k] * c[k][q];
+                        }
+                        e[r][q] = s;
+                    }
+                }
             }
-            self.inv2[i] = inv;
-            self.lower2[i] = low;
+            self.inv[i] = inv;
+            self.lower[i] = low;
             let d = &a.diag[i];
-            if d[8] == 0.0 || !d[8].is_finite() {
-                return Err(LinearError::Singular { index: 3 * i + 2 });
+            if d[m][m] == 0.0 || !d[m][m].is_finite() {
+                return Err(LinearError::Singular { index: B * i + m });
             }
-            self.third[i] = [d[6], d[7], 1.0 / d[8]];
+            let mut last = [0.0; B];
+            last[..m].copy_from_slice(&d[m][..m]);
+            last[m] = 1.0 / d[m][m];
+            self.last[i] = last;
         }
         Ok(())
     }
 
     fn solve_reduced(&self, b: &mut [f64]) {
         let n = self.n;
-        let mut prev = [0.0; 2];
+        let m = B - 1;
+        let mut prev = [0.0; B];
         for i in 0..n {
-            let mut r = [b[3 * i], b[3 * i + 1]];
+            let mut r = [0.0; B];
+            r[..m].copy_from_slice(&b[B * i..B * i + m]);
             if i > 0 {
-                let l = &self.lower2[i];
-                r[0] -= l[0] * prev[0] + l[1] * prev[1];
-                r[1] -= l[2] * prev[0] + l[3] * prev[1];
+                let ly = mat_vec(&self.lower[i], &prev, m);
+                for k in 0..m {
+                    r[k] -= ly[k];
+                }
             }
-            let v = &self.inv2[i];
-            prev = [v[0] * r[0] + v[1] * r[1], v[2] * r[0] + v[3] * r[1]];
-            b[3 * i] = prev[0];
-            b[3 * i + 1] = prev[1];
+            prev = mat_vec(&self.inv[i], &r, m);
+            b[B * i..B * i + m].copy_from_slice(&prev[..m]);
         }
         let mut next = prev;
         for i in (0..n.saturating_sub(1)).rev() {
-            let e = &self.e2[i];
-            b[3 * i] -= e[0] * next[0] + e[1] * next[1];
-            b[3 * i + 1] -= e[2] * next[0] + e[3] * next[1];
-            next = [b[3 * i], b[3 * i + 1]];
+            let ex = mat_vec(&self.e[i], &next, m);
+            for k in 0..m {
+                b[B * i + k] -= ex[k];
+                next[k] = b[B * i + k];
+            }
         }
-        for i in 0..n {
-            let [p, q, rc] = self.third[i];
-            b[3 * i + 2] = (b[3 * i + 2] - p * b[3 * i] - q * b[3 * i + 1]) * rc;
+        for (x, l) in b.chunks_exact_mut(B).zip(self.last.iter()) {
+            let mut s = x[m];
+            for c in 0..m {
+                s -= l[c] * x[c];
+            }
+            x[m] = s * l[m];
         }
     }
 }
 
-impl LinearSolver for BlockThomas {
-    fn factor(&mut self, a: &BlockTri) -> Result<(), LinearError> {
+impl<const B: usize> LinearSolver<B> for BlockThomas<B> {
+    fn factor(&mut self, a: &BlockTri<B>) -> Result<(), LinearError> {
+        if a.n != self.n {
+            return Err(LinearError::Pattern);
+        }
         self.reduced = Self::decoupled(a);
         if self.reduced {
             return self.factor_reduced(a);
@@ -262,20 +356,13 @@ impl LinearSolver for BlockThomas {
             let mut bp = a.diag[i];
             if i > 0 {
                 let ae = mat_mul(&a.lower[i], &self.e[i - 1]);
-                for k in 0..9 {
-                    bp[k] -= ae[k];
+                for (row, ae_row) in bp.iter_mut().zip(ae.iter()) {
+                    for (x, y) in row.iter_mut().zip(ae_row.iter()) {
+                        *x -= y;
+                    }
                 }
             }
-            let lu = Lu3::factor(&bp, 3 * i)?;
-            let mut inv = [0.0; 9];
-            for col in 0..3 {
-                let mut unit = [0.0; 3];
-                unit[col] = 1.0;
-                let x = lu.solve(unit);
-                inv[col] = x[0];
-                inv[3 + col] = x[1];
-                inv[6 + col] = x[2];
-            }
+            let inv = LuBlock::factor(&bp, B * i)?.inverse();
             if i + 1 < n {
                 // E_i = B'_i⁻¹ C_i.
                 self.e[i] = mat_mul(&inv, &a.upper[i]);
@@ -287,29 +374,33 @@ impl LinearSolver for BlockThomas {
     }
 
     fn solve(&mut self, b: &mut [f64]) -> Result<(), LinearError> {
+        if b.len() != B * self.n {
+            return Err(LinearError::Pattern);
+        }
         if self.reduced {
             self.solve_reduced(b);
             return all_finite(b);
         }
         let n = self.n;
-        let mut prev = [0.0; 3];
+        let mut prev = [0.0; B];
         for i in 0..n {
-            let mut r = [b[3 * i], b[3 * i + 1], b[3 * i + 2]];
+            let mut r = [0.0; B];
+            r.copy_from_slice(&b[B * i..B * i + B]);
             if i > 0 {
-                let ay = mat_vec(&self.lower[i], &prev);
-                for k in 0..3 {
+                let ay = mat_vec(&self.lower[i], &prev, B);
+                for k in 0..B {
                     r[k] -= ay[k];
                 }
             }
-            prev = mat_vec(&self.inv[i], &r);
-            b[3 * i..3 * i + 3].copy_from_slice(&prev);
+            prev = mat_vec(&self.inv[i], &r, B);
+            b[B * i..B * i + B].copy_from_slice(&prev);
         }
         let mut next = prev;
         for i in (0..n.saturating_sub(1)).rev() {
-            let ex = mat_vec(&self.e[i], &next);
-            for k in 0..3 {
-                b[3 * i + k] -= ex[k];
-                next[k] = b[3 * i + k];
+            let ex = mat_vec(&self.e[i], &next, B);
+            for k in 0..B {
+                b[B * i + k] -= ex[k];
+                next[k] = b[B * i + k];
             }
         }
         all_finite(b)
@@ -320,16 +411,35 @@ impl LinearSolver for BlockThomas {
     }
 }
 
-/// faer sparse LU over the CSC form of the block-tridiagonal pattern. The pattern and the
-/// symbolic analysis are built once; each factorisation copies the block values into the
-/// CSC value array and refactors numerically (no allocation after the first call).
+/// Where a stored value of the sparse matrix comes from in a block-tridiagonal matrix:
+/// the block (0 lower, 1 diagonal, 2 upper), its index and the entry's row and column.
+#[derive(Debug, Clone, Copy)]
+struct BlockEntry {
+    kind: u8,
+    block: usize,
+    row: u16,
+    col: u16,
+}
+
+/// faer's sparse LU for a fixed sparsity pattern, assembled in compressed-column form
+/// with `sprs`. The pattern and the symbolic analysis are built once; each factorisation
+/// copies the values into the CSC value array and refactors numerically (no allocation
+/// after the first call).
+///
+/// Two ways in: [`SparseLu::factor_csc`] takes any `sprs` matrix of the pattern the
+/// solver was built with ([`SparseLu::new`]), for coupled unknowns whose pattern is not
+/// block-tridiagonal; as a [`LinearSolver`] it takes block-tridiagonal matrices
+/// ([`SparseLu::block_tridiagonal`] builds that pattern).
 pub struct SparseLu {
-    n: usize,
+    dim: usize,
     col_ptr: Vec<usize>,
     row_idx: Vec<usize>,
     values: Vec<f64>,
-    /// For each stored value: (block kind 0 lower / 1 diag / 2 upper, block index, entry).
-    source: Vec<(u8, usize, usize)>,
+    /// For each stored value, its place in a block-tridiagonal matrix (empty for a
+    /// general pattern), and that matrix's block size and block count.
+    source: Vec<BlockEntry>,
+    block: usize,
+    blocks: usize,
     symbolic: Option<SymbolicLu<usize>>,
     numeric: NumericLu<usize, f64>,
     factor_mem: MemBuffer,
@@ -338,35 +448,23 @@ pub struct SparseLu {
 }
 
 impl SparseLu {
-    pub fn new(n: usize) -> Self {
-        let dim = 3 * n;
-        let mut col_ptr = Vec::with_capacity(dim + 1);
-        let mut row_idx = Vec::new();
-        let mut source = Vec::new();
-        col_ptr.push(0);
-        // Column j = 3·cb + c couples to rows of blocks cb−1, cb, cb+1.
-        for cb in 0..n {
-            for c in 0..3 {
-                for rb in cb.saturating_sub(1)..(cb + 2).min(n) {
-                    for r in 0..3 {
-                        let kind = if rb == cb {
-                            1u8
-                        } else if rb == cb + 1 {
-                            0 // row block cb+1 sees column block cb through its lower block
-                        } else {
-                            2 // row block cb−1 sees column block cb through its upper block
-                        };
-                        row_idx.push(3 * rb + r);
-                        source.push((kind, rb, r * 3 + c));
-                    }
-                }
-                col_ptr.push(row_idx.len());
-            }
-        }
+    /// A solver for square matrices with the sparsity pattern of `pattern` (its stored
+    /// entries; the values are not used). The symbolic analysis is done here.
+    pub fn new(pattern: &CsMat<f64>) -> Self {
+        let csc = if pattern.is_csc() {
+            pattern.clone()
+        } else {
+            pattern.to_csc()
+        };
+        let dim = csc.cols();
+        let col_ptr = csc.indptr().to_proper().into_owned();
+        let row_idx = csc.indices().to_vec();
         let values = vec![0.0; row_idx.len()];
-        let symbolic = {
+        let symbolic = if csc.rows() == dim {
             let sym = SymbolicSparseColMatRef::new_checked(dim, dim, &col_ptr, None, &row_idx);
             factorize_symbolic_lu(sym, Default::default()).ok()
+        } else {
+            None
         };
         let (factor_mem, solve_mem) = match &symbolic {
             Some(s) => (
@@ -379,11 +477,13 @@ impl SparseLu {
             ),
         };
         SparseLu {
-            n,
+            dim,
             col_ptr,
             row_idx,
             values,
-            source,
+            source: Vec::new(),
+            block: 0,
+            blocks: 0,
             symbolic,
             numeric: NumericLu::new(),
             factor_mem,
@@ -391,18 +491,52 @@ impl SparseLu {
             factored: false,
         }
     }
-}
 
-impl LinearSolver for SparseLu {
-    fn factor(&mut self, a: &BlockTri) -> Result<(), LinearError> {
-        debug_assert_eq!(a.n, self.n);
-        for (v, &(kind, b, e)) in self.values.iter_mut().zip(self.source.iter()) {
-            *v = match kind {
-                0 => a.lower[b][e],
-                1 => a.diag[b][e],
-                _ => a.upper[b][e],
-            };
+    /// The pattern of a block-tridiagonal matrix of `n` blocks of size `b`, assembled
+    /// with `sprs` (every entry of the three block diagonals stored).
+    pub fn block_tridiagonal_pattern(b: usize, n: usize) -> CsMat<f64> {
+        let dim = b * n;
+        let mut tri = TriMat::with_capacity((dim, dim), 3 * b * b * n);
+        for rb in 0..n {
+            for cb in rb.saturating_sub(1)..(rb + 2).min(n) {
+                for r in 0..b {
+                    for c in 0..b {
+                        tri.add_triplet(b * rb + r, b * cb + c, 1.0);
+                    }
+                }
+            }
         }
+        tri.to_csc()
+    }
+
+    /// The solver for block-tridiagonal matrices of `n` blocks of size `b`.
+    pub fn block_tridiagonal(b: usize, n: usize) -> Self {
+        let mut s = SparseLu::new(&Self::block_tridiagonal_pattern(b, n));
+        for j in 0..s.dim {
+            for &row in &s.row_idx[s.col_ptr[j]..s.col_ptr[j + 1]] {
+                let (rb, cb) = (row / b, j / b);
+                let kind = if rb == cb {
+                    1
+                } else if rb == cb + 1 {
+                    0 // row block cb+1 sees column block cb through its lower block
+                } else {
+                    2 // row block cb−1 sees column block cb through its upper block
+                };
+                s.source.push(BlockEntry {
+                    kind,
+                    block: rb,
+                    row: (row % b) as u16,
+                    col: (j % b) as u16,
+                });
+            }
+        }
+        s.block = b;
+        s.blocks = n;
+        s
+    }
+
+    /// Numeric factorisation of the values now in `self.values`.
+    fn factor_values(&mut self) -> Result<(), LinearError> {
         if let Some(k) = self.values.iter().position(|x| !x.is_finite()) {
             return Err(LinearError::Singular {
                 index: self.row_idx[k],
@@ -412,7 +546,7 @@ impl LinearSolver for SparseLu {
             .symbolic
             .as_ref()
             .ok_or(LinearError::Singular { index: 0 })?;
-        let dim = 3 * self.n;
+        let dim = self.dim;
         let sym =
             SymbolicSparseColMatRef::new_checked(dim, dim, &self.col_ptr, None, &self.row_idx);
         let m = SparseColMatRef::new(sym, &self.values);
@@ -430,13 +564,32 @@ impl LinearSolver for SparseLu {
         Ok(())
     }
 
-    fn solve(&mut self, b: &mut [f64]) -> Result<(), LinearError> {
+    /// Numeric factorisation of `a`, which must have the pattern the solver was built
+    /// with (in CSC form: the same column pointers and row indices).
+    pub fn factor_csc(&mut self, a: &CsMat<f64>) -> Result<(), LinearError> {
+        if !a.is_csc()
+            || a.rows() != self.dim
+            || a.cols() != self.dim
+            || a.indptr().to_proper().as_ref() != self.col_ptr.as_slice()
+            || a.indices() != self.row_idx.as_slice()
+        {
+            return Err(LinearError::Pattern);
+        }
+        self.values.copy_from_slice(a.data());
+        self.factor_values()
+    }
+
+    /// Solves A x = b in place with the last factorisation.
+    pub fn solve_in_place(&mut self, b: &mut [f64]) -> Result<(), LinearError> {
         let symbolic = self
             .symbolic
             .as_ref()
             .ok_or(LinearError::Singular { index: 0 })?;
         if !self.factored {
             return Err(LinearError::Singular { index: 0 });
+        }
+        if b.len() != self.dim {
+            return Err(LinearError::Pattern);
         }
         let lu = faer::sparse::linalg::lu::LuRef::new_unchecked(symbolic, &self.numeric);
         let dim = b.len();
@@ -447,6 +600,27 @@ impl LinearSolver for SparseLu {
         } else {
             Err(LinearError::NonFinite)
         }
+    }
+}
+
+impl<const B: usize> LinearSolver<B> for SparseLu {
+    fn factor(&mut self, a: &BlockTri<B>) -> Result<(), LinearError> {
+        if self.block != B || self.blocks != a.n {
+            return Err(LinearError::Pattern);
+        }
+        for (v, s) in self.values.iter_mut().zip(self.source.iter()) {
+            let (r, c) = (s.row as usize, s.col as usize);
+            *v = match s.kind {
+                0 => a.lower[s.block][r][c],
+                1 => a.diag[s.block][r][c],
+                _ => a.upper[s.block][r][c],
+            };
+        }
+        self.factor_values()
+    }
+
+    fn solve(&mut self, b: &mut [f64]) -> Result<(), LinearError> {
+        self.solve_in_place(b)
     }
 
     fn name(&self) -> &'static str {

@@ -1,38 +1,31 @@
-//! Time stepping on the conserved quantities, with adaptive Δt.
+//! Time stepping on the conserved quantities, with adaptive Δt, for any [`Problem`].
 //!
 //! Two integrators share one step loop:
 //! - **Backward Euler** with heuristic control: Δt grows after easy steps and is limited
-//!   by the largest change of temperature and liquid content per step.
+//!   by what the problem says of the changes over the step ([`Problem::change_factor`]).
 //! - **Variable-step BDF** of orders 1..=max_order with local-error control: the
 //!   derivative of the storages M at t_{n+1} is the derivative of the Lagrange polynomial
 //!   through the last k+1 points, `dM/dt ≈ Σ_j ℓ_j'(t_{n+1}) M_{n+1−j}`; the local error is
 //!   estimated from the corrector–predictor difference, `LTE ≈ Δt/(t_{n+1} − t_{n−k}) ·
 //!   (u − u_pred)`, with the predictor extrapolating the last k+1 points; the step is
-//!   accepted when the weighted max norm with `rtol` and per-variable `atol` is ≤ 1.
+//!   accepted when the weighted max norm (weights and measures from
+//!   [`Problem::error_tests`]) is ≤ 1.
 //!
-//! Every step solves `w (c·M(u) − hist) + F_below − F_above = 0` by Newton. A failed step
-//! is cut and retried; steps are clipped to land exactly on the stop time the caller
-//! gives. The cumulative boundary inflow W is integrated with the same formula as the
-//! storages, so `storage − initial storage − W` stays at the Newton tolerance whatever the
-//! order (the BDF weights sum to zero).
+//! Every step solves `V (c·M(u) − hist) − f(t, u) = 0` by Newton. A failed step is cut
+//! and retried; steps are clipped to land exactly on the stop time the caller gives. The
+//! cumulative boundary inflow W of each conserved quantity is integrated with the same
+//! formula as the storages, so `storage − initial storage − W` stays at the Newton
+//! tolerance whatever the order (the BDF weights sum to zero).
 
 use super::linear::LinearSolver;
-use super::newton::{self, NewtonFailure, NewtonOptions, NewtonWork};
-use crate::physics::{System, ENERGY, H, RV, T, WATER};
-use crate::props::constants::WATER_DENSITY;
+use super::newton::{self, NewtonFailure, NewtonOptions, NewtonStats, NewtonWork};
+use super::problem::{ErrorTest, Problem, MAX_CONSERVED};
 
-/// Which integrator and its tolerances.
+/// Which integrator and its relative tolerance (the absolute ones are the problem's).
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub enum Integrator {
     BackwardEuler,
-    Bdf {
-        max_order: usize,
-        rtol: f64,
-        atol_t: f64,
-        atol_h: f64,
-        atol_rv: f64,
-        atol_theta: f64,
-    },
+    Bdf { max_order: usize, rtol: f64 },
 }
 
 /// Step-size control settings.
@@ -40,10 +33,6 @@ pub enum Integrator {
 pub struct StepOptions {
     pub dt_min: f64,
     pub dt_max: f64,
-    /// Backward Euler only: target largest temperature change per step [K].
-    pub target_dt_change: f64,
-    /// Backward Euler only: target largest liquid-content change per step [m³ m⁻³].
-    pub target_theta_change: f64,
     /// Largest growth factor per step.
     pub max_growth: f64,
     pub integrator: Integrator,
@@ -55,8 +44,6 @@ impl Default for StepOptions {
         StepOptions {
             dt_min: 1e-3,
             dt_max: 1e12,
-            target_dt_change: 0.5,
-            target_theta_change: 0.02,
             max_growth: 2.0,
             integrator: Integrator::BackwardEuler,
             newton: NewtonOptions::default(),
@@ -73,6 +60,14 @@ pub struct Counters {
     pub factorizations: u64,
     /// Jacobian evaluations (the rest of the Newton iterations reuse a kept one).
     pub jacobians: u64,
+}
+
+impl Counters {
+    fn add(&mut self, stats: &NewtonStats) {
+        self.newton_iterations += stats.iterations as u64;
+        self.factorizations += stats.factorizations as u64;
+        self.jacobians += stats.jacobians as u64;
+    }
 }
 
 /// A step that could not be taken even at the smallest Δt (fatal).
@@ -96,21 +91,22 @@ pub struct StepInfo {
 pub struct HistoryPoint {
     pub t: f64,
     pub u: Vec<f64>,
-    /// Storages at `u` (3 per cell, as [`StepState::storage`]); empty when not known
-    /// (checkpoints written before they were kept), then recomputed.
+    /// Storages at `u` (as [`StepState::storage`]); empty when not known (checkpoints
+    /// written before they were kept), then recomputed.
     pub storage: Vec<f64>,
-    pub inflow: [f64; 2],
-    pub throughput: [f64; 2],
+    /// Cumulative inflow and throughput at `t` (as [`StepState::inflow`]).
+    pub inflow: Vec<f64>,
+    pub throughput: Vec<f64>,
 }
 
 impl HistoryPoint {
-    fn empty(len: usize) -> Self {
+    fn empty(len: usize, conserved: usize) -> Self {
         HistoryPoint {
             t: 0.0,
             u: vec![0.0; len],
             storage: vec![0.0; len],
-            inflow: [0.0; 2],
-            throughput: [0.0; 2],
+            inflow: vec![0.0; conserved],
+            throughput: vec![0.0; conserved],
         }
     }
 }
@@ -122,22 +118,24 @@ pub struct StepState {
     pub t: f64,
     /// Proposed next step [s].
     pub dt: f64,
-    /// Unknowns, 3 per cell (T, h, rv).
+    /// Unknowns, B per block.
     pub u: Vec<f64>,
-    /// Storages at `u` (3 per cell, as [`System::storage_into`]) from the evaluation that
-    /// accepted it: the multistep formula advances these, so they are part of the state
-    /// (a re-evaluation may differ in the last bits, see `System::evaluate`). Empty when
-    /// not known (older checkpoints), then recomputed.
+    /// Storages at `u` (B per block, as [`Problem::storage_into`]) from the evaluation
+    /// that accepted it: the multistep formula advances these, so they are part of the
+    /// state (a re-evaluation may differ in the last bits when the problem keeps
+    /// evaluations, see [`Problem::kept_states`]). Empty when not known (older
+    /// checkpoints), then recomputed.
     pub storage: Vec<f64>,
-    /// Cumulative net boundary inflow since the start: [energy J m⁻², water kg m⁻²].
-    pub inflow: [f64; 2],
-    /// Cumulative |top flux| + |bottom flux| (for relative balance errors).
-    pub throughput: [f64; 2],
-    /// Column totals at the start: [energy J m⁻², water kg m⁻²].
-    pub initial_totals: [f64; 2],
-    /// Storages of every cell at the start (3 per cell, as [`System::storage_into`]):
-    /// the storage change is summed cell by cell from these, so its round-off is that of
-    /// the change, not of the whole column's content.
+    /// Cumulative net boundary inflow of each conserved quantity since the start (in the
+    /// order of [`Problem::conserved_rows`]; for the soil column [energy J m⁻², water
+    /// kg m⁻²]).
+    pub inflow: Vec<f64>,
+    /// Cumulative |top flow| + |bottom flow| (for relative balance errors).
+    pub throughput: Vec<f64>,
+    /// Content of each conserved quantity at the start (Σ V M).
+    pub initial_totals: Vec<f64>,
+    /// Storages of every block at the start: the storage change is summed block by
+    /// block from these, so its round-off is that of the change, not of the content.
     pub initial_storage: Vec<f64>,
     pub counters: Counters,
     /// Earlier accepted points, newest first (BDF only; at most max_order + 1).
@@ -148,9 +146,9 @@ pub struct StepState {
     /// Error estimate of the last accepted BDF step (0: none since the last restart),
     /// for the predictive step controller.
     pub last_error: f64,
-    /// The states at which the system's kept evaluations with derivatives were made
-    /// (cells, faces; see `System::linearization_states`): part of the state because
-    /// later steps linearise from them. Filled by [`Stepper::sync_state`]; empty: none.
+    /// The states at which the problem's kept evaluations were made (see
+    /// [`Problem::kept_states`]): part of the state because later steps build on them.
+    /// Filled by [`Stepper::sync_state`]; empty: none.
     pub linearization_cells: Vec<f64>,
     pub linearization_faces: Vec<f64>,
 }
@@ -168,17 +166,35 @@ impl StepState {
     }
 }
 
-pub struct Stepper {
+/// Time stepper for problems with blocks of B unknowns.
+pub struct Stepper<const B: usize> {
     pub state: StepState,
     pub opts: StepOptions,
-    lin: Box<dyn LinearSolver>,
-    work: NewtonWork,
+    lin: Box<dyn LinearSolver<B>>,
+    work: NewtonWork<B>,
     u_old: Vec<f64>,
     hist: Vec<f64>,
 }
 
 /// Largest step ratio Δt_{n+1}/Δt_n for the BDF order (index = order).
 const BDF_MAX_RATIO: [f64; 6] = [2.0, 2.0, 2.0, 1.5, 1.2, 1.08];
+
+/// One try at a step: its size, end, order and BDF coefficients (nodes τ0 = t_new,
+/// τ1 = t, τ2.. = history; `alpha` the derivative weights, `alpha[0]` = c).
+struct Attempt {
+    dt: f64,
+    t_new: f64,
+    k: usize,
+    alpha: [f64; 7],
+}
+
+/// What the local error test decided.
+enum Verdict {
+    /// Retry with this step size.
+    Reject { dt_try: f64 },
+    /// Accept; the next step is this factor times the current one (before the caps).
+    Accept { factor: f64 },
+}
 
 /// Derivative at τ[0] of the Lagrange basis polynomials through τ[0..=k].
 fn bdf_weights(tau: &[f64], out: &mut [f64]) {
@@ -212,56 +228,69 @@ fn lagrange_values(tau: &[f64], x: f64, out: &mut [f64]) {
     }
 }
 
-impl Stepper {
-    /// A stepper at `state`; evaluates the system once to make its workspace current.
-    pub fn new(
-        sys: &mut System,
+impl<const B: usize> Stepper<B> {
+    /// A stepper at `state`; evaluates the problem once to make its workspace current.
+    pub fn new<P: Problem<B> + ?Sized>(
+        sys: &mut P,
         state: StepState,
         opts: StepOptions,
-        lin: Box<dyn LinearSolver>,
+        lin: Box<dyn LinearSolver<B>>,
     ) -> Self {
-        let n = sys.n;
+        let len = B * sys.blocks();
         let mut state = state;
         // Storages not known (older checkpoints): from a full evaluation.
-        sys.forget_linearization();
+        sys.forget_kept();
         for hp in state.history.iter_mut() {
-            if hp.storage.len() != 3 * n {
+            if hp.storage.len() != len {
                 sys.evaluate(hp.t, &hp.u);
-                hp.storage = vec![0.0; 3 * n];
+                hp.storage = vec![0.0; len];
                 sys.storage_into(&mut hp.storage);
             }
         }
         sys.evaluate(state.t, &state.u);
-        if state.storage.len() != 3 * n {
-            state.storage = vec![0.0; 3 * n];
+        if state.storage.len() != len {
+            state.storage = vec![0.0; len];
             sys.storage_into(&mut state.storage);
         }
-        // The kept evaluations with derivatives of the run this state comes from.
-        sys.restore_linearization(&state.linearization_cells, &state.linearization_faces);
+        // The kept evaluations of the run this state comes from.
+        sys.restore_kept(&state.linearization_cells, &state.linearization_faces);
         Stepper {
             state,
             opts,
             lin,
-            work: NewtonWork::new(n),
-            u_old: vec![0.0; 3 * n],
-            hist: vec![0.0; 3 * n],
+            work: NewtonWork::new(sys.blocks()),
+            u_old: vec![0.0; len],
+            hist: vec![0.0; len],
         }
     }
 
     /// Fresh state at time `t` from unknowns `u`.
-    pub fn initial_state(sys: &mut System, t: f64, dt: f64, u: Vec<f64>) -> StepState {
+    pub fn initial_state<P: Problem<B> + ?Sized>(
+        sys: &mut P,
+        t: f64,
+        dt: f64,
+        u: Vec<f64>,
+    ) -> StepState {
         sys.evaluate(t, &u);
-        let mut initial_storage = vec![0.0; 3 * sys.n];
+        let mut initial_storage = vec![0.0; B * sys.blocks()];
         sys.storage_into(&mut initial_storage);
+        let nq = sys.conserved_rows().len();
+        let mut initial_totals = vec![0.0; nq];
+        for (i, m) in initial_storage.chunks_exact(B).enumerate() {
+            let w = sys.volumes()[i];
+            for (tot, &row) in initial_totals.iter_mut().zip(sys.conserved_rows()) {
+                *tot += w * m[row];
+            }
+        }
         StepState {
             t,
             dt,
-            initial_totals: sys.totals(),
+            initial_totals,
             storage: initial_storage.clone(),
             initial_storage,
             u,
-            inflow: [0.0; 2],
-            throughput: [0.0; 2],
+            inflow: vec![0.0; nq],
+            throughput: vec![0.0; nq],
             counters: Counters::default(),
             history: Vec::new(),
             order: 1,
@@ -272,11 +301,10 @@ impl Stepper {
         }
     }
 
-    /// Copies into the state what it takes from the system (the states of its kept
-    /// evaluations with derivatives), so that it continues the run exactly: call before
-    /// saving the state.
-    pub fn sync_state(&mut self, sys: &System) {
-        let (cells, faces) = sys.linearization_states();
+    /// Copies into the state what it takes from the problem (the states of its kept
+    /// evaluations), so that it continues the run exactly: call before saving the state.
+    pub fn sync_state<P: Problem<B> + ?Sized>(&mut self, sys: &P) {
+        let (cells, faces) = sys.kept_states();
         self.state.linearization_cells = cells;
         self.state.linearization_faces = faces;
     }
@@ -290,21 +318,25 @@ impl Stepper {
         self.state.last_error = 0.0;
     }
 
-    /// Balance errors: [energy J m⁻², water kg m⁻²] = storage change − net inflow, and the
-    /// same relative to max(|storage change|, throughput). Uses the last evaluation.
-    pub fn balance(&self, sys: &System) -> ([f64; 2], [f64; 2]) {
-        // Storage change summed cell by cell: [energy, water].
-        let mut changes = [0.0; 2];
+    /// Balance errors per conserved quantity (for the soil column [energy J m⁻², water
+    /// kg m⁻²]): storage change − net inflow, and the same relative to max(|storage
+    /// change|, throughput). Uses the last evaluation.
+    pub fn balance<P: Problem<B> + ?Sized>(&self, sys: &P) -> (Vec<f64>, Vec<f64>) {
+        let rows = sys.conserved_rows();
+        let nq = rows.len().min(MAX_CONSERVED);
+        // Storage change summed block by block.
+        let mut changes = [0.0; MAX_CONSERVED];
         let m0 = &self.state.initial_storage;
-        for i in 0..sys.n {
+        for i in 0..sys.blocks() {
             let m = sys.storage(i);
-            let w = sys.widths[i];
-            changes[0] += w * (m[ENERGY] - m0[3 * i + ENERGY]);
-            changes[1] += w * (m[WATER] - m0[3 * i + WATER]);
+            let w = sys.volumes()[i];
+            for (ch, &row) in changes.iter_mut().zip(rows[..nq].iter()) {
+                *ch += w * (m[row] - m0[B * i + row]);
+            }
         }
-        let mut abs = [0.0; 2];
-        let mut rel = [0.0; 2];
-        for k in 0..2 {
+        let mut abs = vec![0.0; nq];
+        let mut rel = vec![0.0; nq];
+        for k in 0..nq {
             let change = changes[k];
             abs[k] = change - self.state.inflow[k];
             let denom = change.abs().max(self.state.throughput[k]);
@@ -319,19 +351,18 @@ impl Stepper {
 
     /// Weighted max norms of the local error estimates of the orders `orders` (at most
     /// three) for the step to `t_new` of size `dt` just solved (state in
-    /// `self.state.u`, its evaluation in `sys`), in one pass over the cells: for order q,
-    /// the difference between the solution and the extrapolation through the q+1 newest
-    /// points, times `dt/(t_new − t_{n−q})`. Temperature and vapour density are tested
-    /// directly; moisture in liquid content through the water storage (in head where the
-    /// soil is saturated and θl is flat). Needs every q ≤ history length + 1. Returns per
-    /// order the norm and the worst (cell, variable).
-    fn error_norms(
+    /// `self.state.u`, its evaluation in `sys`), in one pass over the blocks: for order
+    /// q, the difference between the solution and the extrapolation through the q+1
+    /// newest points, times `dt/(t_new − t_{n−q})`, each unknown measured as the problem
+    /// says ([`Problem::error_tests`]). Needs every q ≤ history length + 1. Returns per
+    /// order the norm and the worst (block, unknown).
+    fn error_norms<P: Problem<B> + ?Sized>(
         &self,
-        sys: &System,
+        sys: &P,
         orders: &[usize],
         t_new: f64,
         dt: f64,
-        tol: &Tolerances,
+        rtol: f64,
     ) -> [(f64, (usize, usize)); 3] {
         let s = &self.state;
         let nq = orders.len().min(3);
@@ -388,55 +419,298 @@ impl Stepper {
             }
             points
         };
-        for i in 0..sys.n {
-            for (kk, atol) in [(T, tol.atol_t), (RV, tol.atol_rv)] {
-                let k = 3 * i + kk;
-                let points = gather(k, false);
-                let y = s.u[k];
-                let den = atol + tol.rtol * y.abs().max(self.u_old[k].abs());
-                test(&points, y, 1.0, den, (i, kk));
-            }
-            let th = sys.cells[i].theta.v;
-            if th >= sys.soil_of(i).retention.theta_s() {
-                let k = 3 * i + H;
-                let points = gather(k, false);
-                let y = s.u[k];
-                test(&points, y, 1.0, tol.atol_h + tol.rtol * y.abs(), (i, H));
-            } else {
-                let points = gather(3 * i + WATER, true);
-                let m = sys.storage(i)[WATER];
-                test(
-                    &points,
-                    m,
-                    1.0 / WATER_DENSITY,
-                    tol.atol_theta + tol.rtol * th,
-                    (i, H),
-                );
+        for i in 0..sys.blocks() {
+            let base = B * i;
+            let tests = sys.error_tests(i, &s.u[base..base + B], &self.u_old[base..base + B], rtol);
+            for (var, how) in tests {
+                match how {
+                    ErrorTest::Unknown { den } => {
+                        let k = base + var;
+                        let points = gather(k, false);
+                        test(&points, s.u[k], 1.0, den, (i, var));
+                    }
+                    ErrorTest::Storage { row, factor, den } => {
+                        let points = gather(base + row, true);
+                        let m = sys.storage(i)[row];
+                        test(&points, m, factor, den, (i, var));
+                    }
+                }
             }
         }
         out
     }
 
+    /// Sets up a try of size `dt_try` towards `t_stop`: the step, its order and BDF
+    /// weights, the history term `self.hist`, and the predictor in the unknowns.
+    fn prepare<P: Problem<B> + ?Sized>(
+        &mut self,
+        sys: &P,
+        t_stop: f64,
+        dt_try: f64,
+        bdf: bool,
+    ) -> Attempt {
+        let s = &mut self.state;
+        let remaining = t_stop - s.t;
+        let landing = dt_try >= remaining * (1.0 - 1e-12);
+        let dt = if landing {
+            remaining
+        } else if dt_try > 0.5 * remaining {
+            0.5 * remaining
+        } else {
+            dt_try
+        };
+        let t_new = if landing { t_stop } else { s.t + dt };
+        // Order of this step: limited by the history available.
+        let k = if bdf {
+            s.order.min(s.history.len() + 1).max(1)
+        } else {
+            1
+        };
+        let mut tau = [0.0f64; 7];
+        let mut alpha = [0.0f64; 7];
+        let mut lag = [0.0f64; 7];
+        // Nodes τ0 = t_new, τ1 = t, τ2.. = history.
+        tau[0] = t_new;
+        tau[1] = s.t;
+        for j in 2..=k {
+            tau[j] = s.history[j - 2].t;
+        }
+        bdf_weights(&tau[..=k], &mut alpha);
+        // hist = −(α1 M_n + Σ αj M_{n+1−j}), accumulated point by point.
+        for (h, m) in self.hist.iter_mut().zip(s.storage.iter()) {
+            *h = alpha[1] * m;
+        }
+        for j in 2..=k {
+            let a = alpha[j];
+            for (h, m) in self.hist.iter_mut().zip(s.history[j - 2].storage.iter()) {
+                *h += a * m;
+            }
+        }
+        for h in self.hist.iter_mut() {
+            *h = -*h;
+        }
+        // Predictor: extrapolation through the last k+1 points (as many as exist).
+        let np = (k + 1).min(s.history.len() + 1);
+        let ptau = s.nodes(np);
+        lagrange_values(&ptau[..np], t_new, &mut lag);
+        // Newton starts from the predictor (backward Euler: linear extrapolation of the
+        // last two points), accumulated point by point into the unknowns ...
+        for (p, x) in s.u.iter_mut().zip(self.u_old.iter()) {
+            *p = lag[0] * x;
+        }
+        for j in 1..np {
+            let l = lag[j];
+            for (p, x) in s.u.iter_mut().zip(s.history[j - 1].u.iter()) {
+                *p += l * x;
+            }
+        }
+        // ... and kept admissible.
+        sys.limit_prediction(&mut s.u, &self.u_old);
+        Attempt {
+            dt,
+            t_new,
+            k,
+            alpha,
+        }
+    }
+
+    /// The local error test of a solved BDF step and the choice of the next order and
+    /// step factor. `error_failures` counts this step's rejected tries so far.
+    fn judge<P: Problem<B> + ?Sized>(
+        &mut self,
+        sys: &P,
+        a: &Attempt,
+        stats: &NewtonStats,
+        max_order: usize,
+        rtol: f64,
+        error_failures: &mut usize,
+    ) -> Verdict {
+        let (k, dt, t_new) = (a.k, a.dt, a.t_new);
+        let s = &self.state;
+        let have_pred = s.history.len() + 1 > k; // k+1 points were available
+                                                 // The estimates of orders k and, when the order is to be chosen after this step
+                                                 // (see below), k + 1 and k − 1, in one pass.
+        let choose = have_pred && s.steps_at_order + 1 > k;
+        let up = choose && k < max_order && s.history.len() > k;
+        let down = choose && k > 1;
+        let mut orders = [k, 0, 0];
+        let mut count = 1;
+        for (q, wanted) in [(k + 1, up), (k.saturating_sub(1), down)] {
+            if wanted {
+                orders[count] = q;
+                count += 1;
+            }
+        }
+        let norms = if have_pred {
+            self.error_norms(sys, &orders[..count], t_new, dt, rtol)
+        } else {
+            [(0.0, (0, 0)); 3]
+        };
+        let estimate = |q: usize| {
+            orders[..count]
+                .iter()
+                .position(|&o| o == q)
+                .map(|p| norms[p].0)
+        };
+        let err = if have_pred {
+            let (err, worst) = norms[0];
+            log::trace!(
+                "t {:.6e} dt {dt:.3e} order {k} error {err:.3e} at block {} unknown {}",
+                s.t,
+                worst.0,
+                worst.1
+            );
+            err
+        } else {
+            // The first step after a restart has no error estimate: keep it small by the
+            // problem's change heuristics below and let the next steps judge.
+            0.0
+        };
+        let s = &mut self.state;
+        if err > 1.0 && dt > self.opts.dt_min * (1.0 + 1e-9) {
+            s.counters.rejected += 1;
+            *error_failures += 1;
+            let f = (0.9 * err.powf(-1.0 / (k as f64 + 1.0))).clamp(0.1, 0.9);
+            let dt_try =
+                (dt * if *error_failures >= 2 { f.min(0.25) } else { f }).max(self.opts.dt_min);
+            // Repeated failures: lower the order by one, then to 1.
+            if *error_failures == 2 {
+                s.order = k.saturating_sub(1).max(1);
+                s.steps_at_order = 0;
+            } else if *error_failures > 2 {
+                s.order = 1;
+                s.steps_at_order = 0;
+            }
+            return Verdict::Reject { dt_try };
+        }
+        let cap = self.opts.max_growth;
+        let mut factor = growth_factor(err, k, cap);
+        // Predictive control (Gustafsson 1994; Hairer & Wanner 1996, IV.8): when the
+        // error grew from the last step, extrapolate that trend,
+        // f = f_std · (Δt/Δt_prev) · (err_prev/err)^(1/(k+1)), and take the smaller
+        // factor. It damps the grow–reject cycles of the standard rule; only near the
+        // tolerance (err > 0.2), where a rejection is in reach (far below it, estimates
+        // jump by decades and would stall the growth).
+        if have_pred && s.last_error > 0.0 && err > 0.2 && !s.history.is_empty() {
+            let dt_prev = s.t - s.history[0].t;
+            if dt_prev > 0.0 {
+                let f = factor * (dt / dt_prev) * (s.last_error / err).powf(1.0 / (k as f64 + 1.0));
+                factor = factor.min(f);
+            }
+        }
+        s.last_error = if have_pred { err } else { 0.0 };
+        if !have_pred {
+            factor = change_factor(sys, &s.u, &self.u_old, &self.opts, stats.iterations);
+        }
+        let (next_order, f) = if have_pred && s.steps_at_order + 1 > k {
+            choose_order(k, factor, cap, up, down, estimate)
+        } else {
+            (s.order.max(k), factor)
+        };
+        factor = f;
+        if next_order != s.order {
+            s.order = next_order;
+            s.steps_at_order = 0;
+        } else {
+            s.steps_at_order += 1;
+        }
+        // Newton trouble also limits growth.
+        // No growth right after a rejected try: the error estimate was just shown to
+        // be optimistic at this size.
+        if *error_failures > 0 {
+            factor = factor.min(1.0);
+        }
+        let trouble = if self.opts.newton.reuse_jacobian {
+            stats.jacobians > 2
+        } else {
+            stats.iterations > 6
+        };
+        if trouble {
+            factor = factor.min(0.8);
+        }
+        Verdict::Accept { factor }
+    }
+
+    /// Accepts the solved try `a`: cumulative inflow by the step's formula, the history
+    /// shifted, the next step proposed (`factor` before the caps, from `dt_try`
+    /// when the step was shortened to land), the storages of the new state kept.
+    fn accept<P: Problem<B> + ?Sized>(
+        &mut self,
+        sys: &P,
+        a: &Attempt,
+        dt_try: f64,
+        factor: f64,
+        keep: usize,
+    ) {
+        let (k, dt, alpha) = (a.k, a.dt, &a.alpha);
+        let c = alpha[0];
+        let len = self.u_old.len();
+        let s = &mut self.state;
+        // Variable-step BDF of order ≥ 3 is zero-stable only for bounded step ratios
+        // (Grigorieff 1983; bounds of about 1.6, 1.3 and 1.1 for orders 3, 4, 5, from
+        // memory): growth is capped below them for the order the next step will use.
+        let cap = if matches!(self.opts.integrator, Integrator::Bdf { .. }) {
+            BDF_MAX_RATIO[s.order.clamp(1, 5)]
+        } else {
+            f64::INFINITY
+        };
+        let factor = factor.clamp(0.2, self.opts.max_growth.max(1.0).min(cap));
+        s.counters.steps += 1;
+        // Cumulative inflow by the same formula as the storages:
+        // α0 W_new + α1 W_old + Σ αj W_j = F_in(new).
+        let (top, bot) = sys.boundary_flows();
+        let nq = s.inflow.len();
+        let mut new_inflow = [0.0; MAX_CONSERVED];
+        let mut new_throughput = [0.0; MAX_CONSERVED];
+        for q in 0..nq {
+            let fin = top[q] - bot[q];
+            let fabs = top[q].abs() + bot[q].abs();
+            let mut a = alpha[1] * s.inflow[q];
+            let mut b = alpha[1] * s.throughput[q];
+            for j in 2..=k {
+                a += alpha[j] * s.history[j - 2].inflow[q];
+                b += alpha[j] * s.history[j - 2].throughput[q];
+            }
+            new_inflow[q] = (fin - a) / c;
+            new_throughput[q] = (fabs - b) / c;
+        }
+        {
+            // Shift the history: the old current point becomes the newest history point,
+            // reusing the oldest point's buffers once the history is full.
+            let mut point = if s.history.len() >= keep {
+                s.history
+                    .pop()
+                    .unwrap_or_else(|| HistoryPoint::empty(len, nq))
+            } else {
+                HistoryPoint::empty(len, nq)
+            };
+            point.t = s.t;
+            point.u.copy_from_slice(&self.u_old);
+            point.inflow.clone_from(&s.inflow);
+            point.throughput.clone_from(&s.throughput);
+            // The old storages go with the point; the new ones are filled below.
+            std::mem::swap(&mut point.storage, &mut s.storage);
+            s.history.insert(0, point);
+            s.history.truncate(keep);
+        }
+        s.inflow.copy_from_slice(&new_inflow[..nq]);
+        s.throughput.copy_from_slice(&new_throughput[..nq]);
+        let base = if dt < dt_try { dt_try } else { dt };
+        s.dt = (base * factor).clamp(self.opts.dt_min, self.opts.dt_max);
+        s.t = a.t_new;
+        // sys holds the evaluation at the new state (Newton's last assembly).
+        sys.storage_into(&mut s.storage);
+    }
+
     /// Takes one accepted step that does not pass `t_stop` (retrying with smaller Δt).
-    pub fn step(&mut self, sys: &mut System, t_stop: f64) -> Result<StepInfo, StepFailure> {
-        let n = sys.n;
+    pub fn step<P: Problem<B> + ?Sized>(
+        &mut self,
+        sys: &mut P,
+        t_stop: f64,
+    ) -> Result<StepInfo, StepFailure> {
         self.u_old.copy_from_slice(&self.state.u);
         let bdf = match self.opts.integrator {
-            Integrator::Bdf {
-                max_order,
-                rtol,
-                atol_t,
-                atol_h,
-                atol_rv,
-                atol_theta,
-            } => Some((
-                max_order.clamp(1, 5),
-                rtol,
-                atol_t,
-                atol_h,
-                atol_rv,
-                atol_theta,
-            )),
+            Integrator::Bdf { max_order, rtol } => Some((max_order.clamp(1, 5), rtol)),
             Integrator::BackwardEuler => None,
         };
         // A fresh Jacobian at the start of every step, kept over its Newton iterations
@@ -447,77 +721,15 @@ impl Stepper {
         self.work.invalidate();
         let mut dt_try = self.state.dt.min(self.opts.dt_max);
         let mut error_failures = 0usize;
-        let mut tau = [0.0f64; 7];
-        let mut alpha = [0.0f64; 7];
-        let mut lag = [0.0f64; 7];
         loop {
+            let a = self.prepare(sys, t_stop, dt_try, bdf.is_some());
+            let dt = a.dt;
             let s = &mut self.state;
-            let remaining = t_stop - s.t;
-            let landing = dt_try >= remaining * (1.0 - 1e-12);
-            let dt = if landing {
-                remaining
-            } else if dt_try > 0.5 * remaining {
-                0.5 * remaining
-            } else {
-                dt_try
-            };
-            let t_new = if landing { t_stop } else { s.t + dt };
-            // Order of this step: limited by the history available.
-            let k = match bdf {
-                Some(_) => s.order.min(s.history.len() + 1).max(1),
-                None => 1,
-            };
-            // Nodes τ0 = t_new, τ1 = t, τ2.. = history.
-            tau[0] = t_new;
-            tau[1] = s.t;
-            for j in 2..=k {
-                tau[j] = s.history[j - 2].t;
-            }
-            bdf_weights(&tau[..=k], &mut alpha);
-            let c = alpha[0];
-            // hist = −(α1 M_n + Σ αj M_{n+1−j}), accumulated point by point.
-            for (h, m) in self.hist.iter_mut().zip(s.storage.iter()) {
-                *h = alpha[1] * m;
-            }
-            for j in 2..=k {
-                let a = alpha[j];
-                for (h, m) in self.hist.iter_mut().zip(s.history[j - 2].storage.iter()) {
-                    *h += a * m;
-                }
-            }
-            for h in self.hist.iter_mut() {
-                *h = -*h;
-            }
-            // Predictor: extrapolation through the last k+1 points (as many as exist).
-            let np = (k + 1).min(s.history.len() + 1);
-            let ptau = s.nodes(np);
-            lagrange_values(&ptau[..np], t_new, &mut lag);
-            // Newton starts from the predictor (backward Euler: linear extrapolation of the
-            // last two points), accumulated point by point into the unknowns ...
-            for (p, x) in s.u.iter_mut().zip(self.u_old.iter()) {
-                *p = lag[0] * x;
-            }
-            for j in 1..np {
-                let l = lag[j];
-                for (p, x) in s.u.iter_mut().zip(s.history[j - 1].u.iter()) {
-                    *p += l * x;
-                }
-            }
-            // ... and kept physical: vapour density positive, head not above 0 where the
-            // old head was below.
-            for (p, old) in s.u.chunks_exact_mut(3).zip(self.u_old.chunks_exact(3)) {
-                if p[RV].is_nan() || p[RV] <= 0.0 {
-                    p[RV] = old[RV];
-                }
-                if old[H] < 0.0 && p[H] > 0.0 {
-                    p[H] = 0.5 * old[H];
-                }
-            }
             let result = newton::solve(
                 sys,
                 self.lin.as_mut(),
-                t_new,
-                c,
+                a.t_new,
+                a.alpha[0],
                 &self.hist,
                 &mut s.u,
                 &self.opts.newton,
@@ -550,216 +762,30 @@ impl Stepper {
                     continue;
                 }
             };
-            s.counters.newton_iterations += stats.iterations as u64;
-            s.counters.factorizations += stats.factorizations as u64;
-            s.counters.jacobians += stats.jacobians as u64;
-            // Local error test (BDF).
-            let mut factor;
-            if let Some((max_order, rtol, atol_t, atol_h, atol_rv, atol_theta)) = bdf {
-                let tol = Tolerances {
-                    rtol,
-                    atol_t,
-                    atol_h,
-                    atol_rv,
-                    atol_theta,
-                };
-                let have_pred = s.history.len() + 1 > k; // k+1 points were available
-                                                         // The estimates of orders k and, when the order is to be chosen after
-                                                         // this step (see below), k + 1 and k − 1, in one pass.
-                let choose = have_pred && s.steps_at_order + 1 > k;
-                let up = choose && k < max_order && s.history.len() > k;
-                let down = choose && k > 1;
-                let mut orders = [k, 0, 0];
-                let mut count = 1;
-                for (q, wanted) in [(k + 1, up), (k.saturating_sub(1), down)] {
-                    if wanted {
-                        orders[count] = q;
-                        count += 1;
-                    }
-                }
-                let norms = if have_pred {
-                    self.error_norms(sys, &orders[..count], t_new, dt, &tol)
-                } else {
-                    [(0.0, (0, 0)); 3]
-                };
-                let estimate = |q: usize| {
-                    orders[..count]
-                        .iter()
-                        .position(|&o| o == q)
-                        .map(|p| norms[p].0)
-                };
-                let err = if have_pred {
-                    let (err, worst) = norms[0];
-                    log::trace!(
-                        "t {:.6e} dt {dt:.3e} order {k} error {err:.3e} at cell {} variable {}",
-                        self.state.t,
-                        worst.0,
-                        worst.1
-                    );
-                    err
-                } else {
-                    // The first step after a restart has no error estimate: keep it small
-                    // by the change heuristics below and let the next steps judge.
-                    0.0
-                };
-                let s = &mut self.state;
-                if err > 1.0 && dt > self.opts.dt_min * (1.0 + 1e-9) {
-                    s.counters.rejected += 1;
-                    error_failures += 1;
-                    let f = (0.9 * err.powf(-1.0 / (k as f64 + 1.0))).clamp(0.1, 0.9);
-                    dt_try = (dt * if error_failures >= 2 { f.min(0.25) } else { f })
-                        .max(self.opts.dt_min);
-                    // Repeated failures: lower the order by one, then to 1.
-                    if error_failures == 2 {
-                        s.order = k.saturating_sub(1).max(1);
-                        s.steps_at_order = 0;
-                    } else if error_failures > 2 {
-                        s.order = 1;
-                        s.steps_at_order = 0;
-                    }
-                    continue;
-                }
-                let cap = self.opts.max_growth;
-                factor = growth_factor(err, k, cap);
-                // Predictive control (Gustafsson 1994; Hairer & Wanner 1996, IV.8): when
-                // the error grew from the last step, extrapolate that trend,
-                // f = f_std · (Δt/Δt_prev) · (err_prev/err)^(1/(k+1)), and take the
-                // smaller factor. It damps the grow–reject cycles of the standard rule;
-                // only near the tolerance (err > 0.2), where a rejection is in reach (far
-                // below it, estimates jump by decades and would stall the growth).
-                if have_pred && s.last_error > 0.0 && err > 0.2 && !s.history.is_empty() {
-                    let dt_prev = s.t - s.history[0].t;
-                    if dt_prev > 0.0 {
-                        let f = factor
-                            * (dt / dt_prev)
-                            * (s.last_error / err).powf(1.0 / (k as f64 + 1.0));
-                        factor = factor.min(f);
-                    }
-                }
-                s.last_error = if have_pred { err } else { 0.0 };
-                if !have_pred {
-                    factor = change_factor(sys, &s.u, &self.u_old, &self.opts, stats.iterations);
-                }
-                // Order control, after k+1 steps at this order: the order among k−1, k,
-                // k+1 whose error estimate allows the largest next step. Another order must
-                // promise 20 % more; when the growth limit, not the error, bounds the step
-                // at both k and k+1, the higher order is taken (it is the more accurate).
-                let mut next_order = s.order.max(k);
-                if have_pred && s.steps_at_order + 1 > k {
-                    let mut best = (k, factor);
-                    if let Some(e) = estimate(k + 1).filter(|_| up) {
-                        let f = growth_factor(e, k + 1, cap);
-                        if f >= 1.2 * factor || (f >= cap && factor >= cap) {
-                            best = (k + 1, f);
+            s.counters.add(&stats);
+            let (factor, keep) = match bdf {
+                Some((max_order, rtol)) => {
+                    match self.judge(sys, &a, &stats, max_order, rtol, &mut error_failures) {
+                        Verdict::Reject { dt_try: next } => {
+                            dt_try = next;
+                            continue;
                         }
+                        Verdict::Accept { factor } => (factor, max_order + 1),
                     }
-                    if let Some(e) = estimate(k - 1).filter(|_| best.0 == k && down) {
-                        let f = growth_factor(e, k - 1, cap);
-                        if f > 1.2 * factor {
-                            best = (k - 1, f);
-                        }
-                    }
-                    next_order = best.0;
-                    factor = best.1;
                 }
-                let s = &mut self.state;
-                if next_order != s.order {
-                    s.order = next_order;
-                    s.steps_at_order = 0;
-                } else {
-                    s.steps_at_order += 1;
-                }
-                // Newton trouble also limits growth.
-                // No growth right after a rejected try: the error estimate was just
-                // shown to be optimistic at this size.
-                if error_failures > 0 {
-                    factor = factor.min(1.0);
-                }
-                let trouble = if self.opts.newton.reuse_jacobian {
-                    stats.jacobians > 2
-                } else {
-                    stats.iterations > 6
-                };
-                if trouble {
-                    factor = factor.min(0.8);
-                }
-            } else {
-                factor = change_factor(sys, &s.u, &self.u_old, &self.opts, stats.iterations);
-            }
-            let s = &mut self.state;
-            // Variable-step BDF of order ≥ 3 is zero-stable only for bounded step ratios
-            // (Grigorieff 1983; bounds of about 1.6, 1.3 and 1.1 for orders 3, 4, 5, from
-            // memory): growth is capped below them for the order the next step will use.
-            let cap = if bdf.is_some() {
-                BDF_MAX_RATIO[s.order.clamp(1, 5)]
-            } else {
-                f64::INFINITY
+                None => (
+                    change_factor(sys, &s.u, &self.u_old, &self.opts, stats.iterations),
+                    1,
+                ),
             };
-            let factor = factor.clamp(0.2, self.opts.max_growth.max(1.0).min(cap));
-            s.counters.steps += 1;
-            // Cumulative inflow by the same formula as the storages:
-            // α0 W_new + α1 W_old + Σ αj W_j = F_in(new).
-            let (top, bot) = sys.boundary_fluxes();
-            let fin = [top[0] - bot[0], top[1] - bot[1]];
-            let fabs = [top[0].abs() + bot[0].abs(), top[1].abs() + bot[1].abs()];
-            let mut new_inflow = [0.0; 2];
-            let mut new_throughput = [0.0; 2];
-            for q in 0..2 {
-                let mut a = alpha[1] * s.inflow[q];
-                let mut b = alpha[1] * s.throughput[q];
-                for j in 2..=k {
-                    a += alpha[j] * s.history[j - 2].inflow[q];
-                    b += alpha[j] * s.history[j - 2].throughput[q];
-                }
-                new_inflow[q] = (fin[q] - a) / c;
-                new_throughput[q] = (fabs[q] - b) / c;
-            }
-            {
-                // Shift the history: the old current point becomes the newest history point.
-                let keep = match bdf {
-                    Some((max_order, ..)) => max_order + 1,
-                    None => 1,
-                };
-                // Reuse the oldest point's buffers once the history is full.
-                let mut point = if s.history.len() >= keep {
-                    s.history
-                        .pop()
-                        .unwrap_or_else(|| HistoryPoint::empty(3 * n))
-                } else {
-                    HistoryPoint::empty(3 * n)
-                };
-                point.t = s.t;
-                point.u.copy_from_slice(&self.u_old);
-                point.inflow = s.inflow;
-                point.throughput = s.throughput;
-                // The old storages go with the point; the new ones are filled below.
-                std::mem::swap(&mut point.storage, &mut s.storage);
-                s.history.insert(0, point);
-                s.history.truncate(keep);
-            }
-            s.inflow = new_inflow;
-            s.throughput = new_throughput;
-            let base = if dt < dt_try { dt_try } else { dt };
-            s.dt = (base * factor).clamp(self.opts.dt_min, self.opts.dt_max);
-            s.t = t_new;
-            // sys holds the evaluation at the new state (Newton's last assembly).
-            sys.storage_into(&mut s.storage);
+            self.accept(sys, &a, dt_try, factor, keep);
             return Ok(StepInfo {
                 dt,
                 newton_iterations: stats.iterations,
-                order: k,
+                order: a.k,
             });
         }
     }
-}
-
-/// Tolerances of the local error test.
-struct Tolerances {
-    rtol: f64,
-    atol_t: f64,
-    atol_h: f64,
-    atol_rv: f64,
-    atol_theta: f64,
 }
 
 /// Step factor that brings an error estimate `err` of order `q` to 0.81 of the tolerance
@@ -772,34 +798,48 @@ fn growth_factor(err: f64, q: usize, max_growth: f64) -> f64 {
     }
 }
 
-/// Growth factor of the backward-Euler heuristics: from the Newton iteration count and the
-/// largest changes of temperature and liquid content over the step.
-fn change_factor(
-    sys: &System,
+/// Order control, after k+1 steps at order k: the order among k−1, k, k+1 whose error
+/// estimate (`estimate(q)`, where computed) allows the largest next step, with that
+/// step's factor. Another order must promise 20 % more; when the growth limit `cap`, not
+/// the error, bounds the step at both k and k+1, the higher order is taken (it is the
+/// more accurate). `up`/`down`: whether k+1 / k−1 may be chosen.
+fn choose_order(
+    k: usize,
+    factor: f64,
+    cap: f64,
+    up: bool,
+    down: bool,
+    estimate: impl Fn(usize) -> Option<f64>,
+) -> (usize, f64) {
+    let mut best = (k, factor);
+    if let Some(e) = estimate(k + 1).filter(|_| up) {
+        let f = growth_factor(e, k + 1, cap);
+        if f >= 1.2 * factor || (f >= cap && factor >= cap) {
+            best = (k + 1, f);
+        }
+    }
+    if let Some(e) = estimate(k - 1).filter(|_| best.0 == k && down) {
+        let f = growth_factor(e, k - 1, cap);
+        if f > 1.2 * factor {
+            best = (k - 1, f);
+        }
+    }
+    best
+}
+
+/// Growth factor of the backward-Euler heuristics: from the Newton iteration count and
+/// what the problem says of the changes over the step.
+fn change_factor<const B: usize, P: Problem<B> + ?Sized>(
+    sys: &P,
     u: &[f64],
     u_old: &[f64],
     opts: &StepOptions,
     iterations: usize,
 ) -> f64 {
-    let mut max_dt = 0.0f64;
-    let mut max_dth = 0.0f64;
-    for i in 0..sys.n {
-        max_dt = max_dt.max((u[3 * i + T] - u_old[3 * i + T]).abs());
-        let soil = sys.soil_of(i);
-        let th_new = soil.retention.theta(u[3 * i + H]).0;
-        let th_old = soil.retention.theta(u_old[3 * i + H]).0;
-        max_dth = max_dth.max((th_new - th_old).abs());
-    }
-    let mut f = match iterations {
+    let f = match iterations {
         0..=4 => opts.max_growth,
         5..=7 => 1.2,
         _ => 0.7,
     };
-    if max_dt > 0.0 {
-        f = f.min(0.9 * opts.target_dt_change / max_dt);
-    }
-    if max_dth > 0.0 {
-        f = f.min(0.9 * opts.target_theta_change / max_dth);
-    }
-    f.max(0.2)
+    f.min(sys.change_factor(u, u_old)).max(0.2)
 }

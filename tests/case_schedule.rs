@@ -18,7 +18,7 @@ fn table() -> Schedule {
 }
 
 #[test]
-fn constant() {
+fn constant_holds_one_value_at_all_times() {
     let s = Schedule::Constant(4.5);
     assert_eq!(s.value(-1e12), 4.5);
     assert_eq!(s.value(1e12), 4.5);
@@ -53,7 +53,7 @@ fn table_interpolates_and_holds() {
 }
 
 #[test]
-fn sine() {
+fn sine_has_its_mean_amplitude_period_and_phase() {
     let s = Schedule::Sine {
         mean: 10.0,
         amplitude: 2.0,

@@ -362,7 +362,7 @@ fn profile_initial_state() {
 }
 
 #[test]
-fn other_options() {
+fn physics_checkpoint_output_and_time_options_are_read_into_the_model() {
     let m = case(&[
         (
             "[time]",

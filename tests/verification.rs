@@ -18,6 +18,11 @@ fn check(name: &str) {
     if let Some(e) = &o.error {
         panic!("{name}: run failed: {e}");
     }
+    // A case that compares nothing proves nothing.
+    assert!(
+        !o.result.checks.is_empty(),
+        "{name}: the case made no checks"
+    );
     for c in &o.result.checks {
         assert!(
             c.passed(),

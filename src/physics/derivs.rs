@@ -56,7 +56,7 @@ pub(super) struct Derivs<const N: usize, const M: usize> {
     cells: Vec<CellProps<N>>,
     cell_base: Vec<f64>,
     faces: Vec<FaceFlux<M>>,
-    totals: Vec<[Dual<M>; 3]>,
+    totals: Vec<[Dual<M>; BLOCK]>,
     face_base: Vec<[f64; 6]>,
     /// Scratch: per face, whether it keeps its base.
     face_kept: Vec<bool>,
@@ -90,7 +90,7 @@ pub(super) trait Kept {
         u: &[f64],
         cells: &mut [super::CellProps<0>],
         faces: &mut [FaceFlux<0>],
-        totals: &mut [[Dual<0>; 3]],
+        totals: &mut [[Dual<0>; BLOCK]],
         parts: bool,
     ) -> bool;
     fn complete_parts(&self, sys: &System, u: &[f64], faces: &mut [FaceFlux<0>]);
@@ -116,9 +116,9 @@ impl<const N: usize, const M: usize> Derivs<N, M> {
             Dual::cst(0.01),
         );
         self.cells = vec![any; n];
-        self.cell_base = vec![f64::NAN; 3 * n];
+        self.cell_base = vec![f64::NAN; BLOCK * n];
         self.faces = vec![FaceFlux::zero(); n + 1];
-        self.totals = vec![[Dual::cst(0.0); 3]; n + 1];
+        self.totals = vec![[Dual::cst(0.0); BLOCK]; n + 1];
         self.face_base = vec![[f64::NAN; 6]; n + 1];
         self.face_kept = vec![false; n + 1];
     }
@@ -127,13 +127,13 @@ impl<const N: usize, const M: usize> Derivs<N, M> {
     #[inline]
     fn face_near(&self, j: usize, u: &[f64]) -> bool {
         let b = &self.face_base[j];
-        near(&u[3 * (j - 1)..3 * j], &b[..3], Self::WITH_RV)
-            && near(&u[3 * j..3 * j + 3], &b[3..], Self::WITH_RV)
+        near(&u[BLOCK * (j - 1)..BLOCK * j], &b[..BLOCK], Self::WITH_RV)
+            && near(&u[BLOCK * j..BLOCK * j + BLOCK], &b[BLOCK..], Self::WITH_RV)
     }
 
     /// Face `j`'s totals linearised to the change `du` from its base.
     #[inline]
-    fn totals_at(&self, j: usize, du: &[f64; M]) -> [Dual<0>; 3] {
+    fn totals_at(&self, j: usize, du: &[f64; M]) -> [Dual<0>; BLOCK] {
         let td = &self.totals[j];
         [td[0].taylor(du), td[1].taylor(du), td[2].taylor(du)]
     }
@@ -145,8 +145,8 @@ impl<const N: usize, const M: usize> Derivs<N, M> {
         let b = &self.face_base[j];
         let mut du = [0.0; M];
         for k in 0..N {
-            du[k] = u[3 * (j - 1) + k] - b[k];
-            du[N + k] = u[3 * j + k] - b[3 + k];
+            du[k] = u[BLOCK * (j - 1) + k] - b[k];
+            du[N + k] = u[BLOCK * j + k] - b[BLOCK + k];
         }
         du
     }
@@ -177,15 +177,15 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
         let n = sys.n;
         self.allocate(sys);
         self.forget();
-        if cells.len() != 3 * n || faces.len() != 6 * (n + 1) {
+        if cells.len() != BLOCK * n || faces.len() != 6 * (n + 1) {
             return;
         }
         let props = |i: usize, x: &[f64]| sys.props_at::<N>(i, x);
         for i in 0..n {
-            let x = &cells[3 * i..3 * i + 3];
+            let x = &cells[BLOCK * i..BLOCK * i + BLOCK];
             if x.iter().all(|v| v.is_finite()) {
                 self.cells[i] = props(i, x);
-                self.cell_base[3 * i..3 * i + 3].copy_from_slice(x);
+                self.cell_base[BLOCK * i..BLOCK * i + BLOCK].copy_from_slice(x);
             }
         }
         let avg = sys.physics.face_conductivity;
@@ -193,8 +193,8 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
             let x = &faces[6 * j..6 * j + 6];
             if x.iter().all(|v| v.is_finite()) {
                 let f = face_flux(
-                    &props(j - 1, &x[..3]),
-                    &props(j, &x[3..]),
+                    &props(j - 1, &x[..BLOCK]),
+                    &props(j, &x[BLOCK..]),
                     0,
                     N,
                     sys.d_below[j - 1],
@@ -221,16 +221,19 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
             self.face_kept[j] = self.face_near(j, u);
         }
         for i in 0..n {
-            let x = &u[3 * i..3 * i + 3];
-            let direct = !near(x, &self.cell_base[3 * i..3 * i + 3], Self::WITH_RV)
-                || !self.face_kept[i]
+            let x = &u[BLOCK * i..BLOCK * i + BLOCK];
+            let direct = !near(
+                x,
+                &self.cell_base[BLOCK * i..BLOCK * i + BLOCK],
+                Self::WITH_RV,
+            ) || !self.face_kept[i]
                 || !self.face_kept[i + 1];
             if direct {
                 self.cells[i] = sys.props_at(i, x);
-                self.cell_base[3 * i..3 * i + 3].copy_from_slice(x);
+                self.cell_base[BLOCK * i..BLOCK * i + BLOCK].copy_from_slice(x);
                 sys.cells[i] = self.cells[i].values();
             } else {
-                let x0 = &self.cell_base[3 * i..3 * i + 3];
+                let x0 = &self.cell_base[BLOCK * i..BLOCK * i + BLOCK];
                 self.cells[i].taylor_into(
                     x[T],
                     x[H],
@@ -258,8 +261,8 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
                 );
                 self.totals[j] = f.totals();
                 self.faces[j] = f;
-                self.face_base[j][..3].copy_from_slice(&u[3 * (j - 1)..3 * j]);
-                self.face_base[j][3..].copy_from_slice(&u[3 * j..3 * j + 3]);
+                self.face_base[j][..BLOCK].copy_from_slice(&u[BLOCK * (j - 1)..BLOCK * j]);
+                self.face_base[j][BLOCK..].copy_from_slice(&u[BLOCK * j..BLOCK * j + BLOCK]);
                 sys.faces[j] = f.values();
                 sys.face_totals[j] = value_totals(&self.totals[j]);
             }
@@ -288,16 +291,16 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
         u: &[f64],
         cells: &mut [super::CellProps<0>],
         faces: &mut [FaceFlux<0>],
-        totals: &mut [[Dual<0>; 3]],
+        totals: &mut [[Dual<0>; BLOCK]],
         parts: bool,
     ) -> bool {
         let n = sys.n;
-        if self.cells.len() != n || u.len() != 3 * n {
+        if self.cells.len() != n || u.len() != BLOCK * n {
             return false;
         }
         for (i, c) in cells.iter_mut().enumerate() {
-            let x = &u[3 * i..3 * i + 3];
-            let x0 = &self.cell_base[3 * i..3 * i + 3];
+            let x = &u[BLOCK * i..BLOCK * i + BLOCK];
+            let x0 = &self.cell_base[BLOCK * i..BLOCK * i + BLOCK];
             if near(x, x0, Self::WITH_RV) {
                 self.cells[i].taylor_into(
                     x[T],
@@ -388,7 +391,7 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
                 }
             }
         }
-        let rows = if rate.is_some() { 3 } else { 2 };
+        let rows = if rate.is_some() { BLOCK } else { BLOCK - 1 };
         for j in 0..=n {
             let vals = &self.totals[j];
             let col_up = if j == 0 { 0 } else { j - 1 };
@@ -421,7 +424,7 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
             let cp = &self.cells[i];
             *b = zero_block();
             let rows = [cp.energy, cp.water, cp.vapor];
-            let used = if kinetic { 3 } else { 2 };
+            let used = if kinetic { BLOCK } else { BLOCK - 1 };
             for (r, row) in rows.iter().enumerate().take(used) {
                 for col in 0..N {
                     b[r][col] = w * row.d[col];
@@ -433,6 +436,6 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
 
 /// The values of a face's totals.
 #[inline]
-fn value_totals<const M: usize>(t: &[Dual<M>; 3]) -> [Dual<0>; 3] {
+fn value_totals<const M: usize>(t: &[Dual<M>; BLOCK]) -> [Dual<0>; BLOCK] {
     [t[0].value_only(), t[1].value_only(), t[2].value_only()]
 }

@@ -68,10 +68,10 @@ pub struct System {
     /// face fluxes and, per face, the total energy, water and vapour flux.
     pub cells: Vec<CellProps<0>>,
     pub faces: Vec<FaceFlux<0>>,
-    pub face_totals: Vec<[D0; 3]>,
+    pub face_totals: Vec<[D0; BLOCK]>,
     /// The last evaluation with derivatives (the Jacobian's source): 3 slots per cell
     /// in kinetic mode, 2 in equilibrium mode (see `derivs`).
-    d_full: Derivs<3, 6>,
+    d_full: Derivs<BLOCK, { 2 * BLOCK }>,
     d_reduced: Derivs<2, 4>,
     /// Whether the last evaluation left out the flux parts of linearised faces.
     parts_left_out: bool,
@@ -104,11 +104,11 @@ fn evaluate_into<const N: usize, const M: usize>(
     u: &[f64],
     cells: &mut [CellProps<N>],
     faces: &mut [FaceFlux<M>],
-    totals: &mut [[Dual<M>; 3]],
+    totals: &mut [[Dual<M>; BLOCK]],
 ) {
     let n = sys.n;
     for (i, c) in cells.iter_mut().enumerate() {
-        *c = sys.props_at(i, &u[3 * i..3 * i + 3]);
+        *c = sys.props_at(i, &u[BLOCK * i..BLOCK * i + BLOCK]);
     }
     let avg = sys.physics.face_conductivity;
     for j in 1..n {
@@ -157,7 +157,7 @@ impl System {
             rules: VariableRules::for_model(model),
             cells: vec![zero; n],
             faces: vec![FaceFlux::zero(); n + 1],
-            face_totals: vec![[D0::cst(0.0); 3]; n + 1],
+            face_totals: vec![[D0::cst(0.0); BLOCK]; n + 1],
             d_full: Derivs::default(),
             d_reduced: Derivs::default(),
             parts_left_out: false,
@@ -166,7 +166,7 @@ impl System {
 
     /// Number of unknowns (3 per cell).
     pub fn len(&self) -> usize {
-        3 * self.n
+        BLOCK * self.n
     }
     pub fn is_empty(&self) -> bool {
         self.n == 0
@@ -310,7 +310,7 @@ impl System {
 
     /// Storage per bulk volume of cell i: [energy J m⁻³, water kg m⁻³, vapour kg m⁻³],
     /// from the last evaluation.
-    pub fn storage(&self, i: usize) -> [f64; 3] {
+    pub fn storage(&self, i: usize) -> [f64; BLOCK] {
         let c = &self.cells[i];
         [c.energy.v, c.water.v, c.vapor.v]
     }
@@ -318,7 +318,7 @@ impl System {
     /// Storage of every cell into `out` (3 per cell), from the last evaluation.
     pub fn storage_into(&self, out: &mut [f64]) {
         for i in 0..self.n {
-            out[3 * i..3 * i + 3].copy_from_slice(&self.storage(i));
+            out[BLOCK * i..BLOCK * i + BLOCK].copy_from_slice(&self.storage(i));
         }
     }
 
@@ -369,16 +369,16 @@ impl System {
         fa: &FaceMagnitudes,
         fb: &FaceMagnitudes,
         rate: Option<f64>,
-    ) -> ([f64; 3], [f64; 3]) {
+    ) -> ([f64; BLOCK], [f64; BLOCK]) {
         const K: f64 = 16.0 * f64::EPSILON;
         let w = self.widths[i];
         let cp = &self.cells[i];
-        let store_e = w * ((c * cp.energy.v).abs() + hist[3 * i + ENERGY].abs());
-        let store_w = w * ((c * cp.water.v).abs() + hist[3 * i + WATER].abs());
+        let store_e = w * ((c * cp.energy.v).abs() + hist[BLOCK * i + ENERGY].abs());
+        let store_w = w * ((c * cp.water.v).abs() + hist[BLOCK * i + WATER].abs());
         let vapor_algebraic = cp.rv.v.abs() + cp.rveq.v.abs();
         let vapor_scale = match rate {
             Some(b) => {
-                w * ((c * cp.vapor.v).abs() + hist[3 * i + VAPOR].abs() + b * vapor_algebraic)
+                w * ((c * cp.vapor.v).abs() + hist[BLOCK * i + VAPOR].abs() + b * vapor_algebraic)
                     + fa.vapor
                     + fb.vapor
             }
@@ -412,7 +412,7 @@ impl System {
         &self,
         c: f64,
         hist: &[f64],
-        mut f: impl FnMut(usize, [f64; 3], [f64; 3]),
+        mut f: impl FnMut(usize, [f64; BLOCK], [f64; BLOCK]),
     ) {
         let rate = self.kinetic_rate();
         let mut fa = self.face_magnitudes(0);
@@ -428,7 +428,9 @@ impl System {
     /// storage terms plus the flux scales of both faces. Newton judges convergence by
     /// |R| against this, so round-off in large cancelling terms is not mistaken for error.
     pub fn residual_scale_into(&self, c: f64, hist: &[f64], out: &mut [f64]) {
-        self.for_each_row_terms(c, hist, |i, s, _| out[3 * i..3 * i + 3].copy_from_slice(&s));
+        self.for_each_row_terms(c, hist, |i, s, _| {
+            out[BLOCK * i..BLOCK * i + BLOCK].copy_from_slice(&s)
+        });
     }
 
     /// What Newton's convergence test needs from the last evaluation, in one pass: per
@@ -448,15 +450,15 @@ impl System {
         let mut floor_sum = [0.0; 2];
         let mut moved = [0.0; 2];
         self.for_each_row_terms(c, hist, |i, s, f| {
-            for r in 0..3 {
-                scale[3 * i + r] = s[r].max(f[r] * inv_tol);
+            for r in 0..BLOCK {
+                scale[BLOCK * i + r] = s[r].max(f[r] * inv_tol);
             }
             let w = self.widths[i];
             let cp = &self.cells[i];
             floor_sum[0] += f[ENERGY];
             floor_sum[1] += f[WATER];
-            moved[0] += w * (c * cp.energy.v - hist[3 * i + ENERGY]).abs();
-            moved[1] += w * (c * cp.water.v - hist[3 * i + WATER]).abs();
+            moved[0] += w * (c * cp.energy.v - hist[BLOCK * i + ENERGY]).abs();
+            moved[1] += w * (c * cp.water.v - hist[BLOCK * i + WATER]).abs();
         });
         (floor_sum, moved)
     }
@@ -493,45 +495,45 @@ impl System {
         for i in 0..n {
             let w = self.widths[i];
             let cp = &self.cells[i];
-            let local: [D0; 3] = [
-                (cp.energy * c - hist[3 * i + ENERGY]) * w,
-                (cp.water * c - hist[3 * i + WATER]) * w,
+            let local: [D0; BLOCK] = [
+                (cp.energy * c - hist[BLOCK * i + ENERGY]) * w,
+                (cp.water * c - hist[BLOCK * i + WATER]) * w,
                 match kinetic {
                     // In equilibrium the physics uses rveq itself; this row makes the
                     // vapour unknown follow it.
-                    None => D0::cst(u[3 * i + RV]) - cp.rveq,
+                    None => D0::cst(u[BLOCK * i + RV]) - cp.rveq,
                     Some(b) => {
-                        (cp.vapor * c - hist[3 * i + VAPOR]) * w - (cp.rveq - cp.rv) * (b * w)
+                        (cp.vapor * c - hist[BLOCK * i + VAPOR]) * w - (cp.rveq - cp.rv) * (b * w)
                     }
                 },
             ];
-            for r in 0..3 {
-                res[3 * i + r] = local[r].v;
+            for r in 0..BLOCK {
+                res[BLOCK * i + r] = local[r].v;
             }
         }
         // Flux differences.
         for j in 0..=n {
             let [fe, fw, fv] = self.face_totals[j];
             if j >= 1 {
-                res[3 * (j - 1) + ENERGY] += fe.v;
-                res[3 * (j - 1) + WATER] += fw.v;
+                res[BLOCK * (j - 1) + ENERGY] += fe.v;
+                res[BLOCK * (j - 1) + WATER] += fw.v;
                 if kinetic.is_some() {
-                    res[3 * (j - 1) + VAPOR] += fv.v;
+                    res[BLOCK * (j - 1) + VAPOR] += fv.v;
                 }
             }
             if j < n {
-                res[3 * j + ENERGY] -= fe.v;
-                res[3 * j + WATER] -= fw.v;
+                res[BLOCK * j + ENERGY] -= fe.v;
+                res[BLOCK * j + WATER] -= fw.v;
                 if kinetic.is_some() {
-                    res[3 * j + VAPOR] -= fv.v;
+                    res[BLOCK * j + VAPOR] -= fv.v;
                 }
             }
         }
-        if !all_finite(&res[..3 * n]) {
+        if !all_finite(&res[..BLOCK * n]) {
             let k = res.iter().position(|r| !r.is_finite()).unwrap_or(0);
             return Err(NonFinite {
-                cell: k / 3,
-                row: k % 3,
+                cell: k / BLOCK,
+                row: k % BLOCK,
             });
         }
         if let Some(jac) = jac {

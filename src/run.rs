@@ -7,6 +7,7 @@ use crate::checkpoint::{self, Checkpoint};
 use crate::error::{Error, Result};
 use crate::model::Model;
 use crate::output::results::ResultsFile;
+use crate::output::FolderLock;
 use crate::props::constants::SECONDS_PER_YEAR;
 use crate::sim::{
     Advance, Begin, Checkpointer, Observer, OutputPosition, Progress, Request, ResultsWriter,
@@ -147,11 +148,7 @@ impl Observer for StopOnSignal {
 
 /// Refuses to start a new run in `folder` over an earlier one (its results file, or the
 /// checkpoints of one whose results file is gone) unless `overwrite`.
-fn check_new_output(
-    folder: &std::path::Path,
-    results: &std::path::Path,
-    overwrite: bool,
-) -> Result<()> {
+fn check_new_output(folder: &Path, results: &Path, overwrite: bool) -> Result<()> {
     if overwrite {
         return Ok(());
     }
@@ -161,7 +158,7 @@ fn check_new_output(
             results.display()
         )));
     }
-    let cks = crate::checkpoint::list(folder);
+    let cks = checkpoint::list(folder);
     if let Some((_, p)) = cks.last() {
         return Err(Error::Io(format!(
             "{}: the output folder holds {} checkpoints of an earlier run (newest {}) but no results file; use --overwrite to replace them, or --out to write elsewhere",
@@ -176,9 +173,9 @@ fn check_new_output(
 /// Removes the checkpoints (and diagnostic state) of the run a new run replaces: they
 /// continue a results file that is being replaced, and being later in time they would
 /// outlive the new run's checkpoints when pruning. `keep` (a branch's parent) stays.
-fn replace_earlier_run(folder: &std::path::Path, keep: Option<&std::path::Path>) {
-    crate::checkpoint::remove_temporaries(folder);
-    let removed = crate::checkpoint::remove_all(folder, keep);
+fn replace_earlier_run(folder: &Path, keep: Option<&Path>) {
+    checkpoint::remove_temporaries(folder);
+    let removed = checkpoint::remove_all(folder, keep);
     if removed > 0 {
         log::info!(
             "removed {removed} checkpoint files of the earlier run in {}",
@@ -365,7 +362,7 @@ pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
         .unwrap_or_else(|| model.output.folder.clone());
     std::fs::create_dir_all(&folder)
         .map_err(|e| Error::io(&folder, format!("cannot create the output folder: {e}")))?;
-    let _lock = crate::output::FolderLock::acquire(&folder)?;
+    let _lock = FolderLock::acquire(&folder)?;
     let results_path = folder.join("results.h5");
     let start = match &opts.start {
         Start::Fresh => start_fresh(model, opts, &folder, &results_path)?,

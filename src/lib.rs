@@ -8,6 +8,8 @@
 //! - [`props`]    constitutive laws and water properties, each with derivatives
 //! - [`physics`]  residual and exact Jacobian of the three balance laws
 //! - [`solve`]    linear solvers, Newton, time stepping
+//! - [`sim`]      a simulation and its observers (results file, checkpoints, progress, memory)
+//! - [`run`]      `deepdry run`: start modes, the output folder, signals
 //! - [`output`]   results files (HDF5)
 //! - [`plot`]     pictures of a results file (SVG, PNG)
 //! - [`error`]    typed errors
@@ -31,5 +33,6 @@ pub mod plot;
 pub mod props;
 pub mod run;
 pub mod schedule;
+pub mod sim;
 pub mod solve;
 pub mod verify;

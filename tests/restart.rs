@@ -12,13 +12,8 @@
 mod support;
 
 use std::path::{Path, PathBuf};
-use std::process::{Command, Stdio};
 use std::time::{Duration, Instant};
 use support::*;
-
-fn s(p: &Path) -> &str {
-    p.to_str().unwrap()
-}
 
 /// Final checkpoint of a finished run in `dir`.
 fn final_checkpoint(dir: &Path, end_year: f64) -> PathBuf {
@@ -60,7 +55,7 @@ fn restart_identity(method: &'static str, name: &str) {
                 h.len()
             );
         }
-        run_ok(&case, &b, &["--resume", s(&ck)]);
+        run_ok(&case, &b, &["--resume", arg(&ck)]);
         assert_same_datasets(&ra, &rb);
         assert_same_datasets(
             &final_checkpoint(&a, small.end_year),
@@ -88,7 +83,7 @@ fn restart_identity(method: &'static str, name: &str) {
             f.unlink("history_storage").unwrap();
         }
     }
-    run_ok(&case, &c, &["--resume", s(&ck)]);
+    run_ok(&case, &c, &["--resume", arg(&ck)]);
     let end = |d: &Path| {
         deepdry::checkpoint::read(&final_checkpoint(d, small.end_year))
             .unwrap()
@@ -128,16 +123,6 @@ fn long_case() -> Small {
     }
 }
 
-fn spawn_run(case: &Path, out: &Path, extra: &[&str]) -> std::process::Child {
-    spawn(
-        Command::new(bin())
-            .args(["run", s(case), "--out", s(out), "--quiet"])
-            .args(extra)
-            .stdout(Stdio::null())
-            .stderr(Stdio::piped()),
-    )
-}
-
 #[test]
 fn sigterm_stops_with_code_5_and_a_checkpoint_that_resumes_exactly() {
     let dir = Scratch::new("sigterm");
@@ -154,11 +139,7 @@ fn sigterm_stops_with_code_5_and_a_checkpoint_that_resumes_exactly() {
         assert!(t0.elapsed() < Duration::from_secs(60), "no checkpoint");
         std::thread::sleep(Duration::from_millis(2));
     }
-    let st = Command::new("kill")
-        .args(["-TERM", &child.id().to_string()])
-        .status()
-        .unwrap();
-    assert!(st.success());
+    signal(&child, "-TERM");
     let o = child.wait_with_output().unwrap();
     let line = assert_one_line_error(
         &o,
@@ -188,7 +169,7 @@ fn sigterm_stops_with_code_5_and_a_checkpoint_that_resumes_exactly() {
     let t_ck = ck.state.t / deepdry::props::constants::SECONDS_PER_YEAR;
     assert!((t_ck - t_msg).abs() <= 1e-6 * t_msg, "{t_ck} vs {t_msg}");
     assert_eq!(newest_checkpoint(&out).unwrap(), path);
-    run_ok(&case, &out, &["--resume", s(&path)]);
+    run_ok(&case, &out, &["--resume", arg(&path)]);
     assert_same_datasets(&reference.join("results.h5"), &out.join("results.h5"));
     assert_same_datasets(
         &final_checkpoint(&reference, small.end_year),
@@ -251,7 +232,7 @@ fn sigkill_at_random_moments_then_resume_reaches_the_same_state() {
         // The newest checkpoint is complete: it reads, and inspect describes it.
         let ck = read_checkpoint(&newest)
             .unwrap_or_else(|e| panic!("kill {k} at {delay:.3} s: newest checkpoint: {e}"));
-        let o = deepdry(&["inspect", s(&newest)]);
+        let o = deepdry(&["inspect", arg(&newest)]);
         assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
         // The results file: every dataset readable, at least the checkpoint's rows.
         let results = out.join("results.h5");
@@ -263,15 +244,7 @@ fn sigkill_at_random_moments_then_resume_reaches_the_same_state() {
             }
             Err(_) => false,
         };
-        let o = deepdry(&[
-            "run",
-            s(&case),
-            "--out",
-            s(&out),
-            "--quiet",
-            "--resume",
-            s(&newest),
-        ]);
+        let o = run_deepdry(&case, &out, &["--resume", arg(&newest)]);
         if readable {
             assert_eq!(o.status.code(), Some(0), "kill {k}: {}", stderr(&o));
             assert_same_datasets(&ref_results, &results);
@@ -326,8 +299,8 @@ fn branches_start_from_the_same_state_and_record_their_parent() {
     };
     let (c1, c2) = (mk("dry.toml", 0.05), mk("wet.toml", 0.9));
     let (b1, b2) = (dir.join("dry"), dir.join("wet"));
-    run_ok(&c1, &b1, &["--start-from", s(&ck)]);
-    run_ok(&c2, &b2, &["--start-from", s(&ck)]);
+    run_ok(&c1, &b1, &["--start-from", arg(&ck)]);
+    run_ok(&c2, &b2, &["--start-from", arg(&ck)]);
     let d1 = datasets(&b1.join("results.h5")).unwrap();
     let d2 = datasets(&b2.join("results.h5")).unwrap();
     let dp = datasets(&pdir.join("results.h5")).unwrap();
@@ -376,13 +349,13 @@ fn branches_start_from_the_same_state_and_record_their_parent() {
     assert!(f64::from_bits(h1[0]) < f64::from_bits(h2[0]));
     // Parent recorded in the branch's results file, and shown by inspect.
     let r1 = b1.join("results.h5");
-    assert_eq!(root_attr(&r1, "parent_checkpoint").unwrap(), s(&ck));
+    assert_eq!(root_attr(&r1, "parent_checkpoint").unwrap(), arg(&ck));
     let pt: f64 = root_attr(&r1, "parent_time_year").unwrap().parse().unwrap();
     assert!((pt - 4.0).abs() < 1e-12, "{pt}");
-    let o = deepdry(&["inspect", s(&r1)]);
+    let o = deepdry(&["inspect", arg(&r1)]);
     assert_eq!(o.status.code(), Some(0));
     assert!(
-        stdout(&o).contains(&format!("branch of: {}", s(&ck))),
+        stdout(&o).contains(&format!("branch of: {}", arg(&ck))),
         "{}",
         stdout(&o)
     );
@@ -397,11 +370,11 @@ fn branches_start_from_the_same_state_and_record_their_parent() {
     );
     let o = deepdry(&[
         "run",
-        s(&other_mesh),
+        arg(&other_mesh),
         "--out",
-        s(&dir.join("m")),
+        arg(&dir.join("m")),
         "--start-from",
-        s(&ck),
+        arg(&ck),
     ]);
     assert_one_line_error(&o, 2, &["mesh differs", "30 cells", "20 cells"]);
     assert!(!dir.join("m/results.h5").exists());
@@ -411,16 +384,16 @@ fn branches_start_from_the_same_state_and_record_their_parent() {
     );
     let o = deepdry(&[
         "run",
-        s(&other_soil),
+        arg(&other_soil),
         "--out",
-        s(&dir.join("s")),
+        arg(&dir.join("s")),
         "--start-from",
-        s(&ck),
+        arg(&ck),
     ]);
     assert_one_line_error(&o, 2, &["soils or layers differ"]);
     assert!(!dir.join("s/results.h5").exists());
     // Resuming with a changed case is refused too (branching is the way to change it).
-    let o = deepdry(&["run", s(&c1), "--out", s(&pdir), "--resume", s(&ck)]);
+    let o = deepdry(&["run", arg(&c1), "--out", arg(&pdir), "--resume", arg(&ck)]);
     assert_one_line_error(&o, 2, &["the case differs", "--start-from"]);
 }
 
@@ -502,18 +475,10 @@ fn bad_checkpoints_give_one_line_errors_for_resume_start_from_and_inspect() {
     ];
     for (path, fragments) in &cases {
         for flag in ["--resume", "--start-from"] {
-            let o = deepdry(&[
-                "run",
-                s(&case),
-                "--out",
-                s(&dir.join("resume-out")),
-                "--quiet",
-                flag,
-                s(path),
-            ]);
+            let o = run_deepdry(&case, &dir.join("resume-out"), &[flag, arg(path)]);
             assert_one_line_error(&o, 2, fragments);
         }
-        let o = deepdry(&["inspect", s(path)]);
+        let o = deepdry(&["inspect", arg(path)]);
         if *path == results.as_path() {
             assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
         } else {
@@ -522,7 +487,7 @@ fn bad_checkpoints_give_one_line_errors_for_resume_start_from_and_inspect() {
     }
     // The original checkpoint is untouched and still resumes.
     assert_eq!(std::fs::read(&good).unwrap(), bytes);
-    run_ok(&case, &out, &["--resume", s(&good)]);
+    run_ok(&case, &out, &["--resume", arg(&good)]);
 }
 
 #[test]
@@ -532,7 +497,7 @@ fn inspect_describes_results_and_checkpoints() {
     let case = dir.write("case.toml", &small.text());
     let out = dir.join("out");
     run_ok(&case, &out, &[]);
-    let o = deepdry(&["inspect", s(&out.join("results.h5"))]);
+    let o = deepdry(&["inspect", arg(&out.join("results.h5"))]);
     assert_eq!(o.status.code(), Some(0));
     let text = stdout(&o);
     let rows = datasets(&out.join("results.h5")).unwrap()["series/time"].len();
@@ -547,7 +512,7 @@ fn inspect_describes_results_and_checkpoints() {
     ] {
         assert!(text.contains(&want), "lacks `{want}`:\n{text}");
     }
-    let o = deepdry(&["inspect", s(&checkpoint_at(&out, 5.0))]);
+    let o = deepdry(&["inspect", arg(&checkpoint_at(&out, 5.0))]);
     assert_eq!(o.status.code(), Some(0));
     let text = stdout(&o);
     for want in [
@@ -573,20 +538,16 @@ fn an_existing_results_file_is_refused_unless_overwrite() {
     run_ok(&case, &out, &[]);
     let before = std::fs::read(out.join("results.h5")).unwrap();
     let cks = checkpoints(&out);
-    let o = deepdry(&["run", s(&case), "--out", s(&out), "--quiet"]);
+    let o = run_deepdry(&case, &out, &[]);
     assert_one_line_error(&o, 4, &["results.h5", "exists already", "--overwrite"]);
     assert_eq!(std::fs::read(out.join("results.h5")).unwrap(), before);
     assert_eq!(checkpoints(&out), cks);
     // The same for a branch into a folder that holds a run.
-    let o = deepdry(&[
-        "run",
-        s(&case),
-        "--out",
-        s(&out),
-        "--quiet",
-        "--start-from",
-        s(&checkpoint_at(&out, 5.0)),
-    ]);
+    let o = run_deepdry(
+        &case,
+        &out,
+        &["--start-from", arg(&checkpoint_at(&out, 5.0))],
+    );
     assert_one_line_error(&o, 4, &["exists already", "--overwrite"]);
     assert_eq!(std::fs::read(out.join("results.h5")).unwrap(), before);
     // With --overwrite: a shorter run replaces the results and the old run's checkpoints,
@@ -627,7 +588,7 @@ fn a_resumed_run_killed_early_resumes_from_its_own_newest_checkpoint() {
     std::fs::copy(checkpoint_at(&out, all.end_year), &final_ref).unwrap();
     // The same case with keep = 4 (keep is not part of the physics).
     let case = dir.write("keep4.toml", &long_case().text());
-    let mut child = spawn_run(&case, &out, &["--resume", s(&ck20)]);
+    let mut child = spawn_run(&case, &out, &["--resume", arg(&ck20)]);
     std::thread::sleep(Duration::from_secs_f64(0.3 * wall));
     child.kill().unwrap();
     assert!(!child.wait().unwrap().success(), "finished before the kill");
@@ -637,7 +598,7 @@ fn a_resumed_run_killed_early_resumes_from_its_own_newest_checkpoint() {
         t_newest < all.end_year,
         "newest checkpoint at {t_newest} yr is the first run's"
     );
-    run_ok(&case, &out, &["--resume", s(&newest)]);
+    run_ok(&case, &out, &["--resume", arg(&newest)]);
     assert_same_datasets(&reference, &out.join("results.h5"));
     assert_same_datasets(&final_ref, &checkpoint_at(&out, all.end_year));
     // A results file without its checkpoint's rows is refused with a clear line.
@@ -647,15 +608,7 @@ fn a_resumed_run_killed_early_resumes_from_its_own_newest_checkpoint() {
         ..Small::default()
     };
     run_ok(&dir.write("short.toml", &short.text()), &other, &[]);
-    let o = deepdry(&[
-        "run",
-        s(&case),
-        "--out",
-        s(&other),
-        "--quiet",
-        "--resume",
-        s(&ck20),
-    ]);
+    let o = run_deepdry(&case, &other, &["--resume", arg(&ck20)]);
     assert_one_line_error(&o, 2, &["results.h5", "does not belong to this checkpoint"]);
 }
 
@@ -670,17 +623,7 @@ fn resume_refuses_a_missing_damaged_or_foreign_results_file() {
     std::fs::copy(checkpoint_at(&out, 5.0), &ck).unwrap();
     let results = out.join("results.h5");
     let good = std::fs::read(&results).unwrap();
-    let resume = |folder: &Path| {
-        deepdry(&[
-            "run",
-            s(&case),
-            "--out",
-            s(folder),
-            "--quiet",
-            "--resume",
-            s(&ck),
-        ])
-    };
+    let resume = |folder: &Path| run_deepdry(&case, folder, &["--resume", arg(&ck)]);
     // Missing.
     std::fs::remove_file(&results).unwrap();
     let o = resume(&out);
@@ -733,15 +676,7 @@ fn resume_refuses_a_missing_damaged_or_foreign_results_file() {
     }
     // The right file resumes.
     std::fs::write(&results, &good).unwrap();
-    run_ok(&case, &out, &["--resume", s(&ck)]);
-}
-
-fn signal(child: &std::process::Child, sig: &str) {
-    let st = Command::new("kill")
-        .args([sig, &child.id().to_string()])
-        .status()
-        .unwrap();
-    assert!(st.success(), "kill {sig}");
+    run_ok(&case, &out, &["--resume", arg(&ck)]);
 }
 
 #[test]
@@ -761,30 +696,22 @@ fn a_second_run_into_a_folder_in_use_is_refused_and_harms_nothing() {
     signal(&child, "-STOP");
     let ck = newest_checkpoint(&out).unwrap();
     let size = std::fs::metadata(out.join("results.h5")).unwrap().len();
-    let o = deepdry(&["run", s(&case), "--out", s(&out), "--quiet", "--overwrite"]);
+    let o = run_deepdry(&case, &out, &["--overwrite"]);
     assert_one_line_error(
         &o,
         4,
         &["another deepdry run (process ", "is writing to this folder"],
     );
-    let o = deepdry(&[
-        "run",
-        s(&case),
-        "--out",
-        s(&out),
-        "--quiet",
-        "--resume",
-        s(&ck),
-    ]);
+    let o = run_deepdry(&case, &out, &["--resume", arg(&ck)]);
     assert_one_line_error(&o, 4, &["another deepdry run", "is writing to this folder"]);
-    let o = deepdry(&["inspect", s(&out.join("results.h5"))]);
+    let o = deepdry(&["inspect", arg(&out.join("results.h5"))]);
     assert_one_line_error(
         &o,
         4,
         &["results.h5: the file is open for writing in another process"],
     );
     // A checkpoint can be inspected meanwhile.
-    let o = deepdry(&["inspect", s(&ck)]);
+    let o = deepdry(&["inspect", arg(&ck)]);
     assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
     assert_eq!(
         std::fs::metadata(out.join("results.h5")).unwrap().len(),

@@ -9,10 +9,6 @@ use std::path::{Path, PathBuf};
 use std::process::Command;
 use support::*;
 
-fn s(p: &Path) -> &str {
-    p.to_str().unwrap()
-}
-
 const YEAR: f64 = deepdry::props::constants::SECONDS_PER_YEAR;
 
 /// The small column with its surface held at a head that jumps from −1e4 m to −0.01 m at
@@ -43,7 +39,7 @@ fn a_step_failing_at_the_minimum_dt_exits_3_and_saves_the_last_good_state() {
     // linear contraction) before the jump, too few after it at the minimum step.
     let case = dir.write("case.toml", &failing_case(6));
     let out = dir.join("out");
-    let o = deepdry(&["run", s(&case), "--out", s(&out), "--quiet"]);
+    let o = run_deepdry(&case, &out, &[]);
     let line = assert_one_line_error(
         &o,
         3,
@@ -88,7 +84,7 @@ fn a_step_failing_at_the_minimum_dt_exits_3_and_saves_the_last_good_state() {
         "{line}"
     );
     assert!(ck.state.u.iter().all(|x| x.is_finite()));
-    let o = deepdry(&["inspect", s(&failed)]);
+    let o = deepdry(&["inspect", arg(&failed)]);
     assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
     assert!(stdout(&o).contains("kind: checkpoint"));
     // The results so far are readable, end at the last good state and match the state.
@@ -106,7 +102,7 @@ fn a_step_failing_at_the_minimum_dt_exits_3_and_saves_the_last_good_state() {
         "fixed.toml",
         &failing_case(15).replace("min_step_year = 0.01", "min_step_year = 1e-9"),
     );
-    run_ok(&fixed, &dir.join("fixed"), &["--start-from", s(&failed)]);
+    run_ok(&fixed, &dir.join("fixed"), &["--start-from", arg(&failed)]);
 }
 
 fn assert_checkpoints_read(dir: &Path) -> usize {
@@ -122,7 +118,7 @@ fn an_output_folder_that_cannot_be_created_is_an_io_error() {
     let dir = Scratch::new("no-folder");
     let case = dir.write("case.toml", &Small::default().text());
     let file = dir.write("a-file", "not a folder\n");
-    let o = deepdry(&["run", s(&case), "--out", s(&file.join("out")), "--quiet"]);
+    let o = run_deepdry(&case, &file.join("out"), &[]);
     assert_one_line_error(&o, 4, &["a-file/out", "cannot create the output folder"]);
     assert_eq!(std::fs::read_to_string(&file).unwrap(), "not a folder\n");
 }
@@ -172,7 +168,7 @@ fn a_read_only_output_folder_is_refused_and_its_checkpoints_stay_intact() {
         .map(|e| (e.path(), std::fs::read(e.path()).unwrap()))
         .collect();
     // Tests run as root, so file modes do not stop writes: a read-only bind mount does.
-    let Some(_ro) = Mount::new(&["--bind", "-o", "ro", s(&out)], &out) else {
+    let Some(_ro) = Mount::new(&["--bind", "-o", "ro", arg(&out)], &out) else {
         return;
     };
     if std::fs::write(out.join("probe"), "x").is_ok() {
@@ -180,13 +176,13 @@ fn a_read_only_output_folder_is_refused_and_its_checkpoints_stay_intact() {
         return;
     }
     let ck = checkpoint_at(&out, 5.0);
-    for extra in [vec!["--resume", s(&ck)], vec!["--overwrite"]] {
-        let mut args = vec!["run", s(&case), "--out", s(&out), "--quiet"];
+    for extra in [vec!["--resume", arg(&ck)], vec!["--overwrite"]] {
+        let mut args = vec!["run", arg(&case), "--out", arg(&out), "--quiet"];
         args.extend(extra);
         let o = deepdry(&args);
         assert_one_line_error(&o, 4, &["Read-only file system"]);
     }
-    let o = deepdry(&["run", s(&case), "--out", s(&out.join("sub")), "--quiet"]);
+    let o = run_deepdry(&case, &out.join("sub"), &[]);
     assert_one_line_error(
         &o,
         4,
@@ -197,7 +193,7 @@ fn a_read_only_output_folder_is_refused_and_its_checkpoints_stay_intact() {
     }
     assert_eq!(assert_checkpoints_read(&out), small.end_year as usize);
     // inspect needs no write access.
-    let o = deepdry(&["inspect", s(&out.join("results.h5"))]);
+    let o = deepdry(&["inspect", arg(&out.join("results.h5"))]);
     assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
 }
 
@@ -220,7 +216,7 @@ fn a_full_disk_stops_the_run_with_one_line_and_keeps_what_was_written() {
         return;
     };
     let out = disk.join("out");
-    let o = deepdry(&["run", s(&case), "--out", s(&out), "--quiet"]);
+    let o = run_deepdry(&case, &out, &[]);
     let line = assert_one_line_error(&o, 4, &["No space left on device"]);
     eprintln!("full disk: {line}");
     // What was written is readable: the checkpoints and the results file up to its last
@@ -243,7 +239,7 @@ fn a_full_disk_stops_the_run_with_one_line_and_keeps_what_was_written() {
     }
     drop(mount);
     let ck_moved = moved.join(newest.file_name().unwrap());
-    run_ok(&case, &moved, &["--resume", s(&ck_moved)]);
+    run_ok(&case, &moved, &["--resume", arg(&ck_moved)]);
     assert_same_datasets(&reference.join("results.h5"), &moved.join("results.h5"));
 }
 
@@ -281,7 +277,7 @@ end_year = 0.1
 fn short_run(dir: &Scratch, name: &str, text: &str) -> Vec<f64> {
     let case = dir.write(&format!("{name}.toml"), text);
     let out = dir.join(name);
-    let o = deepdry(&["run", s(&case), "--out", s(&out), "--quiet"]);
+    let o = run_deepdry(&case, &out, &[]);
     assert_eq!(o.status.code(), Some(0), "{name}: {}", stderr(&o));
     let ck = read_checkpoint(&checkpoint_at(&out, 0.1)).unwrap();
     assert!(ck.state.u.iter().all(|x| x.is_finite()), "{name}");
@@ -357,7 +353,7 @@ fn a_saturated_surface_over_a_dry_column_fails_cleanly() {
     let dir = Scratch::new("ponded");
     let case = dir.write("case.toml", &column(10.0, 30, 20.0, 21.0, "head_m = 0.0"));
     let out = dir.join("out");
-    let o = deepdry(&["run", s(&case), "--out", s(&out), "--quiet"]);
+    let o = run_deepdry(&case, &out, &[]);
     assert_one_line_error(&o, 3, &["step failed at t = ", "failed-state.h5"]);
     read_checkpoint(&out.join("failed-state.h5")).unwrap();
 }
@@ -368,7 +364,7 @@ fn the_cell_count_limits() {
     // 100 000 cells: parse, mesh, summary, and one step of the solver.
     let text = column(10.0, 100_000, 20.0, 21.0, "relative_humidity = 0.3");
     let case = dir.write("big.toml", &text);
-    let o = deepdry(&["check", s(&case)]);
+    let o = deepdry(&["check", arg(&case)]);
     assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
     assert!(stdout(&o).contains("100000 cells"), "{}", stdout(&o));
     let model = deepdry::case::load(&case).unwrap();
@@ -394,7 +390,7 @@ fn the_cell_count_limits() {
         "too-many.toml",
         &column(10.0, 1_000_001, 20.0, 21.0, "no_flow = true"),
     );
-    let o = deepdry(&["check", s(&case)]);
+    let o = deepdry(&["check", arg(&case)]);
     assert_one_line_error(&o, 2, &["1000001 cells are more than the limit of 1000000"]);
 }
 
@@ -409,7 +405,7 @@ fn a_checkpoint_interval_too_fine_for_the_run_is_refused_before_anything_is_writ
     };
     let case = dir.write("case.toml", &small.text());
     let out = dir.join("out");
-    let o = deepdry(&["run", s(&case), "--out", s(&out), "--quiet"]);
+    let o = run_deepdry(&case, &out, &[]);
     assert_one_line_error(
         &o,
         2,

@@ -73,11 +73,7 @@ const PROFILE_FACE: [(&str, &str, &str); 5] = [
 pub struct ResultsFile {
     pub path: PathBuf,
     file: File,
-    profile_time: Dataset,
-    cell_sets: Vec<Dataset>,
-    face_sets: Vec<Dataset>,
-    series_time: Dataset,
-    series_sets: Vec<Dataset>,
+    sets: Sets,
     pending: Vec<SeriesRecord>,
     pub snapshots: usize,
     pub records: usize,
@@ -123,6 +119,71 @@ fn same_time(a: Option<f64>, b: Option<f64>) -> bool {
 
 fn h5(path: &Path) -> impl Fn(hdf5::Error) -> Error + '_ {
     move |e| super::h5util::io_error(path, e)
+}
+
+/// The growable datasets of a results file: `/profiles/time`, the cell and face profiles
+/// (in the order of [`PROFILE_CELL`] and [`PROFILE_FACE`]), `/series/time` and one per
+/// [`SeriesRecord`] field.
+struct Sets {
+    profile_time: Dataset,
+    cells: Vec<Dataset>,
+    faces: Vec<Dataset>,
+    series_time: Dataset,
+    series: Vec<Dataset>,
+}
+
+impl Sets {
+    /// Creates them, empty, in a new file of `n` cells; or, with `n` = `None`, opens them
+    /// in an existing file.
+    fn get(file: &File, n: Option<usize>) -> hdf5::Result<Sets> {
+        let group = |name: &str| match n {
+            Some(_) => file.create_group(name),
+            None => file.group(name),
+        };
+        let (prof, ser) = (group("profiles")?, group("series")?);
+        let one = |g: &hdf5::Group, name: &str, units: &str, long: &str| match n {
+            Some(_) => growable_1d(g, name, units, long),
+            None => g.dataset(name),
+        };
+        let rows = |width: usize, list: &[(&str, &str, &str)]| -> hdf5::Result<Vec<Dataset>> {
+            list.iter()
+                .map(|(name, units, long)| match n {
+                    Some(_) => growable_2d(&prof, name, width, units, long),
+                    None => prof.dataset(name),
+                })
+                .collect()
+        };
+        let cells = n.unwrap_or(0);
+        Ok(Sets {
+            profile_time: one(&prof, "time", "year", "snapshot time")?,
+            cells: rows(cells, &PROFILE_CELL)?,
+            faces: rows(cells + 1, &PROFILE_FACE)?,
+            series_time: one(&ser, "time", "year", "time at the end of the step")?,
+            series: SeriesRecord::FIELDS
+                .iter()
+                .map(|(name, units, long)| one(&ser, name, units, long))
+                .collect::<hdf5::Result<_>>()?,
+        })
+    }
+
+    /// The cell and face profile datasets, [snapshots × cells or faces].
+    fn profiles(&self) -> impl Iterator<Item = &Dataset> {
+        self.cells.iter().chain(self.faces.iter())
+    }
+
+    /// Drops the rows after `snapshots` snapshots and `series_rows` series rows.
+    fn truncate(&self, snapshots: usize, series_rows: usize) -> hdf5::Result<()> {
+        use super::h5util::truncate;
+        truncate(&self.profile_time, snapshots)?;
+        for d in self.profiles() {
+            truncate(d, snapshots)?;
+        }
+        truncate(&self.series_time, series_rows)?;
+        for d in &self.series {
+            truncate(d, series_rows)?;
+        }
+        Ok(())
+    }
 }
 
 impl ResultsFile {
@@ -195,39 +256,23 @@ impl ResultsFile {
             .map_err(&e)?;
         super::h5util::describe(&ds, "1", "layer names").map_err(&e)?;
 
-        let n = model.mesh.n_cells();
-        let prof = file.create_group("profiles").map_err(&e)?;
-        let profile_time = growable_1d(&prof, "time", "year", "snapshot time").map_err(&e)?;
-        let mut cell_sets = Vec::new();
-        for (name, units, long) in PROFILE_CELL {
-            cell_sets.push(growable_2d(&prof, name, n, units, long).map_err(&e)?);
-        }
-        let mut face_sets = Vec::new();
-        for (name, units, long) in PROFILE_FACE {
-            face_sets.push(growable_2d(&prof, name, n + 1, units, long).map_err(&e)?);
-        }
-        let ser = file.create_group("series").map_err(&e)?;
-        let series_time =
-            growable_1d(&ser, "time", "year", "time at the end of the step").map_err(&e)?;
-        let mut series_sets = Vec::new();
-        for (name, units, long) in SeriesRecord::FIELDS {
-            series_sets.push(growable_1d(&ser, name, units, long).map_err(&e)?);
-        }
-        Ok(ResultsFile {
+        let sets = Sets::get(&file, Some(model.mesh.n_cells())).map_err(&e)?;
+        Ok(Self::writer(path, file, sets))
+    }
+
+    /// The writer of a new `file` at `path` with its datasets `sets`.
+    fn writer(path: &Path, file: File, sets: Sets) -> Self {
+        ResultsFile {
             path: path.to_path_buf(),
             file,
-            profile_time,
-            cell_sets,
-            face_sets,
-            series_time,
-            series_sets,
+            sets,
             pending: Vec::new(),
             snapshots: 0,
             records: 0,
             last_series_year: None,
             last_snapshot_year: None,
             continued: false,
-        })
+        }
     }
 
     /// Reopens an existing results file to append after `snapshots` snapshots and
@@ -282,49 +327,30 @@ impl ResultsFile {
                 faces.len().saturating_sub(1)
             )));
         }
-        let profile_time = ds("profiles/time")?;
-        let have_snap = profile_time.shape()[0];
-        let series_time = ds("series/time")?;
-        let have_rows = series_time.shape()[0];
+        let sets = Sets::get(&file, None).map_err(h5err)?;
+        let have_snap = sets.profile_time.shape()[0];
+        let have_rows = sets.series_time.shape()[0];
         if have_snap < snapshots || have_rows < series_rows {
             return Err(Error::input(format!(
                 "{}: the results file holds {have_snap} snapshots and {have_rows} series rows, fewer than the checkpoint recorded ({snapshots}, {series_rows}); it does not belong to this checkpoint",
                 path.display()
             )));
         }
-        let mut cell_sets = Vec::new();
-        for (name, _, _) in PROFILE_CELL {
-            cell_sets.push(ds(&format!("profiles/{name}"))?);
-        }
-        let mut face_sets = Vec::new();
-        for (name, _, _) in PROFILE_FACE {
-            face_sets.push(ds(&format!("profiles/{name}"))?);
-        }
-        let mut series_sets = Vec::new();
-        for (name, _, _) in SeriesRecord::FIELDS {
-            series_sets.push(ds(&format!("series/{name}"))?);
-        }
         // Every dataset must hold the rows the checkpoint counts on.
-        for d in cell_sets.iter().chain(face_sets.iter()) {
-            if d.shape()[0] < snapshots {
-                return Err(damaged(format!(
-                    "{} has {} rows, fewer than its {snapshots} snapshots",
-                    d.name(),
-                    d.shape()[0]
-                )));
-            }
+        let short = sets
+            .profiles()
+            .map(|d| (d, snapshots, "snapshots"))
+            .chain(sets.series.iter().map(|d| (d, series_rows, "series rows")))
+            .find(|(d, need, _)| d.shape()[0] < *need);
+        if let Some((d, need, what)) = short {
+            return Err(damaged(format!(
+                "{} has {} rows, fewer than its {need} {what}",
+                d.name(),
+                d.shape()[0]
+            )));
         }
-        for d in &series_sets {
-            if d.shape()[0] < series_rows {
-                return Err(damaged(format!(
-                    "{} has {} rows, fewer than its {series_rows} series rows",
-                    d.name(),
-                    d.shape()[0]
-                )));
-            }
-        }
-        let last_row = last_value(&series_time, series_rows).map_err(h5err)?;
-        let last_snap = last_value(&profile_time, snapshots).map_err(h5err)?;
+        let last_row = last_value(&sets.series_time, series_rows).map_err(h5err)?;
+        let last_snap = last_value(&sets.profile_time, snapshots).map_err(h5err)?;
         if (last_series_year.is_some() && !same_time(last_row, last_series_year))
             || (last_snapshot_year.is_some() && !same_time(last_snap, last_snapshot_year))
         {
@@ -339,30 +365,15 @@ impl ResultsFile {
         }
         // A file damaged by a kill can pass every check above and still fail here (seen:
         // "addr overflow" on the first flush): the same guided message as any damage.
-        use super::h5util::truncate;
-        truncate(&profile_time, snapshots).map_err(h5err)?;
-        for d in cell_sets.iter().chain(face_sets.iter()) {
-            truncate(d, snapshots).map_err(h5err)?;
-        }
-        truncate(&series_time, series_rows).map_err(h5err)?;
-        for d in &series_sets {
-            truncate(d, series_rows).map_err(h5err)?;
-        }
+        sets.truncate(snapshots, series_rows).map_err(h5err)?;
         file.flush().map_err(h5err)?;
         Ok(ResultsFile {
-            path: path.to_path_buf(),
-            file,
-            profile_time,
-            cell_sets,
-            face_sets,
-            series_time,
-            series_sets,
-            pending: Vec::new(),
             snapshots,
             records: series_rows,
             last_series_year: last_row,
             last_snapshot_year: last_snap,
             continued: true,
+            ..Self::writer(path, file, sets)
         })
     }
 
@@ -380,7 +391,7 @@ impl ResultsFile {
     /// Writes a snapshot at `time_year`, then everything queued, then flushes the file.
     pub fn write_snapshot(&mut self, time_year: f64, p: &Profile) -> Result<()> {
         let e = self.write_error();
-        append_1d(&self.profile_time, &[time_year]).map_err(&e)?;
+        append_1d(&self.sets.profile_time, &[time_year]).map_err(&e)?;
         let cells = [
             &p.temperature_c,
             &p.head,
@@ -388,7 +399,7 @@ impl ResultsFile {
             &p.vapor_density,
             &p.relative_humidity,
         ];
-        for (ds, v) in self.cell_sets.iter().zip(cells) {
+        for (ds, v) in self.sets.cells.iter().zip(cells) {
             append_row(ds, v).map_err(&e)?;
         }
         let faces = [
@@ -398,7 +409,7 @@ impl ResultsFile {
             &p.vapor_th,
             &p.heat,
         ];
-        for (ds, v) in self.face_sets.iter().zip(faces) {
+        for (ds, v) in self.sets.faces.iter().zip(faces) {
             append_row(ds, v).map_err(&e)?;
         }
         self.snapshots += 1;
@@ -411,8 +422,8 @@ impl ResultsFile {
         let e = self.write_error();
         if !self.pending.is_empty() {
             let times: Vec<f64> = self.pending.iter().map(|r| r.time_year).collect();
-            append_1d(&self.series_time, &times).map_err(&e)?;
-            for (k, ds) in self.series_sets.iter().enumerate() {
+            append_1d(&self.sets.series_time, &times).map_err(&e)?;
+            for (k, ds) in self.sets.series.iter().enumerate() {
                 let col: Vec<f64> = self.pending.iter().map(|r| r.values()[k]).collect();
                 append_1d(ds, &col).map_err(&e)?;
             }

@@ -158,17 +158,51 @@ keep = {keep}
     }
 }
 
-/// Runs the binary with `args` (plus `--quiet`) and returns its output.
+/// A path as a command-line argument.
+pub fn arg(p: &Path) -> &str {
+    p.to_str().unwrap()
+}
+
+/// The binary with `args`, stdin closed, stdout and stderr captured.
+fn command(args: &[&str]) -> Command {
+    let mut cmd = Command::new(bin());
+    cmd.args(args)
+        .stdin(std::process::Stdio::null())
+        .stdout(std::process::Stdio::piped())
+        .stderr(std::process::Stdio::piped());
+    cmd
+}
+
+/// The arguments of `deepdry run CASE --out OUT --quiet EXTRA…`.
+fn run_args<'a>(case: &'a Path, out: &'a Path, extra: &[&'a str]) -> Vec<&'a str> {
+    let mut args = vec!["run", arg(case), "--out", arg(out), "--quiet"];
+    args.extend_from_slice(extra);
+    args
+}
+
+/// Runs the binary with `args` and returns its output.
 pub fn deepdry(args: &[&str]) -> Output {
-    spawn(
-        Command::new(bin())
-            .args(args)
-            .stdin(std::process::Stdio::null())
-            .stdout(std::process::Stdio::piped())
-            .stderr(std::process::Stdio::piped()),
-    )
-    .wait_with_output()
-    .unwrap()
+    spawn(&mut command(args)).wait_with_output().unwrap()
+}
+
+/// `deepdry run CASE --out OUT --quiet EXTRA…`, waited for.
+pub fn run_deepdry(case: &Path, out: &Path, extra: &[&str]) -> Output {
+    deepdry(&run_args(case, out, extra))
+}
+
+/// `deepdry run CASE --out OUT --quiet EXTRA…`, started and not waited for (its standard
+/// output discarded).
+pub fn spawn_run(case: &Path, out: &Path, extra: &[&str]) -> std::process::Child {
+    spawn(command(&run_args(case, out, extra)).stdout(std::process::Stdio::null()))
+}
+
+/// Sends `sig` (as `kill` spells it: `-TERM`, `-STOP`, …) to `child`.
+pub fn signal(child: &std::process::Child, sig: &str) {
+    let st = Command::new("kill")
+        .args([sig, &child.id().to_string()])
+        .status()
+        .unwrap();
+    assert!(st.success(), "kill {sig}");
 }
 
 pub fn stderr(o: &Output) -> String {
@@ -181,16 +215,14 @@ pub fn stdout(o: &Output) -> String {
 
 /// `deepdry run CASE --out OUT --quiet EXTRA…`; panics unless it exits 0.
 pub fn run_ok(case: &Path, out: &Path, extra: &[&str]) -> Output {
-    let mut args = vec![
-        "run",
-        case.to_str().unwrap(),
-        "--out",
-        out.to_str().unwrap(),
-        "--quiet",
-    ];
-    args.extend_from_slice(extra);
-    let o = deepdry(&args);
-    assert_eq!(o.status.code(), Some(0), "deepdry {args:?}: {}", stderr(&o));
+    let o = run_deepdry(case, out, extra);
+    assert_eq!(
+        o.status.code(),
+        Some(0),
+        "deepdry {:?}: {}",
+        run_args(case, out, extra),
+        stderr(&o)
+    );
     o
 }
 

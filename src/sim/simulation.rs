@@ -1,0 +1,442 @@
+//! A simulation: the model's System and Stepper, advanced from sync time to sync time, and
+//! the observers it tells what happened (started, step accepted, series record, snapshot,
+//! checkpoint, finished, failed). The simulation itself writes no file and knows no
+//! terminal or signal: the results file, the checkpoints, the progress bar, an in-memory
+//! recorder and a stop on signals are observers (see [`super::observers`]).
+//!
+//! What it advances is serialisable: the stepper's [`StepState`] and the [`OutputPosition`]
+//! (a checkpoint holds both). Every simulation of a model performs the same operations
+//! whatever observes it, so a run writing files and one recording in memory give the
+//! same numbers bitwise.
+
+use crate::error::{Error, Result};
+use crate::model::Model;
+use crate::output::diagnostics::{drying_front_depth, Profile, SeriesRecord};
+use crate::physics::{column_balance, ColumnStepper as Stepper, System};
+use crate::props::constants::SECONDS_PER_YEAR;
+use crate::solve::linear::{make_solver, SolverKind};
+use crate::solve::newton::NewtonFailure;
+use crate::solve::stepper::{Counters, StepFailure, StepInfo, StepOptions, StepState};
+
+use super::times::{is_member, SyncPlan};
+
+/// A one-line message for a step that failed at the minimum Δt.
+pub fn numerical_message(sys: &System, f: &StepFailure, what: &str) -> Error {
+    let names = ["energy balance", "water balance", "vapour equation"];
+    let unknowns = ["temperature", "head", "vapour density"];
+    let (cell, row, res) = match &f.failure {
+        NewtonFailure::NotConverged {
+            cell,
+            row,
+            residual,
+        }
+        | NewtonFailure::Diverged {
+            cell,
+            row,
+            residual,
+        } => (*cell, *row, *residual),
+        NewtonFailure::NonFinite(nf) => (nf.cell, nf.row, f64::NAN),
+        NewtonFailure::Linear(_) => (0, 0, f64::NAN),
+    };
+    let kind = match &f.failure {
+        NewtonFailure::NotConverged { .. } => "Newton did not converge",
+        NewtonFailure::Diverged { .. } => "Newton diverged",
+        NewtonFailure::NonFinite(_) => "a non-finite value (NaN or Inf) appeared",
+        NewtonFailure::Linear(_) => "the linear system was singular",
+    };
+    let cell = cell.min(sys.n.saturating_sub(1));
+    Error::Numerical(format!(
+        "{what}: step failed at t = {:.6e} yr with dt = {:.3e} s (the minimum): {kind}; worst {} residual {:.3e} (scaled; unknown {}) at depth {:.4} m (cell {cell})",
+        f.t / SECONDS_PER_YEAR,
+        f.dt,
+        names[row.min(2)],
+        res,
+        unknowns[row.min(2)],
+        sys.centers[cell],
+    ))
+}
+
+/// Step options from the case.
+pub fn step_options(model: &Model) -> StepOptions {
+    let t = &model.time;
+    StepOptions {
+        dt_min: model.time.dt_min,
+        dt_max: model.time.dt_max,
+        integrator: match t.method {
+            crate::model::Method::BackwardEuler => crate::solve::stepper::Integrator::BackwardEuler,
+            crate::model::Method::Bdf { max_order } => crate::solve::stepper::Integrator::Bdf {
+                max_order,
+                rtol: t.rtol,
+            },
+        },
+        newton: crate::solve::newton::NewtonOptions {
+            max_iter: model.time.max_newton,
+            residual_tol: model.time.newton_tolerance,
+            ..Default::default()
+        },
+        ..Default::default()
+    }
+}
+
+/// The series record for the current (evaluated) state.
+pub fn series_record(sys: &System, st: &Stepper, dt: f64, iters: usize) -> SeriesRecord {
+    let (abs, rel) = column_balance(sys, st);
+    let (top, bot) = sys.boundary_fluxes();
+    SeriesRecord {
+        time_year: st.state.t / SECONDS_PER_YEAR,
+        surface_water_flux: top[1],
+        bottom_water_flux: bot[1],
+        surface_heat_flux: top[0],
+        bottom_heat_flux: bot[0],
+        water_storage: sys.totals()[1],
+        water_balance_error: abs[1],
+        energy_balance_error: abs[0],
+        water_balance_relative: rel[1],
+        energy_balance_relative: rel[0],
+        drying_front_depth: drying_front_depth(sys),
+        dt,
+        newton_iterations: iters as f64,
+    }
+}
+
+/// Where the outputs of a simulation stand: what a checkpoint records besides the stepper
+/// state, and what a resumed run continues from.
+#[derive(Debug, Clone, Copy, Default, PartialEq)]
+pub struct OutputPosition {
+    /// Accepted steps since the last series record.
+    pub since_series: u64,
+    /// Series records and snapshots given to the observers so far (in a resumed run,
+    /// counting those of the run it continues).
+    pub series_rows: u64,
+    pub snapshots: u64,
+    /// Time [yr] of the last series record and of the last snapshot.
+    pub last_series_year: Option<f64>,
+    pub last_snapshot_year: Option<f64>,
+}
+
+/// How a simulation begins.
+#[derive(Debug, Clone)]
+pub enum Begin {
+    /// From unknowns `u` at time `t` with a first step `dt` (a new run, or a branch).
+    Unknowns { t: f64, dt: f64, u: Vec<f64> },
+    /// From a stepper state (a resumed run).
+    State(Box<StepState>),
+}
+
+/// What an observer asks for after an accepted step.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Request {
+    Continue,
+    /// A checkpoint now (e.g. a wall-clock interval has passed).
+    Checkpoint,
+    /// Stop after this step (e.g. a signal): the advance returns [`Advance::Stopped`].
+    Stop,
+}
+
+/// How an advance ended.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Advance {
+    /// The target time (or the end) was reached.
+    Reached,
+    /// An observer asked to stop; the state is that of the last accepted step.
+    Stopped,
+}
+
+/// How a simulation ended, for [`Observer::finished`].
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Ending {
+    /// At the end time.
+    End,
+    /// Stopped early on request (after a checkpoint of the state reached).
+    Stopped,
+}
+
+/// The balance at the state being checkpointed, evaluated there.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct CheckpointData {
+    /// Balance errors [energy J m⁻², water kg m⁻²] and the same relative.
+    pub balance_abs: [f64; 2],
+    pub balance_rel: [f64; 2],
+}
+
+/// The figures of a finished simulation.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Finish {
+    pub balance_abs: [f64; 2],
+    pub balance_rel: [f64; 2],
+    /// Water fluxes at the surface and the bottom [kg m⁻² s⁻¹], positive downward.
+    pub surface_water_flux: f64,
+    pub bottom_water_flux: f64,
+    pub counters: Counters,
+}
+
+/// Something that follows a simulation. Every method has a default that does nothing;
+/// an error returned stops the simulation with that error (except in [`Observer::failed`]).
+/// Observers are called in the order given, so one that must act before another (the
+/// results file is flushed before the checkpoint that counts its rows) comes first.
+pub trait Observer {
+    /// The simulation starts (after the initial series record and snapshot, if any).
+    fn started(&mut self, _sim: &Simulation) -> Result<()> {
+        Ok(())
+    }
+    /// A step was accepted (and its series record and snapshot, if any, given).
+    fn step_accepted(&mut self, _sim: &Simulation, _step: &StepInfo) -> Result<Request> {
+        Ok(Request::Continue)
+    }
+    /// A series record of the current state.
+    fn series(&mut self, _sim: &Simulation, _record: &SeriesRecord) -> Result<()> {
+        Ok(())
+    }
+    /// A snapshot time was reached: the profiles of the state, evaluated directly.
+    fn snapshot(&mut self, _sim: &Simulation, _time_year: f64, _profile: &Profile) -> Result<()> {
+        Ok(())
+    }
+    /// A checkpoint time was reached (or one was asked for): the state, its output
+    /// position and `data` are what a checkpoint records.
+    fn checkpoint(&mut self, _sim: &Simulation, _data: &CheckpointData) -> Result<()> {
+        Ok(())
+    }
+    /// The simulation ended.
+    fn finished(&mut self, _sim: &Simulation, _ending: Ending) -> Result<()> {
+        Ok(())
+    }
+    /// A step failed at the minimum Δt; the simulation's state is the last good one. A
+    /// note returned is appended to the error message; an error returned is reported as
+    /// "the last good state could not be saved" and the later observers are not called.
+    fn failed(&mut self, _sim: &Simulation, _data: &CheckpointData) -> Result<Option<String>> {
+        Ok(None)
+    }
+}
+
+/// The model's System and Stepper, the sync plan and the output position.
+pub struct Simulation<'m> {
+    model: &'m Model,
+    sys: System,
+    st: Stepper,
+    plan: SyncPlan,
+    output: OutputPosition,
+    /// Reused buffers for the snapshots.
+    profile: Profile,
+}
+
+impl<'m> Simulation<'m> {
+    /// A simulation of `model` from `begin`, with the outputs at `output` (the default for
+    /// a new run), solving linear systems with `solver`.
+    pub fn new(
+        model: &'m Model,
+        plan: SyncPlan,
+        begin: Begin,
+        output: OutputPosition,
+        solver: SolverKind,
+    ) -> Simulation<'m> {
+        let mut sys = System::new(model);
+        let state = match begin {
+            Begin::Unknowns { t, dt, u } => Stepper::initial_state(&mut sys, t, dt, u),
+            Begin::State(state) => *state,
+        };
+        let lin = make_solver(solver, sys.n);
+        let st = Stepper::new(&mut sys, state, step_options(model), lin);
+        Simulation {
+            model,
+            sys,
+            st,
+            plan,
+            output,
+            profile: Profile::default(),
+        }
+    }
+
+    pub fn model(&self) -> &'m Model {
+        self.model
+    }
+    /// The system, as last evaluated.
+    pub fn system(&self) -> &System {
+        &self.sys
+    }
+    /// The stepper state (time, unknowns, history, counters).
+    pub fn state(&self) -> &StepState {
+        &self.st.state
+    }
+    pub fn output(&self) -> &OutputPosition {
+        &self.output
+    }
+    pub fn plan(&self) -> &SyncPlan {
+        &self.plan
+    }
+
+    /// Tells the observers the simulation starts; with `initial_output`, first gives them
+    /// a series record and a snapshot of the start state (a new results file begins so).
+    pub fn start(&mut self, obs: &mut [&mut dyn Observer], initial_output: bool) -> Result<()> {
+        if initial_output {
+            self.sys.evaluate_direct(self.st.state.t, &self.st.state.u);
+            self.profile.fill(&self.sys);
+            let rec = series_record(&self.sys, &self.st, 0.0, 0);
+            self.emit_series(obs, rec)?;
+            self.emit_snapshot(obs)?;
+        }
+        for o in obs.iter_mut() {
+            o.started(self)?;
+        }
+        Ok(())
+    }
+
+    /// Advances through every sync time after the current time to the end time, or until
+    /// an observer asks to stop.
+    pub fn run_to_end(&mut self, obs: &mut [&mut dyn Observer]) -> Result<Advance> {
+        let t_begin = self.st.state.t;
+        for k in 0..self.plan.syncs.len() {
+            let t_sync = self.plan.syncs[k];
+            if t_sync <= t_begin {
+                continue;
+            }
+            if self.advance_to(t_sync, obs)? == Advance::Stopped {
+                return Ok(Advance::Stopped);
+            }
+        }
+        Ok(Advance::Reached)
+    }
+
+    /// Steps until the time is `t_sync` (landing on it exactly), giving series records,
+    /// snapshots and checkpoints on the way as the case asks. `t_sync` should be one of
+    /// the plan's sync times: landing elsewhere changes the steps taken after it.
+    ///
+    /// A step failing at the minimum Δt is an [`Error::Numerical`] that names the worst
+    /// residual, after the observers were told ([`Observer::failed`]).
+    pub fn advance_to(&mut self, t_sync: f64, obs: &mut [&mut dyn Observer]) -> Result<Advance> {
+        let model = self.model;
+        while self.st.state.t < t_sync {
+            let info = match self.st.step(&mut self.sys, t_sync) {
+                Ok(info) => info,
+                Err(f) => return Err(self.fail(&f, obs)),
+            };
+            self.output.since_series += 1;
+            let landed = self.st.state.t == t_sync;
+            if landed && is_member(&self.plan.jumps, t_sync) {
+                self.st.restart_history();
+            }
+            let at_snapshot = landed && is_member(&model.output.snapshot_times, t_sync);
+            if self.output.since_series >= model.output.series_every as u64
+                || at_snapshot
+                || self.st.state.t == model.time.end
+            {
+                let rec = series_record(&self.sys, &self.st, info.dt, info.newton_iterations);
+                self.emit_series(obs, rec)?;
+            }
+            if at_snapshot {
+                // The profiles of the state evaluated directly, not linearised: the same
+                // whatever the solver kept (a branch from this state shows the same).
+                self.sys.evaluate_direct(self.st.state.t, &self.st.state.u);
+                self.profile.fill(&self.sys);
+                self.emit_snapshot(obs)?;
+            }
+            let mut checkpoint = landed && is_member(&self.plan.checkpoints, t_sync);
+            let mut stop = false;
+            for o in obs.iter_mut() {
+                match o.step_accepted(self, &info)? {
+                    Request::Continue => {}
+                    Request::Checkpoint => checkpoint = true,
+                    Request::Stop => stop = true,
+                }
+            }
+            if checkpoint {
+                self.checkpoint(obs)?;
+            }
+            if stop {
+                return Ok(Advance::Stopped);
+            }
+        }
+        Ok(Advance::Reached)
+    }
+
+    /// Gives the observers a checkpoint of the current state.
+    pub fn checkpoint(&mut self, obs: &mut [&mut dyn Observer]) -> Result<()> {
+        let data = self.checkpoint_data();
+        for o in obs.iter_mut() {
+            o.checkpoint(self, &data)?;
+        }
+        Ok(())
+    }
+
+    /// Ends a simulation stopped on request: a checkpoint of the state reached, then
+    /// [`Observer::finished`] with [`Ending::Stopped`].
+    pub fn stop(&mut self, obs: &mut [&mut dyn Observer]) -> Result<()> {
+        self.checkpoint(obs)?;
+        for o in obs.iter_mut() {
+            o.finished(self, Ending::Stopped)?;
+        }
+        Ok(())
+    }
+
+    /// Ends a simulation at its end time: the final checkpoint, [`Observer::finished`],
+    /// and the final balance and boundary fluxes.
+    pub fn finish(&mut self, obs: &mut [&mut dyn Observer]) -> Result<Finish> {
+        self.checkpoint(obs)?;
+        for o in obs.iter_mut() {
+            o.finished(self, Ending::End)?;
+        }
+        self.sys.evaluate(self.st.state.t, &self.st.state.u);
+        let (balance_abs, balance_rel) = column_balance(&self.sys, &self.st);
+        let (top, bottom) = self.sys.boundary_fluxes();
+        Ok(Finish {
+            balance_abs,
+            balance_rel,
+            surface_water_flux: top[1],
+            bottom_water_flux: bottom[1],
+            counters: self.st.state.counters,
+        })
+    }
+
+    /// The balance at the current state, with the solver's kept evaluation states copied
+    /// into the stepper state (so that a checkpoint resumes bitwise). Evaluating does not
+    /// change what the next step computes: every step evaluates its start state afresh.
+    fn checkpoint_data(&mut self) -> CheckpointData {
+        self.sys.evaluate(self.st.state.t, &self.st.state.u);
+        let (balance_abs, balance_rel) = column_balance(&self.sys, &self.st);
+        self.st.sync_state(&self.sys);
+        CheckpointData {
+            balance_abs,
+            balance_rel,
+        }
+    }
+
+    /// The error of a failed step, after the observers were told.
+    fn fail(&mut self, f: &StepFailure, obs: &mut [&mut dyn Observer]) -> Error {
+        let mut message = numerical_message(&self.sys, f, "run").to_string();
+        let data = self.checkpoint_data();
+        for o in obs.iter_mut() {
+            match o.failed(self, &data) {
+                Ok(None) => {}
+                Ok(Some(note)) => {
+                    message.push_str("; ");
+                    message.push_str(&note);
+                }
+                Err(e) => {
+                    message.push_str(&format!("; the last good state could not be saved: {e}"));
+                    break;
+                }
+            }
+        }
+        Error::Numerical(message)
+    }
+
+    fn emit_series(&mut self, obs: &mut [&mut dyn Observer], rec: SeriesRecord) -> Result<()> {
+        self.output.since_series = 0;
+        self.output.series_rows += 1;
+        self.output.last_series_year = Some(rec.time_year);
+        for o in obs.iter_mut() {
+            o.series(self, &rec)?;
+        }
+        Ok(())
+    }
+
+    /// Gives the observers the profiles in `self.profile`, at the current time.
+    fn emit_snapshot(&mut self, obs: &mut [&mut dyn Observer]) -> Result<()> {
+        let time_year = self.st.state.t / SECONDS_PER_YEAR;
+        self.output.snapshots += 1;
+        self.output.last_snapshot_year = Some(time_year);
+        for o in obs.iter_mut() {
+            o.snapshot(self, time_year, &self.profile)?;
+        }
+        Ok(())
+    }
+}

@@ -60,6 +60,8 @@ pub struct RunSummary {
     pub surface_flux_mm_yr: f64,
     pub bottom_flux_mm_yr: f64,
     pub final_state: StepState,
+    /// The overrides applied to the case (`KEY=VALUE`; empty when none).
+    pub overrides: Vec<String>,
 }
 
 impl RunSummary {
@@ -71,7 +73,7 @@ impl RunSummary {
              steps {} (rejected {}), Newton iterations {}, Jacobian evaluations {}, factorisations {}\n\
              water balance error {:.3e} kg m-2 (relative {:.2e}); energy balance error {:.3e} J m-2 (relative {:.2e})\n\
              water flux at the surface {:.6e} mm/yr, at the bottom {:.6e} mm/yr (positive downward)\n\
-             results: {}\n",
+             results: {}\n{}",
             self.start / SECONDS_PER_YEAR,
             self.end / SECONDS_PER_YEAR,
             self.wall_seconds,
@@ -86,7 +88,12 @@ impl RunSummary {
             self.balance_rel[0],
             self.surface_flux_mm_yr,
             self.bottom_flux_mm_yr,
-            self.results.display()
+            self.results.display(),
+            if self.overrides.is_empty() {
+                String::new()
+            } else {
+                format!("overrides: {}\n", self.overrides.join(", "))
+            }
         )
     }
 }
@@ -813,6 +820,7 @@ pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
         surface_flux_mm_yr: mm_per_year(sys.boundary_fluxes().0[1]),
         bottom_flux_mm_yr: mm_per_year(sys.boundary_fluxes().1[1]),
         final_state: st.state.clone(),
+        overrides: model.overrides.clone(),
     })
 }
 

@@ -266,10 +266,74 @@ fn array_elements_are_addressed_by_position_from_one() {
         input_error(&["layers[1].soil=\"sandy_lom\""]),
         "--set layers[1].soil=\"sandy_lom\": no soil of that name (did you mean \"sandy_loam\"?); soils defined: sandy_loam"
     );
+    // An element of an array the file does not have: the whole array is set instead.
+    assert_eq!(
+        input_error(&["output.times_year[2]=10.0"]),
+        "--set output.times_year[2]=10.0: output.times_year is not in the case; set the whole array, e.g. --set 'output.times_year=[…]'"
+    );
     let e = Override::parse("layers[0].soil=\"x\"")
         .unwrap_err()
         .to_string();
     assert!(e.contains("[k] with k = 1, 2"), "{e}");
+}
+
+#[test]
+fn odd_overrides_give_one_line_errors_and_never_panic() {
+    let odd = [
+        "",
+        "=",
+        "=1",
+        "a=",
+        "[1]=1",
+        "a[1=1",
+        "a]=1",
+        "a.[1]=1",
+        "a[]=1",
+        "layers[99999999999999999999999].soil=1",
+        "layers[1][1]=1",
+        "layers[1].soil.x=1",
+        "é=1",
+        "title=\"a=b\"",
+        "title=\"\"\"x\"\"\"",
+        "title=1979-05-27",
+        "soils.sandy_loam=1",
+        "soils={}",
+        "layers=[]",
+        "layers=[1]",
+        "surface=[]",
+        "time={}",
+        "mesh.cells=-1",
+        "mesh.cells=1e300",
+        "time.end_year=nan",
+        "time.end_year=inf",
+        "output.times_year=[1, \"x\"]",
+        "output.times_year[9]=1",
+        "physics.diffusivity.exponent=1.9",
+        "physics.diffusivity=\"massman-1998\"",
+        "initial.csv=\"no-such-file.csv\"",
+    ];
+    let mut accepted = 0;
+    for arg in odd {
+        let list = match Override::parse(arg) {
+            Ok(o) => vec![o],
+            Err(Error::Input(m)) => {
+                assert!(m.starts_with("--set "), "{arg}: {m}");
+                assert!(!m.contains('\n'), "{arg}: {m}");
+                continue;
+            }
+            Err(e) => panic!("{arg}: not an input error: {e:?}"),
+        };
+        match case::load_with_overrides(&benchmark(), &list) {
+            Ok(m) => {
+                accepted += 1;
+                assert_eq!(m.overrides.len(), 1, "{arg}");
+            }
+            Err(Error::Input(m)) => assert!(!m.contains('\n'), "{arg}: {m}"),
+            Err(e) => panic!("{arg}: not an input error: {e:?}"),
+        }
+    }
+    // The well-formed ones among them: two titles and the two diffusivity forms.
+    assert_eq!(accepted, 4);
 }
 
 /// A short run of the quickstart case: 10 years, checkpoints at 5 and 10.
@@ -324,6 +388,12 @@ fn a_run_records_its_overrides_and_resumes_only_the_same_effective_case() {
         .expect("a checkpoint at 5 yr")
         .1;
     assert_eq!(root_attr(&at5, "overrides"), expected);
+    let o = deepdry(&["inspect", dir.join("results.h5").to_str().unwrap()]);
+    let shown = String::from_utf8_lossy(&o.stdout);
+    assert!(
+        shown.contains("overrides: time.end_year=10.0, output.times_year=[1.0]"),
+        "{shown}"
+    );
     let at5 = at5.to_str().unwrap();
     // Different physics by override: the effective case differs, the resume is refused.
     let o = short_run(

@@ -136,6 +136,12 @@ impl Override {
                         Some(p) => p,
                         None if self.value.is_none() => return Ok(()),
                         None => {
+                            if matches!(self.segs.get(i + 1), Some(Seg::Index(_))) {
+                                return Err(self.err(format!(
+                                    "{} is not in the case; set the whole array, e.g. --set '{0}=[…]'",
+                                    join(&walked, key)
+                                )));
+                            }
                             // A new table on the way: refuse a likely typo of one present.
                             let keys: Vec<&str> = entries.iter().map(|e| e.key.as_str()).collect();
                             if let Some(close) = suggest(key, &keys) {

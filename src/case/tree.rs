@@ -171,7 +171,7 @@ pub fn one_line(s: &str) -> String {
 /// How a parsed range becomes a [`Span`] (in the file, or in an override's value).
 pub(crate) type SpanOf<'f> = &'f dyn Fn(Option<Range<usize>>) -> Span;
 
-pub(crate) fn convert_table(t: &toml_edit::Table, span: Span, at: SpanOf) -> Node {
+fn convert_table(t: &toml_edit::Table, span: Span, at: SpanOf) -> Node {
     let entries = t
         .iter()
         .map(|(k, item)| Entry {

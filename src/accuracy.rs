@@ -13,6 +13,7 @@
 //! the same head. The reference head, which is linear in depth there, is interpolated
 //! instead, and mapped through the retention law of the compared cell's soil.
 
+use crate::case::Override;
 use crate::error::{Error, Result};
 use crate::model::Model;
 use crate::plot::data::{read, Results};
@@ -142,29 +143,30 @@ fn differences(model: &Model, a: &Results, b: &Results, year: f64) -> [Option<f6
     ]
 }
 
-/// The case text with `[time] rtol` and `newton_tolerance` set to the reference
-/// tolerances and, when `refine`,
-/// the mesh refined twice: twice the cells, √growth, half the end cells (graded meshes
-/// given by `cells`; `max_cell_m` is halved instead).
-fn reference_text(text: &str, refine: bool) -> std::result::Result<String, String> {
-    let mut root: toml::Table = text.parse().map_err(|e| format!("{e}"))?;
-    let time = root
-        .entry("time")
-        .or_insert_with(|| toml::Value::Table(toml::Table::new()));
-    let time = time.as_table_mut().ok_or("[time] is not a table")?;
-    time.insert("rtol".into(), toml::Value::Float(REFERENCE_RTOL));
-    time.insert(
-        "newton_tolerance".into(),
-        toml::Value::Float(REFERENCE_NEWTON_TOL),
-    );
-    time.remove("method");
+/// A float as TOML text that reads back to the same value.
+fn toml_float(x: f64) -> String {
+    format!("{x:?}")
+}
+
+/// The overrides that make the reference runs of the case `text`: `time.rtol` and
+/// `time.newton_tolerance` at the reference tolerances, `time.method` = "bdf" and, when
+/// `refine`, the mesh refined twice: twice the cells, √growth, half the end cells (graded
+/// meshes given by `cells`; `max_cell_m` is halved instead). The mesh keys are read from
+/// the text.
+fn reference_overrides(text: &str, refine: bool) -> std::result::Result<Vec<Override>, String> {
+    let mut list = vec![
+        Override::set("time.rtol", &toml_float(REFERENCE_RTOL)),
+        Override::set("time.newton_tolerance", &toml_float(REFERENCE_NEWTON_TOL)),
+        Override::set("time.method", "\"bdf\""),
+    ];
     if refine {
+        let root: toml::Table = text.parse().map_err(|e| format!("{e}"))?;
         let mesh = root
-            .get_mut("mesh")
-            .and_then(|m| m.as_table_mut())
+            .get("mesh")
+            .and_then(|m| m.as_table())
             .ok_or("no [mesh] table")?;
         if let Some(n) = mesh.get("cells").and_then(|v| v.as_integer()) {
-            mesh.insert("cells".into(), toml::Value::Integer(2 * n));
+            list.push(Override::set("mesh.cells", &(2 * n).to_string()));
         }
         let float = |v: &toml::Value| v.as_float().or(v.as_integer().map(|i| i as f64));
         for key in [
@@ -174,20 +176,28 @@ fn reference_text(text: &str, refine: bool) -> std::result::Result<String, Strin
             "interface_cell_m",
         ] {
             if let Some(x) = mesh.get(key).and_then(float) {
-                mesh.insert(key.into(), toml::Value::Float(0.5 * x));
+                list.push(Override::set(&format!("mesh.{key}"), &toml_float(0.5 * x)));
             }
         }
         if let Some(g) = mesh.get("growth").and_then(float) {
-            mesh.insert("growth".into(), toml::Value::Float(g.sqrt()));
+            list.push(Override::set("mesh.growth", &toml_float(g.sqrt())));
         }
     }
-    toml::to_string(&root).map_err(|e| format!("{e}"))
+    list.into_iter()
+        .map(|o| o.map_err(|e| e.to_string()))
+        .collect()
 }
 
-/// Runs `text` (origin and base folder as for `case::parse`) into `out` and reads back
-/// its results; returns them with the step count and wall time [s].
-fn run_text(text: &str, origin: &str, base: &Path, out: &Path) -> Result<(Results, u64, f64)> {
-    let (_, summary) = crate::bench::run_text_into(text, origin, base, out)?;
+/// Runs `text` (origin and base folder as for `case::parse`) with `overrides` into `out`
+/// and reads back its results; returns them with the step count and wall time [s].
+fn run_text(
+    text: &str,
+    origin: &str,
+    base: &Path,
+    overrides: &[Override],
+    out: &Path,
+) -> Result<(Results, u64, f64)> {
+    let (_, summary) = crate::batch::run_into(text, origin, base, overrides, out)?;
     let r = read(&out.join("results.h5"))?;
     Ok((r, summary.counters.steps, summary.wall_seconds))
 }
@@ -216,10 +226,10 @@ pub fn accuracy(
             model.mesh.centers.len()
         )));
     }
-    let same = reference_text(text, false).map_err(bad)?;
-    let (b, steps_b, wall_b) = run_text(&same, origin, base, &tmp.join("tight"))?;
-    let fine = reference_text(text, true).map_err(bad)?;
-    let (c, steps_c, wall_c) = run_text(&fine, origin, base, &tmp.join("refined"))?;
+    let same = reference_overrides(text, false).map_err(bad)?;
+    let (b, steps_b, wall_b) = run_text(text, origin, base, &same, &tmp.join("tight"))?;
+    let fine = reference_overrides(text, true).map_err(bad)?;
+    let (c, steps_c, wall_c) = run_text(text, origin, base, &fine, &tmp.join("refined"))?;
     let mut out = String::new();
     let _ = writeln!(
         out,
@@ -308,8 +318,9 @@ mod tests {
         .unwrap();
         let base = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("cases");
         let coarse = crate::case::parse(&text, "benchmark", &base).unwrap();
-        let fine_text = reference_text(&text, true).unwrap();
-        let fine = crate::case::parse(&fine_text, "refined", &base).unwrap();
+        let fine_overrides = reference_overrides(&text, true).unwrap();
+        let fine =
+            crate::case::parse_with_overrides(&text, "refined", &base, &fine_overrides).unwrap();
         let depth = 300.0;
         let head = |m: &Model| -> Vec<f64> { m.mesh.centers.iter().map(|z| z - depth).collect() };
         let theta = |m: &Model| -> Vec<f64> {
@@ -335,19 +346,34 @@ mod tests {
     }
 
     #[test]
-    fn reference_text_sets_rtol_and_refines_the_mesh() {
-        let text = "title = \"x\"\n[mesh]\ncells = 600\ngrowth = 1.05\nsurface_cell_m = 0.01\n[time]\nend_year = 1.0\nmethod = \"bdf\"\n";
-        let t: toml::Table = reference_text(text, true).unwrap().parse().unwrap();
-        assert_eq!(t["mesh"]["cells"].as_integer(), Some(1200));
-        assert!((t["mesh"]["growth"].as_float().unwrap() - 1.05f64.sqrt()).abs() < 1e-15);
-        assert_eq!(t["mesh"]["surface_cell_m"].as_float(), Some(0.005));
-        assert_eq!(t["time"]["rtol"].as_float(), Some(REFERENCE_RTOL));
-        assert_eq!(
-            t["time"]["newton_tolerance"].as_float(),
-            Some(REFERENCE_NEWTON_TOL)
-        );
-        assert!(t["time"].get("method").is_none());
-        let same: toml::Table = reference_text(text, false).unwrap().parse().unwrap();
-        assert_eq!(same["mesh"]["cells"].as_integer(), Some(600));
+    fn reference_overrides_set_rtol_and_refine_the_mesh() {
+        let text = "[column]\ndepth_m = 10.0\n[mesh]\ncells = 600\ngrowth = 1.05\nsurface_cell_m = 0.01\n\
+            [soils.s]\nvan_genuchten = { theta_r = 0.05, theta_s = 0.4, alpha_per_m = 2.0, n = 2.0 }\n\
+            saturated_conductivity_m_per_s = 1e-5\nthermal_conductivity_W_per_m_K = 1.5\n\
+            solid_heat_capacity_J_per_m3_K = 2e6\n\
+            [[layers]]\nsoil = \"s\"\ntop_m = 0.0\nbottom_m = 10.0\n\
+            [surface]\ntemperature_C = 15.0\nno_flow = true\n[bottom]\ntemperature_C = 15.0\nhead_m = 0.0\n\
+            [time]\nend_year = 1.0\nmethod = \"backward-euler\"\n";
+        let base = std::path::Path::new(".");
+        let parse = |refine: bool| {
+            let list = reference_overrides(text, refine).unwrap();
+            crate::case::parse_with_overrides(text, "x", base, &list).unwrap()
+        };
+        let plain = crate::case::parse(text, "x", base).unwrap();
+        let (same, fine) = (parse(false), parse(true));
+        assert_eq!(plain.mesh.n_cells(), 600);
+        assert_eq!(same.mesh.n_cells(), 600);
+        assert_eq!(fine.mesh.n_cells(), 1200);
+        assert!((plain.mesh.width_range().0 - 0.01).abs() < 1e-12);
+        assert!((fine.mesh.width_range().0 - 0.005).abs() < 1e-12);
+        assert!(fine
+            .overrides
+            .contains(&format!("mesh.growth={:?}", 1.05f64.sqrt())));
+        assert_eq!(plain.time.method, crate::model::Method::BackwardEuler);
+        for m in [&same, &fine] {
+            assert_eq!(m.time.rtol, REFERENCE_RTOL);
+            assert_eq!(m.time.newton_tolerance, REFERENCE_NEWTON_TOL);
+            assert!(matches!(m.time.method, crate::model::Method::Bdf { .. }));
+        }
     }
 }

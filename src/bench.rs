@@ -3,9 +3,11 @@
 //! residual + Jacobian assembly, and the bare factorise-and-solve of a same-size
 //! block-tridiagonal system with each linear solver (the floor an iteration can approach).
 
+use crate::batch::run_into;
+use crate::case::Override;
 use crate::error::{Error, Result};
 use crate::physics::System;
-use crate::run::{initial_unknowns, run, RunOptions};
+use crate::run::initial_unknowns;
 use crate::solve::blocktri::BlockTri;
 use crate::solve::linear::{make_solver, SolverKind};
 use std::fmt::Write;
@@ -47,38 +49,25 @@ struct Row {
     sparse: f64,
 }
 
-/// Parses a case text (origin and base folder as for `case::parse`) and runs it into the
-/// folder `out`, replacing what is there, without a progress bar.
-pub(crate) fn run_text_into(
-    text: &str,
-    origin: &str,
-    base: &Path,
-    out: &Path,
-) -> Result<(crate::model::Model, crate::run::RunSummary)> {
-    let model = crate::case::parse(text, origin, base)?;
-    let opts = RunOptions {
-        out: Some(out.to_path_buf()),
-        overwrite: true,
-        progress: false,
-        ..Default::default()
-    };
-    let summary = run(&model, &opts)?;
-    Ok((model, summary))
+/// The case text, where it is and the overrides to apply to it.
+struct Workload<'a> {
+    text: &'a str,
+    origin: &'a str,
+    base: &'a Path,
+    overrides: Vec<Override>,
 }
 
-/// Runs `text` `repeat` times (at least once) into `out`; the last run's model and summary
-/// with the shortest and the median wall time [s].
+/// Runs the workload `repeat` times (at least once) into `out`; the last run's model and
+/// summary with the shortest and the median wall time [s].
 fn run_repeated(
-    text: &str,
-    origin: &str,
-    base: &Path,
+    w: &Workload,
     out: &Path,
     repeat: usize,
 ) -> Result<(crate::model::Model, crate::run::RunSummary, f64, f64)> {
     let mut walls = Vec::with_capacity(repeat.max(1));
     let mut last = None;
     for _ in 0..repeat.max(1) {
-        let (model, summary) = run_text_into(text, origin, base, out)?;
+        let (model, summary) = run_into(w.text, w.origin, w.base, &w.overrides, out)?;
         walls.push(summary.wall_seconds);
         last = Some((model, summary));
     }
@@ -87,15 +76,8 @@ fn run_repeated(
     Ok((model, summary, walls[0], walls[walls.len() / 2]))
 }
 
-fn measure(
-    label: &str,
-    text: &str,
-    origin: &str,
-    base: &Path,
-    out: &Path,
-    repeat: usize,
-) -> Result<Row> {
-    let (model, summary, wall, wall_median) = run_repeated(text, origin, base, out, repeat)?;
+fn measure(label: &str, w: &Workload, out: &Path, repeat: usize) -> Result<Row> {
+    let (model, summary, wall, wall_median) = run_repeated(w, out, repeat)?;
     // Component costs at the initial state.
     let mut sys = System::new(&model);
     let n = sys.n;
@@ -154,30 +136,23 @@ fn measure(
     })
 }
 
-/// Replaces the value of `key = ...` on its line in a TOML text (first occurrence); a
-/// value starting with `#` replaces the whole line (drops the key).
-fn set_key(text: &str, key: &str, value: &str) -> String {
-    let mut done = false;
-    text.lines()
-        .map(|l| {
-            if !done && l.trim_start().starts_with(&format!("{key} =")) {
-                done = true;
-                if value.starts_with('#') {
-                    value.to_string()
-                } else {
-                    format!("{key} = {value}")
-                }
-            } else {
-                l.to_string()
-            }
-        })
-        .collect::<Vec<_>>()
-        .join("\n")
+/// The overrides of a scaling run: `cells` uniform cells (the other mesh keys removed)
+/// over `span_years`.
+fn scaling_overrides(cells: usize, span_years: f64) -> Result<Vec<Override>> {
+    Ok(vec![
+        Override::set("mesh.cells", &cells.to_string())?,
+        Override::set("mesh.growth", "1.0")?,
+        Override::remove("mesh.max_cell_m")?,
+        Override::remove("mesh.surface_cell_m")?,
+        Override::remove("mesh.bottom_cell_m")?,
+        Override::remove("mesh.interface_cell_m")?,
+        Override::set("time.end_year", &format!("{span_years:e}"))?,
+    ])
 }
 
 /// Runs the benchmark on `case` (the reference case) and a scaling series over `cells`
-/// for `span_years` on uniform meshes (the case's keys `cells`, `growth`, `end_year` are
-/// rewritten and `surface_cell_m`, `bottom_cell_m` dropped); returns the report table.
+/// for `span_years` on uniform meshes (overrides set `mesh.cells`, `mesh.growth` = 1 and
+/// `time.end_year`, and remove the other mesh keys); returns the report table.
 /// With `accuracy`, the reference case's results are also compared with tight-tolerance
 /// runs ([`crate::accuracy`]) and the comparison appended.
 /// Every run is repeated `repeat` times; the table gives the shortest wall time (the
@@ -220,22 +195,17 @@ fn bench_in(
 ) -> Result<String> {
     // The reference case in a folder of its own: its results stay for the comparison.
     let own = tmp.join("reference");
-    let mut rows = vec![measure("reference case", text, origin, base, &own, repeat)?];
+    let workload = |overrides| Workload {
+        text,
+        origin,
+        base,
+        overrides,
+    };
+    let mut rows = vec![measure("reference case", &workload(vec![]), &own, repeat)?];
     for &n in cells {
         // Uniform cells, so the series differs only in the cell count.
-        let t = set_key(text, "cells", &n.to_string());
-        let t = set_key(&t, "growth", "1.0");
-        let t = set_key(&t, "surface_cell_m", "# (uniform)");
-        let t = set_key(&t, "bottom_cell_m", "# (uniform)");
-        let t = set_key(&t, "end_year", &format!("{span_years:e}"));
-        rows.push(measure(
-            &format!("{span_years} yr span"),
-            &t,
-            origin,
-            base,
-            tmp,
-            repeat,
-        )?);
+        let w = workload(scaling_overrides(n, span_years)?);
+        rows.push(measure(&format!("{span_years} yr span"), &w, tmp, repeat)?);
     }
     let mut out = String::new();
     let _ = writeln!(

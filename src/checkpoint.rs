@@ -159,6 +159,7 @@ fn write_via(
         attr_str(&root, "software_version", env!("CARGO_PKG_VERSION")).map_err(&er)?;
         attr_str(&root, "created", &crate::output::now_utc()).map_err(&er)?;
         attr_str(&root, "case_text", &model.case_text).map_err(&er)?;
+        attr_str(&root, "overrides", &model.overrides.join("\n")).map_err(&er)?;
         attr_str(&root, "physics_hash", &physics_hash(model)).map_err(&er)?;
         attr_str(&root, "column_hash", &column_hash(model)).map_err(&er)?;
         attr_str(&root, "results_file", &results_file.display().to_string()).map_err(&er)?;

@@ -69,6 +69,11 @@ pub fn summary(path: &Path) -> Result<String> {
     let _ = writeln!(out, "file: {}", path.display());
     let _ = writeln!(out, "kind: results");
     let _ = writeln!(out, "case title: {}", attr("title"));
+    if let Ok(o) = read_attr_str(&root, "overrides") {
+        if !o.is_empty() {
+            let _ = writeln!(out, "overrides: {}", o.replace('\n', ", "));
+        }
+    }
     let _ = writeln!(out, "software version: {}", attr("software_version"));
     let _ = writeln!(out, "created: {}", attr("created"));
     let cells = read("mesh/depth").len();

@@ -14,11 +14,13 @@
 //! - [`plot`]     pictures of a results file (SVG, PNG)
 //! - [`error`]    typed errors
 //! - [`verify`]   verification cases, reference solutions and the report
+//! - [`bench`], [`accuracy`] `deepdry bench` (and `--accuracy`), on runs of [`batch`]
 
 // Index loops read like the formulas they implement.
 #![allow(clippy::needless_range_loop)]
 
 pub mod accuracy;
+pub mod batch;
 pub mod bench;
 pub mod case;
 pub mod checkpoint;

@@ -257,6 +257,9 @@ pub struct Model {
     pub title: String,
     /// The case file's full text, stored in results and checkpoints.
     pub case_text: String,
+    /// The overrides applied to the case text (`KEY=VALUE`, in order; empty when none):
+    /// the run is of the case text with these applied.
+    pub overrides: Vec<String>,
     pub mesh: Mesh,
     pub soils: Vec<Soil>,
     pub layers: Vec<Layer>,

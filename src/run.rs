@@ -64,6 +64,8 @@ pub struct RunSummary {
     pub surface_flux_mm_yr: f64,
     pub bottom_flux_mm_yr: f64,
     pub final_state: StepState,
+    /// The overrides applied to the case (`KEY=VALUE`; empty when none).
+    pub overrides: Vec<String>,
 }
 
 impl RunSummary {
@@ -75,7 +77,7 @@ impl RunSummary {
              steps {} (rejected {}), Newton iterations {}, Jacobian evaluations {}, factorisations {}\n\
              water balance error {:.3e} kg m-2 (relative {:.2e}); energy balance error {:.3e} J m-2 (relative {:.2e})\n\
              water flux at the surface {:.6e} mm/yr, at the bottom {:.6e} mm/yr (positive downward)\n\
-             results: {}\n",
+             results: {}\n{}",
             self.start / SECONDS_PER_YEAR,
             self.end / SECONDS_PER_YEAR,
             self.wall_seconds,
@@ -90,7 +92,12 @@ impl RunSummary {
             self.balance_rel[0],
             self.surface_flux_mm_yr,
             self.bottom_flux_mm_yr,
-            self.results.display()
+            self.results.display(),
+            if self.overrides.is_empty() {
+                String::new()
+            } else {
+                format!("overrides: {}\n", self.overrides.join(", "))
+            }
         )
     }
 }
@@ -405,5 +412,6 @@ pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
         surface_flux_mm_yr: mm_per_year(end.surface_water_flux),
         bottom_flux_mm_yr: mm_per_year(end.bottom_water_flux),
         final_state: sim.state().clone(),
+        overrides: model.overrides.clone(),
     })
 }

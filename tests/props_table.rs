@@ -121,6 +121,7 @@ fn model() -> Model {
     Model {
         title: "table test".into(),
         case_text: String::new(),
+        overrides: Vec::new(),
         mesh,
         soils: vec![
             soil("loam", None),

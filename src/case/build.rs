@@ -7,7 +7,7 @@ use super::schedules::{
     self, fmt_g, GEOTHERMAL_FLUX, HEAD, HEAT_FLUX, RELATIVE_HUMIDITY, RESISTANCE, TEMPERATURE,
     T_MAX_C, T_MIN_C, T_NOTE, WATER_FLUX,
 };
-use super::tree::{suggest, Kind, Node, Source, Table, Value};
+use super::tree::{suggest, Kind, Node, Source, Span, Table, Value};
 use crate::error::Error;
 use crate::mesh::{Grading, Mesh, Resolution};
 use crate::model::*;
@@ -112,7 +112,7 @@ fn temperature(v: &Value) -> R<f64> {
 
 static EMPTY_TABLE: Node = Node {
     kind: Kind::Table(Vec::new()),
-    span: None,
+    span: Span::None,
 };
 
 /// An optional section: absent reads as an empty table (all defaults).
@@ -175,6 +175,7 @@ pub fn build(src: &Source) -> R<Model> {
     Ok(Model {
         title,
         case_text: src.text.to_string(),
+        overrides: src.overrides.iter().map(|o| o.to_string()).collect(),
         mesh,
         soils,
         layers,

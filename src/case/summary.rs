@@ -180,6 +180,9 @@ pub fn summary(m: &Model) -> String {
     let mut out = String::new();
     let o = &mut out;
     let _ = writeln!(o, "Case: {}", m.title);
+    if !m.overrides.is_empty() {
+        let _ = writeln!(o, "Overrides: {}", m.overrides.join(", "));
+    }
     let (lo, hi) = m.mesh.width_range();
     let _ = writeln!(
         o,

@@ -3,12 +3,32 @@
 //!
 //! Every table is read with the full list of keys it allows, so an unknown key is an
 //! error (with a "did you mean" suggestion when a known key is close).
+//!
+//! Overrides (`--set KEY=VALUE`, [`super::overrides`]) are applied to this tree before it
+//! is read; the values they bring carry their origin, so an error about one names the
+//! override instead of a place in the file.
 
+use super::overrides::Override;
 use crate::error::Error;
 use std::ops::Range;
 use std::path::{Path, PathBuf};
 
-type Span = Option<Range<usize>>;
+/// Where a value or key was written.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub enum Span {
+    /// A byte range of the case text.
+    File(Range<usize>),
+    /// Override number `k` of [`Source::overrides`]; the byte range is within its value.
+    Set(usize, Range<usize>),
+    /// Nowhere (an absent optional section).
+    None,
+}
+
+impl Span {
+    fn file(r: Option<Range<usize>>) -> Span {
+        r.map_or(Span::None, Span::File)
+    }
+}
 
 /// A parsed TOML value with its location in the source.
 #[derive(Debug, Clone)]
@@ -50,32 +70,74 @@ impl Kind {
     }
 }
 
-/// The document being read: its name, text and folder (for relative paths).
+/// The document being read: its name, text, folder (for relative paths) and the
+/// overrides applied to it.
 #[derive(Debug)]
 pub struct Source<'a> {
     pub origin: &'a str,
     pub text: &'a str,
     pub base_dir: &'a Path,
+    pub overrides: &'a [Override],
 }
 
 impl Source<'_> {
-    /// Parses the text; a syntax error becomes `origin:line:col: TOML syntax error: …`.
+    /// Parses the text and applies the overrides; a syntax error becomes
+    /// `origin:line:col: TOML syntax error: …`.
     pub fn parse(&self) -> Result<Node, Error> {
         let doc = toml_edit::ImDocument::parse(self.text).map_err(|e| {
             let msg = one_line(e.message());
-            Error::input(format!("{}: TOML syntax error: {msg}", self.loc(&e.span())))
+            Error::input(format!(
+                "{}: TOML syntax error: {msg}",
+                self.loc(&Span::file(e.span()))
+            ))
         })?;
-        Ok(convert_table(doc.as_table(), Some(0..0)))
+        let mut root = convert_table(doc.as_table(), Span::File(0..0), &Span::file);
+        for (k, o) in self.overrides.iter().enumerate() {
+            o.apply(&mut root, k)?;
+        }
+        Ok(root)
     }
 
-    /// `origin:line:col`, or `origin` when the span is unknown.
+    /// `origin:line:col`, `--set KEY=VALUE` for a value from an override, or `origin`
+    /// when the span is unknown.
     pub fn loc(&self, span: &Span) -> String {
         match span {
-            Some(r) => {
+            Span::File(r) => {
                 let (line, col) = line_col(self.text, r.start);
                 format!("{}:{line}:{col}", self.origin)
             }
-            None => self.origin.to_string(),
+            Span::Set(k, _) => match self.overrides.get(*k) {
+                Some(o) => format!("--set {o}"),
+                None => self.origin.to_string(),
+            },
+            Span::None => self.origin.to_string(),
+        }
+    }
+
+    /// Whether `span` is the value of an override that sets exactly `path`.
+    fn set_by_override(&self, span: &Span, path: &str) -> bool {
+        matches!(span, Span::Set(k, _) if self.overrides.get(*k).is_some_and(|o| o.path() == path))
+    }
+
+    /// `loc: path`, or only `--set KEY=VALUE` when the override sets exactly `path`.
+    pub fn at(&self, span: &Span, path: &str) -> String {
+        if self.set_by_override(span, path) {
+            self.loc(span)
+        } else {
+            format!("{}: {path}", self.loc(span))
+        }
+    }
+
+    /// The text a span covers (in the case text or in an override's value).
+    fn written(&self, span: &Span) -> &str {
+        match span {
+            Span::File(r) => self.text.get(r.clone()).unwrap_or(""),
+            Span::Set(k, r) => self
+                .overrides
+                .get(*k)
+                .and_then(|o| o.value_text().get(r.clone()))
+                .unwrap_or(""),
+            Span::None => "",
         }
     }
 
@@ -106,37 +168,41 @@ pub fn one_line(s: &str) -> String {
         .join("; ")
 }
 
-fn convert_table(t: &toml_edit::Table, span: Span) -> Node {
+/// How a parsed range becomes a [`Span`] (in the file, or in an override's value).
+pub(crate) type SpanOf<'f> = &'f dyn Fn(Option<Range<usize>>) -> Span;
+
+fn convert_table(t: &toml_edit::Table, span: Span, at: SpanOf) -> Node {
     let entries = t
         .iter()
         .map(|(k, item)| Entry {
             key: k.to_string(),
-            key_span: t.key(k).and_then(|k| k.span()),
-            node: convert_item(item),
+            key_span: at(t.key(k).and_then(|k| k.span())),
+            node: convert_item(item, at),
         })
         .collect();
+    let own = at(t.span());
     Node {
         kind: Kind::Table(entries),
-        span: t.span().or(span),
+        span: if own == Span::None { span } else { own },
     }
 }
 
-fn convert_item(item: &toml_edit::Item) -> Node {
+pub(crate) fn convert_item(item: &toml_edit::Item, at: SpanOf) -> Node {
     match item {
-        toml_edit::Item::Value(v) => convert_value(v),
-        toml_edit::Item::Table(t) => convert_table(t, None),
+        toml_edit::Item::Value(v) => convert_value(v, at),
+        toml_edit::Item::Table(t) => convert_table(t, Span::None, at),
         toml_edit::Item::ArrayOfTables(a) => Node {
-            kind: Kind::Array(a.iter().map(|t| convert_table(t, None)).collect()),
-            span: a.span(),
+            kind: Kind::Array(a.iter().map(|t| convert_table(t, Span::None, at)).collect()),
+            span: at(a.span()),
         },
         toml_edit::Item::None => Node {
             kind: Kind::Table(vec![]),
-            span: None,
+            span: Span::None,
         },
     }
 }
 
-fn convert_value(v: &toml_edit::Value) -> Node {
+fn convert_value(v: &toml_edit::Value, at: SpanOf) -> Node {
     use toml_edit::Value as V;
     let kind = match v {
         V::String(s) => Kind::Str(s.value().clone()),
@@ -144,20 +210,20 @@ fn convert_value(v: &toml_edit::Value) -> Node {
         V::Float(f) => Kind::Float(*f.value()),
         V::Boolean(b) => Kind::Bool(*b.value()),
         V::Datetime(_) => Kind::Datetime,
-        V::Array(a) => Kind::Array(a.iter().map(convert_value).collect()),
+        V::Array(a) => Kind::Array(a.iter().map(|x| convert_value(x, at)).collect()),
         V::InlineTable(t) => Kind::Table(
             t.iter()
                 .map(|(k, v)| Entry {
                     key: k.to_string(),
-                    key_span: t.key(k).and_then(|k| k.span()),
-                    node: convert_value(v),
+                    key_span: at(t.key(k).and_then(|k| k.span())),
+                    node: convert_value(v, at),
                 })
                 .collect(),
         ),
     };
     Node {
         kind,
-        span: v.span(),
+        span: at(v.span()),
     }
 }
 
@@ -222,13 +288,9 @@ impl<'a> Value<'a> {
         }
     }
 
-    /// The value as written in the file (one line, shortened).
+    /// The value as written in the file or the override (one line, shortened).
     pub fn written(&self) -> String {
-        let raw = match &self.node.span {
-            Some(r) => self.src.text.get(r.clone()).unwrap_or("").to_string(),
-            None => String::new(),
-        };
-        let raw = one_line(&raw);
+        let raw = one_line(self.src.written(&self.node.span));
         if raw.chars().count() > 40 {
             format!("{}…", raw.chars().take(40).collect::<String>())
         } else {
@@ -242,19 +304,19 @@ impl<'a> Value<'a> {
         if written.is_empty() || matches!(self.node.kind, Kind::Table(_)) {
             return self.err_at(msg);
         }
-        Error::input(format!(
-            "{}: {} = {written}: {msg}",
-            self.src.loc(&self.node.span),
-            self.path
-        ))
+        let at = self.src.at(&self.node.span, &self.path);
+        if self.src.set_by_override(&self.node.span, &self.path) {
+            // The override names the key and the value.
+            return Error::input(format!("{at}: {msg}"));
+        }
+        Error::input(format!("{at} = {written}: {msg}"))
     }
 
     /// `loc: path: msg` (without the value).
     pub fn err_at(&self, msg: impl std::fmt::Display) -> Error {
         Error::input(format!(
-            "{}: {}: {msg}",
-            self.src.loc(&self.node.span),
-            self.path
+            "{}: {msg}",
+            self.src.at(&self.node.span, &self.path)
         ))
     }
 
@@ -386,9 +448,8 @@ impl<'a> Table<'a> {
                 None => format!("; allowed here: {}", quoted_list(allowed, "`")),
             };
             return Err(Error::input(format!(
-                "{}: {}: unknown key `{}`{hint}",
-                self.src.loc(&e.key_span),
-                self.child_path(&e.key),
+                "{}: unknown key `{}`{hint}",
+                self.src.at(&e.key_span, &self.child_path(&e.key)),
                 e.key
             )));
         }
@@ -418,8 +479,9 @@ impl<'a> Table<'a> {
             .entries
             .iter()
             .find(|e| e.key == key)
-            .and_then(|e| e.key_span.clone());
-        self.src.loc(&span.or(self.span.clone()))
+            .map(|e| e.key_span.clone())
+            .filter(|s| *s != Span::None);
+        self.src.loc(&span.unwrap_or(self.span.clone()))
     }
 
     /// `loc: path: msg` at the table itself.

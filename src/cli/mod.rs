@@ -21,11 +21,19 @@ pub enum Command {
     Check {
         /// The case file (TOML).
         case: PathBuf,
+        /// Change a key of the case, e.g. `--set time.end_year=2e4` (repeatable; KEY as in
+        /// the file, [k] for the k-th element of an array from 1; VALUE in TOML syntax).
+        #[arg(long = "set", value_name = "KEY=VALUE")]
+        set: Vec<String>,
     },
     /// Run a case: write the results file and print a summary.
     Run {
         /// The case file (TOML).
         case: PathBuf,
+        /// Change a key of the case, e.g. `--set time.end_year=2e4` (repeatable; KEY as in
+        /// the file, [k] for the k-th element of an array from 1; VALUE in TOML syntax).
+        #[arg(long = "set", value_name = "KEY=VALUE")]
+        set: Vec<String>,
         /// Output folder (default: the case's `output.folder`).
         #[arg(long)]
         out: Option<PathBuf>,
@@ -149,6 +157,13 @@ pub fn one_line(e: Error) -> Error {
     }
 }
 
+/// The `--set` arguments as overrides.
+fn overrides(set: &[String]) -> Result<Vec<crate::case::Override>> {
+    set.iter()
+        .map(|s| crate::case::Override::parse(s))
+        .collect()
+}
+
 /// Runs one command.
 pub fn dispatch(cli: Cli) -> Result<()> {
     // HDF5's own error stack printing would bury our one-line messages.
@@ -158,13 +173,14 @@ pub fn dispatch(cli: Cli) -> Result<()> {
 
 fn run_command(cli: Cli) -> Result<()> {
     match cli.command {
-        Command::Check { case } => {
-            let model = crate::case::load(&case)?;
+        Command::Check { case, set } => {
+            let model = crate::case::load_with_overrides(&case, &overrides(&set)?)?;
             print!("{}", crate::case::summary(&model));
             Ok(())
         }
         Command::Run {
             case,
+            set,
             out,
             overwrite,
             quiet,
@@ -172,7 +188,7 @@ fn run_command(cli: Cli) -> Result<()> {
             resume,
             start_from,
         } => {
-            let model = crate::case::load(&case)?;
+            let model = crate::case::load_with_overrides(&case, &overrides(&set)?)?;
             crate::run::install_signal_handlers()?;
             let start = match (resume, start_from) {
                 (Some(p), _) => crate::run::Start::Resume(p),

@@ -1,8 +1,9 @@
 //! The results file (HDF5), one per run, written as the run goes.
 //!
 //! Layout (the names are the contract downstream scripts use):
-//! - root attributes `title`, `software_version`, `created`, `case_text`, `time_unit` = `year`,
-//!   `kind` = `deepdry-results`
+//! - root attributes `title`, `software_version`, `created`, `case_text`, `overrides` (the
+//!   `--set KEY=VALUE` overrides applied to the case text, one a line; empty when none),
+//!   `time_unit` = `year`, `kind` = `deepdry-results`
 //! - `/mesh/depth` [cells], `/mesh/face_depth` [cells+1], `/mesh/layer` [cells],
 //!   `/mesh/layer_names`
 //! - `/profiles/time` [snapshots] and [snapshots × cells] `temperature`, `head`,
@@ -206,6 +207,7 @@ impl ResultsFile {
         attr_str(&root, "software_version", env!("CARGO_PKG_VERSION")).map_err(&e)?;
         attr_str(&root, "created", &crate::output::now_utc()).map_err(&e)?;
         attr_str(&root, "case_text", &model.case_text).map_err(&e)?;
+        attr_str(&root, "overrides", &model.overrides.join("\n")).map_err(&e)?;
         attr_str(&root, "time_unit", "year").map_err(&e)?;
 
         let mesh = file.create_group("mesh").map_err(&e)?;

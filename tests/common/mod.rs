@@ -75,6 +75,7 @@ pub fn column(
     Model {
         title: "test column".into(),
         case_text: String::new(),
+        overrides: Vec::new(),
         layers: vec![Layer {
             name: "all".into(),
             soil: 0,

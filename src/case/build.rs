@@ -387,26 +387,10 @@ fn read_retention(t: &Table) -> R<RetentionLaw> {
     })
 }
 
-fn porosity(law: &RetentionLaw) -> f64 {
-    match law {
-        RetentionLaw::VanGenuchten { theta_s, .. }
-        | RetentionLaw::BrooksCorey { theta_s, .. }
-        | RetentionLaw::Exponential { theta_s, .. } => *theta_s,
-    }
-}
-
-fn residual(law: &RetentionLaw) -> f64 {
-    match law {
-        RetentionLaw::VanGenuchten { theta_r, .. }
-        | RetentionLaw::BrooksCorey { theta_r, .. }
-        | RetentionLaw::Exponential { theta_r, .. } => *theta_r,
-    }
-}
-
 fn read_soil(name: &str, v: &Value) -> R<Soil> {
     let t = v.table(SOIL_KEYS)?;
     let law = read_retention(&t)?;
-    let phi = porosity(&law);
+    let phi = law.theta_s();
     let dry_end = match t.get("dry_end") {
         Some(d) => {
             d.choice(&["fayer-simmons"])?;
@@ -1119,9 +1103,9 @@ fn read_profile(file: &Value, depth: f64, soils: &[Soil], layers: &[Layer]) -> R
                 if soil.retention.dry_end.is_some() {
                     0.0
                 } else {
-                    residual(&soil.retention.law)
+                    soil.retention.law.theta_r()
                 },
-                porosity(&soil.retention.law),
+                soil.retention.law.theta_s(),
             );
             if !(theta > lo && theta <= hi) {
                 return Err(cols.err(

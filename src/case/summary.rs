@@ -7,7 +7,7 @@ use super::schedules::{
 use crate::model::*;
 use crate::props::conductivity::FaceAveraging;
 use crate::props::constants::{CELSIUS_ZERO, SECONDS_PER_YEAR};
-use crate::props::retention::{DryEnd, RetentionLaw};
+use crate::props::retention::DryEnd;
 use crate::props::thermal::ThermalConductivity;
 use crate::props::vapor::Enhancement;
 use crate::schedule::Schedule;
@@ -90,46 +90,7 @@ fn periods<T>(out: &mut String, p: &Periods<T>, show: fn(&T) -> String) {
 }
 
 fn soil(s: &Soil) -> String {
-    let law = match &s.retention.law {
-        RetentionLaw::VanGenuchten {
-            theta_r,
-            theta_s,
-            alpha,
-            n,
-            l,
-        } => format!(
-            "van Genuchten–Mualem θr {}, θs {}, α {} 1/m, n {}, l {}",
-            fmt_g(*theta_r),
-            fmt_g(*theta_s),
-            fmt_g(*alpha),
-            fmt_g(*n),
-            fmt_g(*l)
-        ),
-        RetentionLaw::BrooksCorey {
-            theta_r,
-            theta_s,
-            air_entry,
-            lambda,
-            l,
-        } => format!(
-            "Brooks–Corey–Mualem θr {}, θs {}, |hb| {} m, λ {}, l {}",
-            fmt_g(*theta_r),
-            fmt_g(*theta_s),
-            fmt_g(*air_entry),
-            fmt_g(*lambda),
-            fmt_g(*l)
-        ),
-        RetentionLaw::Exponential {
-            theta_r,
-            theta_s,
-            alpha,
-        } => format!(
-            "exponential θr {}, θs {}, α {} 1/m",
-            fmt_g(*theta_r),
-            fmt_g(*theta_s),
-            fmt_g(*alpha)
-        ),
-    };
+    let law = s.retention.law.describe(fmt_g);
     let dry = match &s.retention.dry_end {
         Some(DryEnd::FayerSimmons { oven_dry_head }) => {
             format!(", Fayer–Simmons dry end to {} m", fmt_g(*oven_dry_head))

@@ -113,14 +113,61 @@ struct Base {
 }
 
 impl RetentionLaw {
-    fn theta_r(&self) -> f64 {
+    /// One line naming the law and its parameters with units (for `deepdry check`),
+    /// numbers formatted by `g`.
+    pub fn describe(&self, g: impl Fn(f64) -> String) -> String {
+        match *self {
+            RetentionLaw::VanGenuchten {
+                theta_r,
+                theta_s,
+                alpha,
+                n,
+                l,
+            } => format!(
+                "van Genuchten–Mualem θr {}, θs {}, α {} 1/m, n {}, l {}",
+                g(theta_r),
+                g(theta_s),
+                g(alpha),
+                g(n),
+                g(l)
+            ),
+            RetentionLaw::BrooksCorey {
+                theta_r,
+                theta_s,
+                air_entry,
+                lambda,
+                l,
+            } => format!(
+                "Brooks–Corey–Mualem θr {}, θs {}, |hb| {} m, λ {}, l {}",
+                g(theta_r),
+                g(theta_s),
+                g(air_entry),
+                g(lambda),
+                g(l)
+            ),
+            RetentionLaw::Exponential {
+                theta_r,
+                theta_s,
+                alpha,
+            } => format!(
+                "exponential θr {}, θs {}, α {} 1/m",
+                g(theta_r),
+                g(theta_s),
+                g(alpha)
+            ),
+        }
+    }
+
+    /// Residual liquid content θr [m³ m⁻³].
+    pub fn theta_r(&self) -> f64 {
         match *self {
             RetentionLaw::VanGenuchten { theta_r, .. }
             | RetentionLaw::BrooksCorey { theta_r, .. }
             | RetentionLaw::Exponential { theta_r, .. } => theta_r,
         }
     }
-    fn theta_s(&self) -> f64 {
+    /// Saturated liquid content θs [m³ m⁻³].
+    pub fn theta_s(&self) -> f64 {
         match *self {
             RetentionLaw::VanGenuchten { theta_s, .. }
             | RetentionLaw::BrooksCorey { theta_s, .. }

@@ -583,6 +583,16 @@ impl<const B: usize> Stepper<B> {
             }
             return Verdict::Reject { dt_try };
         }
+        if err > 1.0 {
+            // Accepted only because the step cannot shrink further (Δt at its minimum):
+            // the history is no base for a high-order formula here (a front entering
+            // saturated soil gave order-5 estimates of 15–25 at the minimum step, and the
+            // next predictor started Newton far off). Restart at order 1.
+            s.order = 1;
+            s.steps_at_order = 0;
+            s.last_error = 0.0;
+            return Verdict::Accept { factor: 1.0 };
+        }
         let cap = self.opts.max_growth;
         let mut factor = growth_factor(err, k, cap);
         // Predictive control (Gustafsson 1994; Hairer & Wanner 1996, IV.8): when the

@@ -77,6 +77,17 @@ pub enum Command {
         /// A deepdry results or checkpoint file (HDF5).
         file: PathBuf,
     },
+    /// Compare a results file with measured profiles: statistics per quantity, the
+    /// matched observations (CSV) and a figure per quantity.
+    Compare {
+        /// A deepdry results file (HDF5).
+        results: PathBuf,
+        /// Observations: CSV with `time_year,depth_m,quantity,value,sigma`.
+        observations: PathBuf,
+        /// Output folder (default: the results file's folder).
+        #[arg(long)]
+        out: Option<PathBuf>,
+    },
     /// Draw profiles and time series of a results file as SVG and PNG.
     Plot {
         /// The results file (HDF5) written by `deepdry run`.
@@ -239,6 +250,24 @@ fn run_command(cli: Cli) -> Result<()> {
                 log_time,
             };
             for p in crate::plot::plot_results(&results, &opts)? {
+                println!("{}", p.display());
+            }
+            Ok(())
+        }
+        Command::Compare {
+            results,
+            observations,
+            out,
+        } => {
+            let out = out.unwrap_or_else(|| {
+                results
+                    .parent()
+                    .map(|p| p.to_path_buf())
+                    .unwrap_or_else(|| PathBuf::from("."))
+            });
+            let o = crate::fit::compare::compare(&results, &observations, &out)?;
+            print!("{}", crate::fit::compare::table(&o.stats));
+            for p in &o.files {
                 println!("{}", p.display());
             }
             Ok(())

@@ -145,7 +145,7 @@ fn title_of(res: &Results) -> String {
 use data::Results;
 
 /// The depth axis: surface at the top, linear, over the whole column.
-fn depth_axis(res: &Results) -> Axis {
+pub(crate) fn depth_axis(res: &Results) -> Axis {
     let bottom = res.face_depth.last().copied().unwrap_or(1.0);
     let top = res.face_depth.first().copied().unwrap_or(0.0);
     let (top, bottom) = if bottom > top {
@@ -156,7 +156,7 @@ fn depth_axis(res: &Results) -> Axis {
     Axis::new(Scale::Linear, top, bottom).reversed()
 }
 
-fn axis_for(scale: Scale, values: impl IntoIterator<Item = f64>) -> Axis {
+pub(crate) fn axis_for(scale: Scale, values: impl IntoIterator<Item = f64>) -> Axis {
     let (lo, hi) = scale.range_for(values).unwrap_or(match scale {
         Scale::Linear => (0.0, 1.0),
         Scale::Log => (1e-3, 1.0),

@@ -88,6 +88,19 @@ pub enum Command {
         #[arg(long)]
         out: Option<PathBuf>,
     },
+    /// Fit parameters of a case to an observation file (weighted least squares,
+    /// Levenberg–Marquardt): estimates, standard errors, correlations, the fitted case.
+    Fit {
+        /// The fit file (TOML: case, observations, [[parameters]] with key, initial, min,
+        /// max, log).
+        fit: PathBuf,
+        /// Output folder (default: `fit` beside the fit file).
+        #[arg(long)]
+        out: Option<PathBuf>,
+        /// Model runs at once (default: the machine's cores).
+        #[arg(long, value_parser = clap::value_parser!(u16).range(1..=1024))]
+        jobs: Option<u16>,
+    },
     /// Draw profiles and time series of a results file as SVG and PNG.
     Plot {
         /// The results file (HDF5) written by `deepdry run`.
@@ -270,6 +283,45 @@ fn run_command(cli: Cli) -> Result<()> {
             for p in &o.files {
                 println!("{}", p.display());
             }
+            Ok(())
+        }
+        Command::Fit { fit, out, jobs } => {
+            let file = crate::fit::fitting::read_fit_file(&fit)?;
+            let out = out.unwrap_or_else(|| {
+                fit.parent()
+                    .map(|p| p.join("fit"))
+                    .unwrap_or_else(|| PathBuf::from("fit"))
+            });
+            let workers = jobs
+                .map(usize::from)
+                .unwrap_or_else(|| std::thread::available_parallelism().map_or(1, |n| n.get()));
+            let r = crate::fit::fitting::fit(&file, workers)?;
+            println!(
+                "fit: {} iterations, {} model runs, objective {:.6e} (reduced chi-square {:.4}), stopped: {}",
+                r.result.iterations, r.runs, r.result.objective, r.result.reduced_chi_square, r.result.stop
+            );
+            for (k, p) in file.parameters.iter().enumerate() {
+                println!(
+                    "  {} = {:.6e} ± {:.3e}",
+                    p.key, r.result.estimate[k], r.result.standard_error[k]
+                );
+            }
+            for w in &r.warnings {
+                println!("warning: {w}");
+            }
+            for p in crate::fit::fitting::write_outputs(&r, &out)? {
+                println!("{}", p.display());
+            }
+            match crate::fit::fitting::compare_at_optimum(&r, &out) {
+                Ok(o) => {
+                    print!("{}", crate::fit::compare::table(&o.stats));
+                    for p in &o.files {
+                        println!("{}", p.display());
+                    }
+                }
+                Err(e) => println!("warning: no comparison at the optimum: {e}"),
+            }
+            println!("Model estimates from a fit, not a substitute for site investigation.");
             Ok(())
         }
         Command::Verify { only, report } => crate::verify::command(only, report),

@@ -367,6 +367,9 @@ pub fn minimize(
                 Ok(rn) if rn.len() == m => sum_sq(rn),
                 _ => f64::INFINITY,
             };
+            log::debug!(
+                "fit iteration {iterations}: lambda {lambda:.2e}, objective {s_cur:.6e} -> {s_new:.6e}"
+            );
             if s_new < s_cur {
                 let gain = (s_cur - s_new) / s_cur.max(f64::MIN_POSITIVE);
                 x = x_new;

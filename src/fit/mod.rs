@@ -5,7 +5,10 @@
 //! - [`observations`]  the observation file (`time_year,depth_m,quantity,value,sigma`)
 //! - [`compare`]       model values at the observed times and depths, statistics per
 //!   quantity (`deepdry compare`)
+//! - [`fitting`]       `deepdry fit`: the fit file, model runs in memory in parallel, the
+//!   summary (JSON) and the fitted case
 
 pub mod compare;
+pub mod fitting;
 pub mod lm;
 pub mod observations;

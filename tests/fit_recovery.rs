@@ -160,3 +160,32 @@ fn malformed_fit_files_are_refused_in_one_line() {
     let o = deepdry(&["fit", arg(&f), "--out", arg(&dir.join("out"))]);
     assert_one_line_error(&o, 2, &["nn", "did you mean"]);
 }
+
+/// The surface and bottom temperatures seen through one temperature observation in the
+/// middle of the column: the (nearly linear) profile there depends on their mean only,
+/// so the two trade off; the fit must say so instead of giving a confident answer.
+#[test]
+fn parameters_that_trade_off_are_reported_as_not_identifiable() {
+    let dir = Scratch::new("fit-tradeoff");
+    dir.write("case.toml", &quickstart());
+    dir.write(
+        "obs.csv",
+        "time_year,depth_m,quantity,value,sigma\n100,10,temperature_C,22.6,0.05\n",
+    );
+    let f = dir.write(
+        "fit.toml",
+        "case = \"case.toml\"\nobservations = \"obs.csv\"\nmax_iterations = 10\n[[parameters]]\nkey = \"surface.temperature_C\"\ninitial = 20.0\nmin = 10.0\nmax = 30.0\n[[parameters]]\nkey = \"bottom.temperature_C\"\ninitial = 20.0\nmin = 10.0\nmax = 30.0\n",
+    );
+    let file = read_fit_file(&f).unwrap();
+    let r = fit(&file, 2).unwrap();
+    assert!(
+        r.result.near_singular || r.result.unidentifiable.contains(&(0, 1)),
+        "{:?}",
+        r.result
+    );
+    assert!(
+        r.warnings.iter().any(|w| w.contains("not identifiable")),
+        "{:?}",
+        r.warnings
+    );
+}

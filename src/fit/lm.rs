@@ -252,6 +252,44 @@ fn rcond_scaled(a: &[f64], n: usize) -> f64 {
     }
 }
 
+/// The Jacobian of the residuals at `x` (column-major, m×n) by forward differences of
+/// `step`·max(|x_j|, 1) in one batch of n evaluations; a step that would leave the box
+/// goes backward.
+#[allow(clippy::too_many_arguments)]
+fn fd_jacobian(
+    residuals: &mut dyn Residuals,
+    to_p: &dyn Fn(&[f64]) -> Vec<f64>,
+    x: &[f64],
+    bounds: &[(f64, f64)],
+    r: &[f64],
+    step: f64,
+    jac: &mut [f64],
+) -> Result<(), String> {
+    let (n, m) = (x.len(), r.len());
+    let mut points = Vec::with_capacity(n);
+    let mut steps = Vec::with_capacity(n);
+    for j in 0..n {
+        let mut h = step * x[j].abs().max(1.0);
+        if x[j] + h > bounds[j].1 {
+            h = -h;
+        }
+        let mut xp = x.to_vec();
+        xp[j] += h;
+        points.push(to_p(&xp));
+        steps.push(h);
+    }
+    for (j, col) in residuals.eval_batch(&points).into_iter().enumerate() {
+        let rj = col.map_err(|e| format!("the model failed in a derivative run: {e}"))?;
+        if rj.len() != m {
+            return Err("residual vectors of different lengths".into());
+        }
+        for i in 0..m {
+            jac[j * m + i] = (rj[i] - r[i]) / steps[j];
+        }
+    }
+    Ok(())
+}
+
 /// Minimises Σ r(p)² from `specs[k].initial` within the bounds.
 pub fn minimize(
     specs: &[ParamSpec],
@@ -302,30 +340,8 @@ pub fn minimize(
     let mut jac = vec![0.0; m * n];
     'outer: while iterations < opts.max_iterations {
         iterations += 1;
-        // Forward differences, one batch; a step that would leave the box goes backward.
-        let mut points = Vec::with_capacity(n);
-        let mut steps = Vec::with_capacity(n);
-        for j in 0..n {
-            let mut h = opts.fd_step * x[j].abs().max(1.0);
-            if x[j] + h > bounds[j].1 {
-                h = -h;
-            }
-            let mut xp = x.clone();
-            xp[j] += h;
-            points.push(to_p(&xp));
-            steps.push(h);
-        }
-        let cols = residuals.eval_batch(&points);
+        fd_jacobian(residuals, &to_p, &x, &bounds, &r, opts.fd_step, &mut jac)?;
         evaluations += n;
-        for (j, col) in cols.into_iter().enumerate() {
-            let rj = col.map_err(|e| format!("the model failed in a derivative run: {e}"))?;
-            if rj.len() != m {
-                return Err("residual vectors of different lengths".into());
-            }
-            for i in 0..m {
-                jac[j * m + i] = (rj[i] - r[i]) / steps[j];
-            }
-        }
         let (jtj, jtr) = normal_equations(&jac, &r, m, n);
         // Damped steps until one lowers S.
         loop {
@@ -397,28 +413,10 @@ pub fn minimize(
             }
         }
     }
-    // Covariance at the estimate from the last Jacobian (at the point before the last
-    // accepted step when it was accepted in the final iteration: refresh it).
-    let mut points = Vec::with_capacity(n);
-    let mut steps = Vec::with_capacity(n);
-    for j in 0..n {
-        let mut h = opts.fd_step * x[j].abs().max(1.0);
-        if x[j] + h > bounds[j].1 {
-            h = -h;
-        }
-        let mut xp = x.clone();
-        xp[j] += h;
-        points.push(to_p(&xp));
-        steps.push(h);
-    }
-    let cols = residuals.eval_batch(&points);
+    // Covariance from a Jacobian at the estimate itself (the last one was taken before
+    // the final accepted step).
+    fd_jacobian(residuals, &to_p, &x, &bounds, &r, opts.fd_step, &mut jac)?;
     evaluations += n;
-    for (j, col) in cols.into_iter().enumerate() {
-        let rj = col.map_err(|e| format!("the model failed in a derivative run: {e}"))?;
-        for i in 0..m {
-            jac[j * m + i] = (rj[i] - r[i]) / steps[j];
-        }
-    }
     let (jtj, _) = normal_equations(&jac, &r, m, n);
     let rcond = rcond_scaled(&jtj, n);
     let near_singular = rcond < 1e-10;

@@ -417,3 +417,35 @@ fn a_checkpoint_interval_too_fine_for_the_run_is_refused_before_anything_is_writ
     );
     assert!(!out.exists());
 }
+
+/// Output into a pipe that closes early (`deepdry table water | head -1`) ends the process
+/// by SIGPIPE, quietly, as other command-line tools do — never a panic message.
+#[test]
+fn a_closed_output_pipe_ends_quietly() {
+    use std::io::Read;
+    use std::process::{Command, Stdio};
+    let mut child = Command::new(support::bin())
+        .args(["table", "water", "--step", "0.001"])
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .unwrap();
+    let mut first = [0u8; 64];
+    child
+        .stdout
+        .as_mut()
+        .unwrap()
+        .read_exact(&mut first)
+        .unwrap();
+    drop(child.stdout.take());
+    let mut err = String::new();
+    child
+        .stderr
+        .as_mut()
+        .unwrap()
+        .read_to_string(&mut err)
+        .unwrap();
+    let status = child.wait().unwrap();
+    assert!(!err.contains("panicked"), "{err}");
+    assert!(!status.success(), "{status:?}");
+}

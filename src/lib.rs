@@ -12,6 +12,7 @@
 //! - [`run`]      `deepdry run`: start modes, the output folder, signals
 //! - [`output`]   results files (HDF5)
 //! - [`plot`]     pictures of a results file (SVG, PNG)
+//! - [`ensemble`] plans, sampling, members on threads or job-array shards, collect
 //! - [`fit`]      observation files, `deepdry compare`, Levenberg–Marquardt fitting
 //! - [`error`]    typed errors
 //! - [`verify`]   verification cases, reference solutions and the report
@@ -26,6 +27,7 @@ pub mod bench;
 pub mod case;
 pub mod checkpoint;
 pub mod cli;
+pub mod ensemble;
 pub mod error;
 pub mod fit;
 pub mod inspect;

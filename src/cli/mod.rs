@@ -130,6 +130,43 @@ pub enum Command {
         #[command(subcommand)]
         what: TableCommand,
     },
+    /// Ensembles: run a plan's members (on threads, or as one shard of a job array),
+    /// merge them, say what is done.
+    Ensemble {
+        #[command(subcommand)]
+        what: EnsembleCommand,
+    },
+}
+
+#[derive(Debug, Subcommand)]
+pub enum EnsembleCommand {
+    /// Run the members of a plan not yet written (resumable).
+    Run {
+        /// The plan file (TOML with an [ensemble] section).
+        plan: PathBuf,
+        /// Output folder (default: `ensemble` beside the plan file).
+        #[arg(long)]
+        out: Option<PathBuf>,
+        /// Worker threads, one member each (default: the machine's cores).
+        #[arg(long, value_parser = clap::value_parser!(u16).range(1..=1024))]
+        jobs: Option<u16>,
+        /// Only the members i with i mod N = K (a job-array task: K/N, K from 0).
+        #[arg(long, value_name = "K/N")]
+        shard: Option<String>,
+        /// No progress bar.
+        #[arg(long)]
+        quiet: bool,
+    },
+    /// Merge the members of an ensemble folder into ensemble.h5.
+    Collect {
+        /// The ensemble folder.
+        dir: PathBuf,
+    },
+    /// Say which members are done, failed and missing.
+    Status {
+        /// The ensemble folder.
+        dir: PathBuf,
+    },
 }
 
 #[derive(Debug, Subcommand)]
@@ -324,6 +361,7 @@ fn run_command(cli: Cli) -> Result<()> {
             println!("Model estimates from a fit, not a substitute for site investigation.");
             Ok(())
         }
+        Command::Ensemble { what } => ensemble_command(what),
         Command::Verify { only, report } => crate::verify::command(only, report),
         Command::Table { what } => match what {
             TableCommand::Water { from, to, step } => {
@@ -336,5 +374,77 @@ fn run_command(cli: Cli) -> Result<()> {
                 Ok(())
             }
         },
+    }
+}
+
+fn ensemble_command(what: EnsembleCommand) -> Result<()> {
+    use crate::ensemble::{self, Member};
+    match what {
+        EnsembleCommand::Run {
+            plan,
+            out,
+            jobs,
+            shard,
+            quiet,
+        } => {
+            let p = ensemble::plan::read(&plan)?;
+            let out = out.unwrap_or_else(|| {
+                plan.parent()
+                    .map(|d| d.join("ensemble"))
+                    .unwrap_or_else(|| PathBuf::from("ensemble"))
+            });
+            let shard = match shard {
+                Some(s) => ensemble::parse_shard(&s)?,
+                None => (0, 1),
+            };
+            let workers = jobs
+                .map(usize::from)
+                .unwrap_or_else(|| std::thread::available_parallelism().map_or(1, |n| n.get()));
+            let c = ensemble::run(&p, &out, workers, shard, !quiet)?;
+            println!(
+                "ensemble: {} members run ({} failed), {} already done, shard {}/{} of {} members; {}",
+                c.ran,
+                c.failed,
+                c.skipped,
+                shard.0,
+                shard.1,
+                p.member_count(),
+                out.display()
+            );
+            Ok(())
+        }
+        EnsembleCommand::Collect { dir } => {
+            let (path, [done, failed, missing]) = ensemble::collect(&dir)?;
+            println!(
+                "{}: {done} done, {failed} failed, {missing} missing",
+                path.display()
+            );
+            Ok(())
+        }
+        EnsembleCommand::Status { dir } => {
+            let (p, members) = ensemble::status(&dir)?;
+            let done = members
+                .iter()
+                .filter(|m| matches!(m, Member::Done { .. }))
+                .count();
+            let failed: Vec<usize> = members
+                .iter()
+                .enumerate()
+                .filter(|(_, m)| matches!(m, Member::Failed { .. }))
+                .map(|(i, _)| i)
+                .collect();
+            let missing = members.iter().filter(|m| **m == Member::Missing).count();
+            println!(
+                "{} members: {done} done, {} failed, {missing} missing",
+                p.member_count(),
+                failed.len()
+            );
+            for i in failed {
+                if let Member::Failed { error, .. } = &members[i] {
+                    println!("  member {i} failed: {error}");
+                }
+            }
+            Ok(())
+        }
     }
 }

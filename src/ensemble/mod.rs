@@ -1,0 +1,477 @@
+//! Ensembles: many runs of one case with parameters drawn by a plan, on the cores of one
+//! machine or as the tasks of a batch scheduler's job array (`--shard K/N`), merged into
+//! one file afterwards. deepdry schedules nothing across machines itself.
+//!
+//! - [`plan`]: the plan file and the sampling (member i's parameters are a pure function
+//!   of the plan, its seed and i).
+//! - [`run`]: the members of a shard on worker threads (each member single-threaded, in
+//!   memory); each member writes `members/member-NNNNNN.txt` atomically; members already
+//!   written are skipped, so a killed ensemble resumes; a failed member records its error.
+//! - [`collect`]: all member files into `ensemble.h5` (member × time series, parameters,
+//!   status, quantiles over the members that ran), identical whatever the workers or
+//!   shards were.
+//! - [`status`]: what is done, failed and missing.
+
+pub mod plan;
+
+use crate::error::{Error, Result};
+use crate::output::diagnostics::SeriesRecord;
+use crate::solve::linear::SolverKind;
+use plan::Plan;
+use std::path::{Path, PathBuf};
+use std::sync::atomic::{AtomicUsize, Ordering};
+
+/// Quantiles stored by [`collect`] (probabilities).
+pub const QUANTILES: [f64; 5] = [0.05, 0.25, 0.5, 0.75, 0.95];
+
+/// The file of member `i`.
+pub fn member_file(dir: &Path, i: usize) -> PathBuf {
+    dir.join("members").join(format!("member-{i:06}.txt"))
+}
+
+/// What a member's run left.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Member {
+    /// Kept series at the plan's times, one row per kept series.
+    Done {
+        parameters: Vec<f64>,
+        series: Vec<Vec<f64>>,
+    },
+    Failed {
+        parameters: Vec<f64>,
+        error: String,
+    },
+    Missing,
+}
+
+/// Shortest text that reads back to the same f64.
+fn num(x: f64) -> String {
+    format!("{x:?}")
+}
+
+/// A series at `times` [year] from the run's records, linearly interpolated in time
+/// (held constant before the first and after the last record).
+fn sample(records: &[SeriesRecord], field: usize, times: &[f64]) -> Vec<f64> {
+    let t: Vec<f64> = records.iter().map(|r| r.time_year).collect();
+    let v: Vec<f64> = records.iter().map(|r| r.values()[field]).collect();
+    times
+        .iter()
+        .map(|&x| crate::fit::compare::interpolate(&t, &v, x))
+        .collect()
+}
+
+/// Runs member `i`: its kept series, or the error.
+pub fn run_member(plan: &Plan, case_text: &str, i: usize) -> Member {
+    let parameters = plan.member(i);
+    let result = (|| -> Result<Vec<Vec<f64>>> {
+        let ovs = plan.overrides(i)?;
+        let base = plan.case.parent().unwrap_or(Path::new("."));
+        let model = crate::case::parse_with_overrides(
+            case_text,
+            &plan.case.display().to_string(),
+            base,
+            &ovs,
+        )?;
+        let (rec, _) = crate::sim::run_in_memory(&model, SolverKind::BlockThomas)?;
+        Ok(plan
+            .series
+            .iter()
+            .map(|name| {
+                let field = SeriesRecord::FIELDS
+                    .iter()
+                    .position(|f| f.0 == name)
+                    .unwrap_or(0);
+                sample(&rec.series, field, &plan.times_year)
+            })
+            .collect())
+    })();
+    match result {
+        Ok(series) => Member::Done { parameters, series },
+        Err(e) => Member::Failed {
+            parameters,
+            error: e.to_string(),
+        },
+    }
+}
+
+fn write_member(dir: &Path, i: usize, m: &Member) -> Result<()> {
+    let mut s = String::new();
+    match m {
+        Member::Done { parameters, series } => {
+            s.push_str("status,done\n");
+            s.push_str(&format!(
+                "parameters,{}\n",
+                parameters
+                    .iter()
+                    .map(|x| num(*x))
+                    .collect::<Vec<_>>()
+                    .join(",")
+            ));
+            for row in series {
+                s.push_str(&format!(
+                    "series,{}\n",
+                    row.iter().map(|x| num(*x)).collect::<Vec<_>>().join(",")
+                ));
+            }
+        }
+        Member::Failed { parameters, error } => {
+            s.push_str("status,failed\n");
+            s.push_str(&format!(
+                "parameters,{}\n",
+                parameters
+                    .iter()
+                    .map(|x| num(*x))
+                    .collect::<Vec<_>>()
+                    .join(",")
+            ));
+            s.push_str(&format!("error,{}\n", crate::case::tree::one_line(error)));
+        }
+        Member::Missing => return Ok(()),
+    }
+    let path = member_file(dir, i);
+    let tmp = path.with_extension("tmp");
+    std::fs::write(&tmp, s).map_err(|e| Error::io(&tmp, e))?;
+    std::fs::rename(&tmp, &path).map_err(|e| Error::io(&path, e))
+}
+
+/// Reads member `i`'s file (Missing when absent or incomplete).
+pub fn read_member(dir: &Path, i: usize, plan: &Plan) -> Member {
+    let Ok(text) = std::fs::read_to_string(member_file(dir, i)) else {
+        return Member::Missing;
+    };
+    let nums = |line: &str| -> Option<Vec<f64>> {
+        line.split(',')
+            .skip(1)
+            .map(|x| x.parse::<f64>().ok())
+            .collect()
+    };
+    let lines: Vec<&str> = text.lines().collect();
+    match lines.first().copied() {
+        Some("status,done") => {
+            let parameters = lines.get(1).and_then(|l| nums(l));
+            let series: Option<Vec<Vec<f64>>> = lines[2.min(lines.len())..]
+                .iter()
+                .map(|l| nums(l))
+                .collect();
+            match (parameters, series) {
+                (Some(p), Some(s))
+                    if s.len() == plan.series.len()
+                        && s.iter().all(|r| r.len() == plan.times_year.len()) =>
+                {
+                    Member::Done {
+                        parameters: p,
+                        series: s,
+                    }
+                }
+                _ => Member::Missing,
+            }
+        }
+        Some("status,failed") => Member::Failed {
+            parameters: lines.get(1).and_then(|l| nums(l)).unwrap_or_default(),
+            error: lines
+                .get(2)
+                .and_then(|l| l.strip_prefix("error,"))
+                .unwrap_or("")
+                .to_string(),
+        },
+        _ => Member::Missing,
+    }
+}
+
+/// Parses `K/N` (0 ≤ K < N).
+pub fn parse_shard(s: &str) -> Result<(usize, usize)> {
+    let bad = || {
+        Error::input(format!(
+            "--shard {s}: expected K/N with 0 ≤ K < N (e.g. $SLURM_ARRAY_TASK_ID/$SLURM_ARRAY_TASK_COUNT)"
+        ))
+    };
+    let (k, n) = s.split_once('/').ok_or_else(bad)?;
+    let (k, n): (usize, usize) = (
+        k.trim().parse().map_err(|_| bad())?,
+        n.trim().parse().map_err(|_| bad())?,
+    );
+    if n == 0 || k >= n {
+        return Err(bad());
+    }
+    Ok((k, n))
+}
+
+/// Prepares `dir` for `plan`: a copy of the plan (refusing a folder of another plan).
+fn prepare(plan: &Plan, dir: &Path) -> Result<()> {
+    std::fs::create_dir_all(dir.join("members")).map_err(|e| Error::io(dir, e))?;
+    let copy = dir.join("plan.toml");
+    match std::fs::read_to_string(&copy) {
+        Ok(t) if t == plan.text => Ok(()),
+        Ok(_) => Err(Error::input(format!(
+            "{}: the folder holds the members of another plan; use a new --out folder",
+            dir.display()
+        ))),
+        Err(_) => {
+            let tmp = dir.join("plan.toml.tmp");
+            std::fs::write(&tmp, &plan.text).map_err(|e| Error::io(&tmp, e))?;
+            std::fs::rename(&tmp, &copy).map_err(|e| Error::io(&copy, e))
+        }
+    }
+}
+
+/// Refuses a plan whose keys the case reader does not know (a member whose values the
+/// case refuses is a failed member, not a bad plan).
+fn check_keys(plan: &Plan, case_text: &str) -> Result<()> {
+    let base = plan.case.parent().unwrap_or(Path::new("."));
+    for (p, v) in plan.parameters.iter().zip(plan.member(0)) {
+        let ov = crate::case::Override::set(&p.key, &format!("{v:?}"))?;
+        if let Err(e) = crate::case::parse_with_overrides(
+            case_text,
+            &plan.case.display().to_string(),
+            base,
+            &[ov],
+        ) {
+            let msg = e.to_string();
+            if msg.starts_with(&format!("--set {}=", p.key)) && msg.contains("unknown key") {
+                return Err(Error::input(format!("{}: {msg}", plan.path.display())));
+            }
+        }
+    }
+    Ok(())
+}
+
+/// Counts of a run.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
+pub struct RunCounts {
+    pub ran: usize,
+    pub skipped: usize,
+    pub failed: usize,
+}
+
+/// Runs the members `i` with `i mod n == k` not yet written, on `workers` threads.
+pub fn run(
+    plan: &Plan,
+    dir: &Path,
+    workers: usize,
+    shard: (usize, usize),
+    progress: bool,
+) -> Result<RunCounts> {
+    prepare(plan, dir)?;
+    let case_text = std::fs::read_to_string(&plan.case).map_err(|e| {
+        Error::input(format!(
+            "{}: case = {}: cannot read: {e}",
+            plan.path.display(),
+            plan.case.display()
+        ))
+    })?;
+    check_keys(plan, &case_text)?;
+    let (k, n) = shard;
+    let all: Vec<usize> = (0..plan.member_count()).filter(|i| i % n == k).collect();
+    let todo: Vec<usize> = all
+        .iter()
+        .copied()
+        .filter(|&i| read_member(dir, i, plan) == Member::Missing)
+        .collect();
+    let skipped = all.len() - todo.len();
+    let bar = indicatif::ProgressBar::with_draw_target(
+        Some(todo.len() as u64),
+        indicatif::ProgressDrawTarget::stderr(),
+    );
+    if !progress || !std::io::IsTerminal::is_terminal(&std::io::stderr()) {
+        bar.set_draw_target(indicatif::ProgressDrawTarget::hidden());
+    }
+    let next = AtomicUsize::new(0);
+    let failed = AtomicUsize::new(0);
+    let first_error: std::sync::Mutex<Option<Error>> = std::sync::Mutex::new(None);
+    std::thread::scope(|s| {
+        for _ in 0..workers.max(1).min(todo.len().max(1)) {
+            s.spawn(|| loop {
+                let j = next.fetch_add(1, Ordering::Relaxed);
+                let Some(&i) = todo.get(j) else { break };
+                let m = run_member(plan, &case_text, i);
+                if matches!(m, Member::Failed { .. }) {
+                    failed.fetch_add(1, Ordering::Relaxed);
+                }
+                if let Err(e) = write_member(dir, i, &m) {
+                    let mut f = first_error.lock().unwrap_or_else(|e| e.into_inner());
+                    f.get_or_insert(e);
+                    break;
+                }
+                bar.inc(1);
+            });
+        }
+    });
+    bar.finish_and_clear();
+    if let Some(e) = first_error.into_inner().unwrap_or_else(|e| e.into_inner()) {
+        return Err(e);
+    }
+    Ok(RunCounts {
+        ran: todo.len(),
+        skipped,
+        failed: failed.into_inner(),
+    })
+}
+
+/// Done, failed and missing members of the plan copied into `dir`.
+pub fn status(dir: &Path) -> Result<(Plan, Vec<Member>)> {
+    let plan = plan::read(&dir.join("plan.toml")).map_err(|e| {
+        Error::input(format!(
+            "{}: not an ensemble folder (no readable plan.toml: {e})",
+            dir.display()
+        ))
+    })?;
+    let members = (0..plan.member_count())
+        .map(|i| read_member(dir, i, &plan))
+        .collect();
+    Ok((plan, members))
+}
+
+/// The quantile q of sorted values (linear between order statistics; "type 7", common
+/// practice).
+pub fn quantile(sorted: &[f64], q: f64) -> f64 {
+    if sorted.is_empty() {
+        return f64::NAN;
+    }
+    let h = q * (sorted.len() - 1) as f64;
+    let lo = h.floor() as usize;
+    let hi = (lo + 1).min(sorted.len() - 1);
+    sorted[lo] + (h - lo as f64) * (sorted[hi] - sorted[lo])
+}
+
+/// Merges the members in `dir` into `dir/ensemble.h5`; returns the file and the counts
+/// (done, failed, missing).
+pub fn collect(dir: &Path) -> Result<(PathBuf, [usize; 3])> {
+    let (plan, members) = status(dir)?;
+    let m = members.len();
+    let (np, nt, ns) = (
+        plan.parameters.len(),
+        plan.times_year.len(),
+        plan.series.len(),
+    );
+    let mut params = ndarray::Array2::<f64>::from_elem((m, np), f64::NAN);
+    let mut state = ndarray::Array1::<i32>::zeros(m);
+    let mut series = vec![ndarray::Array2::<f64>::from_elem((m, nt), f64::NAN); ns];
+    let mut counts = [0usize; 3];
+    for (i, mem) in members.iter().enumerate() {
+        // Parameters from the plan itself (also for members that never ran).
+        for (k, v) in plan.member(i).into_iter().enumerate() {
+            params[[i, k]] = v;
+        }
+        match mem {
+            Member::Done { series: s, .. } => {
+                counts[0] += 1;
+                for (arr, row) in series.iter_mut().zip(s) {
+                    for (t, v) in row.iter().enumerate() {
+                        arr[[i, t]] = *v;
+                    }
+                }
+            }
+            Member::Failed { .. } => {
+                counts[1] += 1;
+                state[i] = 1;
+            }
+            Member::Missing => {
+                counts[2] += 1;
+                state[i] = 2;
+            }
+        }
+    }
+    let path = dir.join("ensemble.h5");
+    let tmp = dir.join("ensemble.h5.tmp");
+    let e = |err: hdf5::Error| Error::io(&tmp, err);
+    {
+        let f = hdf5::File::create(&tmp).map_err(e)?;
+        let attr = |obj: &hdf5::Location, name: &str, v: &str| -> Result<()> {
+            crate::output::h5util::attr_str(obj, name, v).map_err(e)
+        };
+        attr(&f, "kind", "deepdry-ensemble")?;
+        attr(&f, "plan", &plan.text)?;
+        attr(
+            &f,
+            "caution",
+            "Model estimates, not a substitute for site investigation.",
+        )?;
+        let ds = f
+            .new_dataset_builder()
+            .with_data(&plan.times_year)
+            .create("time")
+            .map_err(e)?;
+        attr(&ds, "units", "year")?;
+        attr(
+            &ds,
+            "long_name",
+            "times at which the kept series are sampled",
+        )?;
+        let ds = f
+            .new_dataset_builder()
+            .with_data(&params)
+            .create("parameters")
+            .map_err(e)?;
+        attr(
+            &ds,
+            "keys",
+            &plan
+                .parameters
+                .iter()
+                .map(|p| p.key.as_str())
+                .collect::<Vec<_>>()
+                .join("\n"),
+        )?;
+        attr(
+            &ds,
+            "long_name",
+            "member × parameter values, in the order of the keys attribute",
+        )?;
+        let ds = f
+            .new_dataset_builder()
+            .with_data(&state)
+            .create("status")
+            .map_err(e)?;
+        attr(
+            &ds,
+            "long_name",
+            "member status: 0 done, 1 failed, 2 missing",
+        )?;
+        let g = f.create_group("series").map_err(e)?;
+        let q = f.create_group("quantiles").map_err(e)?;
+        let qa = q
+            .new_dataset_builder()
+            .with_data(&QUANTILES[..])
+            .create("probability")
+            .map_err(e)?;
+        attr(&qa, "units", "1")?;
+        for (name, arr) in plan.series.iter().zip(&series) {
+            let (unit, long) = SeriesRecord::FIELDS
+                .iter()
+                .find(|f| f.0 == name)
+                .map(|f| (f.1, f.2))
+                .unwrap_or(("1", ""));
+            let ds = g
+                .new_dataset_builder()
+                .with_data(arr)
+                .create(name.as_str())
+                .map_err(e)?;
+            attr(&ds, "units", unit)?;
+            attr(&ds, "long_name", &format!("{long} (member × time)"))?;
+            let mut qs = ndarray::Array2::<f64>::from_elem((QUANTILES.len(), nt), f64::NAN);
+            for t in 0..nt {
+                let mut col: Vec<f64> = (0..m)
+                    .map(|i| arr[[i, t]])
+                    .filter(|v| v.is_finite())
+                    .collect();
+                col.sort_by(|a, b| a.total_cmp(b));
+                for (k, p) in QUANTILES.iter().enumerate() {
+                    qs[[k, t]] = quantile(&col, *p);
+                }
+            }
+            let ds = q
+                .new_dataset_builder()
+                .with_data(&qs)
+                .create(name.as_str())
+                .map_err(e)?;
+            attr(&ds, "units", unit)?;
+            attr(
+                &ds,
+                "long_name",
+                &format!("{long}: quantiles over the members that ran (probability × time)"),
+            )?;
+        }
+    }
+    std::fs::rename(&tmp, &path).map_err(|err| Error::io(&path, err))?;
+    Ok((path, counts))
+}

@@ -5,3 +5,6 @@ set -euo pipefail
 cd "$(dirname "$0")/.."
 bash scripts/setup.sh
 cargo test --release
+# An ensemble as a Slurm job array on a one-node cluster started (and stopped) here,
+# checked against a local run of the same plan (needs root; skipped otherwise).
+bash scripts/slurm-check.sh

@@ -114,6 +114,26 @@ fn merged_members_are_identical_with_one_worker_two_workers_and_shards() {
         bits(&datasets(&sh.join("ensemble.h5"))),
         "one worker vs two shards"
     );
+    // Fan charts and scatter plots of the merged folder.
+    let o = deepdry(&[
+        "ensemble",
+        "plot",
+        arg(&one),
+        "--out",
+        arg(&dir.join("fig")),
+    ]);
+    assert_eq!(
+        o.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&o.stderr)
+    );
+    for f in [
+        "ensemble-fan-surface_water_flux.png",
+        "ensemble-scatter-drying_front_depth.svg",
+    ] {
+        assert!(dir.join("fig").join(f).is_file(), "{f}");
+    }
     // The kept values are those of the member runs (finite, one row per member).
     let d = datasets(&f1);
     assert_eq!(d[2].1.len(), 6 * 3);

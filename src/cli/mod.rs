@@ -167,6 +167,14 @@ pub enum EnsembleCommand {
         /// The ensemble folder.
         dir: PathBuf,
     },
+    /// Fan charts of the kept series and parameter–outcome scatter plots (SVG and PNG).
+    Plot {
+        /// The ensemble folder.
+        dir: PathBuf,
+        /// Output folder (default: the ensemble folder).
+        #[arg(long)]
+        out: Option<PathBuf>,
+    },
 }
 
 #[derive(Debug, Subcommand)]
@@ -411,6 +419,13 @@ fn ensemble_command(what: EnsembleCommand) -> Result<()> {
                 p.member_count(),
                 out.display()
             );
+            Ok(())
+        }
+        EnsembleCommand::Plot { dir, out } => {
+            let out = out.unwrap_or_else(|| dir.clone());
+            for p in ensemble::figures::plot(&dir, &out)? {
+                println!("{}", p.display());
+            }
             Ok(())
         }
         EnsembleCommand::Collect { dir } => {

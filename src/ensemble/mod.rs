@@ -11,7 +11,9 @@
 //!   status, quantiles over the members that ran), identical whatever the workers or
 //!   shards were.
 //! - [`status`]: what is done, failed and missing.
+//! - [`figures`]: fan charts of the kept series and parameter–outcome scatter plots.
 
+pub mod figures;
 pub mod plan;
 
 use crate::error::{Error, Result};

@@ -17,7 +17,8 @@
 
 use super::diagnostics::{Profile, SeriesRecord};
 use super::h5util::{
-    append_1d, append_row, attr_str, growable_1d, growable_2d, in_use_message, write_1d,
+    append_1d, append_row, attach_scale, attr_str, growable_1d, growable_2d, in_use_message,
+    set_scale, write_1d,
 };
 use crate::error::{Error, Result};
 use crate::model::Model;
@@ -133,29 +134,82 @@ struct Sets {
     series: Vec<Dataset>,
 }
 
+/// CF standard names (CF standard name table) of the datasets that have one; the rest
+/// carry `long_name` only.
+fn standard_name(name: &str) -> Option<&'static str> {
+    Some(match name {
+        "temperature" => "soil_temperature",
+        "liquid_content" => "volume_fraction_of_condensed_water_in_soil",
+        "surface_heat_flux" => "downward_heat_flux_in_soil",
+        "depth" | "face_depth" => "depth",
+        _ => return None,
+    })
+}
+
+/// What the time axis of a results file means (attribute `comment` of every `time`).
+pub const TIME_COMMENT: &str = "years of 365.25 days (31 557 600 s) on the case's time axis \
+     (start_year to end_year); float years, not calendar dates";
+
+/// Sets the CF attributes of a time coordinate.
+fn describe_time(ds: &Dataset) -> hdf5::Result<()> {
+    attr_str(ds, "axis", "T")?;
+    attr_str(ds, "comment", TIME_COMMENT)
+}
+
+/// Sets the CF attributes of a depth coordinate.
+fn describe_depth(ds: &Dataset) -> hdf5::Result<()> {
+    attr_str(ds, "positive", "down")?;
+    attr_str(ds, "axis", "Z")?;
+    attr_str(ds, "standard_name", "depth")
+}
+
+/// Adds `standard_name` when CF has one for the dataset `name`.
+fn add_standard_name(ds: &Dataset, name: &str) -> hdf5::Result<()> {
+    match standard_name(name) {
+        Some(sn) => attr_str(ds, "standard_name", sn),
+        None => Ok(()),
+    }
+}
+
 impl Sets {
-    /// Creates them, empty, in a new file of `n` cells; or, with `n` = `None`, opens them
-    /// in an existing file.
-    fn get(file: &File, n: Option<usize>) -> hdf5::Result<Sets> {
-        let group = |name: &str| match n {
-            Some(_) => file.create_group(name),
-            None => file.group(name),
+    /// Creates them, empty, in a new file with the cell centres and faces `mesh`
+    /// (netCDF-4 layout: `time`, `depth` and `face_depth` are dimension scales of their
+    /// group, attached to every profile and series dataset); or, with `mesh` = `None`,
+    /// opens them in an existing file.
+    fn get(file: &File, mesh: Option<(&[f64], &[f64])>) -> hdf5::Result<Sets> {
+        let create = mesh.is_some();
+        let group = |name: &str| {
+            if create {
+                file.create_group(name)
+            } else {
+                file.group(name)
+            }
         };
         let (prof, ser) = (group("profiles")?, group("series")?);
-        let one = |g: &hdf5::Group, name: &str, units: &str, long: &str| match n {
-            Some(_) => growable_1d(g, name, units, long),
-            None => g.dataset(name),
+        let one = |g: &hdf5::Group, name: &str, units: &str, long: &str| {
+            if create {
+                let ds = growable_1d(g, name, units, long)?;
+                add_standard_name(&ds, name)?;
+                Ok(ds)
+            } else {
+                g.dataset(name)
+            }
         };
         let rows = |width: usize, list: &[(&str, &str, &str)]| -> hdf5::Result<Vec<Dataset>> {
             list.iter()
-                .map(|(name, units, long)| match n {
-                    Some(_) => growable_2d(&prof, name, width, units, long),
-                    None => prof.dataset(name),
+                .map(|(name, units, long)| {
+                    if create {
+                        let ds = growable_2d(&prof, name, width, units, long)?;
+                        add_standard_name(&ds, name)?;
+                        Ok(ds)
+                    } else {
+                        prof.dataset(name)
+                    }
                 })
                 .collect()
         };
-        let cells = n.unwrap_or(0);
-        Ok(Sets {
+        let cells = mesh.map_or(0, |(c, _)| c.len());
+        let sets = Sets {
             profile_time: one(&prof, "time", "year", "snapshot time")?,
             cells: rows(cells, &PROFILE_CELL)?,
             faces: rows(cells + 1, &PROFILE_FACE)?,
@@ -164,7 +218,31 @@ impl Sets {
                 .iter()
                 .map(|(name, units, long)| one(&ser, name, units, long))
                 .collect::<hdf5::Result<_>>()?,
-        })
+        };
+        if let Some((centers, faces)) = mesh {
+            let depth = write_1d(&prof, "depth", centers, "m", "depth of the cell centres")?;
+            let face_depth = write_1d(&prof, "face_depth", faces, "m", "depth of the cell faces")?;
+            for (ds, name) in [(&depth, "depth"), (&face_depth, "face_depth")] {
+                describe_depth(ds)?;
+                set_scale(ds, name)?;
+            }
+            for t in [&sets.profile_time, &sets.series_time] {
+                describe_time(t)?;
+                set_scale(t, "time")?;
+            }
+            for ds in &sets.cells {
+                attach_scale(ds, &sets.profile_time, 0)?;
+                attach_scale(ds, &depth, 1)?;
+            }
+            for ds in &sets.faces {
+                attach_scale(ds, &sets.profile_time, 0)?;
+                attach_scale(ds, &face_depth, 1)?;
+            }
+            for ds in &sets.series {
+                attach_scale(ds, &sets.series_time, 0)?;
+            }
+        }
+        Ok(sets)
     }
 
     /// The cell and face profile datasets, [snapshots × cells or faces].
@@ -209,9 +287,16 @@ impl ResultsFile {
         attr_str(&root, "case_text", &model.case_text).map_err(&e)?;
         attr_str(&root, "overrides", &model.overrides.join("\n")).map_err(&e)?;
         attr_str(&root, "time_unit", "year").map_err(&e)?;
+        attr_str(&root, "Conventions", "CF-1.8").map_err(&e)?;
+        attr_str(
+            &root,
+            "source",
+            concat!("deepdry ", env!("CARGO_PKG_VERSION")),
+        )
+        .map_err(&e)?;
 
         let mesh = file.create_group("mesh").map_err(&e)?;
-        write_1d(
+        let depth = write_1d(
             &mesh,
             "depth",
             &model.mesh.centers,
@@ -219,7 +304,7 @@ impl ResultsFile {
             "depth of the cell centres",
         )
         .map_err(&e)?;
-        write_1d(
+        let face_depth = write_1d(
             &mesh,
             "face_depth",
             &model.mesh.faces,
@@ -227,6 +312,10 @@ impl ResultsFile {
             "depth of the cell faces",
         )
         .map_err(&e)?;
+        for (ds, name) in [(&depth, "depth"), (&face_depth, "face_depth")] {
+            describe_depth(ds).map_err(&e)?;
+            set_scale(ds, name).map_err(&e)?;
+        }
         let layer_of_cell: Vec<i32> = model
             .mesh
             .centers
@@ -246,6 +335,7 @@ impl ResultsFile {
             .map_err(&e)?;
         super::h5util::describe(&ds, "1", "layer index of each cell (into layer_names)")
             .map_err(&e)?;
+        attach_scale(&ds, &depth, 0).map_err(&e)?;
         let names: Vec<VarLenUnicode> = model
             .layers
             .iter()
@@ -257,8 +347,9 @@ impl ResultsFile {
             .create("layer_names")
             .map_err(&e)?;
         super::h5util::describe(&ds, "1", "layer names").map_err(&e)?;
+        set_scale(&ds, "layer_names").map_err(&e)?;
 
-        let sets = Sets::get(&file, Some(model.mesh.n_cells())).map_err(&e)?;
+        let sets = Sets::get(&file, Some((&model.mesh.centers, &model.mesh.faces))).map_err(&e)?;
         Ok(Self::writer(path, file, sets))
     }
 

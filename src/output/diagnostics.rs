@@ -109,11 +109,18 @@ pub struct SeriesRecord {
     /// Step just taken [s] and its Newton iterations.
     pub dt: f64,
     pub newton_iterations: f64,
+    /// Cumulative water [kg m⁻²] and energy [J m⁻²] through the surface and the bottom
+    /// since the start, positive downward, integrated with the stepper's weights: the
+    /// storage change minus (surface − bottom) is the balance error.
+    pub surface_water_cumulative: f64,
+    pub bottom_water_cumulative: f64,
+    pub surface_energy_cumulative: f64,
+    pub bottom_energy_cumulative: f64,
 }
 
 impl SeriesRecord {
     /// Dataset names, units and long names, in the order of [`SeriesRecord::values`].
-    pub const FIELDS: [(&'static str, &'static str, &'static str); 12] = [
+    pub const FIELDS: [(&'static str, &'static str, &'static str); 16] = [
         (
             "surface_water_flux",
             "kg m-2 s-1",
@@ -170,9 +177,29 @@ impl SeriesRecord {
             "1",
             "Newton iterations of the step just taken",
         ),
+        (
+            "surface_water_cumulative",
+            "kg m-2",
+            "water that entered through the land surface since the start, positive downward",
+        ),
+        (
+            "bottom_water_cumulative",
+            "kg m-2",
+            "water that left through the bottom boundary since the start, positive downward",
+        ),
+        (
+            "surface_energy_cumulative",
+            "J m-2",
+            "energy that entered through the land surface since the start, positive downward",
+        ),
+        (
+            "bottom_energy_cumulative",
+            "J m-2",
+            "energy that left through the bottom boundary since the start, positive downward",
+        ),
     ];
 
-    pub fn values(&self) -> [f64; 12] {
+    pub fn values(&self) -> [f64; 16] {
         [
             self.surface_water_flux,
             self.bottom_water_flux,
@@ -186,6 +213,10 @@ impl SeriesRecord {
             self.drying_front_depth,
             self.dt,
             self.newton_iterations,
+            self.surface_water_cumulative,
+            self.bottom_water_cumulative,
+            self.surface_energy_cumulative,
+            self.bottom_energy_cumulative,
         ]
     }
 }

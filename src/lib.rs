@@ -12,6 +12,7 @@
 //! - [`run`]      `deepdry run`: start modes, the output folder, signals
 //! - [`output`]   results files (HDF5)
 //! - [`plot`]     pictures of a results file (SVG, PNG)
+//! - [`export`]   a results file as CSV files (`deepdry export`)
 //! - [`error`]    typed errors
 //! - [`verify`]   verification cases, reference solutions and the report
 //! - [`bench`], [`accuracy`] `deepdry bench` (and `--accuracy`), on runs of [`batch`]
@@ -26,6 +27,7 @@ pub mod case;
 pub mod checkpoint;
 pub mod cli;
 pub mod error;
+pub mod export;
 pub mod inspect;
 pub mod mesh;
 pub mod model;

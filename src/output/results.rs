@@ -29,7 +29,8 @@ use std::path::{Path, PathBuf};
 /// Attribute value of `kind` that marks a results file.
 pub const RESULTS_KIND: &str = "deepdry-results";
 
-const PROFILE_CELL: [(&str, &str, &str); 5] = [
+/// The cell-centred profiles: dataset name, units, long name.
+pub const PROFILE_CELL: [(&str, &str, &str); 5] = [
     ("temperature", "degC", "temperature"),
     ("head", "m", "pressure (matric) head"),
     ("liquid_content", "1", "volumetric liquid water content"),
@@ -44,7 +45,8 @@ const PROFILE_CELL: [(&str, &str, &str); 5] = [
         "relative humidity of the pore air",
     ),
 ];
-const PROFILE_FACE: [(&str, &str, &str); 5] = [
+/// The face profiles: dataset name, units, long name.
+pub const PROFILE_FACE: [(&str, &str, &str); 5] = [
     (
         "liquid_flux_isothermal",
         "kg m-2 s-1",

@@ -5,3 +5,6 @@ set -euo pipefail
 cd "$(dirname "$0")/.."
 bash scripts/setup.sh
 cargo test --release
+# Real readers (xarray with h5netcdf and netCDF4, pandas from PyPI, in a virtual environment
+# made once) open a results file and its CSV export: scripts/readers.sh.
+bash scripts/readers.sh

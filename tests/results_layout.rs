@@ -133,3 +133,31 @@ fn cumulative_water_closes_to_the_reported_balance_error() {
     );
     eprintln!("worst closure gap {worst:e} kg m-2; trapezoid {trap:e} vs {last:e}");
 }
+
+#[test]
+fn a_results_file_of_the_earlier_layout_is_not_continued() {
+    let dir = Scratch::new("layout-old-file");
+    let case = dir.write("case.toml", &Small::default().text());
+    let out = dir.join("out");
+    run_ok(&case, &out, &[]);
+    let results = out.join("results.h5");
+    {
+        // What a results file of the earlier layout lacks.
+        let _g = h5_guard();
+        let f = hdf5::File::open_rw(&results).unwrap();
+        f.group("series")
+            .unwrap()
+            .unlink("surface_water_cumulative")
+            .unwrap();
+    }
+    let o = run_deepdry(&case, &out, &["--resume", arg(&checkpoint_at(&out, 5.0))]);
+    assert_one_line_error(
+        &o,
+        4,
+        &[
+            "cannot be continued",
+            "earlier deepdry version",
+            "series/surface_water_cumulative",
+        ],
+    );
+}

@@ -422,6 +422,18 @@ impl ResultsFile {
                 faces.len().saturating_sub(1)
             )));
         }
+        // A file of an earlier version lacks the datasets added since (it cannot grow
+        // them from the middle of a run).
+        let missing = SeriesRecord::FIELDS
+            .iter()
+            .map(|f| format!("series/{}", f.0))
+            .chain(["profiles/depth".to_string()])
+            .find(|n| file.dataset(n).is_err());
+        if let Some(n) = missing {
+            return Err(damaged(format!(
+                "it was written by an earlier deepdry version and has no {n}"
+            )));
+        }
         let sets = Sets::get(&file, None).map_err(h5err)?;
         let have_snap = sets.profile_time.shape()[0];
         let have_rows = sets.series_time.shape()[0];

@@ -56,10 +56,14 @@ def _():
             assert "units" in v.attrs and "long_name" in v.attrs, f"{g}/{name}"
 
 
-@check("xarray/h5netcdf: series on the time dimension, time in float years")
+@check("xarray/h5netcdf: series on the time dimension (and layer), time in float years")
 def _():
     s = xr.open_dataset(results, engine="h5netcdf", group="series")
-    assert set(s.sizes) == {"time"}, dict(s.sizes)
+    assert set(s.sizes) == {"time", "layer"}, dict(s.sizes)
+    assert s["layer_water_storage"].dims == ("time", "layer")
+    assert list(s["layer"].values) == ["sandy_loam"], s["layer"].values
+    total = s["layer_water_storage"].sum("layer")
+    assert float(np.abs(total - s["water_storage"]).max()) <= 1e-12 * float(s["water_storage"].max())
     assert s["time"].dtype == np.float64
     assert "365.25 days" in s["time"].attrs["comment"]
 

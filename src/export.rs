@@ -76,6 +76,13 @@ fn header(name: &str, units: &str) -> String {
     }
 }
 
+/// A layer name as part of a column name: letters, digits and `_` only.
+fn safe_name(s: &str) -> String {
+    s.chars()
+        .map(|c| if c.is_ascii_alphanumeric() { c } else { '_' })
+        .collect()
+}
+
 /// A number as the CSV holds it: shortest round-trip decimal; NaN as an empty field.
 pub fn number(x: f64) -> String {
     if x.is_nan() {
@@ -115,6 +122,14 @@ impl Reader<'_> {
             .dataset(name)
             .and_then(|d| d.read_raw::<f64>())
             .map_err(self.err())
+    }
+    /// A 1-D string dataset (empty when absent).
+    fn strings(&self, name: &str) -> Vec<String> {
+        self.file
+            .dataset(name)
+            .and_then(|d| d.read_raw::<hdf5::types::VarLenUnicode>())
+            .map(|v| v.iter().map(|s| s.as_str().to_string()).collect())
+            .unwrap_or_default()
     }
     /// A 2-D dataset as (rows, columns, row-major values).
     fn d2(&self, name: &str) -> Result<(usize, usize, Vec<f64>)> {
@@ -224,15 +239,43 @@ pub fn export(results: &Path, out: Option<&Path>) -> Result<Exported> {
                 .map(|f| f.0),
         )
         .collect();
-    let names = r.names("series", &known, &[])?;
-    let cols: Vec<Column> = names
-        .iter()
-        .map(|n| r.column("series", n))
-        .collect::<Result<_>>()?;
-    let data: Vec<Vec<f64>> = cols
-        .iter()
-        .map(|c| r.d1(&c.dataset))
-        .collect::<Result<_>>()?;
+    let names = r.names("series", &known, &["layer"])?;
+    let layer_names = r.strings("series/layer");
+    let mut cols: Vec<Column> = Vec::new();
+    let mut data: Vec<Vec<f64>> = Vec::new();
+    for n in &names {
+        let c = r.column("series", n)?;
+        let shape = r
+            .file
+            .dataset(&c.dataset)
+            .map(|d| d.shape())
+            .map_err(r.err())?;
+        if shape.len() == 1 {
+            data.push(r.d1(&c.dataset)?);
+            cols.push(c);
+        } else if shape.len() == 2 {
+            // One column per layer: NAME_LAYER_UNITS.
+            let (rows, width, v) = r.d2(&c.dataset)?;
+            for k in 0..width {
+                let layer = layer_names
+                    .get(k)
+                    .map(|s| safe_name(s))
+                    .unwrap_or_else(|| format!("layer{}", k + 1));
+                let name = format!("{n}_{layer}");
+                cols.push(Column {
+                    header: header(&name, &c.units),
+                    dataset: format!("{}[:, {k}]", c.dataset),
+                    units: c.units.clone(),
+                    long_name: format!(
+                        "{} (layer {})",
+                        c.long_name,
+                        layer_names.get(k).map_or("?", |s| s.as_str())
+                    ),
+                });
+                data.push((0..rows).map(|j| v[j * width + k]).collect());
+            }
+        }
+    }
     let rows = data.iter().map(Vec::len).min().unwrap_or(0);
     let text = csv_text(
         &cols.iter().map(|c| c.header.clone()).collect::<Vec<_>>(),
@@ -297,12 +340,7 @@ pub fn export(results: &Path, out: Option<&Path>) -> Result<Exported> {
         .dataset("mesh/layer")
         .and_then(|d| d.read_raw::<i64>())
         .unwrap_or_default();
-    let layer_names: Vec<String> = r
-        .file
-        .dataset("mesh/layer_names")
-        .and_then(|d| d.read_raw::<hdf5::types::VarLenUnicode>())
-        .map(|v| v.iter().map(|s| s.as_str().to_string()).collect())
-        .unwrap_or_default();
+    let layer_names = r.strings("mesh/layer_names");
     if faces.len() != centers.len() + 1 {
         return Err(Error::input(format!(
             "{}: mesh/face_depth has {} values for {} cells (expected one more)",

@@ -67,9 +67,17 @@ fn series_profiles_and_mesh_read_back_bitwise() {
     assert!(h.contains(&"surface_water_flux_kg_per_m2_s".to_string()));
     assert!(h.contains(&"surface_water_cumulative_kg_per_m2".to_string()));
     assert!(h.contains(&"newton_iterations".to_string()));
-    let series: Vec<&String> = d.keys().filter(|k| k.starts_with("series/")).collect();
-    assert_eq!(h.len(), series.len(), "{h:?}");
+    // One column per 1-D series dataset, and one per layer of the water per layer.
+    let series: Vec<&String> = d
+        .keys()
+        .filter(|k| k.starts_with("series/") && !k.starts_with("series/layer"))
+        .collect();
+    let layers = d["series/layer"].len();
+    assert_eq!(h.len(), series.len() + layers, "{h:?}");
     for (name, col) in h.iter().zip(&cols) {
+        if name.starts_with("layer_water_storage_") {
+            continue;
+        }
         // The dataset is the column name less its units suffix.
         let ds = series
             .iter()
@@ -78,6 +86,15 @@ fn series_profiles_and_mesh_read_back_bitwise() {
             .unwrap_or_else(|| panic!("{name}: no dataset"));
         assert_eq!(bits(&floats(col)), bits(&d[*ds].floats()), "{name}");
     }
+    // quickstart has one layer, sandy_loam: its column is the whole dataset.
+    let k = h
+        .iter()
+        .position(|c| c == "layer_water_storage_sandy_loam_kg_per_m2")
+        .expect("the layer's column");
+    assert_eq!(
+        bits(&floats(&cols[k])),
+        bits(&d["series/layer_water_storage"].floats())
+    );
 
     let times = d["profiles/time"].floats();
     let depth = d["mesh/depth"].floats();

@@ -33,7 +33,7 @@ fn profiles_and_series_carry_dimension_scales_and_cf_attributes() {
     let mut attached = 0;
     for (group, scales) in [
         ("profiles", &["time", "depth", "face_depth"][..]),
-        ("series", &["time"][..]),
+        ("series", &["time", "layer"][..]),
     ] {
         let g = f.group(group).unwrap();
         for s in scales {
@@ -65,9 +65,9 @@ fn profiles_and_series_carry_dimension_scales_and_cf_attributes() {
             attached += 1;
         }
     }
-    // 10 profiles and one series dataset per record field.
+    // 10 profiles, one series dataset per record field and the water per layer.
     let series = deepdry::output::diagnostics::SeriesRecord::FIELDS.len();
-    assert_eq!(attached, 10 + series);
+    assert_eq!(attached, 10 + series + 1);
     let depth = f.dataset("profiles/depth").unwrap();
     assert_eq!(attr(&depth, "positive").as_deref(), Some("down"));
     assert_eq!(attr(&depth, "standard_name").as_deref(), Some("depth"));
@@ -160,4 +160,38 @@ fn a_results_file_of_the_earlier_layout_is_not_continued() {
             "series/surface_water_cumulative",
         ],
     );
+}
+
+#[test]
+fn layer_water_storage_sums_to_the_column_storage() {
+    let dir = Scratch::new("layout-layers");
+    let case = Path::new(env!("CARGO_MANIFEST_DIR")).join("cases/glacial-to-arid.toml");
+    let out = dir.join("out");
+    run_ok(&case, &out, &[]);
+    let path = out.join("results.h5");
+    let d = datasets(&path).unwrap();
+    let total = d["series/water_storage"].floats();
+    let Data::Float(shape, _) = &d["series/layer_water_storage"] else {
+        panic!("layer_water_storage is not a float dataset")
+    };
+    // Two layers in this case (sandy loam over loamy sand).
+    assert_eq!(shape, &vec![total.len(), 2]);
+    let layers = d["series/layer_water_storage"].floats();
+    for (k, t) in total.iter().enumerate() {
+        let (a, b) = (layers[2 * k], layers[2 * k + 1]);
+        assert!(a > 0.0 && b > 0.0, "row {k}: {a} {b}");
+        // The same cells summed in another grouping: equal to the round-off of the sum.
+        assert!(
+            (a + b - t).abs() <= 1e-12 * t.abs(),
+            "row {k}: {a} + {b} vs {t}"
+        );
+    }
+    // The upper layer dries after the shift, the deep one hardly changes.
+    let last = total.len() - 1;
+    assert!(layers[2 * last] < layers[0]);
+    let _g = h5_guard();
+    let f = hdf5::File::open(&path).unwrap();
+    let ds = f.dataset("series/layer_water_storage").unwrap();
+    assert!(ds.attr("DIMENSION_LIST").is_ok());
+    assert_eq!(f.dataset("series/layer").unwrap().shape(), vec![2]);
 }

@@ -86,6 +86,18 @@ pub fn drying_front_depth(sys: &System) -> f64 {
     0.0
 }
 
+/// Water stored in each layer [kg m⁻²] (liquid and vapour, Σ width × content over the
+/// layer's cells) from the last evaluation; `cell_layer` gives each cell's layer.
+pub fn layer_water_storage(sys: &System, cell_layer: &[usize], layers: usize) -> Vec<f64> {
+    let mut out = vec![0.0; layers];
+    for (i, c) in sys.cells.iter().enumerate() {
+        if let Some(w) = cell_layer.get(i).and_then(|&l| out.get_mut(l)) {
+            *w += sys.widths[i] * c.water.v;
+        }
+    }
+    out
+}
+
 /// One row of the time series.
 #[derive(Debug, Clone, Copy, Default, PartialEq)]
 pub struct SeriesRecord {

@@ -105,6 +105,17 @@ pub fn append_row(ds: &Dataset, row: &[f64]) -> hdf5::Result<()> {
     ds.write_slice(&a, s![old..old + 1, ..])
 }
 
+/// Appends rows to a growable 2-D dataset of as many columns.
+pub fn append_rows(ds: &Dataset, rows: &Array2<f64>) -> hdf5::Result<()> {
+    let (n, width) = rows.dim();
+    if n == 0 {
+        return Ok(());
+    }
+    let old = ds.shape()[0];
+    ds.resize((old + n, width))?;
+    ds.write_slice(rows, s![old..old + n, ..])
+}
+
 /// Truncates a growable dataset to `len` rows.
 pub fn truncate(ds: &Dataset, len: usize) -> hdf5::Result<()> {
     let mut shape = ds.shape();

@@ -51,3 +51,23 @@ fn run_summary_and_inspect_print_human_numbers_and_years() {
     assert!(time.starts_with("time: 1000 yr, next step "), "{time}");
     assert!(time.ends_with(" yr") && !time.contains(" s,"), "{time}");
 }
+
+#[test]
+fn bench_from_another_folder_says_where_it_looked_and_what_to_pass() {
+    let dir = Scratch::new("bench-elsewhere");
+    let o = std::process::Command::new(bin())
+        .args(["bench", "--repeat", "1"])
+        .current_dir(dir.join(""))
+        .stdin(std::process::Stdio::null())
+        .output()
+        .unwrap();
+    assert_one_line_error(
+        &o,
+        2,
+        &[
+            "cases/benchmark-300m.toml: cannot read the case file",
+            "current folder",
+            "--case",
+        ],
+    );
+}

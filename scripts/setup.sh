@@ -14,3 +14,13 @@ if ! pkg-config --exists hdf5 2>/dev/null; then
     $SUDO apt-get update -qq
     $SUDO apt-get install -y -qq --no-install-recommends libhdf5-dev pkg-config >/dev/null
 fi
+# The readers' check of scripts/test.sh (scripts/readers.sh) makes a Python virtual
+# environment: python3 with its venv module (Debian: python3-venv).
+if ! python3 -c "import venv, ensurepip" >/dev/null 2>&1; then
+    echo "installing python3 and python3-venv ..."
+    SUDO=""
+    if [ "$(id -u)" -ne 0 ]; then SUDO="sudo"; fi
+    export DEBIAN_FRONTEND=noninteractive
+    $SUDO apt-get update -qq
+    $SUDO apt-get install -y -qq --no-install-recommends python3 python3-venv >/dev/null
+fi

@@ -8,3 +8,6 @@ cargo test --release
 # An ensemble as a Slurm job array on a one-node cluster started (and stopped) here,
 # checked against a local run of the same plan (needs root; skipped otherwise).
 bash scripts/slurm-check.sh
+# Real readers (xarray with h5netcdf and netCDF4, pandas from PyPI, in a virtual environment
+# made once) open a results file and its CSV export: scripts/readers.sh.
+bash scripts/readers.sh

@@ -165,8 +165,19 @@ pub fn bench(
     repeat: usize,
 ) -> Result<String> {
     let text = std::fs::read_to_string(case).map_err(|e| {
+        // The default reference case is a path in the source folder.
+        let hint = if case.is_relative() && !case.exists() {
+            format!(
+                "; a relative path is read from the current folder ({}): run from the deepdry source folder, or give --case PATH/TO/benchmark-300m.toml",
+                std::env::current_dir()
+                    .map(|d| d.display().to_string())
+                    .unwrap_or_else(|_| "?".into())
+            )
+        } else {
+            String::new()
+        };
         Error::input(format!(
-            "{}: cannot read the case file: {e}",
+            "{}: cannot read the case file: {e}{hint}",
             case.display()
         ))
     })?;

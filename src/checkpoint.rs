@@ -178,6 +178,7 @@ fn write_via(
         f64s("linearization_faces", &state.linearization_faces).map_err(&er)?;
         f64s("inflow", &state.inflow).map_err(&er)?;
         f64s("throughput", &state.throughput).map_err(&er)?;
+        f64s("top_inflow", &state.top_inflow).map_err(&er)?;
         f64s("initial_totals", &state.initial_totals).map_err(&er)?;
         f64s("initial_storage", &state.initial_storage).map_err(&er)?;
         f64s("face_depth", &model.mesh.faces).map_err(&er)?;
@@ -228,6 +229,12 @@ fn write_via(
             table("history_storage", hlen, width, hs)?;
         }
         table("history_time_inflow", hlen, 5, hmeta)?;
+        let ht: Vec<f64> = state
+            .history
+            .iter()
+            .flat_map(|hp| hp.top_inflow.clone())
+            .collect();
+        table("history_top_inflow", hlen, state.top_inflow.len(), ht)?;
         let c = &state.counters;
         let ints: Vec<u64> = vec![
             c.steps,
@@ -375,6 +382,13 @@ pub fn read(path: &Path) -> Result<Checkpoint> {
             }
             Err(_) => None,
         };
+        // Top-boundary inflow (absent in older checkpoints: unknown, NaN).
+        let nq = two("inflow")?.len();
+        let ht = file
+            .dataset("history_top_inflow")
+            .and_then(|d| d.read_2d::<f64>())
+            .ok()
+            .filter(|a| a.dim() == (hu.nrows(), nq));
         let history = (0..hu.nrows())
             .map(|k| crate::solve::stepper::HistoryPoint {
                 t: hm[[k, 0]],
@@ -382,6 +396,9 @@ pub fn read(path: &Path) -> Result<Checkpoint> {
                 storage: hs.as_ref().map(|a| a.row(k).to_vec()).unwrap_or_default(),
                 inflow: vec![hm[[k, 1]], hm[[k, 2]]],
                 throughput: vec![hm[[k, 3]], hm[[k, 4]]],
+                top_inflow: ht
+                    .as_ref()
+                    .map_or_else(|| vec![f64::NAN; nq], |a| a.row(k).to_vec()),
             })
             .collect();
         let state = StepState {
@@ -398,6 +415,10 @@ pub fn read(path: &Path) -> Result<Checkpoint> {
             linearization_faces: v("linearization_faces").unwrap_or_default(),
             inflow: two("inflow")?.to_vec(),
             throughput: two("throughput")?.to_vec(),
+            top_inflow: v("top_inflow")
+                .ok()
+                .filter(|w| w.len() == nq)
+                .unwrap_or_else(|| vec![f64::NAN; nq]),
             initial_totals: two("initial_totals")?.to_vec(),
             initial_storage: v("initial_storage")?,
             counters: Counters {

@@ -3,6 +3,7 @@
 use crate::checkpoint::{file_kind, CHECKPOINT_KIND};
 use crate::error::Result;
 use crate::output::h5util::read_attr_str;
+use crate::output::human;
 use std::fmt::Write;
 use std::path::Path;
 
@@ -19,11 +20,12 @@ pub fn summary(path: &Path) -> Result<String> {
         let _ = writeln!(out, "software version: {}", ck.software_version);
         let _ = writeln!(out, "checkpoint format: {}", ck.format);
         let _ = writeln!(out, "written: {}", ck.created);
+        let year = crate::props::constants::SECONDS_PER_YEAR;
         let _ = writeln!(
             out,
-            "time: {:.6e} yr, next step {:.3e} s",
-            ck.state.t / crate::props::constants::SECONDS_PER_YEAR,
-            ck.state.dt
+            "time: {} yr, next step {} yr",
+            crate::output::years(ck.state.t / year),
+            crate::output::human(ck.state.dt / year, 4)
         );
         let _ = writeln!(out, "cells: {}", ck.state.u.len() / 3);
         let _ = writeln!(
@@ -40,8 +42,11 @@ pub fn summary(path: &Path) -> Result<String> {
             (Some(a), Some(r)) => {
                 let _ = writeln!(
                     out,
-                    "last relative balance errors: water {:.3e}, energy {:.3e} (absolute {:.3e} kg m-2, {:.3e} J m-2)",
-                    r[1], r[0], a[1], a[0]
+                    "last relative balance errors: water {}, energy {} (absolute {} kg m-2, {} J m-2)",
+                    human(r[1], 3),
+                    human(r[0], 3),
+                    human(a[1], 4),
+                    human(a[0], 4)
                 );
             }
             _ => {
@@ -82,7 +87,9 @@ pub fn summary(path: &Path) -> Result<String> {
         (Some(a), Some(b)) => {
             let _ = writeln!(
                 out,
-                "times covered: {a:.6e} to {b:.6e} yr ({} series rows)",
+                "times covered: {} to {} yr ({} series rows)",
+                crate::output::years(*a),
+                crate::output::years(*b),
                 series.len()
             );
         }
@@ -96,7 +103,9 @@ pub fn summary(path: &Path) -> Result<String> {
     if let (Some(w), Some(en)) = (wb.last(), eb.last()) {
         let _ = writeln!(
             out,
-            "last relative balance errors: water {w:.3e}, energy {en:.3e}"
+            "last relative balance errors: water {}, energy {}",
+            human(*w, 3),
+            human(*en, 3)
         );
     }
     if let Ok(p) = read_attr_str(&root, "parent_checkpoint") {

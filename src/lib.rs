@@ -14,6 +14,7 @@
 //! - [`plot`]     pictures of a results file (SVG, PNG)
 //! - [`ensemble`] plans, sampling, members on threads or job-array shards, collect
 //! - [`fit`]      observation files, `deepdry compare`, Levenberg–Marquardt fitting
+//! - [`export`]   a results file as CSV files (`deepdry export`)
 //! - [`error`]    typed errors
 //! - [`verify`]   verification cases, reference solutions and the report
 //! - [`bench`], [`accuracy`] `deepdry bench` (and `--accuracy`), on runs of [`batch`]
@@ -29,6 +30,7 @@ pub mod checkpoint;
 pub mod cli;
 pub mod ensemble;
 pub mod error;
+pub mod export;
 pub mod fit;
 pub mod inspect;
 pub mod mesh;

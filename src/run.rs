@@ -71,27 +71,28 @@ pub struct RunSummary {
 impl RunSummary {
     /// The one-screen summary printed at the end of `deepdry run`.
     pub fn text(&self) -> String {
+        use crate::output::{human, years};
         let c = &self.counters;
         format!(
-            "run finished: {:.6} yr to {:.6} yr in {:.2} s wall time\n\
+            "run finished: {} yr to {} yr in {:.2} s wall time\n\
              steps {} (rejected {}), Newton iterations {}, Jacobian evaluations {}, factorisations {}\n\
-             water balance error {:.3e} kg m-2 (relative {:.2e}); energy balance error {:.3e} J m-2 (relative {:.2e})\n\
-             water flux at the surface {:.6e} mm/yr, at the bottom {:.6e} mm/yr (positive downward)\n\
+             water balance error {} kg m-2 (relative {}); energy balance error {} J m-2 (relative {})\n\
+             water flux at the surface {} mm/yr, at the bottom {} mm/yr (positive downward)\n\
              results: {}\n{}",
-            self.start / SECONDS_PER_YEAR,
-            self.end / SECONDS_PER_YEAR,
+            years(self.start / SECONDS_PER_YEAR),
+            years(self.end / SECONDS_PER_YEAR),
             self.wall_seconds,
             c.steps,
             c.rejected,
             c.newton_iterations,
             c.jacobians,
             c.factorizations,
-            self.balance_abs[1],
-            self.balance_rel[1],
-            self.balance_abs[0],
-            self.balance_rel[0],
-            self.surface_flux_mm_yr,
-            self.bottom_flux_mm_yr,
+            human(self.balance_abs[1], 4),
+            human(self.balance_rel[1], 3),
+            human(self.balance_abs[0], 4),
+            human(self.balance_rel[0], 3),
+            human(self.surface_flux_mm_yr, 4),
+            human(self.bottom_flux_mm_yr, 4),
             self.results.display(),
             if self.overrides.is_empty() {
                 String::new()

@@ -38,7 +38,9 @@ fn demo_cases_give_the_baseline_results_bitwise() {
         let out = dir.join(name);
         run_ok(case, &out, &[]);
         let old = baseline.join(name);
-        let (sets, values) = assert_same_datasets(&old.join("results.h5"), &out.join("results.h5"));
+        // Datasets added since the baseline are listed; every one it has must be equal.
+        let (sets, values, added) =
+            assert_baseline_datasets(&old.join("results.h5"), &out.join("results.h5"));
         let (ck_old, ck_new) = (newest_checkpoint(&old), newest_checkpoint(&out));
         let ck_old = ck_old.unwrap_or_else(|| panic!("{name}: no checkpoint in the baseline"));
         let ck_new = ck_new.unwrap_or_else(|| panic!("{name}: no checkpoint written"));
@@ -47,9 +49,9 @@ fn demo_cases_give_the_baseline_results_bitwise() {
             ck_new.file_name(),
             "{name}: final checkpoint"
         );
-        let (ck_sets, ck_values) = assert_same_datasets(&ck_old, &ck_new);
+        let (ck_sets, ck_values, ck_added) = assert_baseline_datasets(&ck_old, &ck_new);
         eprintln!(
-            "{name}: results {sets} datasets, {values} values; final checkpoint {ck_sets} datasets, {ck_values} values: bitwise identical"
+            "{name}: results {sets} datasets, {values} values; final checkpoint {ck_sets} datasets, {ck_values} values: bitwise identical; added since: {added:?}, checkpoint {ck_added:?}"
         );
     }
 }

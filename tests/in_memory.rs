@@ -74,8 +74,19 @@ fn in_memory_series_and_profiles_are_bitwise_those_of_the_results_file() {
         assert!(!stored.is_empty(), "profiles/{name} is empty");
         assert_eq!(bits(&stored), bits(&flat), "profiles/{name}");
     }
-    // Every series and profile dataset of the file was compared above.
-    let compared = 1 + SeriesRecord::FIELDS.len() + 1 + profile_columns(&empty).len();
+    // The coordinates of the profiles are the model's mesh.
+    assert_eq!(
+        bits(&file["profiles/depth"].floats()),
+        bits(&model.mesh.centers)
+    );
+    assert_eq!(
+        bits(&file["profiles/face_depth"].floats()),
+        bits(&model.mesh.faces)
+    );
+    // Every series and profile dataset of the file was compared above, but the water per
+    // layer and its layer coordinate (the file's only: the recorder keeps no per-layer
+    // storage; tests/results_layout.rs checks them).
+    let compared = 1 + SeriesRecord::FIELDS.len() + 1 + profile_columns(&empty).len() + 2 + 2;
     let in_file = file
         .keys()
         .filter(|k| k.starts_with("series/") || k.starts_with("profiles/"))

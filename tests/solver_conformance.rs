@@ -190,6 +190,7 @@ fn decay_error(k: usize, m: i32) -> f64 {
                 storage: vec![exact(t)],
                 inflow: vec![],
                 throughput: vec![],
+                top_inflow: vec![],
             }
         })
         .collect();

@@ -116,6 +116,15 @@ pub enum Command {
         #[arg(long)]
         log_time: bool,
     },
+    /// Write a results file as CSV files (series, profiles in long form, mesh) and a
+    /// README.txt describing their columns; units are in the column names.
+    Export {
+        /// The results file (HDF5) written by `deepdry run`.
+        results: PathBuf,
+        /// Output folder (default: `csv` beside the results file).
+        #[arg(long)]
+        out: Option<PathBuf>,
+    },
     /// Run the verification cases (analytic and published references) and print the table.
     Verify {
         /// Run only this case (a folder name under validation/).
@@ -370,6 +379,17 @@ fn run_command(cli: Cli) -> Result<()> {
             Ok(())
         }
         Command::Ensemble { what } => ensemble_command(what),
+        Command::Export { results, out } => {
+            let x = crate::export::export(&results, out.as_deref())?;
+            println!(
+                "exported {} series rows, {} snapshots of {} cells:",
+                x.series_rows, x.snapshots, x.cells
+            );
+            for p in &x.files {
+                println!("{}", p.display());
+            }
+            Ok(())
+        }
         Command::Verify { only, report } => crate::verify::command(only, report),
         Command::Table { what } => match what {
             TableCommand::Water { from, to, step } => {

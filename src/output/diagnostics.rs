@@ -86,6 +86,18 @@ pub fn drying_front_depth(sys: &System) -> f64 {
     0.0
 }
 
+/// Water stored in each layer [kg m⁻²] (liquid and vapour, Σ width × content over the
+/// layer's cells) from the last evaluation; `cell_layer` gives each cell's layer.
+pub fn layer_water_storage(sys: &System, cell_layer: &[usize], layers: usize) -> Vec<f64> {
+    let mut out = vec![0.0; layers];
+    for (i, c) in sys.cells.iter().enumerate() {
+        if let Some(w) = cell_layer.get(i).and_then(|&l| out.get_mut(l)) {
+            *w += sys.widths[i] * c.water.v;
+        }
+    }
+    out
+}
+
 /// One row of the time series.
 #[derive(Debug, Clone, Copy, Default, PartialEq)]
 pub struct SeriesRecord {
@@ -109,11 +121,18 @@ pub struct SeriesRecord {
     /// Step just taken [s] and its Newton iterations.
     pub dt: f64,
     pub newton_iterations: f64,
+    /// Cumulative water [kg m⁻²] and energy [J m⁻²] through the surface and the bottom
+    /// since the start, positive downward, integrated with the stepper's weights: the
+    /// storage change minus (surface − bottom) is the balance error.
+    pub surface_water_cumulative: f64,
+    pub bottom_water_cumulative: f64,
+    pub surface_energy_cumulative: f64,
+    pub bottom_energy_cumulative: f64,
 }
 
 impl SeriesRecord {
     /// Dataset names, units and long names, in the order of [`SeriesRecord::values`].
-    pub const FIELDS: [(&'static str, &'static str, &'static str); 12] = [
+    pub const FIELDS: [(&'static str, &'static str, &'static str); 16] = [
         (
             "surface_water_flux",
             "kg m-2 s-1",
@@ -170,9 +189,29 @@ impl SeriesRecord {
             "1",
             "Newton iterations of the step just taken",
         ),
+        (
+            "surface_water_cumulative",
+            "kg m-2",
+            "water that entered through the land surface since the start, positive downward",
+        ),
+        (
+            "bottom_water_cumulative",
+            "kg m-2",
+            "water that left through the bottom boundary since the start, positive downward",
+        ),
+        (
+            "surface_energy_cumulative",
+            "J m-2",
+            "energy that entered through the land surface since the start, positive downward",
+        ),
+        (
+            "bottom_energy_cumulative",
+            "J m-2",
+            "energy that left through the bottom boundary since the start, positive downward",
+        ),
     ];
 
-    pub fn values(&self) -> [f64; 12] {
+    pub fn values(&self) -> [f64; 16] {
         [
             self.surface_water_flux,
             self.bottom_water_flux,
@@ -186,6 +225,10 @@ impl SeriesRecord {
             self.drying_front_depth,
             self.dt,
             self.newton_iterations,
+            self.surface_water_cumulative,
+            self.bottom_water_cumulative,
+            self.surface_energy_cumulative,
+            self.bottom_energy_cumulative,
         ]
     }
 }

@@ -105,6 +105,17 @@ pub fn append_row(ds: &Dataset, row: &[f64]) -> hdf5::Result<()> {
     ds.write_slice(&a, s![old..old + 1, ..])
 }
 
+/// Appends rows to a growable 2-D dataset of as many columns.
+pub fn append_rows(ds: &Dataset, rows: &Array2<f64>) -> hdf5::Result<()> {
+    let (n, width) = rows.dim();
+    if n == 0 {
+        return Ok(());
+    }
+    let old = ds.shape()[0];
+    ds.resize((old + n, width))?;
+    ds.write_slice(rows, s![old..old + n, ..])
+}
+
 /// Truncates a growable dataset to `len` rows.
 pub fn truncate(ds: &Dataset, len: usize) -> hdf5::Result<()> {
     let mut shape = ds.shape();
@@ -154,4 +165,43 @@ pub fn short_error(err: &hdf5::Error) -> String {
 /// An I/O error on `path` from an HDF5 error, in one line.
 pub fn io_error(path: &std::path::Path, err: hdf5::Error) -> crate::error::Error {
     crate::error::Error::io(path, short_error(&err))
+}
+
+/// The two dimension-scale calls of the HDF5 high-level library (libhdf5_hl, linked through
+/// the `hl` feature of the sys crate; hdf5-metno does not wrap them).
+mod dimension_scales {
+    use std::ffi::{c_char, c_int, c_uint};
+    extern "C" {
+        pub fn H5DSset_scale(dsid: i64, dimname: *const c_char) -> c_int;
+        pub fn H5DSattach_scale(did: i64, dsid: i64, idx: c_uint) -> c_int;
+    }
+}
+
+/// Marks the 1-D dataset `ds` as the dimension scale (netCDF-4: the dimension and its
+/// coordinate variable) named `name`.
+pub fn set_scale(ds: &Dataset, name: &str) -> hdf5::Result<()> {
+    let c = std::ffi::CString::new(name).map_err(|e| hdf5::Error::from(e.to_string()))?;
+    let rc = hdf5::sync::sync(|| unsafe { dimension_scales::H5DSset_scale(ds.id(), c.as_ptr()) });
+    if rc < 0 {
+        return Err(hdf5::Error::from(format!(
+            "{}: cannot make it the dimension scale {name}",
+            ds.name()
+        )));
+    }
+    Ok(())
+}
+
+/// Attaches the dimension scale `scale` to axis `axis` of `ds`.
+pub fn attach_scale(ds: &Dataset, scale: &Dataset, axis: usize) -> hdf5::Result<()> {
+    let rc = hdf5::sync::sync(|| unsafe {
+        dimension_scales::H5DSattach_scale(ds.id(), scale.id(), axis as std::ffi::c_uint)
+    });
+    if rc < 0 {
+        return Err(hdf5::Error::from(format!(
+            "{}: cannot attach the dimension scale {} to axis {axis}",
+            ds.name(),
+            scale.name()
+        )));
+    }
+    Ok(())
 }

@@ -4,6 +4,39 @@ pub mod diagnostics;
 pub mod h5util;
 pub mod results;
 
+/// A number for people to read, with `sig` significant digits: plain decimals from 0.001
+/// to below 1e6 (`-0.08502`, `1.448`, `12346`), else scientific (`1.448e-5`, `2.04e9`);
+/// `0` for zero. Round-trips are not the point (the files hold every bit).
+pub fn human(x: f64, sig: usize) -> String {
+    let sig = sig.max(1);
+    if x == 0.0 || !x.is_finite() {
+        return format!("{x}");
+    }
+    // Rounded to `sig` digits first, so that 9.9996 becomes 10.00, not 10.000.
+    let r: f64 = format!("{x:.prec$e}", prec = sig - 1).parse().unwrap_or(x);
+    let a = r.abs();
+    if (1e-3..1e6).contains(&a) {
+        let mut mag = a.log10().floor() as i64;
+        if 10f64.powi(mag as i32 + 1) <= a {
+            mag += 1;
+        }
+        let decimals = (sig as i64 - 1 - mag).max(0) as usize;
+        format!("{r:.decimals$}")
+    } else {
+        format!("{x:.prec$e}", prec = sig - 1)
+    }
+}
+
+/// A time in years for people to read: the shortest decimal that is the value (`-1`,
+/// `50000`, `0.001`), in scientific form beyond 1e6 or below 1e-3.
+pub fn years(t: f64) -> String {
+    if t == 0.0 || (1e-3..1e6).contains(&t.abs()) {
+        format!("{t}")
+    } else {
+        format!("{t:e}")
+    }
+}
+
 /// The current UTC time as an ISO 8601 string (seconds resolution).
 pub fn now_utc() -> String {
     let secs = std::time::SystemTime::now()

@@ -17,7 +17,8 @@
 
 use super::diagnostics::{Profile, SeriesRecord};
 use super::h5util::{
-    append_1d, append_row, attr_str, growable_1d, growable_2d, in_use_message, write_1d,
+    append_1d, append_row, attach_scale, attr_str, growable_1d, growable_2d, in_use_message,
+    set_scale, write_1d,
 };
 use crate::error::{Error, Result};
 use crate::model::Model;
@@ -28,7 +29,8 @@ use std::path::{Path, PathBuf};
 /// Attribute value of `kind` that marks a results file.
 pub const RESULTS_KIND: &str = "deepdry-results";
 
-const PROFILE_CELL: [(&str, &str, &str); 5] = [
+/// The cell-centred profiles: dataset name, units, long name.
+pub const PROFILE_CELL: [(&str, &str, &str); 5] = [
     ("temperature", "degC", "temperature"),
     ("head", "m", "pressure (matric) head"),
     ("liquid_content", "1", "volumetric liquid water content"),
@@ -43,7 +45,8 @@ const PROFILE_CELL: [(&str, &str, &str); 5] = [
         "relative humidity of the pore air",
     ),
 ];
-const PROFILE_FACE: [(&str, &str, &str); 5] = [
+/// The face profiles: dataset name, units, long name.
+pub const PROFILE_FACE: [(&str, &str, &str); 5] = [
     (
         "liquid_flux_isothermal",
         "kg m-2 s-1",
@@ -76,6 +79,11 @@ pub struct ResultsFile {
     file: File,
     sets: Sets,
     pending: Vec<SeriesRecord>,
+    /// Water stored per layer of the queued rows, row after row.
+    pending_layers: Vec<f64>,
+    /// The layer of each cell and the number of layers.
+    pub cell_layer: Vec<usize>,
+    pub layers: usize,
     pub snapshots: usize,
     pub records: usize,
     /// Time [yr] of the last series row and of the last snapshot written to the file.
@@ -131,31 +139,117 @@ struct Sets {
     faces: Vec<Dataset>,
     series_time: Dataset,
     series: Vec<Dataset>,
+    /// `/series/layer_water_storage` [records × layers].
+    layer_storage: Dataset,
+}
+
+/// Strings as HDF5 variable-length UTF-8.
+fn var_len(v: &[String]) -> Vec<VarLenUnicode> {
+    v.iter().map(|s| s.parse().unwrap_or_default()).collect()
+}
+
+/// The layer index of every cell of `model` (into `model.layers`).
+pub fn layer_of_cell(model: &Model) -> Vec<usize> {
+    model
+        .mesh
+        .centers
+        .iter()
+        .map(|z| {
+            model
+                .layers
+                .iter()
+                .position(|l| *z >= l.top && *z <= l.bottom)
+                .unwrap_or(0)
+        })
+        .collect()
+}
+
+/// CF standard names (CF standard name table) of the datasets that have one; the rest
+/// carry `long_name` only.
+fn standard_name(name: &str) -> Option<&'static str> {
+    Some(match name {
+        "temperature" => "soil_temperature",
+        "liquid_content" => "volume_fraction_of_condensed_water_in_soil",
+        "surface_heat_flux" => "downward_heat_flux_in_soil",
+        "depth" | "face_depth" => "depth",
+        _ => return None,
+    })
+}
+
+/// What the time axis of a results file means (attribute `comment` of every `time`).
+pub const TIME_COMMENT: &str = "years of 365.25 days (31 557 600 s) on the case's time axis \
+     (start_year to end_year); float years, not calendar dates";
+
+/// Sets the CF attributes of a time coordinate.
+fn describe_time(ds: &Dataset) -> hdf5::Result<()> {
+    attr_str(ds, "axis", "T")?;
+    attr_str(ds, "comment", TIME_COMMENT)
+}
+
+/// Sets the CF attributes of a depth coordinate.
+fn describe_depth(ds: &Dataset) -> hdf5::Result<()> {
+    attr_str(ds, "positive", "down")?;
+    attr_str(ds, "axis", "Z")?;
+    attr_str(ds, "standard_name", "depth")
+}
+
+/// Adds `standard_name` when CF has one for the dataset `name`.
+fn add_standard_name(ds: &Dataset, name: &str) -> hdf5::Result<()> {
+    match standard_name(name) {
+        Some(sn) => attr_str(ds, "standard_name", sn),
+        None => Ok(()),
+    }
 }
 
 impl Sets {
-    /// Creates them, empty, in a new file of `n` cells; or, with `n` = `None`, opens them
-    /// in an existing file.
-    fn get(file: &File, n: Option<usize>) -> hdf5::Result<Sets> {
-        let group = |name: &str| match n {
-            Some(_) => file.create_group(name),
-            None => file.group(name),
+    /// Creates them, empty, in a new file with the cell centres and faces `mesh`
+    /// (netCDF-4 layout: `time`, `depth` and `face_depth` are dimension scales of their
+    /// group, attached to every profile and series dataset); or, with `mesh` = `None`,
+    /// opens them in an existing file.
+    fn get(file: &File, mesh: Option<(&[f64], &[f64], &[String])>) -> hdf5::Result<Sets> {
+        let create = mesh.is_some();
+        let group = |name: &str| {
+            if create {
+                file.create_group(name)
+            } else {
+                file.group(name)
+            }
         };
         let (prof, ser) = (group("profiles")?, group("series")?);
-        let one = |g: &hdf5::Group, name: &str, units: &str, long: &str| match n {
-            Some(_) => growable_1d(g, name, units, long),
-            None => g.dataset(name),
+        let one = |g: &hdf5::Group, name: &str, units: &str, long: &str| {
+            if create {
+                let ds = growable_1d(g, name, units, long)?;
+                add_standard_name(&ds, name)?;
+                Ok(ds)
+            } else {
+                g.dataset(name)
+            }
         };
         let rows = |width: usize, list: &[(&str, &str, &str)]| -> hdf5::Result<Vec<Dataset>> {
             list.iter()
-                .map(|(name, units, long)| match n {
-                    Some(_) => growable_2d(&prof, name, width, units, long),
-                    None => prof.dataset(name),
+                .map(|(name, units, long)| {
+                    if create {
+                        let ds = growable_2d(&prof, name, width, units, long)?;
+                        add_standard_name(&ds, name)?;
+                        Ok(ds)
+                    } else {
+                        prof.dataset(name)
+                    }
                 })
                 .collect()
         };
-        let cells = n.unwrap_or(0);
-        Ok(Sets {
+        let cells = mesh.map_or(0, |(c, _, _)| c.len());
+        let layer_storage = match mesh {
+            Some((_, _, names)) => growable_2d(
+                &ser,
+                "layer_water_storage",
+                names.len(),
+                "kg m-2",
+                "water (liquid and vapour) stored in each layer of the column",
+            )?,
+            None => ser.dataset("layer_water_storage")?,
+        };
+        let sets = Sets {
             profile_time: one(&prof, "time", "year", "snapshot time")?,
             cells: rows(cells, &PROFILE_CELL)?,
             faces: rows(cells + 1, &PROFILE_FACE)?,
@@ -164,7 +258,45 @@ impl Sets {
                 .iter()
                 .map(|(name, units, long)| one(&ser, name, units, long))
                 .collect::<hdf5::Result<_>>()?,
-        })
+            layer_storage,
+        };
+        if let Some((centers, faces, layer_names)) = mesh {
+            let depth = write_1d(&prof, "depth", centers, "m", "depth of the cell centres")?;
+            let face_depth = write_1d(&prof, "face_depth", faces, "m", "depth of the cell faces")?;
+            for (ds, name) in [(&depth, "depth"), (&face_depth, "face_depth")] {
+                describe_depth(ds)?;
+                set_scale(ds, name)?;
+            }
+            for t in [&sets.profile_time, &sets.series_time] {
+                describe_time(t)?;
+                set_scale(t, "time")?;
+            }
+            for ds in &sets.cells {
+                attach_scale(ds, &sets.profile_time, 0)?;
+                attach_scale(ds, &depth, 1)?;
+            }
+            for ds in &sets.faces {
+                attach_scale(ds, &sets.profile_time, 0)?;
+                attach_scale(ds, &face_depth, 1)?;
+            }
+            for ds in &sets.series {
+                attach_scale(ds, &sets.series_time, 0)?;
+            }
+            attr_str(
+                &sets.layer_storage,
+                "standard_name",
+                "moisture_content_of_soil_layer",
+            )?;
+            let layer = ser
+                .new_dataset_builder()
+                .with_data(&ndarray::Array1::from_vec(var_len(layer_names)))
+                .create("layer")?;
+            super::h5util::describe(&layer, "1", "layer names (the case's layers, from the top)")?;
+            set_scale(&layer, "layer")?;
+            attach_scale(&sets.layer_storage, &sets.series_time, 0)?;
+            attach_scale(&sets.layer_storage, &layer, 1)?;
+        }
+        Ok(sets)
     }
 
     /// The cell and face profile datasets, [snapshots × cells or faces].
@@ -180,6 +312,7 @@ impl Sets {
             truncate(d, snapshots)?;
         }
         truncate(&self.series_time, series_rows)?;
+        truncate(&self.layer_storage, series_rows)?;
         for d in &self.series {
             truncate(d, series_rows)?;
         }
@@ -209,9 +342,16 @@ impl ResultsFile {
         attr_str(&root, "case_text", &model.case_text).map_err(&e)?;
         attr_str(&root, "overrides", &model.overrides.join("\n")).map_err(&e)?;
         attr_str(&root, "time_unit", "year").map_err(&e)?;
+        attr_str(&root, "Conventions", "CF-1.8").map_err(&e)?;
+        attr_str(
+            &root,
+            "source",
+            concat!("deepdry ", env!("CARGO_PKG_VERSION")),
+        )
+        .map_err(&e)?;
 
         let mesh = file.create_group("mesh").map_err(&e)?;
-        write_1d(
+        let depth = write_1d(
             &mesh,
             "depth",
             &model.mesh.centers,
@@ -219,7 +359,7 @@ impl ResultsFile {
             "depth of the cell centres",
         )
         .map_err(&e)?;
-        write_1d(
+        let face_depth = write_1d(
             &mesh,
             "face_depth",
             &model.mesh.faces,
@@ -227,18 +367,12 @@ impl ResultsFile {
             "depth of the cell faces",
         )
         .map_err(&e)?;
-        let layer_of_cell: Vec<i32> = model
-            .mesh
-            .centers
-            .iter()
-            .map(|z| {
-                model
-                    .layers
-                    .iter()
-                    .position(|l| *z >= l.top && *z <= l.bottom)
-                    .unwrap_or(0) as i32
-            })
-            .collect();
+        for (ds, name) in [(&depth, "depth"), (&face_depth, "face_depth")] {
+            describe_depth(ds).map_err(&e)?;
+            set_scale(ds, name).map_err(&e)?;
+        }
+        let cell_layer = layer_of_cell(model);
+        let layer_of_cell: Vec<i32> = cell_layer.iter().map(|&l| l as i32).collect();
         let ds = mesh
             .new_dataset_builder()
             .with_data(&ndarray::Array1::from_vec(layer_of_cell))
@@ -246,29 +380,35 @@ impl ResultsFile {
             .map_err(&e)?;
         super::h5util::describe(&ds, "1", "layer index of each cell (into layer_names)")
             .map_err(&e)?;
-        let names: Vec<VarLenUnicode> = model
-            .layers
-            .iter()
-            .map(|l| l.name.parse().unwrap_or_default())
-            .collect();
+        attach_scale(&ds, &depth, 0).map_err(&e)?;
+        let layer_names: Vec<String> = model.layers.iter().map(|l| l.name.clone()).collect();
+        let names = var_len(&layer_names);
         let ds = mesh
             .new_dataset_builder()
             .with_data(&ndarray::Array1::from_vec(names))
             .create("layer_names")
             .map_err(&e)?;
         super::h5util::describe(&ds, "1", "layer names").map_err(&e)?;
+        set_scale(&ds, "layer_names").map_err(&e)?;
 
-        let sets = Sets::get(&file, Some(model.mesh.n_cells())).map_err(&e)?;
-        Ok(Self::writer(path, file, sets))
+        let sets = Sets::get(
+            &file,
+            Some((&model.mesh.centers, &model.mesh.faces, &layer_names)),
+        )
+        .map_err(&e)?;
+        Ok(Self::writer(path, file, sets, cell_layer))
     }
 
     /// The writer of a new `file` at `path` with its datasets `sets`.
-    fn writer(path: &Path, file: File, sets: Sets) -> Self {
+    fn writer(path: &Path, file: File, sets: Sets, cell_layer: Vec<usize>) -> Self {
         ResultsFile {
             path: path.to_path_buf(),
             file,
+            layers: sets.layer_storage.shape()[1],
             sets,
+            cell_layer,
             pending: Vec::new(),
+            pending_layers: Vec::new(),
             snapshots: 0,
             records: 0,
             last_series_year: None,
@@ -329,7 +469,25 @@ impl ResultsFile {
                 faces.len().saturating_sub(1)
             )));
         }
+        // A file of an earlier version lacks the datasets added since (it cannot grow
+        // them from the middle of a run).
+        let missing = SeriesRecord::FIELDS
+            .iter()
+            .map(|f| format!("series/{}", f.0))
+            .chain(["profiles/depth", "series/layer_water_storage"].map(String::from))
+            .find(|n| file.dataset(n).is_err());
+        if let Some(n) = missing {
+            return Err(damaged(format!(
+                "it was written by an earlier deepdry version and has no {n}"
+            )));
+        }
         let sets = Sets::get(&file, None).map_err(h5err)?;
+        let cell_layer: Vec<usize> = ds("mesh/layer")?
+            .read_raw::<i32>()
+            .map_err(h5err)?
+            .iter()
+            .map(|&l| l.max(0) as usize)
+            .collect();
         let have_snap = sets.profile_time.shape()[0];
         let have_rows = sets.series_time.shape()[0];
         if have_snap < snapshots || have_rows < series_rows {
@@ -343,6 +501,11 @@ impl ResultsFile {
             .profiles()
             .map(|d| (d, snapshots, "snapshots"))
             .chain(sets.series.iter().map(|d| (d, series_rows, "series rows")))
+            .chain(std::iter::once((
+                &sets.layer_storage,
+                series_rows,
+                "series rows",
+            )))
             .find(|(d, need, _)| d.shape()[0] < *need);
         if let Some((d, need, what)) = short {
             return Err(damaged(format!(
@@ -375,7 +538,7 @@ impl ResultsFile {
             last_series_year: last_row,
             last_snapshot_year: last_snap,
             continued: true,
-            ..Self::writer(path, file, sets)
+            ..Self::writer(path, file, sets, cell_layer)
         })
     }
 
@@ -385,9 +548,19 @@ impl ResultsFile {
         attr_str(&root, name, value).map_err(h5(&self.path))
     }
 
-    /// Queues one series row (written at the next snapshot or flush).
+    /// Queues one series row (written at the next snapshot or flush), with no water
+    /// storage per layer (NaN).
     pub fn push_series(&mut self, rec: SeriesRecord) {
+        let nan = vec![f64::NAN; self.layers];
+        self.push_series_layers(rec, &nan);
+    }
+
+    /// Queues one series row and the water stored in each layer [kg m⁻²] (as many
+    /// values as layers; missing ones are NaN).
+    pub fn push_series_layers(&mut self, rec: SeriesRecord, layer_water: &[f64]) {
         self.pending.push(rec);
+        self.pending_layers
+            .extend((0..self.layers).map(|k| layer_water.get(k).copied().unwrap_or(f64::NAN)));
     }
 
     /// Writes a snapshot at `time_year`, then everything queued, then flushes the file.
@@ -429,6 +602,12 @@ impl ResultsFile {
                 let col: Vec<f64> = self.pending.iter().map(|r| r.values()[k]).collect();
                 append_1d(ds, &col).map_err(&e)?;
             }
+            let rows = ndarray::Array2::from_shape_vec(
+                (self.pending.len(), self.layers),
+                std::mem::take(&mut self.pending_layers),
+            )
+            .map_err(|x| Error::Internal(x.to_string()))?;
+            super::h5util::append_rows(&self.sets.layer_storage, &rows).map_err(&e)?;
             self.records += self.pending.len();
             self.last_series_year = self.pending.last().map(|r| r.time_year);
             self.pending.clear();

@@ -18,8 +18,13 @@ pub struct ResultsWriter {
 }
 
 impl Observer for ResultsWriter {
-    fn series(&mut self, _sim: &Simulation, record: &SeriesRecord) -> Result<()> {
-        self.file.push_series(*record);
+    fn series(&mut self, sim: &Simulation, record: &SeriesRecord) -> Result<()> {
+        let layers = crate::output::diagnostics::layer_water_storage(
+            sim.system(),
+            &self.file.cell_layer,
+            self.file.layers,
+        );
+        self.file.push_series_layers(*record, &layers);
         Ok(())
     }
     fn snapshot(&mut self, _sim: &Simulation, time_year: f64, profile: &Profile) -> Result<()> {

@@ -82,6 +82,9 @@ pub fn step_options(model: &Model) -> StepOptions {
 pub fn series_record(sys: &System, st: &Stepper, dt: f64, iters: usize) -> SeriesRecord {
     let (abs, rel) = column_balance(sys, st);
     let (top, bot) = sys.boundary_fluxes();
+    // Conserved quantities in the stepper's order [energy, water]; the bottom's outflow is
+    // the top's inflow minus the net inflow.
+    let (w_top, w_net) = (&st.state.top_inflow, &st.state.inflow);
     SeriesRecord {
         time_year: st.state.t / SECONDS_PER_YEAR,
         surface_water_flux: top[1],
@@ -96,6 +99,10 @@ pub fn series_record(sys: &System, st: &Stepper, dt: f64, iters: usize) -> Serie
         drying_front_depth: drying_front_depth(sys),
         dt,
         newton_iterations: iters as f64,
+        surface_water_cumulative: w_top[1],
+        bottom_water_cumulative: w_top[1] - w_net[1],
+        surface_energy_cumulative: w_top[0],
+        bottom_energy_cumulative: w_top[0] - w_net[0],
     }
 }
 

@@ -97,6 +97,8 @@ pub struct HistoryPoint {
     /// Cumulative inflow and throughput at `t` (as [`StepState::inflow`]).
     pub inflow: Vec<f64>,
     pub throughput: Vec<f64>,
+    /// Cumulative inflow through the top boundary at `t` (as [`StepState::top_inflow`]).
+    pub top_inflow: Vec<f64>,
 }
 
 impl HistoryPoint {
@@ -107,6 +109,7 @@ impl HistoryPoint {
             storage: vec![0.0; len],
             inflow: vec![0.0; conserved],
             throughput: vec![0.0; conserved],
+            top_inflow: vec![0.0; conserved],
         }
     }
 }
@@ -132,6 +135,11 @@ pub struct StepState {
     pub inflow: Vec<f64>,
     /// Cumulative |top flow| + |bottom flow| (for relative balance errors).
     pub throughput: Vec<f64>,
+    /// Cumulative inflow through the top boundary alone (the top flow of
+    /// [`Problem::boundary_flows`]) of each conserved quantity, by the same formula as
+    /// [`StepState::inflow`]; the bottom boundary's outflow is `top_inflow − inflow`.
+    /// NaN when unknown (a run continued from a checkpoint written before it was kept).
+    pub top_inflow: Vec<f64>,
     /// Content of each conserved quantity at the start (Σ V M).
     pub initial_totals: Vec<f64>,
     /// Storages of every block at the start: the storage change is summed block by
@@ -291,6 +299,7 @@ impl<const B: usize> Stepper<B> {
             u,
             inflow: vec![0.0; nq],
             throughput: vec![0.0; nq],
+            top_inflow: vec![0.0; nq],
             counters: Counters::default(),
             history: Vec::new(),
             order: 1,
@@ -672,6 +681,7 @@ impl<const B: usize> Stepper<B> {
         let nq = s.inflow.len();
         let mut new_inflow = [0.0; MAX_CONSERVED];
         let mut new_throughput = [0.0; MAX_CONSERVED];
+        let mut new_top = [0.0; MAX_CONSERVED];
         for q in 0..nq {
             let fin = top[q] - bot[q];
             let fabs = top[q].abs() + bot[q].abs();
@@ -683,6 +693,13 @@ impl<const B: usize> Stepper<B> {
             }
             new_inflow[q] = (fin - a) / c;
             new_throughput[q] = (fabs - b) / c;
+            // The top boundary alone, by the same formula (a separate sum: the two above
+            // stay as they were).
+            let mut w = alpha[1] * s.top_inflow[q];
+            for j in 2..=k {
+                w += alpha[j] * s.history[j - 2].top_inflow[q];
+            }
+            new_top[q] = (top[q] - w) / c;
         }
         {
             // Shift the history: the old current point becomes the newest history point,
@@ -698,6 +715,7 @@ impl<const B: usize> Stepper<B> {
             point.u.copy_from_slice(&self.u_old);
             point.inflow.clone_from(&s.inflow);
             point.throughput.clone_from(&s.throughput);
+            point.top_inflow.clone_from(&s.top_inflow);
             // The old storages go with the point; the new ones are filled below.
             std::mem::swap(&mut point.storage, &mut s.storage);
             s.history.insert(0, point);
@@ -705,6 +723,7 @@ impl<const B: usize> Stepper<B> {
         }
         s.inflow.copy_from_slice(&new_inflow[..nq]);
         s.throughput.copy_from_slice(&new_throughput[..nq]);
+        s.top_inflow.copy_from_slice(&new_top[..nq]);
         let base = if dt < dt_try { dt_try } else { dt };
         s.dt = (base * factor).clamp(self.opts.dt_min, self.opts.dt_max);
         s.t = a.t_new;

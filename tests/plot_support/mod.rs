@@ -102,6 +102,7 @@ pub fn write_synthetic(path: &Path, title: &str) {
             drying_front_depth: 0.3 + 0.4 * t.sqrt(),
             dt: 100.0,
             newton_iterations: 3.0,
+            ..Default::default()
         });
         while next_snapshot < SNAPSHOT_TIMES.len() && SNAPSHOT_TIMES[next_snapshot] <= t {
             let ts = SNAPSHOT_TIMES[next_snapshot];

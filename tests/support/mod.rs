@@ -338,17 +338,38 @@ pub fn root_attr(path: &Path, name: &str) -> Option<String> {
 /// Asserts that the two files hold the same datasets with bitwise-equal contents; returns
 /// the number of datasets and of values compared.
 pub fn assert_same_datasets(a: &Path, b: &Path) -> (usize, usize) {
-    let da = datasets(a).unwrap_or_else(|e| panic!("{}: {e}", a.display()));
-    let db = datasets(b).unwrap_or_else(|e| panic!("{}: {e}", b.display()));
-    let na: Vec<&String> = da.keys().collect();
-    let nb: Vec<&String> = db.keys().collect();
-    assert_eq!(
-        na,
-        nb,
-        "dataset names differ: {} vs {}",
+    let (sets, values, added) = compare_datasets(a, b);
+    assert!(
+        added.is_empty(),
+        "dataset names differ: {} vs {}: {added:?} only in the second",
         a.display(),
         b.display()
     );
+    (sets, values)
+}
+
+/// Asserts that every dataset of the file `old` (a baseline of an earlier build) is in
+/// `new` with bitwise-equal contents; returns the number of datasets and of values
+/// compared, and the names of the datasets only `new` has (added since).
+pub fn assert_baseline_datasets(old: &Path, new: &Path) -> (usize, usize, Vec<String>) {
+    compare_datasets(old, new)
+}
+
+fn compare_datasets(a: &Path, b: &Path) -> (usize, usize, Vec<String>) {
+    let da = datasets(a).unwrap_or_else(|e| panic!("{}: {e}", a.display()));
+    let db = datasets(b).unwrap_or_else(|e| panic!("{}: {e}", b.display()));
+    let missing: Vec<&String> = da.keys().filter(|k| !db.contains_key(*k)).collect();
+    assert!(
+        missing.is_empty(),
+        "dataset names differ: {} vs {}: {missing:?} missing in the second",
+        a.display(),
+        b.display()
+    );
+    let added: Vec<String> = db
+        .keys()
+        .filter(|k| !da.contains_key(*k))
+        .cloned()
+        .collect();
     let mut values = 0;
     for (name, x) in &da {
         let y = &db[name];
@@ -372,5 +393,5 @@ pub fn assert_same_datasets(a: &Path, b: &Path) -> (usize, usize) {
         }
         values += x.len();
     }
-    (da.len(), values)
+    (da.len(), values, added)
 }

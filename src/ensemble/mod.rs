@@ -388,37 +388,64 @@ pub fn collect(dir: &Path) -> Result<(PathBuf, [usize; 3])> {
             "caution",
             "Model estimates, not a substitute for site investigation.",
         )?;
-        let ds = f
-            .new_dataset_builder()
-            .with_data(&plan.times_year)
-            .create("time")
-            .map_err(e)?;
-        attr(&ds, "units", "year")?;
-        attr(
-            &ds,
-            "long_name",
-            "times at which the kept series are sampled",
-        )?;
+        use crate::output::h5util::{attach_scale, set_scale};
+        // Dimension scales in every group that uses them (netCDF readers resolve a
+        // dimension within its group): member, time, probability.
+        let members_axis: Vec<i32> = (0..m as i32).collect();
+        let time_scale = |g: &hdf5::Group| -> Result<hdf5::Dataset> {
+            let t = g
+                .new_dataset_builder()
+                .with_data(&plan.times_year)
+                .create("time")
+                .map_err(e)?;
+            attr(&t, "units", "year")?;
+            attr(
+                &t,
+                "long_name",
+                "times at which the kept series are sampled",
+            )?;
+            set_scale(&t, "time").map_err(e)?;
+            Ok(t)
+        };
+        let member_scale = |g: &hdf5::Group| -> Result<hdf5::Dataset> {
+            let d = g
+                .new_dataset_builder()
+                .with_data(&members_axis)
+                .create("member")
+                .map_err(e)?;
+            attr(&d, "long_name", "ensemble member index (from 0)")?;
+            set_scale(&d, "member").map_err(e)?;
+            Ok(d)
+        };
+        time_scale(&f)?;
+        let root_member = member_scale(&f)?;
         let ds = f
             .new_dataset_builder()
             .with_data(&params)
             .create("parameters")
             .map_err(e)?;
-        attr(
-            &ds,
-            "keys",
-            &plan
-                .parameters
-                .iter()
-                .map(|p| p.key.as_str())
-                .collect::<Vec<_>>()
-                .join("\n"),
-        )?;
+        let keys: Vec<&str> = plan.parameters.iter().map(|p| p.key.as_str()).collect();
+        attr(&ds, "keys", &keys.join("\n"))?;
         attr(
             &ds,
             "long_name",
             "member × parameter values, in the order of the keys attribute",
         )?;
+        attach_scale(&ds, &root_member, 0).map_err(e)?;
+        let pidx: Vec<i32> = (0..np as i32).collect();
+        let ps = f
+            .new_dataset_builder()
+            .with_data(&pidx)
+            .create("parameter")
+            .map_err(e)?;
+        attr(&ps, "keys", &keys.join("\n"))?;
+        attr(
+            &ps,
+            "long_name",
+            "parameter index (from 0), keys in the keys attribute",
+        )?;
+        set_scale(&ps, "parameter").map_err(e)?;
+        attach_scale(&ds, &ps, 1).map_err(e)?;
         let ds = f
             .new_dataset_builder()
             .with_data(&state)
@@ -429,14 +456,18 @@ pub fn collect(dir: &Path) -> Result<(PathBuf, [usize; 3])> {
             "long_name",
             "member status: 0 done, 1 failed, 2 missing",
         )?;
+        attach_scale(&ds, &root_member, 0).map_err(e)?;
         let g = f.create_group("series").map_err(e)?;
+        let (g_time, g_member) = (time_scale(&g)?, member_scale(&g)?);
         let q = f.create_group("quantiles").map_err(e)?;
+        let q_time = time_scale(&q)?;
         let qa = q
             .new_dataset_builder()
             .with_data(&QUANTILES[..])
             .create("probability")
             .map_err(e)?;
         attr(&qa, "units", "1")?;
+        set_scale(&qa, "probability").map_err(e)?;
         for (name, arr) in plan.series.iter().zip(&series) {
             let (unit, long) = SeriesRecord::FIELDS
                 .iter()
@@ -450,6 +481,8 @@ pub fn collect(dir: &Path) -> Result<(PathBuf, [usize; 3])> {
                 .map_err(e)?;
             attr(&ds, "units", unit)?;
             attr(&ds, "long_name", &format!("{long} (member × time)"))?;
+            attach_scale(&ds, &g_member, 0).map_err(e)?;
+            attach_scale(&ds, &g_time, 1).map_err(e)?;
             let mut qs = ndarray::Array2::<f64>::from_elem((QUANTILES.len(), nt), f64::NAN);
             for t in 0..nt {
                 let mut col: Vec<f64> = (0..m)
@@ -472,6 +505,8 @@ pub fn collect(dir: &Path) -> Result<(PathBuf, [usize; 3])> {
                 "long_name",
                 &format!("{long}: quantiles over the members that ran (probability × time)"),
             )?;
+            attach_scale(&ds, &qa, 0).map_err(e)?;
+            attach_scale(&ds, &q_time, 1).map_err(e)?;
         }
     }
     std::fs::rename(&tmp, &path).map_err(|err| Error::io(&path, err))?;

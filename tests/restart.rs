@@ -82,6 +82,16 @@ fn restart_identity(method: &'static str, name: &str) {
         if method == "bdf" {
             f.unlink("history_storage").unwrap();
         }
+        // Sealed again, as a file written without them would be.
+        let sum = deepdry::checkpoint::content_checksum(&f).unwrap();
+        f.delete_attr("checksum").unwrap();
+        let v: hdf5::types::VarLenUnicode = sum.parse().unwrap();
+        f.new_attr::<hdf5::types::VarLenUnicode>()
+            .shape(())
+            .create("checksum")
+            .unwrap()
+            .write_scalar(&v)
+            .unwrap();
     }
     run_ok(&case, &c, &["--resume", arg(&ck)]);
     let end = |d: &Path| {
@@ -447,6 +457,12 @@ fn bad_checkpoints_give_one_line_errors_for_resume_start_from_and_inspect() {
     let version = dir.join("version.h5");
     std::fs::copy(&good, &version).unwrap();
     set_attr(&version, "format", "99");
+    {
+        // A file of another format has no checksum of this format's kind.
+        let _g = h5_guard();
+        let f = hdf5::File::open_rw(&version).unwrap();
+        f.delete_attr("checksum").unwrap();
+    }
     let damaged = dir.join("damaged.h5");
     std::fs::copy(&good, &damaged).unwrap();
     {
@@ -464,11 +480,11 @@ fn bad_checkpoints_give_one_line_errors_for_resume_start_from_and_inspect() {
         (&foreign, vec!["foreign.h5", "not written by deepdry"]),
         (
             &version,
-            vec!["version.h5", "checkpoint format 99", "reads format 2"],
+            vec!["version.h5", "checkpoint format 99", "reads format 3"],
         ),
         (
             &damaged,
-            vec!["damaged.h5", "damaged checkpoint", "unknowns"],
+            vec!["damaged.h5", "damaged checkpoint", "checksum"],
         ),
         (&missing, vec!["no-such-checkpoint.h5", "no such file"]),
         (&results, vec!["results.h5", "not a checkpoint"]),
@@ -519,7 +535,7 @@ fn inspect_describes_results_and_checkpoints() {
         "kind: checkpoint",
         "case title: small test column",
         "software version: ",
-        "checkpoint format: 2",
+        "checkpoint format: 3",
         "time: 5.000000e0 yr",
         "cells: 30",
         "snapshots",

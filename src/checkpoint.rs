@@ -158,7 +158,7 @@ pub fn physics_hash(m: &Model) -> String {
         m.bottom,
         m.initial,
         (
-            t.start,
+            t.epoch_year * SECONDS_PER_YEAR + t.start,
             t.dt_initial,
             t.dt_min,
             t.dt_max,
@@ -216,6 +216,8 @@ pub struct Checkpoint {
     pub physics_hash: String,
     pub column_hash: String,
     pub results_file: String,
+    /// The year `state.t` counts seconds from (see [`crate::model::time_origin_year`]).
+    pub epoch_year: f64,
     pub faces: Vec<f64>,
     pub created: String,
     pub format: String,
@@ -275,7 +277,8 @@ fn write_via(
             &absolute(results_file).display().to_string(),
         )
         .map_err(&er)?;
-        attr_f64(&root, "time_year", state.t / SECONDS_PER_YEAR).map_err(&er)?;
+        attr_f64(&root, "time_origin_year", model.time.epoch_year).map_err(&er)?;
+        attr_f64(&root, "time_year", model.time.year(state.t)).map_err(&er)?;
         let f64s = |name: &str, v: &[f64], units: &str, long: &str| -> hdf5::Result<()> {
             let ds = file
                 .new_dataset_builder()
@@ -691,6 +694,12 @@ pub fn read(path: &Path) -> Result<Checkpoint> {
             physics_hash: s("physics_hash")?,
             column_hash: s("column_hash")?,
             results_file: s("results_file")?,
+            epoch_year: root
+                .attr("time_origin_year")
+                .and_then(|a| a.read_scalar::<f64>())
+                .ok()
+                .filter(|y| y.is_finite())
+                .ok_or_else(|| bad("time_origin_year"))?,
             faces: v("face_depth")?,
             created: s("created")?,
             format,
@@ -700,9 +709,16 @@ pub fn read(path: &Path) -> Result<Checkpoint> {
     inner()
 }
 
-/// File name of the checkpoint at time `t` [s] in `folder`.
-pub fn name_at(folder: &Path, t: f64) -> PathBuf {
-    folder.join(format!("checkpoint-{:.9e}yr.h5", t / SECONDS_PER_YEAR))
+impl Checkpoint {
+    /// The year of the checkpoint's state.
+    pub fn year(&self) -> f64 {
+        self.epoch_year + self.state.t / SECONDS_PER_YEAR
+    }
+}
+
+/// File name of the checkpoint at `year` in `folder`.
+pub fn name_at(folder: &Path, year: f64) -> PathBuf {
+    folder.join(format!("checkpoint-{year:.9e}yr.h5"))
 }
 
 /// Checkpoints in `folder` written by [`name_at`], sorted oldest first by time.
@@ -759,10 +775,10 @@ fn same_file(a: &Path, b: &Path) -> bool {
     }
 }
 
-/// Removes the checkpoints in `folder` later than `t` [s] (by the times in their names),
+/// Removes the checkpoints in `folder` later than `year` (by the times in their names),
 /// except `keep`. Returns how many were removed.
-pub fn remove_after(folder: &Path, t: f64, keep: &Path) -> usize {
-    let limit = name_at(Path::new(""), t)
+pub fn remove_after(folder: &Path, year: f64, keep: &Path) -> usize {
+    let limit = name_at(Path::new(""), year)
         .to_string_lossy()
         .strip_prefix("checkpoint-")
         .and_then(|r| r.strip_suffix("yr.h5"))

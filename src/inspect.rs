@@ -22,7 +22,7 @@ pub fn summary(path: &Path) -> Result<String> {
         let _ = writeln!(
             out,
             "time: {:.6e} yr, next step {:.3e} s",
-            ck.state.t / crate::props::constants::SECONDS_PER_YEAR,
+            ck.year(),
             ck.state.dt
         );
         let _ = writeln!(out, "cells: {}", ck.state.u.len() / 3);

@@ -53,6 +53,8 @@ impl Default for RunOptions {
 #[derive(Debug, Clone)]
 pub struct RunSummary {
     pub results: PathBuf,
+    /// The years this run started (the case's start, the checkpoint's time of a resume
+    /// or a branch) and ended.
     pub start: f64,
     pub end: f64,
     pub wall_seconds: f64,
@@ -78,8 +80,8 @@ impl RunSummary {
              water balance error {:.3e} kg m-2 (relative {:.2e}); energy balance error {:.3e} J m-2 (relative {:.2e})\n\
              water flux at the surface {:.6e} mm/yr, at the bottom {:.6e} mm/yr (positive downward)\n\
              results: {}\n{}",
-            self.start / SECONDS_PER_YEAR,
-            self.end / SECONDS_PER_YEAR,
+            self.start,
+            self.end,
             self.wall_seconds,
             c.steps,
             c.rejected,
@@ -253,8 +255,8 @@ fn start_resume(model: &Model, path: &Path, folder: &Path, results: &Path) -> Re
         return Err(Error::input(format!(
             "{}: the checkpoint is at {:.6e} yr, at or after the case's end {:.6e} yr: nothing to continue",
             path.display(),
-            ck.state.t / SECONDS_PER_YEAR,
-            model.time.end / SECONDS_PER_YEAR
+            ck.year(),
+            model.time.year(model.time.end)
         )));
     }
     let results = ResultsFile::open_append(
@@ -268,7 +270,7 @@ fn start_resume(model: &Model, path: &Path, folder: &Path, results: &Path) -> Re
     // The results after the checkpoint are gone, so later checkpoints in the folder no
     // longer match them (and would outlive the new ones when pruning).
     checkpoint::remove_temporaries(folder);
-    let removed = checkpoint::remove_after(folder, ck.state.t, path);
+    let removed = checkpoint::remove_after(folder, ck.year(), path);
     if removed > 0 {
         log::info!(
             "removed {removed} checkpoints later than {} (their results rows were dropped)",
@@ -305,13 +307,13 @@ fn start_branch(
     check_new_output(folder, results, opts.overwrite)?;
     let results = ResultsFile::create(results, model, opts.overwrite)?;
     replace_earlier_run(folder, Some(path));
-    let parent_year = ck.state.t / SECONDS_PER_YEAR;
+    let parent_year = ck.year();
     results.set_attr("parent_checkpoint", &path.display().to_string())?;
     results.set_attr("parent_time_year", &format!("{parent_year:e}"))?;
     results.set_attr("parent_physics_hash", &ck.physics_hash)?;
     Ok(Prepared {
         begin: Begin::Unknowns {
-            t: ck.state.t,
+            t: branch_time(model, &ck),
             dt: ck.state.dt,
             u: ck.state.u,
         },
@@ -347,15 +349,22 @@ fn check_branch(model: &Model, path: &Path, ck: &Checkpoint) -> Result<()> {
             path.display()
         );
     }
-    if ck.state.t >= model.time.end {
+    let t = branch_time(model, ck);
+    if t.is_nan() || t >= model.time.end {
         return Err(Error::input(format!(
-            "{}: the checkpoint is at {:.6e} yr, at or after the case's end {:.6e} yr",
+            "{}: the checkpoint is at year {}, outside the case's run (year {} up to {}); a branch starts at the checkpoint's time",
             path.display(),
-            ck.state.t / SECONDS_PER_YEAR,
-            model.time.end / SECONDS_PER_YEAR
+            ck.year(),
+            model.time.epoch_year,
+            model.time.year(model.time.end)
         )));
     }
     Ok(())
+}
+
+/// The checkpoint's time in the case's time frame (seconds since the case's start year).
+fn branch_time(model: &Model, ck: &Checkpoint) -> f64 {
+    ck.state.t + (ck.epoch_year - model.time.epoch_year) * SECONDS_PER_YEAR
 }
 
 /// Runs `model` (from its initial state, or as `opts.start` says) to its end time.
@@ -375,6 +384,10 @@ pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
         Start::Fresh => start_fresh(model, opts, &folder, &results_path)?,
         Start::Resume(path) => start_resume(model, path, &folder, &results_path)?,
         Start::Branch(path) => start_branch(model, opts, path, &folder, &results_path)?,
+    };
+    let begin_t = match &start.begin {
+        Begin::Unknowns { t, .. } => *t,
+        Begin::State(s) => s.t,
     };
     let mut sim = Simulation::new(model, plan, start.begin, start.output, opts.solver);
     // In this order: the bar is cleared before anything is reported, and the results
@@ -396,15 +409,15 @@ pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
         sim.stop(&mut obs)?;
         return Err(Error::Interrupted(format!(
             "interrupted at t = {:.6e} yr; checkpoint written to {} (continue with --resume)",
-            sim.state().t / SECONDS_PER_YEAR,
+            model.time.year(sim.state().t),
             checkpoints.last().unwrap_or(&folder).display()
         )));
     }
     let end = sim.finish(&mut obs)?;
     Ok(RunSummary {
         results: results_path,
-        start: model.time.start,
-        end: sim.state().t,
+        start: model.time.year(begin_t),
+        end: model.time.year(sim.state().t),
         wall_seconds: wall.elapsed().as_secs_f64(),
         counters: end.counters,
         balance_abs: end.balance_abs,

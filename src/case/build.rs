@@ -151,6 +151,8 @@ pub fn build(src: &Source) -> R<Model> {
             .to_string(),
     };
     let time = read_time(&root)?;
+    // Schedule times are read as seconds since the time origin.
+    let _epoch = schedules::EpochGuard::set(time.epoch_year);
     let depth = read_column(&root)?;
     let soils = read_soils(&root)?;
     let layers = read_layers(&root, &soils, depth)?;
@@ -916,7 +918,7 @@ fn read_periods<T>(
         }
         items
     };
-    let (start, end) = (time.start / SECONDS_PER_YEAR, time.end / SECONDS_PER_YEAR);
+    let (start, end) = (time.year(time.start), time.year(time.end));
     let mut periods = Vec::new();
     let mut prev_from = f64::NEG_INFINITY;
     for (i, item) in items.iter().enumerate() {
@@ -956,7 +958,7 @@ fn read_periods<T>(
                     )));
                 }
                 prev_from = y;
-                y * SECONDS_PER_YEAR
+                time.seconds(y)
             }
         };
         periods.push((from_s, read_one(&t)?));
@@ -1249,9 +1251,11 @@ fn read_time(root: &Table) -> R<TimeControl> {
         "must be 1e-14 to 1e-4",
     )?
     .unwrap_or(crate::solve::newton::DEFAULT_RESIDUAL_TOL);
+    let origin = crate::model::time_origin_year(start);
     Ok(TimeControl {
-        start: start * SECONDS_PER_YEAR,
-        end: end * SECONDS_PER_YEAR,
+        epoch_year: origin,
+        start: (start - origin) * SECONDS_PER_YEAR,
+        end: (end - origin) * SECONDS_PER_YEAR,
         dt_initial: dt_initial * SECONDS_PER_YEAR,
         dt_min: dt_min * SECONDS_PER_YEAR,
         dt_max: dt_max * SECONDS_PER_YEAR,
@@ -1292,17 +1296,22 @@ fn read_output(root: &Table, time: &TimeControl) -> R<OutputControl> {
         }
         None => default_output_folder(src.origin, src.base_dir),
     };
-    let (start, end) = (time.start / SECONDS_PER_YEAR, time.end / SECONDS_PER_YEAR);
+    // Snapshot times are kept as years since the time origin (`rel`), computed from
+    // integers where they are spaced, so they are exact to the run's own resolution at
+    // any epoch.
+    let (rel0, rel_end) = (time.start / SECONDS_PER_YEAR, time.end / SECONDS_PER_YEAR);
+    let origin = time.epoch_year;
+    let (start, end) = (origin + rel0, origin + rel_end);
     let span = end - start;
     let too_many = |v: &Value| {
         v.err(format!(
             "gives more than {MAX_SNAPSHOTS} snapshot times; use a coarser spacing"
         ))
     };
-    let mut years: Vec<f64> = Vec::new();
+    let mut rel: Vec<f64> = Vec::new();
     if let Some(v) = t.get("times_year") {
         for item in v.array()? {
-            years.push(num(
+            let y = num(
                 &item,
                 |y| y >= start && y <= end,
                 &format!(
@@ -1310,7 +1319,8 @@ fn read_output(root: &Table, time: &TimeControl) -> R<OutputControl> {
                     fmt_g(start),
                     fmt_g(end)
                 ),
-            )?);
+            )?;
+            rel.push(y - origin);
         }
     }
     if let Some(v) = t.get("every_year") {
@@ -1319,8 +1329,8 @@ fn read_output(root: &Table, time: &TimeControl) -> R<OutputControl> {
             return Err(too_many(&v));
         }
         let mut k = 1.0;
-        while start + k * every < end {
-            years.push(start + k * every);
+        while rel0 + k * every < rel_end {
+            rel.push(rel0 + k * every);
             k += 1.0;
         }
     }
@@ -1360,11 +1370,11 @@ fn read_output(root: &Table, time: &TimeControl) -> R<OutputControl> {
             loop {
                 let factor =
                     10f64.powi((j / per) as i32) * 10f64.powf((j % per) as f64 / per as f64);
-                let y = origin + first * factor;
-                if y >= end {
+                let y = (origin - time.epoch_year) + first * factor;
+                if y >= rel_end {
                     break;
                 }
-                years.push(y);
+                rel.push(y);
                 j += 1;
             }
         }
@@ -1378,11 +1388,11 @@ fn read_output(root: &Table, time: &TimeControl) -> R<OutputControl> {
             )
             .map(|_| ())?,
     }
-    years.push(end);
-    years.sort_by(f64::total_cmp);
+    rel.push(rel_end);
+    rel.sort_by(f64::total_cmp);
     let tol = 1e-9 * span;
-    let mut snapshot_times: Vec<f64> = Vec::with_capacity(years.len());
-    for y in years {
+    let mut snapshot_times: Vec<f64> = Vec::with_capacity(rel.len());
+    for y in rel {
         if snapshot_times.last().is_some_and(|&p| y - p <= tol) {
             continue;
         }
@@ -1390,7 +1400,7 @@ fn read_output(root: &Table, time: &TimeControl) -> R<OutputControl> {
     }
     if let Some(last) = snapshot_times.last_mut() {
         // The end time exactly (a near-duplicate listed time is merged into it).
-        *last = end;
+        *last = rel_end;
     }
     if snapshot_times.len() > MAX_SNAPSHOTS {
         return Err(t.err(format!(

@@ -113,7 +113,7 @@ impl Observer for Checkpointer {
         })
     }
     fn checkpoint(&mut self, sim: &Simulation, data: &CheckpointData) -> Result<()> {
-        let path = crate::checkpoint::name_at(&self.folder, sim.state().t);
+        let path = crate::checkpoint::name_at(&self.folder, sim.model().time.year(sim.state().t));
         self.write(&path, sim, data)?;
         crate::checkpoint::prune(&self.folder, self.keep);
         self.last = Some(path);
@@ -167,7 +167,7 @@ impl Observer for Progress {
         bar.set_position(done as u64);
         bar.set_message(format!(
             "t = {:.4e} yr, dt = {:.3e} yr, steps {}",
-            state.t / SECONDS_PER_YEAR,
+            time.year(state.t),
             step.dt / SECONDS_PER_YEAR,
             state.counters.steps
         ));

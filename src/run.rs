@@ -367,6 +367,46 @@ fn branch_time(model: &Model, ck: &Checkpoint) -> f64 {
     ck.state.t + (ck.epoch_year - model.time.epoch_year) * SECONDS_PER_YEAR
 }
 
+/// A run fails (exit code 3) when its cumulative relative balance error at the end exceeds
+/// this, for water or energy, and its absolute error exceeds [`BALANCE_FLOOR`] of the
+/// column's initial content; the demo and validation cases end below 1.9e-7 relative
+/// (see docs/limits.md).
+pub const BALANCE_LIMIT: f64 = 1.0e-5;
+
+/// Errors smaller than this fraction of the column's initial content are solver
+/// tolerance, whatever their relative size to a flow that is almost zero (a closed
+/// column: relative 1.0 from 1.2e-9 of the content). The demo cases end below 3.2e-9.
+pub const BALANCE_FLOOR: f64 = 1.0e-8;
+
+/// Refuses a finished run whose balance does not close: the results and the final
+/// checkpoint are kept, but the run is not reported as a success.
+fn check_final_balance(
+    model: &Model,
+    state: &StepState,
+    abs: &[f64; 2],
+    rel: &[f64; 2],
+    checkpoint: Option<&Path>,
+) -> Result<()> {
+    for (k, name, unit) in [(1, "water", "kg m-2"), (0, "energy", "J m-2")] {
+        let total = state.initial_totals.get(k).copied().unwrap_or(0.0).abs();
+        let bad = !rel[k].is_finite()
+            || !abs[k].is_finite()
+            || (rel[k] > BALANCE_LIMIT && abs[k].abs() > BALANCE_FLOOR * total);
+        if bad {
+            return Err(Error::Numerical(format!(
+                "balance check failed at year {:.6e}: the cumulative relative {name} balance error {:.3e} ({:.3e} {unit}) exceeds {BALANCE_LIMIT:e} (docs/limits.md); the case's parameters or step control give results that do not conserve {name}: check them (or tighten time.rtol); results and the final checkpoint{} are kept",
+                model.time.year(state.t),
+                rel[k],
+                abs[k],
+                checkpoint
+                    .map(|p| format!(" {}", p.display()))
+                    .unwrap_or_default()
+            )));
+        }
+    }
+    Ok(())
+}
+
 /// Runs `model` (from its initial state, or as `opts.start` says) to its end time.
 pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
     let wall = Instant::now();
@@ -414,6 +454,13 @@ pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
         )));
     }
     let end = sim.finish(&mut obs)?;
+    check_final_balance(
+        model,
+        sim.state(),
+        &end.balance_abs,
+        &end.balance_rel,
+        checkpoints.last(),
+    )?;
     Ok(RunSummary {
         results: results_path,
         start: model.time.year(begin_t),

@@ -1166,16 +1166,38 @@ const TIME_KEYS: &[&str] = &[
     "newton_tolerance",
 ];
 
+/// Largest |year| a case may give (start, end): 1e12 years, about 70 times the age of the
+/// universe; beyond it the seconds of a span lose the resolution of whole years.
+pub const MAX_ABS_YEAR: f64 = 1.0e12;
+
+/// Steps must be at least this many units in the last place of the run's largest time
+/// (from the time origin), so that every step moves the time by its own size to 1/8.
+pub const TIME_RESOLUTION_ULPS: f64 = 4.0;
+
 fn read_time(root: &Table) -> R<TimeControl> {
     let t = section(root, "time", TIME_KEYS, "the time span: end_year")?;
-    let start = t.f64_or("start_year", 0.0)?;
+    let in_range = |y: f64| y.is_finite() && y.abs() <= MAX_ABS_YEAR;
+    let range_msg = format!(
+        "must be a finite year within ±{} (the time keeping's range)",
+        fmt_g(MAX_ABS_YEAR)
+    );
+    let start = match t.get("start_year") {
+        Some(v) => num(&v, in_range, &range_msg)?,
+        None => 0.0,
+    };
     let end_v = t.req("end_year", "when the run ends [years]")?;
+    num(&end_v, in_range, &range_msg)?;
     let end = num(
         &end_v,
         |e| e > start,
         &format!("must be after start_year ({})", fmt_g(start)),
     )?;
     let span = end - start;
+    // The smallest step the time keeping resolves in this run: a few units in the last
+    // place of its largest time, counted from the time origin.
+    let origin = crate::model::time_origin_year(start);
+    let resolution =
+        TIME_RESOLUTION_ULPS * f64::EPSILON * (start - origin).abs().max((end - origin).abs());
     let method = match t.get("method") {
         Some(v) => v.choice(&["backward-euler", "bdf"])?,
         None => "bdf",
@@ -1196,7 +1218,19 @@ fn read_time(root: &Table) -> R<TimeControl> {
         t.only_with("max_order", "method = \"bdf\"")?;
         Method::BackwardEuler
     };
-    let step = |key: &str| opt_num(&t, key, |x| x > 0.0, "must be > 0");
+    let step = |key: &str| {
+        opt_num(
+            &t,
+            key,
+            |x| x > 0.0 && x >= resolution,
+            &format!(
+                "must be > 0 and at least {} yr, the smallest step the time keeping resolves in a run from year {} to {}",
+                fmt_g(resolution),
+                fmt_g(start),
+                fmt_g(end)
+            ),
+        )
+    };
     // Error control sets BDF's steps, up to the whole span (near a steady state the step
     // grows to the end); backward Euler's heuristics are capped at 1/100 of the span.
     let default_max = match method {
@@ -1204,8 +1238,8 @@ fn read_time(root: &Table) -> R<TimeControl> {
         Method::BackwardEuler => span / 100.0,
     };
     let dt_max = step("max_step_year")?.unwrap_or(default_max);
-    let dt_initial = step("initial_step_year")?.unwrap_or(1.0e-6_f64.min(dt_max));
-    let dt_min = step("min_step_year")?.unwrap_or(1.0e-9_f64.min(dt_initial));
+    let dt_initial = step("initial_step_year")?.unwrap_or(1.0e-6_f64.max(resolution).min(dt_max));
+    let dt_min = step("min_step_year")?.unwrap_or(1.0e-9_f64.max(resolution).min(dt_initial));
     if dt_initial > dt_max {
         let key = if t.has("initial_step_year") {
             "initial_step_year"

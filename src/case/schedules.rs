@@ -259,7 +259,16 @@ fn read_user(v: &Value, key: &str, q: &Quantity, check: bool) -> Result<Schedule
             )))
         }
     };
-    let year = |item: &Value| -> Result<f64, Error> { Ok(seconds_of(item.f64()?)) };
+    let year = |item: &Value| -> Result<f64, Error> {
+        let y = item.f64()?;
+        if !(y.is_finite() && y.abs() <= crate::case::build::MAX_ABS_YEAR) {
+            return Err(item.err(format!(
+                "must be a finite year within ±{} (the time keeping's range)",
+                fmt_g(crate::case::build::MAX_ABS_YEAR)
+            )));
+        }
+        Ok(seconds_of(y))
+    };
     let s = match form {
         "steps" | "table" => {
             let list = t.req(form, "")?;
@@ -299,6 +308,19 @@ fn read_user(v: &Value, key: &str, q: &Quantity, check: bool) -> Result<Schedule
             let what = format!("schedule {}", v.path);
             let (cols, _) = csvfile::read(&file, Header::Exact(&header), &what)?;
             cols.strictly_increasing(0, "time_year")?;
+            if let Some(row) = cols.columns[0]
+                .iter()
+                .position(|y| !(y.is_finite() && y.abs() <= crate::case::build::MAX_ABS_YEAR))
+            {
+                return Err(cols.err(
+                    row,
+                    format!(
+                        "time_year = {}: must be a finite year within ±{}",
+                        cols.columns[0][row],
+                        fmt_g(crate::case::build::MAX_ABS_YEAR)
+                    ),
+                ));
+            }
             if check {
                 for (row, &x) in cols.columns[1].iter().enumerate() {
                     if !q.contains(x) {

@@ -174,6 +174,7 @@ pub fn build(src: &Source) -> R<Model> {
     let initial = read_initial(&root, &time, depth, &surface, &bottom, &soils, &layers)?;
     let output = read_output(&root, &time)?;
     let checkpoint = read_checkpoint(&root)?;
+    below_boiling(&root, &physics, &surface, &bottom)?;
     Ok(Model {
         title,
         case_text: src.text.to_string(),
@@ -192,7 +193,59 @@ pub fn build(src: &Source) -> R<Model> {
     })
 }
 
+/// Refuses boundary temperatures at or above the boiling point at the air pressure: the
+/// model holds for liquid water and vapour below boiling.
+fn below_boiling(
+    root: &Table,
+    physics: &Physics,
+    surface: &Periods<SurfaceBc>,
+    bottom: &Periods<BottomBc>,
+) -> R<()> {
+    let p = physics.air_pressure;
+    let boils = |t: f64| crate::props::water::saturation_pressure(t).0 >= p;
+    // The boiling point at p, by bisection on the saturation pressure (0..374 °C).
+    let boiling = || {
+        let (mut lo, mut hi) = (CELSIUS_ZERO, CELSIUS_ZERO + 373.0);
+        for _ in 0..60 {
+            let mid = 0.5 * (lo + hi);
+            if boils(mid) {
+                hi = mid;
+            } else {
+                lo = mid;
+            }
+        }
+        lo
+    };
+    let mut hottest: Vec<(&str, f64)> = Vec::new();
+    for (_, bc) in &surface.periods {
+        if let SurfaceHeat::Temperature(s) = &bc.heat {
+            hottest.push(("surface.temperature_C", s.bounds().1));
+        }
+    }
+    for (_, bc) in &bottom.periods {
+        if let BottomHeat::Temperature(s) = &bc.heat {
+            hottest.push(("bottom.temperature_C", s.bounds().1));
+        }
+    }
+    for (key, t) in hottest {
+        if boils(t) {
+            let section = key.split('.').next().unwrap_or(key);
+            return Err(root.req(section, "")?.err(format!(
+                "{key} reaches {} °C, at or above the boiling point {:.1} °C at physics.air_pressure_Pa = {}; the model holds below boiling: lower the temperature or raise the air pressure",
+                fmt_g(t - CELSIUS_ZERO),
+                boiling() - CELSIUS_ZERO,
+                fmt_g(p)
+            )));
+        }
+    }
+    Ok(())
+}
+
 // ---------------------------------------------------------------- column and mesh
+
+/// Shallowest column a case may give: 1 cm (a column of 1e-9 m ran with a water balance
+/// that did not close by half of its throughput).
+pub const MIN_DEPTH_M: f64 = 0.01;
 
 fn read_column(root: &Table) -> R<f64> {
     let t = section(root, "column", &["depth_m"], "the soil column: depth_m")?;
@@ -200,8 +253,8 @@ fn read_column(root: &Table) -> R<f64> {
         &t,
         "depth_m",
         "depth of the bottom boundary below the surface [m]",
-        |d| d > 0.0 && d <= 1.0e4,
-        "must be > 0 and at most 10000 m (depth of the bottom boundary, positive downward)",
+        |d| (MIN_DEPTH_M..=1.0e4).contains(&d),
+        "must be 0.01 to 10000 m (depth of the bottom boundary, positive downward)",
     )
 }
 
@@ -415,8 +468,8 @@ fn read_soil(name: &str, v: &Value) -> R<Soil> {
             let oven_dry_head = opt_num(
                 &t,
                 "oven_dry_head_m",
-                |h| h < 0.0,
-                "must be < 0 (the head at oven dryness, e.g. -1e5)",
+                |h| (-1.0e7..=-100.0).contains(&h),
+                "must be -1e7 to -100 m (the head at oven dryness, typically -1e5)",
             )?
             .unwrap_or(-1.0e5);
             Some(DryEnd::FayerSimmons { oven_dry_head })
@@ -491,8 +544,8 @@ fn read_soil(name: &str, v: &Value) -> R<Soil> {
         _ => ThermalConductivity::Constant {
             value: num(
                 &tv,
-                |x| x > 0.0 && x <= 100.0,
-                "must be in (0, 100] W/(m K)",
+                |x| (0.01..=100.0).contains(&x),
+                "must be in [0.01, 100] W/(m K) (still air conducts 0.025)",
             )?,
         },
     };

@@ -193,7 +193,7 @@ pub fn read(v: &Value, header: Header, what: &str) -> Result<(Columns, Vec<Strin
                     at(
                         line,
                         format!(
-                            "{} = \"{}\": not a finite number",
+                            "{} = \"{}\": not a number",
                             order[c],
                             cell.escape_default()
                         ),

@@ -243,6 +243,12 @@ fn below_boiling(
 
 // ---------------------------------------------------------------- column and mesh
 
+/// Largest retention α: 1000 1/m (an air-entry head of 1 mm); beyond it the retention
+/// curve is a step the Newton iteration cannot follow.
+pub const MAX_ALPHA_PER_M: f64 = 1000.0;
+/// Largest van Genuchten n: 20 (soils lie between about 1.05 and 10).
+pub const MAX_VG_N: f64 = 20.0;
+
 /// Shallowest column a case may give: 1 cm (a column of 1e-9 m ran with a water balance
 /// that did not close by half of its throughput).
 pub const MIN_DEPTH_M: f64 = 0.01;
@@ -390,8 +396,20 @@ fn read_retention(t: &Table) -> R<RetentionLaw> {
         "van_genuchten" => {
             let vg = v.table(&["theta_r", "theta_s", "alpha_per_m", "n", "l"])?;
             let (theta_r, theta_s) = theta_pair(&vg)?;
-            let alpha = req_num(&vg, "alpha_per_m", "α [1/m]", |a| a > 0.0, "must be > 0")?;
-            let n = req_num(&vg, "n", "shape parameter n", |n| n > 1.0, "must be > 1")?;
+            let alpha = req_num(
+                &vg,
+                "alpha_per_m",
+                "α [1/m]",
+                |a| a > 0.0 && a <= MAX_ALPHA_PER_M,
+                "must be > 0 and at most 1000 1/m (soils: about 0.1 to 30)",
+            )?;
+            let n = req_num(
+                &vg,
+                "n",
+                "shape parameter n",
+                |n| n > 1.0 && n <= MAX_VG_N,
+                "must be > 1 and at most 20 (soils: about 1.05 to 10)",
+            )?;
             // Kr ~ Se^(l + 2/m) when dry, m = 1 − 1/n.
             let l = pore_connectivity(&vg, -2.0 * n / (n - 1.0))?;
             RetentionLaw::VanGenuchten {
@@ -432,7 +450,13 @@ fn read_retention(t: &Table) -> R<RetentionLaw> {
         _ => {
             let ex = v.table(&["theta_r", "theta_s", "alpha_per_m"])?;
             let (theta_r, theta_s) = theta_pair(&ex)?;
-            let alpha = req_num(&ex, "alpha_per_m", "α [1/m]", |a| a > 0.0, "must be > 0")?;
+            let alpha = req_num(
+                &ex,
+                "alpha_per_m",
+                "α [1/m]",
+                |a| a > 0.0 && a <= MAX_ALPHA_PER_M,
+                "must be > 0 and at most 1000 1/m",
+            )?;
             RetentionLaw::Exponential {
                 theta_r,
                 theta_s,

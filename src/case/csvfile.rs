@@ -192,11 +192,7 @@ pub fn read(v: &Value, header: Header, what: &str) -> Result<(Columns, Vec<Strin
                 .ok_or_else(|| {
                     at(
                         line,
-                        format!(
-                            "{} = \"{}\": not a number",
-                            order[c],
-                            cell.escape_default()
-                        ),
+                        format!("{} = \"{}\": not a number", order[c], cell.escape_default()),
                     )
                 })?;
             columns[c].push(x);

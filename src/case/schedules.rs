@@ -356,8 +356,11 @@ fn read_user(v: &Value, key: &str, q: &Quantity, check: bool) -> Result<Schedule
         "sine" => {
             let period = t.req("period_year", "the period of the sinusoid")?;
             let p = period.f64()? * SECONDS_PER_YEAR;
-            if p <= 0.0 {
-                return Err(period.err("must be > 0"));
+            if !(p > 0.0 && p / SECONDS_PER_YEAR <= crate::case::build::MAX_ABS_YEAR) {
+                return Err(period.err(format!(
+                    "must be > 0 and at most {} years",
+                    fmt_g(crate::case::build::MAX_ABS_YEAR)
+                )));
             }
             let s = Schedule::Sine {
                 mean: t.f64_or("mean", 0.0)?,

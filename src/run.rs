@@ -433,9 +433,7 @@ pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
     // In this order: the bar is cleared before anything is reported, and the results
     // file is flushed before a checkpoint counts its rows.
     let mut progress = Progress::new(opts.progress);
-    let mut results = ResultsWriter {
-        file: start.results,
-    };
+    let mut results = ResultsWriter::new(start.results, &results_path);
     let mut checkpoints =
         Checkpointer::new(&folder, &results_path, &model.checkpoint, start.parent);
     let mut obs: [&mut dyn Observer; 4] = [

@@ -413,3 +413,65 @@ fn every_hostile_case_gives_its_exit_code_and_message() {
     assert!(total >= 100, "only {total} cases");
     assert!(failures.is_empty(), "{}", failures.join("\n"));
 }
+
+/// A run of about 5 s (40 years of 200 cells at steps of at most 0.002 yr).
+fn long_case(dir: &Scratch) -> std::path::PathBuf {
+    let text = Small {
+        cells: 200,
+        end_year: 40.0,
+        snapshot_every: 0.05,
+        checkpoint_every: 1.0,
+        extra_time: "max_step_year = 0.002\n".into(),
+        ..Small::default()
+    }
+    .text()
+    .replace("period_year = 3.0", "period_year = 0.1");
+    dir.write("long.toml", &text)
+}
+
+/// Starts the long run, waits for its first checkpoint, then does `act` to the results
+/// file; the run must end with exit 4 and a message containing `words`, and its newest
+/// checkpoint must still read.
+fn results_file_tampered(name: &str, act: fn(&Path, &Path), words: &[&str]) {
+    let dir = Scratch::new(name);
+    let case = long_case(&dir);
+    let out = dir.join("out");
+    let child = spawn_run(&case, &out, &[]);
+    let t0 = std::time::Instant::now();
+    while newest_checkpoint(&out).is_none() {
+        assert!(t0.elapsed().as_secs() < 60, "no checkpoint after 60 s");
+        std::thread::sleep(std::time::Duration::from_millis(20));
+    }
+    act(&out.join("results.h5"), dir.path.as_path());
+    let o = child.wait_with_output().unwrap();
+    let e = stderr(&o);
+    assert_eq!(o.status.code(), Some(4), "{name}: {e}");
+    assert_eq!(e.lines().count(), 1, "{e}");
+    for w in words {
+        assert!(e.contains(w), "{name}: lacks `{w}`: {e}");
+    }
+    let newest = newest_checkpoint(&out).unwrap();
+    read_checkpoint(&newest).unwrap();
+}
+
+#[test]
+fn a_results_file_deleted_during_the_run_ends_it_with_exit_4() {
+    results_file_tampered(
+        "results-deleted",
+        |results, _| std::fs::remove_file(results).unwrap(),
+        &["results.h5", "deleted during the run", "checkpoints"],
+    );
+}
+
+#[test]
+fn a_results_file_replaced_during_the_run_ends_it_with_exit_4() {
+    results_file_tampered(
+        "results-replaced",
+        |results, dir| {
+            let other = dir.join("other.h5");
+            std::fs::copy(results, &other).unwrap();
+            std::fs::rename(&other, results).unwrap();
+        },
+        &["results.h5", "replaced", "checkpoints"],
+    );
+}

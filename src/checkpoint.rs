@@ -522,8 +522,9 @@ pub fn read(path: &Path) -> Result<Checkpoint> {
     let kind = file_kind(path)?;
     if kind != CHECKPOINT_KIND {
         return Err(Error::input(format!(
-            "{}: a deepdry {kind} file, not a checkpoint",
-            path.display()
+            "{}: a deepdry {} file, not a checkpoint",
+            path.display(),
+            kind.strip_prefix("deepdry-").unwrap_or(&kind)
         )));
     }
     let bad = |what: &str| {

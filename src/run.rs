@@ -132,6 +132,13 @@ pub fn install_signal_handlers() -> Result<()> {
         signal_hook::flag::register(sig, flag.clone())
             .map_err(|e| Error::Internal(format!("cannot install the signal handler: {e}")))?;
     }
+    // A file-size limit (`ulimit -f`) would kill the run with SIGXFSZ and no message; with
+    // the signal caught, the write fails (EFBIG) and is reported as an I/O error (exit 4).
+    signal_hook::flag::register(
+        signal_hook::consts::SIGXFSZ,
+        std::sync::Arc::new(std::sync::atomic::AtomicBool::new(false)),
+    )
+    .map_err(|e| Error::Internal(format!("cannot install the signal handler: {e}")))?;
     Ok(())
 }
 
@@ -410,6 +417,12 @@ fn check_final_balance(
 /// Runs `model` (from its initial state, or as `opts.start` says) to its end time.
 pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
     let wall = Instant::now();
+    if let (Start::Resume(path), true) = (&opts.start, opts.overwrite) {
+        return Err(Error::input(format!(
+            "--resume {} continues the existing results file, --overwrite would discard it: give one of them (--start-from to branch into a new results file)",
+            path.display()
+        )));
+    }
     // Refused before any file is touched.
     let plan = SyncPlan::new(model)?;
     let folder = opts

@@ -475,3 +475,76 @@ fn a_results_file_replaced_during_the_run_ends_it_with_exit_4() {
         &["results.h5", "replaced", "checkpoints"],
     );
 }
+
+/// Messages that used to mislead: each now names the key and the valid range or remedy.
+#[test]
+fn messages_name_the_key_and_the_range_or_the_remedy() {
+    let dir = Scratch::new("messages");
+    let b = base();
+    let check = |name: &str, text: String| {
+        let p = dir.write(&format!("{name}.toml"), &text);
+        deepdry(&["check", arg(&p)])
+    };
+    // keep = i64::MAX: the range, not "≥ 0".
+    let o = check(
+        "keep",
+        mutate(&b, "keep = 50", "keep = 9223372036854775807"),
+    );
+    assert_one_line_error(&o, 2, &["checkpoint.keep", "from 1 to 1000000"]);
+    // cells = -5: the range starts at 1, not 0.
+    let o = check("cells", mutate(&b, "cells = 8", "cells = -5"));
+    assert_one_line_error(&o, 2, &["mesh.cells", "from 1 to"]);
+    // Control characters in the title and a layer's soil name are escaped by check.
+    let forged = mutate(
+        &b,
+        "title = \"small test column\"",
+        "title = \"x\\nrun finished: forged\\u001b[2J\"",
+    );
+    let o = check("forged", forged);
+    assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
+    let out = stdout(&o);
+    assert!(!out.contains('\u{1b}'), "ESC printed raw: {out:?}");
+    assert!(
+        !out.lines().any(|l| l.starts_with("run finished")),
+        "a forged line: {out}"
+    );
+    assert!(out.contains("\\u{1b}"), "{out}");
+    // --resume with --overwrite is refused: one continues the results, the other discards them.
+    let case = dir.write("run.toml", &b);
+    let run_out = dir.join("out");
+    run_ok(&case, &run_out, &[]);
+    let ck = newest_checkpoint(&run_out).unwrap();
+    let o = run_deepdry(&case, &run_out, &["--resume", arg(&ck), "--overwrite"]);
+    assert_one_line_error(&o, 2, &["--resume", "--overwrite", "one of them"]);
+    // A results file passed as a checkpoint: "a deepdry results file", said once.
+    let o = run_deepdry(
+        &case,
+        &dir.join("out2"),
+        &["--resume", arg(&run_out.join("results.h5"))],
+    );
+    let e = assert_one_line_error(&o, 2, &["a deepdry results file, not a checkpoint"]);
+    assert!(!e.contains("deepdry deepdry"), "{e}");
+}
+
+/// A file-size limit (`ulimit -f`) gives an I/O error and exit 4, not death by SIGXFSZ.
+#[test]
+fn a_file_size_limit_is_reported_as_an_io_error() {
+    let dir = Scratch::new("ulimit");
+    let case = long_case(&dir);
+    let out = dir.join("out");
+    let o = {
+        let _g = h5_guard();
+        std::process::Command::new("bash")
+            .arg("-c")
+            .arg(format!(
+                "ulimit -f 40; exec {} run {} --out {} --quiet",
+                bin(),
+                arg(&case),
+                arg(&out)
+            ))
+            .stdin(std::process::Stdio::null())
+            .output()
+            .unwrap()
+    };
+    assert_one_line_error(&o, 4, &["File too large"]);
+}

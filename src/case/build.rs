@@ -277,11 +277,7 @@ fn read_mesh(root: &Table, depth: f64, layers: &[Layer]) -> R<Mesh> {
     let t = section(root, "mesh", MESH_KEYS, "the grid: cells or max_cell_m")?;
     let (key, v) = t.one_of(&["cells", "max_cell_m"], "mesh resolution")?;
     let resolution = if key == "cells" {
-        let n = v.usize()?;
-        if n == 0 {
-            return Err(v.err("must be at least 1"));
-        }
-        Resolution::Cells(n)
+        Resolution::Cells(v.usize_in(1, 10_000_000, "")?)
     } else {
         Resolution::MaxCell(num(
             &v,
@@ -1520,13 +1516,7 @@ fn read_output(root: &Table, time: &TimeControl) -> R<OutputControl> {
         )));
     }
     let series_every = match t.get("series_every") {
-        Some(v) => {
-            let k = v.usize()?;
-            if k == 0 {
-                return Err(v.err("must be at least 1 (1 = every step)"));
-            }
-            k
-        }
+        Some(v) => v.usize_in(1, 1_000_000_000, "1 = every step")?,
         None => 1,
     };
     Ok(OutputControl {
@@ -1542,13 +1532,7 @@ fn read_output(root: &Table, time: &TimeControl) -> R<OutputControl> {
 fn read_checkpoint(root: &Table) -> R<CheckpointControl> {
     let t = optional_section(root, "checkpoint", &["every_year", "every_minutes", "keep"])?;
     let keep = match t.get("keep") {
-        Some(v) => {
-            let k = v.usize()?;
-            if k == 0 {
-                return Err(v.err("must be at least 1"));
-            }
-            k
-        }
+        Some(v) => v.usize_in(1, 1_000_000, "how many of the newest checkpoints are kept")?,
         None => 3,
     };
     Ok(CheckpointControl {

@@ -13,6 +13,20 @@ use crate::props::vapor::Enhancement;
 use crate::schedule::Schedule;
 use std::fmt::Write;
 
+/// `s` with control characters (ESC, NUL, line breaks, …) escaped, so that text from a
+/// case file cannot forge lines or terminal sequences in what deepdry prints.
+pub fn printable(s: &str) -> String {
+    s.chars()
+        .map(|c| {
+            if c.is_control() {
+                c.escape_default().to_string()
+            } else {
+                c.to_string()
+            }
+        })
+        .collect()
+}
+
 /// A duration [s] in years.
 fn yr(t: f64) -> String {
     fmt_g(t / SECONDS_PER_YEAR)
@@ -186,9 +200,9 @@ pub fn summary(m: &Model) -> String {
     let _epoch = super::schedules::EpochGuard::set(m.time.epoch_year);
     let mut out = String::new();
     let o = &mut out;
-    let _ = writeln!(o, "Case: {}", m.title);
+    let _ = writeln!(o, "Case: {}", printable(&m.title));
     if !m.overrides.is_empty() {
-        let _ = writeln!(o, "Overrides: {}", m.overrides.join(", "));
+        let _ = writeln!(o, "Overrides: {}", printable(&m.overrides.join(", ")));
     }
     let (lo, hi) = m.mesh.width_range();
     let _ = writeln!(
@@ -211,15 +225,15 @@ pub fn summary(m: &Model) -> String {
             o,
             "  {}. {}: soil {}, {} to {} m ({cells} cells)",
             i + 1,
-            l.name,
-            m.soils[l.soil].name,
+            printable(&l.name),
+            printable(&m.soils[l.soil].name),
             fmt_g(l.top),
             fmt_g(l.bottom)
         );
     }
     let _ = writeln!(o, "Soils:");
     for s in &m.soils {
-        let _ = writeln!(o, "  {}: {}", s.name, soil(s));
+        let _ = writeln!(o, "  {}: {}", printable(&s.name), soil(s));
     }
     let p = &m.physics;
     let d = &p.diffusivity;

@@ -73,14 +73,25 @@ fn value_locations(path: &Path) -> Vec<(String, usize, usize)> {
         if raw.is_empty() {
             continue;
         }
-        // Short strings (e.g. the format "3") occur elsewhere too; the longest unique
-        // stretch is enough: flip inside the first occurrence of the whole value.
+        // A value found a few times (the results path stored as given and absolute, the
+        // title inside the case text) is flipped at each place in turn: every one is
+        // content a resume reads. A value found many times (the format "3") cannot be
+        // located and is reported.
         let found = occurrences(&bytes, &raw);
         assert!(
             !found.is_empty(),
             "attribute {name}: value not found in the file"
         );
-        out.push((format!("@{name}"), found[0], raw.len()));
+        if found.len() <= 4 {
+            for at in found {
+                out.push((format!("@{name}"), at, raw.len()));
+            }
+        } else {
+            eprintln!(
+                "attribute {name}: value found {} times, not flipped",
+                found.len()
+            );
+        }
     }
     out
 }
@@ -88,14 +99,18 @@ fn value_locations(path: &Path) -> Vec<(String, usize, usize)> {
 #[test]
 fn a_flipped_bit_anywhere_a_resume_reads_is_refused() {
     let dir = Scratch::new("bitflip");
+    // A start year away from year 0, so that the time origin (1e5) and the times are
+    // values that occur once in the file.
     let small = Small {
         method: "bdf",
+        end_year: 123_466.0,
+        extra_time: "start_year = 123456.0\n".into(),
         ..Small::default()
     };
     let case = dir.write("case.toml", &small.text());
     let out = dir.join("out");
     run_ok(&case, &out, &[]);
-    let good = checkpoint_at(&out, 5.0);
+    let good = checkpoint_at(&out, 123_461.0);
     let pristine = std::fs::read(&good).unwrap();
 
     // Control: an unchanged copy resumes.
@@ -126,6 +141,9 @@ fn a_flipped_bit_anywhere_a_resume_reads_is_refused() {
         "@physics_hash",
         "@column_hash",
         "@results_file",
+        "@results_file_absolute",
+        "@time_origin_year",
+        "@time_year",
         "@checksum",
     ] {
         assert!(names.contains(&must), "{must} not located: {names:?}");

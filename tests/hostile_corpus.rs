@@ -494,6 +494,9 @@ fn messages_name_the_key_and_the_range_or_the_remedy() {
     // cells = -5: the range starts at 1, not 0.
     let o = check("cells", mutate(&b, "cells = 8", "cells = -5"));
     assert_one_line_error(&o, 2, &["mesh.cells", "from 1 to"]);
+    // max_cell_m so small that the mesh is above the cell limit: names max_cell_m.
+    let o = check("max-cell", mutate(&b, "cells = 8", "max_cell_m = 1e-9"));
+    assert_one_line_error(&o, 2, &["max_cell_m = 1e-9", "limit", "use max_cell_m ≥"]);
     // Control characters in the title and a layer's soil name are escaped by check.
     let forged = mutate(
         &b,

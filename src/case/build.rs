@@ -313,7 +313,19 @@ fn read_mesh(root: &Table, depth: f64, layers: &[Layer]) -> R<Mesh> {
     }
     let mut boundaries = vec![0.0];
     boundaries.extend(layers.iter().map(|l| l.bottom));
-    Mesh::graded(&boundaries, &grading, resolution).map_err(|e| t.err(e))
+    let max_cell = match &resolution {
+        Resolution::MaxCell(h) => Some(*h),
+        _ => None,
+    };
+    Mesh::graded(&boundaries, &grading, resolution).map_err(|e| match (e, max_cell) {
+        (crate::mesh::MeshError::AboveLimit { cells }, Some(h)) => t.err(format!(
+            "max_cell_m = {}: gives {cells} cells, more than the limit of {}; use max_cell_m ≥ {} m",
+            fmt_g(h),
+            crate::mesh::MAX_CELLS,
+            fmt_g(depth / crate::mesh::MAX_CELLS as f64)
+        )),
+        (e, _) => t.err(e),
+    })
 }
 
 // ---------------------------------------------------------------- soils

@@ -455,8 +455,18 @@ pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
         &mut checkpoints,
         &mut StopOnSignal,
     ];
-    sim.start(&mut obs, start.initial_output)?;
-    if sim.run_to_end(&mut obs)? == Advance::Stopped {
+    let advanced = sim
+        .start(&mut obs, start.initial_output)
+        .and_then(|()| sim.run_to_end(&mut obs));
+    let advanced = match advanced {
+        // An I/O error before any checkpoint: say that there is nothing to resume from.
+        Err(Error::Io(m)) if !checkpoint::list(&folder).is_empty() => Err(Error::Io(m)),
+        Err(Error::Io(m)) => Err(Error::Io(format!(
+            "{m}; no checkpoint was written yet, so there is nothing to resume from: free space or fix the folder and run again"
+        ))),
+        other => other,
+    };
+    if advanced? == Advance::Stopped {
         sim.stop(&mut obs)?;
         return Err(Error::Interrupted(format!(
             "interrupted at t = {:.6e} yr; checkpoint written to {} (continue with --resume)",

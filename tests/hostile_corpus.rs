@@ -549,5 +549,5 @@ fn a_file_size_limit_is_reported_as_an_io_error() {
             .output()
             .unwrap()
     };
-    assert_one_line_error(&o, 4, &["File too large"]);
+    assert_one_line_error(&o, 4, &["File too large", "nothing to resume from"]);
 }

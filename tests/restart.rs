@@ -733,7 +733,7 @@ fn a_second_run_into_a_folder_in_use_is_refused_and_harms_nothing() {
     assert_one_line_error(
         &o,
         4,
-        &["results.h5: the file is open for writing in another process"],
+        &["results.h5: the file is open in another process"],
     );
     // A checkpoint can be inspected meanwhile.
     let o = deepdry(&["inspect", arg(&ck)]);

@@ -9,7 +9,7 @@
 
 use crate::error::{Error, Result};
 use crate::model::Model;
-use crate::output::h5util::{attr_f64, attr_str, read_attr_str};
+use crate::output::h5util::{attr_f64, attr_str, describe, read_attr_str};
 use crate::props::constants::SECONDS_PER_YEAR;
 use crate::solve::stepper::{Counters, StepState};
 use hdf5::File;
@@ -19,7 +19,113 @@ use std::path::{Path, PathBuf};
 /// Attribute value of `kind` that marks a checkpoint file.
 pub const CHECKPOINT_KIND: &str = "deepdry-checkpoint";
 /// Format version of checkpoint files; a file of another version is refused.
-pub const CHECKPOINT_FORMAT: &str = "2";
+pub const CHECKPOINT_FORMAT: &str = "3";
+/// Root attribute holding the checksum of everything else in the file.
+pub const CHECKSUM_ATTR: &str = "checksum";
+/// Prefix of the checksum value: the method, so that a later method can be told apart.
+pub const CHECKSUM_METHOD: &str = "fnv1a-64";
+
+/// `path` made absolute against the current folder (not resolved through links, so it
+/// names the file as the user gave it); `path` itself when the current folder is unknown.
+pub fn absolute(path: &Path) -> PathBuf {
+    std::path::absolute(path).unwrap_or_else(|_| path.to_path_buf())
+}
+
+/// Incremental FNV-1a 64-bit hash over bytes.
+struct Fnv(u64);
+
+impl Fnv {
+    fn new() -> Fnv {
+        Fnv(0xcbf2_9ce4_8422_2325)
+    }
+    fn bytes(&mut self, b: &[u8]) {
+        for x in b {
+            self.0 ^= *x as u64;
+            self.0 = self.0.wrapping_mul(0x0100_0000_01b3);
+        }
+    }
+    /// A length-prefixed field, so that no two different sequences of fields feed the
+    /// same bytes.
+    fn field(&mut self, b: &[u8]) {
+        self.bytes(&(b.len() as u64).to_le_bytes());
+        self.bytes(b);
+    }
+}
+
+/// Feeds the name, type, shape and values of a dataset or attribute to the hash.
+fn hash_container(h: &mut Fnv, name: &str, c: &hdf5::Container) -> hdf5::Result<()> {
+    use hdf5::types::{TypeDescriptor, VarLenUnicode};
+    h.field(name.as_bytes());
+    let shape = c.shape();
+    h.bytes(&(shape.len() as u64).to_le_bytes());
+    for d in &shape {
+        h.bytes(&(*d as u64).to_le_bytes());
+    }
+    match c.dtype()?.to_descriptor()? {
+        TypeDescriptor::Float(_) => {
+            h.bytes(b"f");
+            for x in c.read_raw::<f64>()? {
+                h.bytes(&x.to_le_bytes());
+            }
+        }
+        TypeDescriptor::Unsigned(_) => {
+            h.bytes(b"u");
+            for x in c.read_raw::<u64>()? {
+                h.bytes(&x.to_le_bytes());
+            }
+        }
+        TypeDescriptor::Integer(_) => {
+            h.bytes(b"i");
+            for x in c.read_raw::<i64>()? {
+                h.bytes(&x.to_le_bytes());
+            }
+        }
+        TypeDescriptor::VarLenUnicode => {
+            h.bytes(b"s");
+            for x in c.read_raw::<VarLenUnicode>()? {
+                h.field(x.as_str().as_bytes());
+            }
+        }
+        other => {
+            return Err(hdf5::Error::from(format!(
+                "{name}: unexpected type {other:?}"
+            )))
+        }
+    }
+    Ok(())
+}
+
+/// Feeds every attribute of `loc` (sorted by name; the checksum itself left out).
+fn hash_attrs(h: &mut Fnv, loc: &hdf5::Location) -> hdf5::Result<()> {
+    let mut names = loc.attr_names()?;
+    names.sort();
+    for n in names.iter().filter(|n| *n != CHECKSUM_ATTR) {
+        let a = loc.attr(n)?;
+        hash_container(h, n, &a)?;
+    }
+    Ok(())
+}
+
+/// Checksum of a checkpoint's content: FNV-1a 64 over the values as read (every root
+/// attribute and every dataset with its attributes, sorted by name, each with its type
+/// and shape), as `fnv1a-64:` and 16 hex digits. The same function runs on the open file
+/// after writing and on reading, so what is verified is exactly what a resume reads.
+/// Every step of FNV-1a is a bijection of the hash state for a given byte, so any change
+/// confined to one byte of the content (any single flipped bit) always changes the sum;
+/// wider damage goes unnoticed with a chance of about 2^-64.
+pub fn content_checksum(file: &File) -> hdf5::Result<String> {
+    let mut h = Fnv::new();
+    let root = file.as_group()?;
+    hash_attrs(&mut h, &root)?;
+    let mut names = file.member_names()?;
+    names.sort();
+    for n in &names {
+        let ds = file.dataset(n)?;
+        hash_container(&mut h, n, &ds)?;
+        hash_attrs(&mut h, &ds)?;
+    }
+    Ok(format!("{CHECKSUM_METHOD}:{:016x}", h.0))
+}
 
 /// FNV-1a 64-bit hash of a string, as 16 hex digits.
 pub fn fnv1a(text: &str) -> String {
@@ -52,7 +158,7 @@ pub fn physics_hash(m: &Model) -> String {
         m.bottom,
         m.initial,
         (
-            t.start,
+            t.epoch_year * SECONDS_PER_YEAR + t.start,
             t.dt_initial,
             t.dt_min,
             t.dt_max,
@@ -110,6 +216,8 @@ pub struct Checkpoint {
     pub physics_hash: String,
     pub column_hash: String,
     pub results_file: String,
+    /// The year `state.t` counts seconds from (see [`crate::model::time_origin_year`]).
+    pub epoch_year: f64,
     pub faces: Vec<f64>,
     pub created: String,
     pub format: String,
@@ -163,27 +271,109 @@ fn write_via(
         attr_str(&root, "physics_hash", &physics_hash(model)).map_err(&er)?;
         attr_str(&root, "column_hash", &column_hash(model)).map_err(&er)?;
         attr_str(&root, "results_file", &results_file.display().to_string()).map_err(&er)?;
-        attr_f64(&root, "time_year", state.t / SECONDS_PER_YEAR).map_err(&er)?;
-        let f64s = |name: &str, v: &[f64]| -> hdf5::Result<()> {
-            file.new_dataset_builder()
+        attr_str(
+            &root,
+            "results_file_absolute",
+            &absolute(results_file).display().to_string(),
+        )
+        .map_err(&er)?;
+        attr_f64(&root, "time_origin_year", model.time.epoch_year).map_err(&er)?;
+        attr_f64(&root, "time_year", model.time.year(state.t)).map_err(&er)?;
+        let f64s = |name: &str, v: &[f64], units: &str, long: &str| -> hdf5::Result<()> {
+            let ds = file
+                .new_dataset_builder()
                 .with_data(&Array1::from_vec(v.to_vec()))
-                .create(name)
-                .map(|_| ())
+                .create(name)?;
+            describe(&ds, units, long)
         };
-        f64s("time_s", &[state.t]).map_err(&er)?;
-        f64s("dt_s", &[state.dt]).map_err(&er)?;
-        f64s("unknowns", &state.u).map_err(&er)?;
-        f64s("storage", &state.storage).map_err(&er)?;
-        f64s("linearization_cells", &state.linearization_cells).map_err(&er)?;
-        f64s("linearization_faces", &state.linearization_faces).map_err(&er)?;
-        f64s("inflow", &state.inflow).map_err(&er)?;
-        f64s("throughput", &state.throughput).map_err(&er)?;
-        f64s("top_inflow", &state.top_inflow).map_err(&er)?;
-        f64s("initial_totals", &state.initial_totals).map_err(&er)?;
-        f64s("initial_storage", &state.initial_storage).map_err(&er)?;
-        f64s("face_depth", &model.mesh.faces).map_err(&er)?;
+        let n = model.mesh.faces.len().saturating_sub(1);
+        let per_cell = "per cell, ordered temperature [K], pressure head [m], vapour density [kg m-3] (interleaved by cell)";
+        f64s(
+            "time_s",
+            &[state.t],
+            "s",
+            "simulated time of the state (seconds since year 0 of the case's time axis)",
+        )
+        .map_err(&er)?;
+        f64s("dt_s", &[state.dt], "s", "proposed next time step").map_err(&er)?;
+        f64s(
+            "unknowns",
+            &state.u,
+            "mixed: K, m, kg m-3",
+            &format!("state unknowns of the {n} cells, {per_cell}"),
+        )
+        .map_err(&er)?;
+        f64s(
+            "storage",
+            &state.storage,
+            "mixed: J m-3, kg m-3, kg m-3",
+            "storages per cell at the state: energy, total water, vapour (interleaved by cell)",
+        )
+        .map_err(&er)?;
+        f64s(
+            "linearization_cells",
+            &state.linearization_cells,
+            "mixed",
+            "cell states of the kept evaluations with derivatives (linearisation points)",
+        )
+        .map_err(&er)?;
+        f64s(
+            "linearization_faces",
+            &state.linearization_faces,
+            "mixed",
+            "face states of the kept evaluations with derivatives (linearisation points)",
+        )
+        .map_err(&er)?;
+        f64s(
+            "inflow",
+            &state.inflow,
+            "J m-2, kg m-2",
+            "cumulative net inflow since the start: energy, water",
+        )
+        .map_err(&er)?;
+        f64s(
+            "throughput",
+            &state.throughput,
+            "J m-2, kg m-2",
+            "cumulative absolute boundary flow since the start: energy, water",
+        )
+        .map_err(&er)?;
+        f64s(
+            "top_inflow",
+            &state.top_inflow,
+            "J m-2, kg m-2",
+            "cumulative inflow through the top boundary since the start: energy, water",
+        )
+        .map_err(&er)?;
+        f64s(
+            "initial_totals",
+            &state.initial_totals,
+            "J m-2, kg m-2",
+            "column totals at the start: energy, water",
+        )
+        .map_err(&er)?;
+        f64s(
+            "initial_storage",
+            &state.initial_storage,
+            "mixed: J m-3, kg m-3, kg m-3",
+            "storages per cell at the start: energy, total water, vapour (interleaved by cell)",
+        )
+        .map_err(&er)?;
+        f64s(
+            "face_depth",
+            &model.mesh.faces,
+            "m",
+            "depth of the cell faces (positive down)",
+        )
+        .map_err(&er)?;
         if let (Some(a), Some(r)) = (info.balance_abs, info.balance_rel) {
-            f64s("balance_error", &[a[0], a[1], r[0], r[1]]).map_err(&er)?;
+            f64s(
+                "balance_error",
+                &[a[0], a[1], r[0], r[1]],
+                "J m-2, kg m-2, 1, 1",
+                "cumulative balance error: energy, water (absolute), energy, water (relative)",
+            )
+            .map_err(&er)?;
         }
         f64s(
             "results_last_times",
@@ -191,6 +381,8 @@ fn write_via(
                 info.last_series_year.unwrap_or(f64::NAN),
                 info.last_snapshot_year.unwrap_or(f64::NAN),
             ],
+            "year",
+            "time of the last series row and of the last snapshot in the results file (NaN: none)",
         )
         .map_err(&er)?;
         if let Some((p, t)) = &info.parent {
@@ -215,26 +407,55 @@ fn write_via(
             ]);
         }
         // A 2-D dataset of `rows` rows from row-major values.
-        let table = |name: &str, rows: usize, cols: usize, v: Vec<f64>| -> Result<()> {
+        let table = |name: &str,
+                     rows: usize,
+                     cols: usize,
+                     v: Vec<f64>,
+                     units: &str,
+                     long: &str|
+         -> Result<()> {
             let a = ndarray::Array2::from_shape_vec((rows, cols), v)
                 .map_err(|x| Error::Internal(x.to_string()))?;
-            file.new_dataset_builder()
+            let ds = file
+                .new_dataset_builder()
                 .with_data(&a)
                 .create(name)
                 .map_err(&er)?;
+            describe(&ds, units, long).map_err(&er)?;
             Ok(())
         };
-        table("history_unknowns", hlen, width, hu)?;
+        table(
+            "history_unknowns",
+            hlen,
+            width,
+            hu,
+            "mixed: K, m, kg m-3",
+            "unknowns of the multistep history points, newest first (rows), laid out as unknowns",
+        )?;
         if hs.len() == hlen * width {
-            table("history_storage", hlen, width, hs)?;
+            table(
+                "history_storage",
+                hlen,
+                width,
+                hs,
+                "mixed: J m-3, kg m-3, kg m-3",
+                "storages of the multistep history points, newest first",
+            )?;
         }
-        table("history_time_inflow", hlen, 5, hmeta)?;
+        table("history_time_inflow", hlen, 5, hmeta, "s, J m-2, kg m-2, J m-2, kg m-2", "per history point: time, cumulative inflow (energy, water), cumulative throughput (energy, water)")?;
         let ht: Vec<f64> = state
             .history
             .iter()
             .flat_map(|hp| hp.top_inflow.clone())
             .collect();
-        table("history_top_inflow", hlen, state.top_inflow.len(), ht)?;
+        table(
+            "history_top_inflow",
+            hlen,
+            state.top_inflow.len(),
+            ht,
+            "J m-2, kg m-2",
+            "per history point: cumulative inflow through the top boundary (energy, water)",
+        )?;
         let c = &state.counters;
         let ints: Vec<u64> = vec![
             c.steps,
@@ -248,14 +469,22 @@ fn write_via(
             state.steps_at_order as u64,
             c.jacobians,
         ];
-        file.new_dataset_builder()
+        let ds = file
+            .new_dataset_builder()
             .with_data(&Array1::from_vec(ints))
             .create("counters")
             .map_err(&er)?;
-        file.new_dataset_builder()
-            .with_data(&Array1::from_vec(vec![state.last_error]))
-            .create("last_error_estimate")
-            .map_err(&er)?;
+        describe(&ds, "1", "counts: steps, rejected steps, Newton iterations, factorisations, steps since the last series row, series rows, snapshots, BDF order, steps at that order, Jacobian evaluations").map_err(&er)?;
+        f64s(
+            "last_error_estimate",
+            &[state.last_error],
+            "1",
+            "last local error estimate of the step control (scaled)",
+        )
+        .map_err(&er)?;
+        // The checksum over everything above (every dataset and attribute, as read back).
+        let sum = content_checksum(&file).map_err(&er)?;
+        attr_str(&root, CHECKSUM_ATTR, &sum).map_err(&er)?;
         file.flush().map_err(&er)?;
         // Every handle is dropped at the end of this block, which closes the file.
     }
@@ -313,13 +542,14 @@ pub fn read(path: &Path) -> Result<Checkpoint> {
     let kind = file_kind(path)?;
     if kind != CHECKPOINT_KIND {
         return Err(Error::input(format!(
-            "{}: a deepdry {kind} file, not a checkpoint",
-            path.display()
+            "{}: a deepdry {} file, not a checkpoint",
+            path.display(),
+            kind.strip_prefix("deepdry-").unwrap_or(&kind)
         )));
     }
     let bad = |what: &str| {
         Error::input(format!(
-            "{}: damaged checkpoint ({what} missing or unreadable)",
+            "{}: damaged checkpoint ({what} missing or unreadable); resume from the previous checkpoint in the folder",
             path.display()
         ))
     };
@@ -327,6 +557,17 @@ pub fn read(path: &Path) -> Result<Checkpoint> {
         let file = File::open(path).map_err(|_| bad("file"))?;
         let root = file.as_group().map_err(|_| bad("root group"))?;
         let s = |name: &str| read_attr_str(&root, name).map_err(|_| bad(name));
+        // The checksum first: a damaged file is reported as damaged, whichever value the
+        // damage hit. A file without one is of an older format (refused just below).
+        if let Ok(stored) = read_attr_str(&root, CHECKSUM_ATTR) {
+            let actual = content_checksum(&file).map_err(|_| bad("content"))?;
+            if stored != actual {
+                return Err(Error::input(format!(
+                    "{}: damaged checkpoint: its content does not match its checksum (stored {stored}, computed {actual}); resume from the previous checkpoint in the folder",
+                    path.display()
+                )));
+            }
+        }
         let format = s("format")?;
         if format != CHECKPOINT_FORMAT {
             return Err(Error::input(format!(
@@ -488,6 +729,12 @@ pub fn read(path: &Path) -> Result<Checkpoint> {
             physics_hash: s("physics_hash")?,
             column_hash: s("column_hash")?,
             results_file: s("results_file")?,
+            epoch_year: root
+                .attr("time_origin_year")
+                .and_then(|a| a.read_scalar::<f64>())
+                .ok()
+                .filter(|y| y.is_finite())
+                .ok_or_else(|| bad("time_origin_year"))?,
             faces: v("face_depth")?,
             created: s("created")?,
             format,
@@ -497,9 +744,16 @@ pub fn read(path: &Path) -> Result<Checkpoint> {
     inner()
 }
 
-/// File name of the checkpoint at time `t` [s] in `folder`.
-pub fn name_at(folder: &Path, t: f64) -> PathBuf {
-    folder.join(format!("checkpoint-{:.9e}yr.h5", t / SECONDS_PER_YEAR))
+impl Checkpoint {
+    /// The year of the checkpoint's state.
+    pub fn year(&self) -> f64 {
+        self.epoch_year + self.state.t / SECONDS_PER_YEAR
+    }
+}
+
+/// File name of the checkpoint at `year` in `folder`.
+pub fn name_at(folder: &Path, year: f64) -> PathBuf {
+    folder.join(format!("checkpoint-{year:.9e}yr.h5"))
 }
 
 /// Checkpoints in `folder` written by [`name_at`], sorted oldest first by time.
@@ -556,10 +810,10 @@ fn same_file(a: &Path, b: &Path) -> bool {
     }
 }
 
-/// Removes the checkpoints in `folder` later than `t` [s] (by the times in their names),
+/// Removes the checkpoints in `folder` later than `year` (by the times in their names),
 /// except `keep`. Returns how many were removed.
-pub fn remove_after(folder: &Path, t: f64, keep: &Path) -> usize {
-    let limit = name_at(Path::new(""), t)
+pub fn remove_after(folder: &Path, year: f64, keep: &Path) -> usize {
+    let limit = name_at(Path::new(""), year)
         .to_string_lossy()
         .strip_prefix("checkpoint-")
         .and_then(|r| r.strip_suffix("yr.h5"))

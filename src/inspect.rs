@@ -16,7 +16,11 @@ pub fn summary(path: &Path) -> Result<String> {
         let c = &ck.state.counters;
         let _ = writeln!(out, "file: {}", path.display());
         let _ = writeln!(out, "kind: checkpoint");
-        let _ = writeln!(out, "case title: {}", ck.title);
+        let _ = writeln!(
+            out,
+            "case title: {}",
+            crate::case::summary::printable(&ck.title)
+        );
         let _ = writeln!(out, "software version: {}", ck.software_version);
         let _ = writeln!(out, "checkpoint format: {}", ck.format);
         let _ = writeln!(out, "written: {}", ck.created);
@@ -24,7 +28,7 @@ pub fn summary(path: &Path) -> Result<String> {
         let _ = writeln!(
             out,
             "time: {} yr, next step {} yr",
-            crate::output::years(ck.state.t / year),
+            crate::output::years(ck.year()),
             crate::output::human(ck.state.dt / year, 4)
         );
         let _ = writeln!(out, "cells: {}", ck.state.u.len() / 3);
@@ -73,7 +77,11 @@ pub fn summary(path: &Path) -> Result<String> {
     let series = read("series/time");
     let _ = writeln!(out, "file: {}", path.display());
     let _ = writeln!(out, "kind: results");
-    let _ = writeln!(out, "case title: {}", attr("title"));
+    let _ = writeln!(
+        out,
+        "case title: {}",
+        crate::case::summary::printable(&attr("title"))
+    );
     if let Ok(o) = read_attr_str(&root, "overrides") {
         if !o.is_empty() {
             let _ = writeln!(out, "overrides: {}", o.replace('\n', ", "));

@@ -197,7 +197,12 @@ pub enum ProfileMoisture {
 /// Time span and step control.
 #[derive(Debug, Clone)]
 pub struct TimeControl {
-    /// Start and end of the run [s].
+    /// The year model time counts from: [`time_origin_year`] of the case's start year
+    /// (a whole multiple of 1e5 years near it). Every time inside the model is in
+    /// seconds since this year, so a run is resolved to its own precision at any epoch
+    /// (the seconds since year 0 of year 4.5e9 could not resolve a 1e-4-year interval).
+    pub epoch_year: f64,
+    /// Start and end of the run [s since `epoch_year`].
     pub start: f64,
     pub end: f64,
     /// First, smallest and largest step [s].
@@ -219,6 +224,28 @@ pub struct TimeControl {
     /// Newton converges when every residual row is within this fraction of the size of
     /// the terms that make it up [-].
     pub newton_tolerance: f64,
+}
+
+/// Model time counts seconds from the start year rounded to a whole multiple of
+/// [`TIME_ORIGIN_STEP_YEARS`]: within 5e4 years of the origin a second is resolved to
+/// 2.4e-4 s (8e-12 yr), at any epoch. A case that starts within 5e4 years of year 0
+/// keeps year 0 as its origin (so its results are those of the seconds since year 0).
+pub fn time_origin_year(start_year: f64) -> f64 {
+    (start_year / TIME_ORIGIN_STEP_YEARS).round() * TIME_ORIGIN_STEP_YEARS + 0.0
+}
+
+/// See [`time_origin_year`].
+pub const TIME_ORIGIN_STEP_YEARS: f64 = 1.0e5;
+
+impl TimeControl {
+    /// The year of model time `t` [s since `epoch_year`].
+    pub fn year(&self, t: f64) -> f64 {
+        self.epoch_year + t / crate::props::constants::SECONDS_PER_YEAR
+    }
+    /// Model time [s since `epoch_year`] of `year`.
+    pub fn seconds(&self, year: f64) -> f64 {
+        (year - self.epoch_year) * crate::props::constants::SECONDS_PER_YEAR
+    }
 }
 
 #[derive(Debug, Clone, Copy, PartialEq)]

@@ -53,6 +53,8 @@ impl Default for RunOptions {
 #[derive(Debug, Clone)]
 pub struct RunSummary {
     pub results: PathBuf,
+    /// The years this run started (the case's start, the checkpoint's time of a resume
+    /// or a branch) and ended.
     pub start: f64,
     pub end: f64,
     pub wall_seconds: f64,
@@ -79,8 +81,8 @@ impl RunSummary {
              water balance error {} kg m-2 (relative {}); energy balance error {} J m-2 (relative {})\n\
              water flux at the surface {} mm/yr, at the bottom {} mm/yr (positive downward)\n\
              results: {}\n{}",
-            years(self.start / SECONDS_PER_YEAR),
-            years(self.end / SECONDS_PER_YEAR),
+            years(self.start),
+            years(self.end),
             self.wall_seconds,
             c.steps,
             c.rejected,
@@ -131,6 +133,13 @@ pub fn install_signal_handlers() -> Result<()> {
         signal_hook::flag::register(sig, flag.clone())
             .map_err(|e| Error::Internal(format!("cannot install the signal handler: {e}")))?;
     }
+    // A file-size limit (`ulimit -f`) would kill the run with SIGXFSZ and no message; with
+    // the signal caught, the write fails (EFBIG) and is reported as an I/O error (exit 4).
+    signal_hook::flag::register(
+        signal_hook::consts::SIGXFSZ,
+        std::sync::Arc::new(std::sync::atomic::AtomicBool::new(false)),
+    )
+    .map_err(|e| Error::Internal(format!("cannot install the signal handler: {e}")))?;
     Ok(())
 }
 
@@ -254,8 +263,8 @@ fn start_resume(model: &Model, path: &Path, folder: &Path, results: &Path) -> Re
         return Err(Error::input(format!(
             "{}: the checkpoint is at {:.6e} yr, at or after the case's end {:.6e} yr: nothing to continue",
             path.display(),
-            ck.state.t / SECONDS_PER_YEAR,
-            model.time.end / SECONDS_PER_YEAR
+            ck.year(),
+            model.time.year(model.time.end)
         )));
     }
     let results = ResultsFile::open_append(
@@ -269,7 +278,7 @@ fn start_resume(model: &Model, path: &Path, folder: &Path, results: &Path) -> Re
     // The results after the checkpoint are gone, so later checkpoints in the folder no
     // longer match them (and would outlive the new ones when pruning).
     checkpoint::remove_temporaries(folder);
-    let removed = checkpoint::remove_after(folder, ck.state.t, path);
+    let removed = checkpoint::remove_after(folder, ck.year(), path);
     if removed > 0 {
         log::info!(
             "removed {removed} checkpoints later than {} (their results rows were dropped)",
@@ -306,13 +315,13 @@ fn start_branch(
     check_new_output(folder, results, opts.overwrite)?;
     let results = ResultsFile::create(results, model, opts.overwrite)?;
     replace_earlier_run(folder, Some(path));
-    let parent_year = ck.state.t / SECONDS_PER_YEAR;
+    let parent_year = ck.year();
     results.set_attr("parent_checkpoint", &path.display().to_string())?;
     results.set_attr("parent_time_year", &format!("{parent_year:e}"))?;
     results.set_attr("parent_physics_hash", &ck.physics_hash)?;
     Ok(Prepared {
         begin: Begin::Unknowns {
-            t: ck.state.t,
+            t: branch_time(model, &ck),
             dt: ck.state.dt,
             u: ck.state.u,
         },
@@ -348,13 +357,60 @@ fn check_branch(model: &Model, path: &Path, ck: &Checkpoint) -> Result<()> {
             path.display()
         );
     }
-    if ck.state.t >= model.time.end {
+    let t = branch_time(model, ck);
+    if t.is_nan() || t >= model.time.end {
         return Err(Error::input(format!(
-            "{}: the checkpoint is at {:.6e} yr, at or after the case's end {:.6e} yr",
+            "{}: the checkpoint is at year {}, outside the case's run (year {} up to {}); a branch starts at the checkpoint's time",
             path.display(),
-            ck.state.t / SECONDS_PER_YEAR,
-            model.time.end / SECONDS_PER_YEAR
+            ck.year(),
+            model.time.epoch_year,
+            model.time.year(model.time.end)
         )));
+    }
+    Ok(())
+}
+
+/// The checkpoint's time in the case's time frame (seconds since the case's start year).
+fn branch_time(model: &Model, ck: &Checkpoint) -> f64 {
+    ck.state.t + (ck.epoch_year - model.time.epoch_year) * SECONDS_PER_YEAR
+}
+
+/// A run fails (exit code 3) when its cumulative relative balance error at the end exceeds
+/// this, for water or energy, and its absolute error exceeds [`BALANCE_FLOOR`] of the
+/// column's initial content; the demo and validation cases end below 1.9e-7 relative
+/// (see docs/limits.md).
+pub const BALANCE_LIMIT: f64 = 1.0e-5;
+
+/// Errors smaller than this fraction of the column's initial content are solver
+/// tolerance, whatever their relative size to a flow that is almost zero (a closed
+/// column: relative 1.0 from 1.2e-9 of the content). The demo cases end below 3.2e-9.
+pub const BALANCE_FLOOR: f64 = 1.0e-8;
+
+/// Refuses a finished run whose balance does not close: the results and the final
+/// checkpoint are kept, but the run is not reported as a success.
+fn check_final_balance(
+    model: &Model,
+    state: &StepState,
+    abs: &[f64; 2],
+    rel: &[f64; 2],
+    checkpoint: Option<&Path>,
+) -> Result<()> {
+    for (k, name, unit) in [(1, "water", "kg m-2"), (0, "energy", "J m-2")] {
+        let total = state.initial_totals.get(k).copied().unwrap_or(0.0).abs();
+        let bad = !rel[k].is_finite()
+            || !abs[k].is_finite()
+            || (rel[k] > BALANCE_LIMIT && abs[k].abs() > BALANCE_FLOOR * total);
+        if bad {
+            return Err(Error::Numerical(format!(
+                "balance check failed at year {:.6e}: the cumulative relative {name} balance error {:.3e} ({:.3e} {unit}) exceeds {BALANCE_LIMIT:e} (docs/limits.md); the case's parameters or step control give results that do not conserve {name}: check them (or tighten time.rtol); results and the final checkpoint{} are kept",
+                model.time.year(state.t),
+                rel[k],
+                abs[k],
+                checkpoint
+                    .map(|p| format!(" {}", p.display()))
+                    .unwrap_or_default()
+            )));
+        }
     }
     Ok(())
 }
@@ -362,6 +418,12 @@ fn check_branch(model: &Model, path: &Path, ck: &Checkpoint) -> Result<()> {
 /// Runs `model` (from its initial state, or as `opts.start` says) to its end time.
 pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
     let wall = Instant::now();
+    if let (Start::Resume(path), true) = (&opts.start, opts.overwrite) {
+        return Err(Error::input(format!(
+            "--resume {} continues the existing results file, --overwrite would discard it: give one of them (--start-from to branch into a new results file)",
+            path.display()
+        )));
+    }
     // Refused before any file is touched.
     let plan = SyncPlan::new(model)?;
     let folder = opts
@@ -377,13 +439,15 @@ pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
         Start::Resume(path) => start_resume(model, path, &folder, &results_path)?,
         Start::Branch(path) => start_branch(model, opts, path, &folder, &results_path)?,
     };
+    let begin_t = match &start.begin {
+        Begin::Unknowns { t, .. } => *t,
+        Begin::State(s) => s.t,
+    };
     let mut sim = Simulation::new(model, plan, start.begin, start.output, opts.solver);
     // In this order: the bar is cleared before anything is reported, and the results
     // file is flushed before a checkpoint counts its rows.
     let mut progress = Progress::new(opts.progress);
-    let mut results = ResultsWriter {
-        file: start.results,
-    };
+    let mut results = ResultsWriter::new(start.results, &results_path);
     let mut checkpoints =
         Checkpointer::new(&folder, &results_path, &model.checkpoint, start.parent);
     let mut obs: [&mut dyn Observer; 4] = [
@@ -392,20 +456,37 @@ pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
         &mut checkpoints,
         &mut StopOnSignal,
     ];
-    sim.start(&mut obs, start.initial_output)?;
-    if sim.run_to_end(&mut obs)? == Advance::Stopped {
+    let advanced = sim
+        .start(&mut obs, start.initial_output)
+        .and_then(|()| sim.run_to_end(&mut obs));
+    let advanced = match advanced {
+        // An I/O error before any checkpoint: say that there is nothing to resume from.
+        Err(Error::Io(m)) if !checkpoint::list(&folder).is_empty() => Err(Error::Io(m)),
+        Err(Error::Io(m)) => Err(Error::Io(format!(
+            "{m}; no checkpoint was written yet, so there is nothing to resume from: free space or fix the folder and run again"
+        ))),
+        other => other,
+    };
+    if advanced? == Advance::Stopped {
         sim.stop(&mut obs)?;
         return Err(Error::Interrupted(format!(
             "interrupted at t = {:.6e} yr; checkpoint written to {} (continue with --resume)",
-            sim.state().t / SECONDS_PER_YEAR,
+            model.time.year(sim.state().t),
             checkpoints.last().unwrap_or(&folder).display()
         )));
     }
     let end = sim.finish(&mut obs)?;
+    check_final_balance(
+        model,
+        sim.state(),
+        &end.balance_abs,
+        &end.balance_rel,
+        checkpoints.last(),
+    )?;
     Ok(RunSummary {
         results: results_path,
-        start: model.time.start,
-        end: sim.state().t,
+        start: model.time.year(begin_t),
+        end: model.time.year(sim.state().t),
         wall_seconds: wall.elapsed().as_secs_f64(),
         counters: end.counters,
         balance_abs: end.balance_abs,

@@ -104,7 +104,7 @@ fn a_valid_override_changes_the_model_as_the_same_edit_of_the_file() {
 fn a_bad_value_gives_the_files_check_naming_the_override() {
     assert_eq!(
         input_error(&["soils.sandy_loam.van_genuchten.n=0.9"]),
-        "--set soils.sandy_loam.van_genuchten.n=0.9: must be > 1"
+        "--set soils.sandy_loam.van_genuchten.n=0.9: must be > 1 and at most 20 (soils: about 1.05 to 10)"
     );
     // Wrong type, an unknown choice: the messages of the file's checks.
     assert_eq!(
@@ -123,7 +123,9 @@ fn a_bad_value_gives_the_files_check_naming_the_override() {
         "soils.sandy_loam.van_genuchten={ theta_r = 0.065, theta_s = 0.41, alpha_per_m = -7.5, n = 1.89 }",
     ]);
     assert!(
-        e.ends_with(": soils.sandy_loam.van_genuchten.alpha_per_m = -7.5: must be > 0"),
+        e.ends_with(
+            ": soils.sandy_loam.van_genuchten.alpha_per_m = -7.5: must be > 0 and at most 1000 1/m (soils: about 0.1 to 30)"
+        ),
         "{e}"
     );
     assert!(
@@ -149,7 +151,7 @@ fn binary_check_exits_2_with_the_override_in_one_line() {
     ]);
     assert_error_line(
         &o,
-        "--set soils.sandy_loam.van_genuchten.n=0.9: must be > 1",
+        "--set soils.sandy_loam.van_genuchten.n=0.9: must be > 1 and at most 20 (soils: about 1.05 to 10)",
     );
     let o = deepdry(&["check", case, "--set", "time.end_yaer=2e4"]);
     assert_error_line(

@@ -156,6 +156,7 @@ fn model() -> Model {
             gradient: 0.0,
         },
         time: TimeControl {
+            epoch_year: 0.0,
             start: 0.0,
             end: 1.0,
             dt_initial: 1.0,

@@ -151,6 +151,8 @@ pub fn build(src: &Source) -> R<Model> {
             .to_string(),
     };
     let time = read_time(&root)?;
+    // Schedule times are read as seconds since the time origin.
+    let _epoch = schedules::EpochGuard::set(time.epoch_year);
     let depth = read_column(&root)?;
     let soils = read_soils(&root)?;
     let layers = read_layers(&root, &soils, depth)?;
@@ -172,6 +174,7 @@ pub fn build(src: &Source) -> R<Model> {
     let initial = read_initial(&root, &time, depth, &surface, &bottom, &soils, &layers)?;
     let output = read_output(&root, &time)?;
     let checkpoint = read_checkpoint(&root)?;
+    below_boiling(&root, &physics, &surface, &bottom)?;
     Ok(Model {
         title,
         case_text: src.text.to_string(),
@@ -190,7 +193,65 @@ pub fn build(src: &Source) -> R<Model> {
     })
 }
 
+/// Refuses boundary temperatures at or above the boiling point at the air pressure: the
+/// model holds for liquid water and vapour below boiling.
+fn below_boiling(
+    root: &Table,
+    physics: &Physics,
+    surface: &Periods<SurfaceBc>,
+    bottom: &Periods<BottomBc>,
+) -> R<()> {
+    let p = physics.air_pressure;
+    let boils = |t: f64| crate::props::water::saturation_pressure(t).0 >= p;
+    // The boiling point at p, by bisection on the saturation pressure (0..374 °C).
+    let boiling = || {
+        let (mut lo, mut hi) = (CELSIUS_ZERO, CELSIUS_ZERO + 373.0);
+        for _ in 0..60 {
+            let mid = 0.5 * (lo + hi);
+            if boils(mid) {
+                hi = mid;
+            } else {
+                lo = mid;
+            }
+        }
+        lo
+    };
+    let mut hottest: Vec<(&str, f64)> = Vec::new();
+    for (_, bc) in &surface.periods {
+        if let SurfaceHeat::Temperature(s) = &bc.heat {
+            hottest.push(("surface.temperature_C", s.bounds().1));
+        }
+    }
+    for (_, bc) in &bottom.periods {
+        if let BottomHeat::Temperature(s) = &bc.heat {
+            hottest.push(("bottom.temperature_C", s.bounds().1));
+        }
+    }
+    for (key, t) in hottest {
+        if boils(t) {
+            let section = key.split('.').next().unwrap_or(key);
+            return Err(root.req(section, "")?.err(format!(
+                "{key} reaches {} °C, at or above the boiling point {:.1} °C at physics.air_pressure_Pa = {}; the model holds below boiling: lower the temperature or raise the air pressure",
+                fmt_g(t - CELSIUS_ZERO),
+                boiling() - CELSIUS_ZERO,
+                fmt_g(p)
+            )));
+        }
+    }
+    Ok(())
+}
+
 // ---------------------------------------------------------------- column and mesh
+
+/// Largest retention α: 1000 1/m (an air-entry head of 1 mm); beyond it the retention
+/// curve is a step the Newton iteration cannot follow.
+pub const MAX_ALPHA_PER_M: f64 = 1000.0;
+/// Largest van Genuchten n: 20 (soils lie between about 1.05 and 10).
+pub const MAX_VG_N: f64 = 20.0;
+
+/// Shallowest column a case may give: 1 cm (a column of 1e-9 m ran with a water balance
+/// that did not close by half of its throughput).
+pub const MIN_DEPTH_M: f64 = 0.01;
 
 fn read_column(root: &Table) -> R<f64> {
     let t = section(root, "column", &["depth_m"], "the soil column: depth_m")?;
@@ -198,8 +259,8 @@ fn read_column(root: &Table) -> R<f64> {
         &t,
         "depth_m",
         "depth of the bottom boundary below the surface [m]",
-        |d| d > 0.0 && d <= 1.0e4,
-        "must be > 0 and at most 10000 m (depth of the bottom boundary, positive downward)",
+        |d| (MIN_DEPTH_M..=1.0e4).contains(&d),
+        "must be 0.01 to 10000 m (depth of the bottom boundary, positive downward)",
     )
 }
 
@@ -216,11 +277,7 @@ fn read_mesh(root: &Table, depth: f64, layers: &[Layer]) -> R<Mesh> {
     let t = section(root, "mesh", MESH_KEYS, "the grid: cells or max_cell_m")?;
     let (key, v) = t.one_of(&["cells", "max_cell_m"], "mesh resolution")?;
     let resolution = if key == "cells" {
-        let n = v.usize()?;
-        if n == 0 {
-            return Err(v.err("must be at least 1"));
-        }
-        Resolution::Cells(n)
+        Resolution::Cells(v.usize_in(1, 10_000_000, "")?)
     } else {
         Resolution::MaxCell(num(
             &v,
@@ -256,7 +313,19 @@ fn read_mesh(root: &Table, depth: f64, layers: &[Layer]) -> R<Mesh> {
     }
     let mut boundaries = vec![0.0];
     boundaries.extend(layers.iter().map(|l| l.bottom));
-    Mesh::graded(&boundaries, &grading, resolution).map_err(|e| t.err(e))
+    let max_cell = match &resolution {
+        Resolution::MaxCell(h) => Some(*h),
+        _ => None,
+    };
+    Mesh::graded(&boundaries, &grading, resolution).map_err(|e| match (e, max_cell) {
+        (crate::mesh::MeshError::AboveLimit { cells }, Some(h)) => t.err(format!(
+            "max_cell_m = {}: gives {cells} cells, more than the limit of {}; use max_cell_m ≥ {} m",
+            fmt_g(h),
+            crate::mesh::MAX_CELLS,
+            fmt_g(depth / crate::mesh::MAX_CELLS as f64)
+        )),
+        (e, _) => t.err(e),
+    })
 }
 
 // ---------------------------------------------------------------- soils
@@ -335,8 +404,20 @@ fn read_retention(t: &Table) -> R<RetentionLaw> {
         "van_genuchten" => {
             let vg = v.table(&["theta_r", "theta_s", "alpha_per_m", "n", "l"])?;
             let (theta_r, theta_s) = theta_pair(&vg)?;
-            let alpha = req_num(&vg, "alpha_per_m", "α [1/m]", |a| a > 0.0, "must be > 0")?;
-            let n = req_num(&vg, "n", "shape parameter n", |n| n > 1.0, "must be > 1")?;
+            let alpha = req_num(
+                &vg,
+                "alpha_per_m",
+                "α [1/m]",
+                |a| a > 0.0 && a <= MAX_ALPHA_PER_M,
+                "must be > 0 and at most 1000 1/m (soils: about 0.1 to 30)",
+            )?;
+            let n = req_num(
+                &vg,
+                "n",
+                "shape parameter n",
+                |n| n > 1.0 && n <= MAX_VG_N,
+                "must be > 1 and at most 20 (soils: about 1.05 to 10)",
+            )?;
             // Kr ~ Se^(l + 2/m) when dry, m = 1 − 1/n.
             let l = pore_connectivity(&vg, -2.0 * n / (n - 1.0))?;
             RetentionLaw::VanGenuchten {
@@ -377,7 +458,13 @@ fn read_retention(t: &Table) -> R<RetentionLaw> {
         _ => {
             let ex = v.table(&["theta_r", "theta_s", "alpha_per_m"])?;
             let (theta_r, theta_s) = theta_pair(&ex)?;
-            let alpha = req_num(&ex, "alpha_per_m", "α [1/m]", |a| a > 0.0, "must be > 0")?;
+            let alpha = req_num(
+                &ex,
+                "alpha_per_m",
+                "α [1/m]",
+                |a| a > 0.0 && a <= MAX_ALPHA_PER_M,
+                "must be > 0 and at most 1000 1/m",
+            )?;
             RetentionLaw::Exponential {
                 theta_r,
                 theta_s,
@@ -397,8 +484,8 @@ fn read_soil(name: &str, v: &Value) -> R<Soil> {
             let oven_dry_head = opt_num(
                 &t,
                 "oven_dry_head_m",
-                |h| h < 0.0,
-                "must be < 0 (the head at oven dryness, e.g. -1e5)",
+                |h| (-1.0e7..=-100.0).contains(&h),
+                "must be -1e7 to -100 m (the head at oven dryness, typically -1e5)",
             )?
             .unwrap_or(-1.0e5);
             Some(DryEnd::FayerSimmons { oven_dry_head })
@@ -473,8 +560,8 @@ fn read_soil(name: &str, v: &Value) -> R<Soil> {
         _ => ThermalConductivity::Constant {
             value: num(
                 &tv,
-                |x| x > 0.0 && x <= 100.0,
-                "must be in (0, 100] W/(m K)",
+                |x| (0.01..=100.0).contains(&x),
+                "must be in [0.01, 100] W/(m K) (still air conducts 0.025)",
             )?,
         },
     };
@@ -900,7 +987,7 @@ fn read_periods<T>(
         }
         items
     };
-    let (start, end) = (time.start / SECONDS_PER_YEAR, time.end / SECONDS_PER_YEAR);
+    let (start, end) = (time.year(time.start), time.year(time.end));
     let mut periods = Vec::new();
     let mut prev_from = f64::NEG_INFINITY;
     for (i, item) in items.iter().enumerate() {
@@ -940,7 +1027,7 @@ fn read_periods<T>(
                     )));
                 }
                 prev_from = y;
-                y * SECONDS_PER_YEAR
+                time.seconds(y)
             }
         };
         periods.push((from_s, read_one(&t)?));
@@ -1148,16 +1235,38 @@ const TIME_KEYS: &[&str] = &[
     "newton_tolerance",
 ];
 
+/// Largest |year| a case may give (start, end): 1e12 years, about 70 times the age of the
+/// universe; beyond it the seconds of a span lose the resolution of whole years.
+pub const MAX_ABS_YEAR: f64 = 1.0e12;
+
+/// Steps must be at least this many units in the last place of the run's largest time
+/// (from the time origin), so that every step moves the time by its own size to 1/8.
+pub const TIME_RESOLUTION_ULPS: f64 = 4.0;
+
 fn read_time(root: &Table) -> R<TimeControl> {
     let t = section(root, "time", TIME_KEYS, "the time span: end_year")?;
-    let start = t.f64_or("start_year", 0.0)?;
+    let in_range = |y: f64| y.is_finite() && y.abs() <= MAX_ABS_YEAR;
+    let range_msg = format!(
+        "must be a finite year within ±{} (the time keeping's range)",
+        fmt_g(MAX_ABS_YEAR)
+    );
+    let start = match t.get("start_year") {
+        Some(v) => num(&v, in_range, &range_msg)?,
+        None => 0.0,
+    };
     let end_v = t.req("end_year", "when the run ends [years]")?;
+    num(&end_v, in_range, &range_msg)?;
     let end = num(
         &end_v,
         |e| e > start,
         &format!("must be after start_year ({})", fmt_g(start)),
     )?;
     let span = end - start;
+    // The smallest step the time keeping resolves in this run: a few units in the last
+    // place of its largest time, counted from the time origin.
+    let origin = crate::model::time_origin_year(start);
+    let resolution =
+        TIME_RESOLUTION_ULPS * f64::EPSILON * (start - origin).abs().max((end - origin).abs());
     let method = match t.get("method") {
         Some(v) => v.choice(&["backward-euler", "bdf"])?,
         None => "bdf",
@@ -1178,7 +1287,19 @@ fn read_time(root: &Table) -> R<TimeControl> {
         t.only_with("max_order", "method = \"bdf\"")?;
         Method::BackwardEuler
     };
-    let step = |key: &str| opt_num(&t, key, |x| x > 0.0, "must be > 0");
+    let step = |key: &str| {
+        opt_num(
+            &t,
+            key,
+            |x| x > 0.0 && x >= resolution,
+            &format!(
+                "must be > 0 and at least {} yr, the smallest step the time keeping resolves in a run from year {} to {}",
+                fmt_g(resolution),
+                fmt_g(start),
+                fmt_g(end)
+            ),
+        )
+    };
     // Error control sets BDF's steps, up to the whole span (near a steady state the step
     // grows to the end); backward Euler's heuristics are capped at 1/100 of the span.
     let default_max = match method {
@@ -1186,8 +1307,8 @@ fn read_time(root: &Table) -> R<TimeControl> {
         Method::BackwardEuler => span / 100.0,
     };
     let dt_max = step("max_step_year")?.unwrap_or(default_max);
-    let dt_initial = step("initial_step_year")?.unwrap_or(1.0e-6_f64.min(dt_max));
-    let dt_min = step("min_step_year")?.unwrap_or(1.0e-9_f64.min(dt_initial));
+    let dt_initial = step("initial_step_year")?.unwrap_or(1.0e-6_f64.max(resolution).min(dt_max));
+    let dt_min = step("min_step_year")?.unwrap_or(1.0e-9_f64.max(resolution).min(dt_initial));
     if dt_initial > dt_max {
         let key = if t.has("initial_step_year") {
             "initial_step_year"
@@ -1233,9 +1354,11 @@ fn read_time(root: &Table) -> R<TimeControl> {
         "must be 1e-14 to 1e-4",
     )?
     .unwrap_or(crate::solve::newton::DEFAULT_RESIDUAL_TOL);
+    let origin = crate::model::time_origin_year(start);
     Ok(TimeControl {
-        start: start * SECONDS_PER_YEAR,
-        end: end * SECONDS_PER_YEAR,
+        epoch_year: origin,
+        start: (start - origin) * SECONDS_PER_YEAR,
+        end: (end - origin) * SECONDS_PER_YEAR,
         dt_initial: dt_initial * SECONDS_PER_YEAR,
         dt_min: dt_min * SECONDS_PER_YEAR,
         dt_max: dt_max * SECONDS_PER_YEAR,
@@ -1276,17 +1399,22 @@ fn read_output(root: &Table, time: &TimeControl) -> R<OutputControl> {
         }
         None => default_output_folder(src.origin, src.base_dir),
     };
-    let (start, end) = (time.start / SECONDS_PER_YEAR, time.end / SECONDS_PER_YEAR);
+    // Snapshot times are kept as years since the time origin (`rel`), computed from
+    // integers where they are spaced, so they are exact to the run's own resolution at
+    // any epoch.
+    let (rel0, rel_end) = (time.start / SECONDS_PER_YEAR, time.end / SECONDS_PER_YEAR);
+    let origin = time.epoch_year;
+    let (start, end) = (origin + rel0, origin + rel_end);
     let span = end - start;
     let too_many = |v: &Value| {
         v.err(format!(
             "gives more than {MAX_SNAPSHOTS} snapshot times; use a coarser spacing"
         ))
     };
-    let mut years: Vec<f64> = Vec::new();
+    let mut rel: Vec<f64> = Vec::new();
     if let Some(v) = t.get("times_year") {
         for item in v.array()? {
-            years.push(num(
+            let y = num(
                 &item,
                 |y| y >= start && y <= end,
                 &format!(
@@ -1294,7 +1422,8 @@ fn read_output(root: &Table, time: &TimeControl) -> R<OutputControl> {
                     fmt_g(start),
                     fmt_g(end)
                 ),
-            )?);
+            )?;
+            rel.push(y - origin);
         }
     }
     if let Some(v) = t.get("every_year") {
@@ -1303,8 +1432,8 @@ fn read_output(root: &Table, time: &TimeControl) -> R<OutputControl> {
             return Err(too_many(&v));
         }
         let mut k = 1.0;
-        while start + k * every < end {
-            years.push(start + k * every);
+        while rel0 + k * every < rel_end {
+            rel.push(rel0 + k * every);
             k += 1.0;
         }
     }
@@ -1344,11 +1473,11 @@ fn read_output(root: &Table, time: &TimeControl) -> R<OutputControl> {
             loop {
                 let factor =
                     10f64.powi((j / per) as i32) * 10f64.powf((j % per) as f64 / per as f64);
-                let y = origin + first * factor;
-                if y >= end {
+                let y = (origin - time.epoch_year) + first * factor;
+                if y >= rel_end {
                     break;
                 }
-                years.push(y);
+                rel.push(y);
                 j += 1;
             }
         }
@@ -1362,11 +1491,11 @@ fn read_output(root: &Table, time: &TimeControl) -> R<OutputControl> {
             )
             .map(|_| ())?,
     }
-    years.push(end);
-    years.sort_by(f64::total_cmp);
+    rel.push(rel_end);
+    rel.sort_by(f64::total_cmp);
     let tol = 1e-9 * span;
-    let mut snapshot_times: Vec<f64> = Vec::with_capacity(years.len());
-    for y in years {
+    let mut snapshot_times: Vec<f64> = Vec::with_capacity(rel.len());
+    for y in rel {
         if snapshot_times.last().is_some_and(|&p| y - p <= tol) {
             continue;
         }
@@ -1374,7 +1503,7 @@ fn read_output(root: &Table, time: &TimeControl) -> R<OutputControl> {
     }
     if let Some(last) = snapshot_times.last_mut() {
         // The end time exactly (a near-duplicate listed time is merged into it).
-        *last = end;
+        *last = rel_end;
     }
     if snapshot_times.len() > MAX_SNAPSHOTS {
         return Err(t.err(format!(
@@ -1383,13 +1512,7 @@ fn read_output(root: &Table, time: &TimeControl) -> R<OutputControl> {
         )));
     }
     let series_every = match t.get("series_every") {
-        Some(v) => {
-            let k = v.usize()?;
-            if k == 0 {
-                return Err(v.err("must be at least 1 (1 = every step)"));
-            }
-            k
-        }
+        Some(v) => v.usize_in(1, 1_000_000_000, "1 = every step")?,
         None => 1,
     };
     Ok(OutputControl {
@@ -1405,13 +1528,7 @@ fn read_output(root: &Table, time: &TimeControl) -> R<OutputControl> {
 fn read_checkpoint(root: &Table) -> R<CheckpointControl> {
     let t = optional_section(root, "checkpoint", &["every_year", "every_minutes", "keep"])?;
     let keep = match t.get("keep") {
-        Some(v) => {
-            let k = v.usize()?;
-            if k == 0 {
-                return Err(v.err("must be at least 1"));
-            }
-            k
-        }
+        Some(v) => v.usize_in(1, 1_000_000, "how many of the newest checkpoints are kept")?,
         None => 3,
     };
     Ok(CheckpointControl {

@@ -107,7 +107,11 @@ impl Header<'_> {
 pub fn read(v: &Value, header: Header, what: &str) -> Result<(Columns, Vec<String>), Error> {
     let rel = v.str()?;
     let path = v.src.resolve(rel);
-    let text = std::fs::read(&path).map_err(|e| {
+    let text = super::read_capped(&path, super::MAX_CSV_BYTES, "CSV table").map_err(|e| {
+        let e = match e {
+            super::Capped::Refused(msg) => return v.err(msg),
+            super::Capped::Io(e) => e,
+        };
         let reason = e.to_string();
         let reason = reason
             .split(" (os error")
@@ -155,7 +159,18 @@ pub fn read(v: &Value, header: Header, what: &str) -> Result<(Columns, Vec<Strin
         let record = record.map_err(|e| csv_error(&path, e))?;
         let line = record.position().map_or(0, |p| p.line());
         if record.iter().all(str::is_empty) {
-            continue;
+            if record.len() <= 1 {
+                // A line of blanks.
+                continue;
+            }
+            return Err(at(
+                line,
+                format!(
+                    "a row of {} empty cells; expected numbers in {} (delete the row)",
+                    record.len(),
+                    names.join(",")
+                ),
+            ));
         }
         if record.len() != names.len() {
             return Err(at(
@@ -174,7 +189,12 @@ pub fn read(v: &Value, header: Header, what: &str) -> Result<(Columns, Vec<Strin
                 .parse()
                 .ok()
                 .filter(|x: &f64| x.is_finite())
-                .ok_or_else(|| at(line, format!("{} = \"{cell}\": not a number", order[c])))?;
+                .ok_or_else(|| {
+                    at(
+                        line,
+                        format!("{} = \"{}\": not a number", order[c], cell.escape_default()),
+                    )
+                })?;
             columns[c].push(x);
         }
         lines.push(line);

@@ -23,6 +23,58 @@ use crate::error::{Error, Result};
 use crate::model::Model;
 use std::path::Path;
 
+/// Largest case file read: 1 MiB (the largest demo case is under 4 kB; tables belong in
+/// CSV files).
+pub const MAX_CASE_BYTES: u64 = 1 << 20;
+/// Largest CSV table read: 64 MiB (a million rows of two numbers is about 30 MB).
+pub const MAX_CSV_BYTES: u64 = 64 << 20;
+
+/// Why [`read_capped`] did not return the bytes.
+pub enum Capped {
+    /// Not a regular file, or larger than the cap: the one-line message.
+    Refused(String),
+    /// The file could not be read.
+    Io(std::io::Error),
+}
+
+/// Reads the regular file at `path`, refusing anything else (a FIFO would block, a
+/// device such as /dev/zero would never end) and files larger than `cap` bytes (also if
+/// the file grows past it while being read).
+pub fn read_capped(path: &Path, cap: u64, what: &str) -> std::result::Result<Vec<u8>, Capped> {
+    use std::io::Read;
+    let meta = std::fs::metadata(path).map_err(Capped::Io)?;
+    if meta.is_dir() {
+        return Err(Capped::Io(std::io::Error::new(
+            std::io::ErrorKind::IsADirectory,
+            "is a folder",
+        )));
+    }
+    if !meta.is_file() {
+        return Err(Capped::Refused(format!(
+            "{}: not a regular file (a FIFO, socket or device); a {what} must be a regular file",
+            path.display()
+        )));
+    }
+    let too_big = |n: u64| {
+        Capped::Refused(format!(
+            "{}: {n} bytes or more; a {what} may have at most {cap} bytes ({} MiB, see docs/limits.md)",
+            path.display(),
+            cap >> 20
+        ))
+    };
+    if meta.len() > cap {
+        return Err(too_big(meta.len()));
+    }
+    let mut bytes = Vec::with_capacity(meta.len() as usize);
+    std::fs::File::open(path)
+        .and_then(|f| f.take(cap + 1).read_to_end(&mut bytes))
+        .map_err(Capped::Io)?;
+    if bytes.len() as u64 > cap {
+        return Err(too_big(cap + 1));
+    }
+    Ok(bytes)
+}
+
 /// Reads, parses and validates the case file at `path`.
 pub fn load(path: &Path) -> Result<Model> {
     load_with_overrides(path, &[])
@@ -31,7 +83,11 @@ pub fn load(path: &Path) -> Result<Model> {
 /// Reads the case file at `path`, applies `overrides` (in order) and validates the
 /// result: an override passes the same checks as the file, and an error about it names it.
 pub fn load_with_overrides(path: &Path, overrides: &[Override]) -> Result<Model> {
-    let bytes = std::fs::read(path).map_err(|e| {
+    let bytes = read_capped(path, MAX_CASE_BYTES, "case file").map_err(|e| {
+        let e = match e {
+            Capped::Refused(msg) => return Error::input(msg),
+            Capped::Io(e) => e,
+        };
         let reason = e.to_string();
         let reason = reason
             .split(" (os error")

@@ -180,6 +180,38 @@ const ALL_KEYS: &[&str] = &[
     "sum",
 ];
 
+thread_local! {
+    /// The time origin of the case being read: schedule times are stored as seconds since
+    /// it (see [`crate::model::TimeControl::epoch_year`]).
+    static EPOCH_YEAR: std::cell::Cell<f64> = const { std::cell::Cell::new(0.0) };
+}
+
+/// Sets the time origin year that schedule times are read against, for as long as the guard
+/// lives (on this thread); the year before is restored when it is dropped.
+pub struct EpochGuard(f64);
+
+impl EpochGuard {
+    pub fn set(year: f64) -> EpochGuard {
+        EpochGuard(EPOCH_YEAR.with(|e| e.replace(year)))
+    }
+}
+
+impl Drop for EpochGuard {
+    fn drop(&mut self) {
+        EPOCH_YEAR.with(|e| e.set(self.0));
+    }
+}
+
+/// The time origin year set by the innermost live [`EpochGuard`] on this thread (0 when none).
+pub fn epoch() -> f64 {
+    EPOCH_YEAR.with(|e| e.get())
+}
+
+/// Seconds since the time origin of the case being read, of `year`.
+fn seconds_of(year: f64) -> f64 {
+    (year - epoch()) * SECONDS_PER_YEAR
+}
+
 /// Reads the schedule at `v` (key `key`, e.g. `temperature_C`) and converts it to SI.
 pub fn read(v: &Value, key: &str, q: &Quantity) -> Result<Schedule, Error> {
     let s = read_user(v, key, q, true)?;
@@ -227,7 +259,16 @@ fn read_user(v: &Value, key: &str, q: &Quantity, check: bool) -> Result<Schedule
             )))
         }
     };
-    let year = |item: &Value| -> Result<f64, Error> { Ok(item.f64()? * SECONDS_PER_YEAR) };
+    let year = |item: &Value| -> Result<f64, Error> {
+        let y = item.f64()?;
+        if !(y.is_finite() && y.abs() <= crate::case::build::MAX_ABS_YEAR) {
+            return Err(item.err(format!(
+                "must be a finite year within ±{} (the time keeping's range)",
+                fmt_g(crate::case::build::MAX_ABS_YEAR)
+            )));
+        }
+        Ok(seconds_of(y))
+    };
     let s = match form {
         "steps" | "table" => {
             let list = t.req(form, "")?;
@@ -246,7 +287,7 @@ fn read_user(v: &Value, key: &str, q: &Quantity, check: bool) -> Result<Schedule
                     if time <= prev {
                         return Err(xs[0].err(format!(
                             "not after the previous time ({} yr); times must increase strictly",
-                            fmt_g(prev / SECONDS_PER_YEAR)
+                            fmt_g(epoch() + prev / SECONDS_PER_YEAR)
                         )));
                     }
                 }
@@ -267,6 +308,19 @@ fn read_user(v: &Value, key: &str, q: &Quantity, check: bool) -> Result<Schedule
             let what = format!("schedule {}", v.path);
             let (cols, _) = csvfile::read(&file, Header::Exact(&header), &what)?;
             cols.strictly_increasing(0, "time_year")?;
+            if let Some(row) = cols.columns[0]
+                .iter()
+                .position(|y| !(y.is_finite() && y.abs() <= crate::case::build::MAX_ABS_YEAR))
+            {
+                return Err(cols.err(
+                    row,
+                    format!(
+                        "time_year = {}: must be a finite year within ±{}",
+                        cols.columns[0][row],
+                        fmt_g(crate::case::build::MAX_ABS_YEAR)
+                    ),
+                ));
+            }
             if check {
                 for (row, &x) in cols.columns[1].iter().enumerate() {
                     if !q.contains(x) {
@@ -274,10 +328,7 @@ fn read_user(v: &Value, key: &str, q: &Quantity, check: bool) -> Result<Schedule
                     }
                 }
             }
-            let times = cols.columns[0]
-                .iter()
-                .map(|y| y * SECONDS_PER_YEAR)
-                .collect();
+            let times = cols.columns[0].iter().map(|y| seconds_of(*y)).collect();
             let values = cols.columns[1].clone();
             if form == "steps_csv" {
                 Schedule::Steps { times, values }
@@ -304,15 +355,28 @@ fn read_user(v: &Value, key: &str, q: &Quantity, check: bool) -> Result<Schedule
         }
         "sine" => {
             let period = t.req("period_year", "the period of the sinusoid")?;
-            let p = year(&period)?;
-            if p <= 0.0 {
-                return Err(period.err("must be > 0"));
+            let p = period.f64()? * SECONDS_PER_YEAR;
+            if !(p > 0.0 && p / SECONDS_PER_YEAR <= crate::case::build::MAX_ABS_YEAR) {
+                return Err(period.err(format!(
+                    "must be > 0 and at most {} years",
+                    fmt_g(crate::case::build::MAX_ABS_YEAR)
+                )));
             }
             let s = Schedule::Sine {
                 mean: t.f64_or("mean", 0.0)?,
                 amplitude: t.req("amplitude", "the amplitude of the sinusoid")?.f64()?,
                 period: p,
-                phase: t.f64_or("phase_year", 0.0)? * SECONDS_PER_YEAR,
+                phase: {
+                    // Reduced by whole periods at a far epoch, so the sine's argument
+                    // stays small (its value is the same).
+                    let phase = t.f64_or("phase_year", 0.0)? - epoch();
+                    let period_year = p / SECONDS_PER_YEAR;
+                    if epoch() != 0.0 && period_year.is_finite() && period_year > 0.0 {
+                        phase.rem_euclid(period_year) * SECONDS_PER_YEAR
+                    } else {
+                        phase * SECONDS_PER_YEAR
+                    }
+                },
             };
             check_bounds(v, &s, q, check)?;
             s
@@ -355,6 +419,7 @@ fn check_bounds(v: &Value, s: &Schedule, q: &Quantity, check: bool) -> Result<()
 
 /// A schedule in file units, described on one line (for the summary).
 pub fn describe(s: &Schedule, unit: &str) -> String {
+    let epoch_year = epoch();
     let u = |x: f64| {
         if unit.is_empty() {
             fmt_g(x)
@@ -362,7 +427,7 @@ pub fn describe(s: &Schedule, unit: &str) -> String {
             format!("{} {unit}", fmt_g(x))
         }
     };
-    let yr = |t: f64| fmt_g(t / SECONDS_PER_YEAR);
+    let yr = |t: f64| fmt_g(epoch_year + t / SECONDS_PER_YEAR);
     let pairs = |times: &[f64], values: &[f64], max: usize| {
         let mut parts: Vec<String> = times
             .iter()
@@ -402,7 +467,7 @@ pub fn describe(s: &Schedule, unit: &str) -> String {
             "sinusoid: mean {}, amplitude {}, period {} yr, phase {} yr",
             u(*mean),
             u(*amplitude),
-            yr(*period),
+            fmt_g(period / SECONDS_PER_YEAR),
             yr(*phase)
         ),
         Schedule::Sum(parts) => format!(

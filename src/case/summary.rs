@@ -13,8 +13,28 @@ use crate::props::vapor::Enhancement;
 use crate::schedule::Schedule;
 use std::fmt::Write;
 
+/// `s` with control characters (ESC, NUL, line breaks, …) escaped, so that text from a
+/// case file cannot forge lines or terminal sequences in what deepdry prints.
+pub fn printable(s: &str) -> String {
+    s.chars()
+        .map(|c| {
+            if c.is_control() {
+                c.escape_default().to_string()
+            } else {
+                c.to_string()
+            }
+        })
+        .collect()
+}
+
+/// A duration [s] in years.
 fn yr(t: f64) -> String {
     fmt_g(t / SECONDS_PER_YEAR)
+}
+
+/// The year of model time `t` [s since the start year, set by the summary's guard].
+fn year_of(t: f64) -> String {
+    fmt_g(super::schedules::epoch() + t / SECONDS_PER_YEAR)
 }
 
 fn celsius(t: f64) -> String {
@@ -28,7 +48,7 @@ fn sched(s: &Schedule, q: &Quantity) -> String {
     if bp.is_empty() {
         return text;
     }
-    let mut list: Vec<String> = bp.iter().take(8).map(|&t| yr(t)).collect();
+    let mut list: Vec<String> = bp.iter().take(8).map(|&t| year_of(t)).collect();
     if bp.len() > 8 {
         list.push(format!("… ({} in all)", bp.len()));
     }
@@ -81,7 +101,7 @@ fn bottom_bc(bc: &BottomBc) -> String {
 fn periods<T>(out: &mut String, p: &Periods<T>, show: fn(&T) -> String) {
     for (start, bc) in &p.periods {
         let when = if start.is_finite() {
-            format!("from year {}", yr(*start))
+            format!("from year {}", year_of(*start))
         } else {
             "from the start".to_string()
         };
@@ -138,11 +158,12 @@ fn soil(s: &Soil) -> String {
 /// The summary: layers, mesh, soils, physics, boundary conditions, initial state, time,
 /// output and checkpoints.
 pub fn summary(m: &Model) -> String {
+    let _epoch = super::schedules::EpochGuard::set(m.time.epoch_year);
     let mut out = String::new();
     let o = &mut out;
-    let _ = writeln!(o, "Case: {}", m.title);
+    let _ = writeln!(o, "Case: {}", printable(&m.title));
     if !m.overrides.is_empty() {
-        let _ = writeln!(o, "Overrides: {}", m.overrides.join(", "));
+        let _ = writeln!(o, "Overrides: {}", printable(&m.overrides.join(", ")));
     }
     let (lo, hi) = m.mesh.width_range();
     let _ = writeln!(
@@ -165,15 +186,15 @@ pub fn summary(m: &Model) -> String {
             o,
             "  {}. {}: soil {}, {} to {} m ({cells} cells)",
             i + 1,
-            l.name,
-            m.soils[l.soil].name,
+            printable(&l.name),
+            printable(&m.soils[l.soil].name),
             fmt_g(l.top),
             fmt_g(l.bottom)
         );
     }
     let _ = writeln!(o, "Soils:");
     for s in &m.soils {
-        let _ = writeln!(o, "  {}: {}", s.name, soil(s));
+        let _ = writeln!(o, "  {}: {}", printable(&s.name), soil(s));
     }
     let p = &m.physics;
     let d = &p.diffusivity;
@@ -256,8 +277,8 @@ pub fn summary(m: &Model) -> String {
         o,
         "Time: year {} to {}; first step {} yr, steps {} to {} yr; {}; at most {} Newton \
          iterations (tolerance {}); rtol {}, atol {} K, {} m, {} kg/m³",
-        yr(t.start),
-        yr(t.end),
+        year_of(t.start),
+        year_of(t.end),
         yr(t.dt_initial),
         yr(t.dt_min),
         yr(t.dt_max),
@@ -277,8 +298,8 @@ pub fn summary(m: &Model) -> String {
         o,
         "Output: {} snapshot times (year {} to {}) in {}; series record every {} step(s)",
         snaps.len(),
-        yr(snaps.first().copied().unwrap_or(t.end)),
-        yr(snaps.last().copied().unwrap_or(t.end)),
+        year_of(snaps.first().copied().unwrap_or(t.end)),
+        year_of(snaps.last().copied().unwrap_or(t.end)),
         m.output.folder.display(),
         m.output.series_every
     );

@@ -354,6 +354,25 @@ impl<'a> Value<'a> {
         Ok(v as usize)
     }
 
+    /// A whole number in `lo..=hi`; the message names the range (and `what`, if given).
+    pub fn usize_in(&self, lo: usize, hi: usize, what: &str) -> Result<usize, Error> {
+        let range = if what.is_empty() {
+            format!("must be a whole number from {lo} to {hi}")
+        } else {
+            format!("must be a whole number from {lo} to {hi} ({what})")
+        };
+        let v = match self.node.kind {
+            Kind::Int(i) => i as f64,
+            Kind::Float(f) if f.fract() == 0.0 => f,
+            Kind::Float(_) => return Err(self.err(range)),
+            _ => return Err(self.wrong_type("a whole number")),
+        };
+        if !(lo as f64..=hi as f64).contains(&v) {
+            return Err(self.err(range));
+        }
+        Ok(v as usize)
+    }
+
     pub fn bool(&self) -> Result<bool, Error> {
         match self.node.kind {
             Kind::Bool(b) => Ok(b),

@@ -132,7 +132,7 @@ pub fn in_use_message(path: &std::path::Path, err: &hdf5::Error) -> Option<Strin
     let text = err.to_string();
     if text.contains("unable to lock file") {
         Some(format!(
-            "{}: the file is open for writing in another process (a deepdry run still going?); wait until it has stopped (its checkpoints can be inspected meanwhile)",
+            "{}: the file is open in another process (a deepdry run still going, or a program reading it); wait until that run has stopped or close the reader (the checkpoints can be inspected meanwhile)",
             path.display()
         ))
     } else {

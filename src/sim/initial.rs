@@ -175,9 +175,9 @@ pub fn steady_state(model: &Model, guess: Vec<f64>, solver: SolverKind) -> Resul
     let mut st = Stepper::new(&mut sys, state, opts, make_solver(solver, n));
     let mut prev = st.state.u.clone();
     for _ in 0..5000 {
-        let info = st
-            .step(&mut sys, f64::MAX)
-            .map_err(|f| numerical_message(&sys, &f, "steady initial state"))?;
+        let info = st.step(&mut sys, f64::MAX).map_err(|f| {
+            numerical_message(&sys, &f, "steady initial state", model.time.epoch_year)
+        })?;
         let u = &st.state.u;
         let mut change = 0.0f64;
         for i in 0..n {

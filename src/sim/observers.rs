@@ -12,9 +12,51 @@ use std::path::{Path, PathBuf};
 use std::time::Instant;
 
 /// Writes the results file: series rows are queued and written with the next snapshot,
-/// checkpoint or the end; every snapshot flushes the file to disk.
+/// checkpoint or the end; every snapshot flushes the file to disk. Before each write it
+/// checks that the file at `path` is still the one it opened (same device and inode): a
+/// results file deleted or replaced during the run ends it with an I/O error (exit 4)
+/// instead of writing into a file nobody can see.
 pub struct ResultsWriter {
     pub file: ResultsFile,
+    pub path: PathBuf,
+    /// (device, inode) of the results file when the run opened it.
+    pub identity: Option<(u64, u64)>,
+}
+
+/// (device, inode) of the file at `path`, if there is one.
+pub fn file_identity(path: &Path) -> Option<(u64, u64)> {
+    use std::os::unix::fs::MetadataExt;
+    std::fs::metadata(path).ok().map(|m| (m.dev(), m.ino()))
+}
+
+impl ResultsWriter {
+    /// A writer of `file`, opened at `path`.
+    pub fn new(file: ResultsFile, path: &Path) -> ResultsWriter {
+        ResultsWriter {
+            file,
+            identity: file_identity(path),
+            path: path.to_path_buf(),
+        }
+    }
+
+    fn still_there(&self, sim: &Simulation) -> Result<()> {
+        let now = file_identity(&self.path);
+        if self.identity.is_some() && now == self.identity {
+            return Ok(());
+        }
+        let what = if now.is_none() {
+            "deleted"
+        } else {
+            "replaced by another file"
+        };
+        let folder = self.path.parent().unwrap_or(Path::new("."));
+        Err(crate::error::Error::Io(format!(
+            "{}: the results file was {what} during the run (at year {:.6e}); the rows written since the last checkpoint are lost; the checkpoints in {} are intact: restore the results file and --resume, or run again with --overwrite",
+            self.path.display(),
+            sim.model().time.year(sim.state().t),
+            folder.display()
+        )))
+    }
 }
 
 impl Observer for ResultsWriter {
@@ -27,14 +69,17 @@ impl Observer for ResultsWriter {
         self.file.push_series_layers(*record, &layers);
         Ok(())
     }
-    fn snapshot(&mut self, _sim: &Simulation, time_year: f64, profile: &Profile) -> Result<()> {
+    fn snapshot(&mut self, sim: &Simulation, time_year: f64, profile: &Profile) -> Result<()> {
+        self.still_there(sim)?;
         self.file.write_snapshot(time_year, profile)
     }
     /// The rows a checkpoint counts must be on disk before it is written.
-    fn checkpoint(&mut self, _sim: &Simulation, _data: &CheckpointData) -> Result<()> {
+    fn checkpoint(&mut self, sim: &Simulation, _data: &CheckpointData) -> Result<()> {
+        self.still_there(sim)?;
         self.file.flush()
     }
-    fn finished(&mut self, _sim: &Simulation, _ending: Ending) -> Result<()> {
+    fn finished(&mut self, sim: &Simulation, _ending: Ending) -> Result<()> {
+        self.still_there(sim)?;
         self.file.flush()
     }
     fn failed(&mut self, _sim: &Simulation, _data: &CheckpointData) -> Result<Option<String>> {
@@ -118,7 +163,7 @@ impl Observer for Checkpointer {
         })
     }
     fn checkpoint(&mut self, sim: &Simulation, data: &CheckpointData) -> Result<()> {
-        let path = crate::checkpoint::name_at(&self.folder, sim.state().t);
+        let path = crate::checkpoint::name_at(&self.folder, sim.model().time.year(sim.state().t));
         self.write(&path, sim, data)?;
         crate::checkpoint::prune(&self.folder, self.keep);
         self.last = Some(path);
@@ -172,7 +217,7 @@ impl Observer for Progress {
         bar.set_position(done as u64);
         bar.set_message(format!(
             "t = {:.4e} yr, dt = {:.3e} yr, steps {}",
-            state.t / SECONDS_PER_YEAR,
+            time.year(state.t),
             step.dt / SECONDS_PER_YEAR,
             state.counters.steps
         ));

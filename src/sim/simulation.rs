@@ -21,7 +21,7 @@ use crate::solve::stepper::{Counters, StepFailure, StepInfo, StepOptions, StepSt
 use super::times::{is_member, SyncPlan};
 
 /// A one-line message for a step that failed at the minimum Δt.
-pub fn numerical_message(sys: &System, f: &StepFailure, what: &str) -> Error {
+pub fn numerical_message(sys: &System, f: &StepFailure, what: &str, epoch_year: f64) -> Error {
     let names = ["energy balance", "water balance", "vapour equation"];
     let unknowns = ["temperature", "head", "vapour density"];
     let (cell, row, res) = match &f.failure {
@@ -47,7 +47,7 @@ pub fn numerical_message(sys: &System, f: &StepFailure, what: &str) -> Error {
     let cell = cell.min(sys.n.saturating_sub(1));
     Error::Numerical(format!(
         "{what}: step failed at t = {:.6e} yr with dt = {:.3e} s (the minimum): {kind}; worst {} residual {:.3e} (scaled; unknown {}) at depth {:.4} m (cell {cell})",
-        f.t / SECONDS_PER_YEAR,
+        epoch_year + f.t / SECONDS_PER_YEAR,
         f.dt,
         names[row.min(2)],
         res,
@@ -408,7 +408,8 @@ impl<'m> Simulation<'m> {
 
     /// The error of a failed step, after the observers were told.
     fn fail(&mut self, f: &StepFailure, obs: &mut [&mut dyn Observer]) -> Error {
-        let mut message = numerical_message(&self.sys, f, "run").to_string();
+        let mut message =
+            numerical_message(&self.sys, f, "run", self.model.time.epoch_year).to_string();
         let data = self.checkpoint_data();
         for o in obs.iter_mut() {
             match o.failed(self, &data) {
@@ -426,7 +427,8 @@ impl<'m> Simulation<'m> {
         Error::Numerical(message)
     }
 
-    fn emit_series(&mut self, obs: &mut [&mut dyn Observer], rec: SeriesRecord) -> Result<()> {
+    fn emit_series(&mut self, obs: &mut [&mut dyn Observer], mut rec: SeriesRecord) -> Result<()> {
+        rec.time_year = self.model.time.year(self.st.state.t);
         self.output.since_series = 0;
         self.output.series_rows += 1;
         self.output.last_series_year = Some(rec.time_year);
@@ -438,7 +440,7 @@ impl<'m> Simulation<'m> {
 
     /// Gives the observers the profiles in `self.profile`, at the current time.
     fn emit_snapshot(&mut self, obs: &mut [&mut dyn Observer]) -> Result<()> {
-        let time_year = self.st.state.t / SECONDS_PER_YEAR;
+        let time_year = self.model.time.year(self.st.state.t);
         self.output.snapshots += 1;
         self.output.last_snapshot_year = Some(time_year);
         for o in obs.iter_mut() {

@@ -73,8 +73,8 @@ pub fn checkpoint_times(model: &Model) -> Result<Vec<f64>> {
             return Err(Error::input(format!(
                 "checkpoint.every_year = {:e}: gives {count:.3e} checkpoints over the run ({:e} to {:e} yr); at most {MAX_CHECKPOINT_TIMES:e}: use a longer interval",
                 every / SECONDS_PER_YEAR,
-                model.time.start / SECONDS_PER_YEAR,
-                model.time.end / SECONDS_PER_YEAR
+                model.time.year(model.time.start),
+                model.time.year(model.time.end)
             )));
         }
         if every > 0.0 {

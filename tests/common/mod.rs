@@ -93,6 +93,7 @@ pub fn column(
             gradient: (t_bottom - t_top) / depth,
         },
         time: TimeControl {
+            epoch_year: 0.0,
             start: 0.0,
             end,
             dt_initial: 60.0,

@@ -57,8 +57,8 @@ pub(super) fn balance_closure(v: Variant) -> Result<CaseResult> {
     fig.series.push(Series::line(
         "bound 1e-8",
         vec![
-            (model.time.start / SECONDS_PER_YEAR, 1e-8),
-            (model.time.end / SECONDS_PER_YEAR, 1e-8),
+            (model.time.year(model.time.start), 1e-8),
+            (model.time.year(model.time.end), 1e-8),
         ],
     ));
     Ok(CaseResult {

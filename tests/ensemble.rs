@@ -249,3 +249,42 @@ fn bad_plans_and_shards_get_one_line_errors() {
     let o = deepdry(&["ensemble", "run", arg(&p), "--shard", "2/2", "--quiet"]);
     assert_one_line_error(&o, 2, &["--shard 2/2", "K/N"]);
 }
+
+/// sampling = "table": member i takes row i of the table's named columns.
+#[test]
+fn a_table_gives_one_member_per_row() {
+    let dir = Scratch::new("ensemble-table");
+    dir.write("case.toml", &case_text());
+    dir.write(
+        "members.csv",
+        "# three soils\nn,rh\n1.7,0.2\n1.9,0.25\n2.1,0.3\n",
+    );
+    let text = r#"[ensemble]
+case = "case.toml"
+sampling = "table"
+table = "members.csv"
+times_year = [1.0, 20.0]
+
+[[ensemble.parameters]]
+key = "soils.sandy_loam.van_genuchten.n"
+distribution = "column"
+column = "n"
+
+[[ensemble.parameters]]
+key = "surface.relative_humidity"
+distribution = "column"
+column = "rh"
+"#;
+    let p = plan::read(&dir.write("plan.toml", text)).unwrap();
+    assert_eq!(p.member_count(), 3);
+    assert_eq!(p.member(0), vec![1.7, 0.2]);
+    assert_eq!(p.member(2), vec![2.1, 0.3]);
+    let c = ensemble::run(&p, &dir.join("out"), 2, (0, 1), false).unwrap();
+    assert_eq!((c.ran, c.failed), (3, 0));
+    let bad = dir.write(
+        "bad.toml",
+        &text.replace("column = \"rh\"", "column = \"humidity\""),
+    );
+    let o = deepdry(&["ensemble", "run", arg(&bad), "--quiet"]);
+    assert_one_line_error(&o, 2, &["no column `humidity`", "n, rh"]);
+}

@@ -5,7 +5,7 @@
 //! case = "../glacial-to-arid.toml"   # relative to the plan file
 //! members = 64                       # ignored by sampling = "grid" (the grid's size)
 //! seed = 20261204
-//! sampling = "latin-hypercube"       # or "random", "grid"
+//! sampling = "latin-hypercube"       # or "random", "grid", "table"
 //! series = ["surface_water_flux", "drying_front_depth"]  # kept per member
 //! times_year = [0.0, 1000.0, 5000.0] # where kept series are sampled
 //!
@@ -16,6 +16,8 @@
 //! max = 2.3
 //! # mean = …, sd = …                 # normal, truncated-normal
 //! # values = [1.6, 1.9, 2.2]        # values (and every parameter of a grid)
+//! # column = "n"                     # column (every parameter of sampling = "table",
+//! #                                  # with table = "members.csv" in [ensemble])
 //! ```
 
 use crate::case::tree::{Source, Value};
@@ -46,6 +48,8 @@ pub enum Distribution {
         max: f64,
     },
     Values(Vec<f64>),
+    /// Member i takes row i of this column of the plan's table.
+    Column(Vec<f64>),
 }
 
 /// How members are placed in the parameter space.
@@ -58,6 +62,8 @@ pub enum Sampling {
     LatinHypercube,
     /// Every combination of the parameters' `values` (full factorial).
     Grid,
+    /// One member per row of a CSV table (`table = "…"`), parameters from its columns.
+    Table,
 }
 
 #[derive(Debug, Clone, PartialEq)]
@@ -128,7 +134,7 @@ impl Distribution {
                 let (a, b) = (phi((min - mean) / sd), phi((max - mean) / sd));
                 (mean + sd * phi_inv(a + u * (b - a))).clamp(*min, *max)
             }
-            Distribution::Values(v) => {
+            Distribution::Values(v) | Distribution::Column(v) => {
                 let k = ((u * v.len() as f64) as usize).min(v.len() - 1);
                 v[k]
             }
@@ -148,6 +154,15 @@ impl Plan {
                     _ => 1,
                 })
                 .product(),
+            Sampling::Table => self
+                .parameters
+                .iter()
+                .map(|p| match &p.distribution {
+                    Distribution::Column(v) => v.len(),
+                    _ => 0,
+                })
+                .min()
+                .unwrap_or(0),
             _ => self.members,
         }
     }
@@ -173,6 +188,14 @@ impl Plan {
                     let stratum = lhs_stratum(self.seed, k as u64, m, i);
                     let v = uniform(self.seed, i as u64, k as u64, 1);
                     p.distribution.quantile((stratum as f64 + v) / m as f64)
+                })
+                .collect(),
+            Sampling::Table => self
+                .parameters
+                .iter()
+                .map(|p| match &p.distribution {
+                    Distribution::Column(v) => v[i],
+                    d => d.quantile(0.5),
                 })
                 .collect(),
             Sampling::Grid => {
@@ -218,6 +241,7 @@ fn lhs_stratum(seed: u64, k: u64, m: usize, i: usize) -> usize {
 const PLAN_KEYS: &[&str] = &["ensemble"];
 const ENSEMBLE_KEYS: &[&str] = &[
     "case",
+    "table",
     "members",
     "seed",
     "sampling",
@@ -225,7 +249,16 @@ const ENSEMBLE_KEYS: &[&str] = &[
     "times_year",
     "parameters",
 ];
-const PARAM_KEYS: &[&str] = &["key", "distribution", "min", "max", "mean", "sd", "values"];
+const PARAM_KEYS: &[&str] = &[
+    "key",
+    "distribution",
+    "min",
+    "max",
+    "mean",
+    "sd",
+    "values",
+    "column",
+];
 
 fn finite(v: &Value) -> Result<f64> {
     v.f64()
@@ -254,9 +287,10 @@ pub fn read(path: &Path) -> Result<Plan> {
         .table(ENSEMBLE_KEYS)?;
     let case = src.resolve(e.req("case", "the case file")?.str()?);
     let sampling = match e.get("sampling") {
-        Some(v) => match v.choice(&["latin-hypercube", "random", "grid"])? {
+        Some(v) => match v.choice(&["latin-hypercube", "random", "grid", "table"])? {
             "random" => Sampling::Random,
             "grid" => Sampling::Grid,
+            "table" => Sampling::Table,
             _ => Sampling::LatinHypercube,
         },
         None => Sampling::LatinHypercube,
@@ -269,7 +303,7 @@ pub fn read(path: &Path) -> Result<Plan> {
             }
             n
         }
-        None if sampling == Sampling::Grid => 0,
+        None if matches!(sampling, Sampling::Grid | Sampling::Table) => 0,
         None => return Err(e.err("members: missing key (the number of members)")),
     };
     let seed = match e.get("seed") {
@@ -305,6 +339,17 @@ pub fn read(path: &Path) -> Result<Plan> {
         }
         out
     };
+    // The table of a "table" sampling: a header of column names, one member a row.
+    let table: Option<(PathBuf, Vec<String>, Vec<Vec<f64>>)> = match e.get("table") {
+        Some(v) => {
+            let tp = src.resolve(v.str()?);
+            Some(read_table(&tp)?)
+        }
+        None if sampling == Sampling::Table => {
+            return Err(e.err("sampling = \"table\" needs table = \"file.csv\""))
+        }
+        None => None,
+    };
     let list = e
         .req("parameters", "[[ensemble.parameters]] tables")?
         .array()?;
@@ -325,7 +370,23 @@ pub fn read(path: &Path) -> Result<Plan> {
             "normal",
             "truncated-normal",
             "values",
+            "column",
         ])? {
+            "column" => {
+                let cv = t.req("column", "the column of the plan's table")?;
+                let name = cv.str()?;
+                let (tp, header, rows) = table.as_ref().ok_or_else(|| {
+                    t.err("distribution = \"column\" needs table = \"file.csv\" in [ensemble]")
+                })?;
+                let k = header.iter().position(|h| h == name).ok_or_else(|| {
+                    cv.err(format!(
+                        "no column `{name}` in {}; its columns: {}",
+                        tp.display(),
+                        header.join(", ")
+                    ))
+                })?;
+                Distribution::Column(rows.iter().map(|r| r[k]).collect())
+            }
             "uniform" | "log-uniform" => {
                 let (min, max) = (num("min")?, num("max")?);
                 if min >= max {
@@ -367,6 +428,11 @@ pub fn read(path: &Path) -> Result<Plan> {
                 Distribution::Values(vals)
             }
         };
+        if sampling == Sampling::Table && !matches!(distribution, Distribution::Column(_)) {
+            return Err(
+                t.err("sampling = \"table\" needs distribution = \"column\" for every parameter")
+            );
+        }
         if sampling == Sampling::Grid && !matches!(distribution, Distribution::Values(_)) {
             return Err(
                 t.err("sampling = \"grid\" needs distribution = \"values\" for every parameter")
@@ -395,4 +461,60 @@ pub fn read(path: &Path) -> Result<Plan> {
         )));
     }
     Ok(plan)
+}
+
+/// Reads a plan's CSV table: a header of column names, then rows of numbers (lines
+/// starting with `#` are comments). Errors name the file and line.
+fn read_table(path: &Path) -> Result<(PathBuf, Vec<String>, Vec<Vec<f64>>)> {
+    let p = path.display();
+    let meta = std::fs::metadata(path)
+        .map_err(|e| Error::input(format!("{p}: cannot read the table: {e}")))?;
+    if !meta.is_file() || meta.len() > 64 * 1024 * 1024 {
+        return Err(Error::input(format!(
+            "{p}: not a regular file of at most 64 MiB"
+        )));
+    }
+    let text = std::fs::read_to_string(path)
+        .map_err(|e| Error::input(format!("{p}: cannot read the table: {e}")))?;
+    let mut header: Option<Vec<String>> = None;
+    let mut rows = Vec::new();
+    for (k, raw) in text.lines().enumerate() {
+        let l = raw.trim();
+        if l.is_empty() || l.starts_with('#') {
+            continue;
+        }
+        let cells: Vec<&str> = l.split(',').map(str::trim).collect();
+        match &header {
+            None => header = Some(cells.iter().map(|c| c.to_string()).collect()),
+            Some(h) => {
+                if cells.len() != h.len() {
+                    return Err(Error::input(format!(
+                        "{p}:{}: {} cells; the header has {}",
+                        k + 1,
+                        cells.len(),
+                        h.len()
+                    )));
+                }
+                let mut row = Vec::with_capacity(cells.len());
+                for c in cells {
+                    match c.parse::<f64>() {
+                        Ok(v) if v.is_finite() => row.push(v),
+                        _ => {
+                            return Err(Error::input(format!(
+                                "{p}:{}: `{}`: must be a finite number",
+                                k + 1,
+                                crate::case::tree::one_line(c)
+                            )))
+                        }
+                    }
+                }
+                rows.push(row);
+            }
+        }
+    }
+    let header = header.ok_or_else(|| Error::input(format!("{p}: empty table")))?;
+    if rows.is_empty() {
+        return Err(Error::input(format!("{p}: no rows after the header")));
+    }
+    Ok((path.to_path_buf(), header, rows))
 }

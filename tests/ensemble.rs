@@ -26,6 +26,8 @@ seed = 7
 sampling = "latin-hypercube"
 series = ["surface_water_flux", "drying_front_depth"]
 times_year = [1.0, 5.0, 20.0]
+profiles = ["liquid_content"]
+profile_times_year = [10.0, 20.0]
 
 [[ensemble.parameters]]
 key = "soils.sandy_loam.van_genuchten.n"
@@ -54,6 +56,7 @@ fn datasets(path: &Path) -> Vec<(String, Vec<f64>)> {
         "series/drying_front_depth",
         "quantiles/surface_water_flux",
         "quantiles/drying_front_depth",
+        "profiles/liquid_content",
     ] {
         let v: Vec<f64> = f.dataset(name).unwrap().read_raw().unwrap();
         out.push((name.to_string(), v));
@@ -137,6 +140,14 @@ fn merged_members_are_identical_with_one_worker_two_workers_and_shards() {
     // The kept values are those of the member runs (finite, one row per member).
     let d = datasets(&f1);
     assert_eq!(d[2].1.len(), 6 * 3);
+    // Profiles: member × 2 times × 120 cells, liquid contents in (0, θs] (the dry end
+    // extends below θr).
+    assert_eq!(d[6].1.len(), 6 * 2 * 120);
+    assert!(
+        d[6].1.iter().all(|v| *v > 0.0 && *v <= 0.41),
+        "{:?}",
+        &d[6].1[..5]
+    );
     assert!(d[2].1.iter().all(|v| v.is_finite()));
 }
 

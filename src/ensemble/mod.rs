@@ -34,10 +34,13 @@ pub fn member_file(dir: &Path, i: usize) -> PathBuf {
 /// What a member's run left.
 #[derive(Debug, Clone, PartialEq)]
 pub enum Member {
-    /// Kept series at the plan's times, one row per kept series.
+    /// Kept series at the plan's times, one row per kept series; cell depths and the
+    /// kept profiles (one row per profile and time, profile-major).
     Done {
         parameters: Vec<f64>,
         series: Vec<Vec<f64>>,
+        depth: Vec<f64>,
+        profiles: Vec<Vec<f64>>,
     },
     Failed {
         parameters: Vec<f64>,
@@ -65,7 +68,8 @@ fn sample(records: &[SeriesRecord], field: usize, times: &[f64]) -> Vec<f64> {
 /// Runs member `i`: its kept series, or the error.
 pub fn run_member(plan: &Plan, case_text: &str, i: usize) -> Member {
     let parameters = plan.member(i);
-    let result = (|| -> Result<Vec<Vec<f64>>> {
+    type Kept = (Vec<Vec<f64>>, Vec<f64>, Vec<Vec<f64>>);
+    let result = (|| -> Result<Kept> {
         let ovs = plan.overrides(i)?;
         let base = plan.case.parent().unwrap_or(Path::new("."));
         let model = crate::case::parse_with_overrides(
@@ -75,7 +79,7 @@ pub fn run_member(plan: &Plan, case_text: &str, i: usize) -> Member {
             &ovs,
         )?;
         let (rec, _) = crate::sim::run_in_memory(&model, SolverKind::BlockThomas)?;
-        Ok(plan
+        let series = plan
             .series
             .iter()
             .map(|name| {
@@ -85,10 +89,34 @@ pub fn run_member(plan: &Plan, case_text: &str, i: usize) -> Member {
                     .unwrap_or(0);
                 sample(&rec.series, field, &plan.times_year)
             })
-            .collect())
+            .collect();
+        let mut profiles = Vec::new();
+        for name in &plan.profiles {
+            for &t in &plan.profile_times_year {
+                let snap = rec
+                    .snapshots
+                    .iter()
+                    .find(|s| (s.time_year - t).abs() <= 1e-9 * t.abs().max(1.0))
+                    .ok_or_else(|| Error::Numerical(format!("no profile written at {t} yr")))?;
+                let p = &snap.profile;
+                profiles.push(match name.as_str() {
+                    "temperature" => p.temperature_c.clone(),
+                    "head" => p.head.clone(),
+                    "liquid_content" => p.liquid_content.clone(),
+                    "relative_humidity" => p.relative_humidity.clone(),
+                    _ => p.vapor_density.clone(),
+                });
+            }
+        }
+        Ok((series, model.mesh.centers.clone(), profiles))
     })();
     match result {
-        Ok(series) => Member::Done { parameters, series },
+        Ok((series, depth, profiles)) => Member::Done {
+            parameters,
+            series,
+            depth,
+            profiles,
+        },
         Err(e) => Member::Failed {
             parameters,
             error: e.to_string(),
@@ -99,7 +127,12 @@ pub fn run_member(plan: &Plan, case_text: &str, i: usize) -> Member {
 fn write_member(dir: &Path, i: usize, m: &Member) -> Result<()> {
     let mut s = String::new();
     match m {
-        Member::Done { parameters, series } => {
+        Member::Done {
+            parameters,
+            series,
+            depth,
+            profiles,
+        } => {
             s.push_str("status,done\n");
             s.push_str(&format!(
                 "parameters,{}\n",
@@ -109,11 +142,20 @@ fn write_member(dir: &Path, i: usize, m: &Member) -> Result<()> {
                     .collect::<Vec<_>>()
                     .join(",")
             ));
-            for row in series {
-                s.push_str(&format!(
-                    "series,{}\n",
+            let line = |tag: &str, row: &[f64]| {
+                format!(
+                    "{tag},{}\n",
                     row.iter().map(|x| num(*x)).collect::<Vec<_>>().join(",")
-                ));
+                )
+            };
+            for row in series {
+                s.push_str(&line("series", row));
+            }
+            if !profiles.is_empty() {
+                s.push_str(&line("depth", depth));
+            }
+            for row in profiles {
+                s.push_str(&line("profile", row));
             }
         }
         Member::Failed { parameters, error } => {
@@ -150,19 +192,30 @@ pub fn read_member(dir: &Path, i: usize, plan: &Plan) -> Member {
     let lines: Vec<&str> = text.lines().collect();
     match lines.first().copied() {
         Some("status,done") => {
+            let tagged = |tag: &str| -> Option<Vec<Vec<f64>>> {
+                lines
+                    .iter()
+                    .filter(|l| l.split(',').next() == Some(tag))
+                    .map(|l| nums(l))
+                    .collect()
+            };
             let parameters = lines.get(1).and_then(|l| nums(l));
-            let series: Option<Vec<Vec<f64>>> = lines[2.min(lines.len())..]
-                .iter()
-                .map(|l| nums(l))
-                .collect();
-            match (parameters, series) {
-                (Some(p), Some(s))
+            let series = tagged("series");
+            let profiles = tagged("profile");
+            let depth = tagged("depth").map(|d| d.into_iter().next().unwrap_or_default());
+            let n_profiles = plan.profiles.len() * plan.profile_times_year.len();
+            match (parameters, series, profiles, depth) {
+                (Some(p), Some(s), Some(pr), Some(d))
                     if s.len() == plan.series.len()
-                        && s.iter().all(|r| r.len() == plan.times_year.len()) =>
+                        && s.iter().all(|r| r.len() == plan.times_year.len())
+                        && pr.len() == n_profiles
+                        && pr.iter().all(|r| r.len() == d.len()) =>
                 {
                     Member::Done {
                         parameters: p,
                         series: s,
+                        depth: d,
+                        profiles: pr,
                     }
                 }
                 _ => Member::Missing,
@@ -349,6 +402,36 @@ pub fn collect(dir: &Path) -> Result<(PathBuf, [usize; 3])> {
     let mut state = ndarray::Array1::<i32>::zeros(m);
     let mut series = vec![ndarray::Array2::<f64>::from_elem((m, nt), f64::NAN); ns];
     let mut counts = [0usize; 3];
+    // Kept profiles: member × time × depth, on the mesh of the first member that ran.
+    let (npr, npt) = (plan.profiles.len(), plan.profile_times_year.len());
+    let depth: Vec<f64> = members
+        .iter()
+        .find_map(|mem| match mem {
+            Member::Done { depth, .. } if npr > 0 => Some(depth.clone()),
+            _ => None,
+        })
+        .unwrap_or_default();
+    let nz = depth.len();
+    let mut prof = vec![ndarray::Array3::<f64>::from_elem((m, npt, nz), f64::NAN); npr];
+    for (i, mem) in members.iter().enumerate() {
+        if let Member::Done {
+            profiles, depth: d, ..
+        } = mem
+        {
+            if npr > 0 && d.len() != nz {
+                return Err(Error::input(format!(
+                    "{}: member {i} has {} cells, the first member {nz}: profiles of members on different meshes cannot be merged",
+                    dir.display(),
+                    d.len()
+                )));
+            }
+            for (k, row) in profiles.iter().enumerate() {
+                for (z, v) in row.iter().enumerate() {
+                    prof[k / npt][[i, k % npt, z]] = *v;
+                }
+            }
+        }
+    }
     for (i, mem) in members.iter().enumerate() {
         // Parameters from the plan itself (also for members that never ran).
         for (k, v) in plan.member(i).into_iter().enumerate() {
@@ -507,6 +590,45 @@ pub fn collect(dir: &Path) -> Result<(PathBuf, [usize; 3])> {
             )?;
             attach_scale(&ds, &qa, 0).map_err(e)?;
             attach_scale(&ds, &q_time, 1).map_err(e)?;
+        }
+        if npr > 0 {
+            let pg = f.create_group("profiles").map_err(e)?;
+            let pm = member_scale(&pg)?;
+            let pt = pg
+                .new_dataset_builder()
+                .with_data(&plan.profile_times_year)
+                .create("time")
+                .map_err(e)?;
+            attr(&pt, "units", "year")?;
+            attr(&pt, "long_name", "times of the kept profiles")?;
+            set_scale(&pt, "time").map_err(e)?;
+            let pz = pg
+                .new_dataset_builder()
+                .with_data(&depth)
+                .create("depth")
+                .map_err(e)?;
+            attr(&pz, "units", "m")?;
+            attr(&pz, "positive", "down")?;
+            attr(&pz, "long_name", "depth of the cell centres")?;
+            set_scale(&pz, "depth").map_err(e)?;
+            for (name, arr) in plan.profiles.iter().zip(&prof) {
+                let unit = match name.as_str() {
+                    "temperature" => "degC",
+                    "head" => "m",
+                    "vapor_density" => "kg m-3",
+                    _ => "1",
+                };
+                let ds = pg
+                    .new_dataset_builder()
+                    .with_data(arr)
+                    .create(name.as_str())
+                    .map_err(e)?;
+                attr(&ds, "units", unit)?;
+                attr(&ds, "long_name", &format!("{name} (member × time × depth)"))?;
+                attach_scale(&ds, &pm, 0).map_err(e)?;
+                attach_scale(&ds, &pt, 1).map_err(e)?;
+                attach_scale(&ds, &pz, 2).map_err(e)?;
+            }
         }
     }
     std::fs::rename(&tmp, &path).map_err(|err| Error::io(&path, err))?;

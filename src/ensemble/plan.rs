@@ -83,6 +83,9 @@ pub struct Plan {
     pub sampling: Sampling,
     pub series: Vec<String>,
     pub times_year: Vec<f64>,
+    /// Kept profiles (names as in the results file's /profiles) at `profile_times_year`.
+    pub profiles: Vec<String>,
+    pub profile_times_year: Vec<f64>,
     pub parameters: Vec<PlanParameter>,
 }
 
@@ -215,14 +218,27 @@ impl Plan {
         }
     }
 
-    /// The overrides of member `i` (parameters, then the output times the kept series
-    /// need nothing of: series are kept from the run's own records).
+    /// The overrides of member `i`: its parameters, and the profile times as the run's
+    /// output times when profiles are kept (series are kept from the run's records).
     pub fn overrides(&self, i: usize) -> Result<Vec<Override>> {
-        self.parameters
+        let mut ovs: Vec<Override> = self
+            .parameters
             .iter()
             .zip(self.member(i))
             .map(|(p, v)| Override::set(&p.key, &format!("{v:?}")))
-            .collect()
+            .collect::<Result<_>>()?;
+        if !self.profiles.is_empty() {
+            let t: Vec<String> = self
+                .profile_times_year
+                .iter()
+                .map(|x| format!("{x:?}"))
+                .collect();
+            ovs.push(Override::set(
+                "output.times_year",
+                &format!("[{}]", t.join(", ")),
+            )?);
+        }
+        Ok(ovs)
     }
 }
 
@@ -239,6 +255,14 @@ fn lhs_stratum(seed: u64, k: u64, m: usize, i: usize) -> usize {
 }
 
 const PLAN_KEYS: &[&str] = &["ensemble"];
+/// Profiles a member may keep (names as in the results file's /profiles).
+pub const PROFILES: [&str; 5] = [
+    "temperature",
+    "head",
+    "liquid_content",
+    "relative_humidity",
+    "vapor_density",
+];
 const ENSEMBLE_KEYS: &[&str] = &[
     "case",
     "table",
@@ -247,6 +271,8 @@ const ENSEMBLE_KEYS: &[&str] = &[
     "sampling",
     "series",
     "times_year",
+    "profiles",
+    "profile_times_year",
     "parameters",
 ];
 const PARAM_KEYS: &[&str] = &[
@@ -338,6 +364,38 @@ pub fn read(path: &Path) -> Result<Plan> {
             return Err(v.err("must be a non-empty list of increasing times"));
         }
         out
+    };
+    let profiles = match e.get("profiles") {
+        Some(v) => {
+            let mut out = Vec::new();
+            for item in v.array()? {
+                let s = item.str()?;
+                if !PROFILES.contains(&s) {
+                    return Err(
+                        item.err(format!("unknown profile; allowed: {}", PROFILES.join(", ")))
+                    );
+                }
+                out.push(s.to_string());
+            }
+            out
+        }
+        None => Vec::new(),
+    };
+    let profile_times_year = match e.get("profile_times_year") {
+        Some(v) => {
+            let mut out = Vec::new();
+            for item in v.array()? {
+                out.push(finite(&item)?);
+            }
+            if out.is_empty() || out.windows(2).any(|w| w[1] <= w[0]) {
+                return Err(v.err("must be a non-empty list of increasing times"));
+            }
+            out
+        }
+        None if !profiles.is_empty() => {
+            return Err(e.err("profiles need profile_times_year = [...] (the times to keep)"))
+        }
+        None => Vec::new(),
     };
     // The table of a "table" sampling: a header of column names, one member a row.
     let table: Option<(PathBuf, Vec<String>, Vec<Vec<f64>>)> = match e.get("table") {
@@ -452,6 +510,8 @@ pub fn read(path: &Path) -> Result<Plan> {
         sampling,
         series,
         times_year,
+        profiles,
+        profile_times_year,
         parameters,
     };
     if plan.member_count() == 0 || plan.member_count() > 1_000_000 {

@@ -121,7 +121,7 @@ if timeout 300 sbatch --wait --array=0-2 --output="$WORK/log/task-%a.out" "$WORK
     fi
 else
     echo "slurm: the job array failed" >&2
-    tail -5 "$WORK"/log/*.log "$WORK"/log/task-*.out 2>/dev/null >&2 || true
+    for f in "$WORK"/log/*; do echo "== $f" >&2; tail -8 "$f" >&2; done
     failed=1
 fi
 echo "slurm: $passed passed, $failed failed"

@@ -299,3 +299,43 @@ column = "rh"
     let o = deepdry(&["ensemble", "run", arg(&bad), "--quiet"]);
     assert_one_line_error(&o, 2, &["no column `humidity`", "n, rh"]);
 }
+
+/// Tasks of a job array start at once on an empty folder: each sets it up without
+/// tripping over the others (found by the Slurm check: a shared temporary file for the
+/// plan's copy made one task fail), and together they write every member.
+#[test]
+fn shards_started_together_share_the_folder() {
+    let dir = Scratch::new("ensemble-together");
+    dir.write("case.toml", &case_text());
+    let plan_path = dir.write("plan.toml", PLAN);
+    let out = dir.join("out");
+    for round in 0..6 {
+        let _ = std::fs::remove_dir_all(&out);
+        let shards: Vec<String> = (0..6).map(|k| format!("{k}/6")).collect();
+        let children: Vec<_> = shards
+            .iter()
+            .map(|k| {
+                std::process::Command::new(support::bin())
+                    .args(["ensemble", "run", arg(&plan_path), "--out", arg(&out)])
+                    .args(["--shard", k.as_str(), "--jobs", "1", "--quiet"])
+                    .stdout(std::process::Stdio::null())
+                    .stderr(std::process::Stdio::piped())
+                    .spawn()
+                    .unwrap()
+            })
+            .collect();
+        for c in children {
+            let o = c.wait_with_output().unwrap();
+            assert!(
+                o.status.success(),
+                "round {round}: {}",
+                String::from_utf8_lossy(&o.stderr)
+            );
+        }
+        let (_, members) = ensemble::status(&out).unwrap();
+        assert!(
+            members.iter().all(|m| matches!(m, Member::Done { .. })),
+            "round {round}"
+        );
+    }
+}

@@ -262,9 +262,19 @@ fn prepare(plan: &Plan, dir: &Path) -> Result<()> {
             dir.display()
         ))),
         Err(_) => {
-            let tmp = dir.join("plan.toml.tmp");
+            // Tasks of a job array start together: each writes its own temporary file
+            // and renames it over the copy (atomic; the contents are the same), then
+            // checks what is there.
+            let tmp = dir.join(format!("plan.toml.{}.tmp", std::process::id()));
             std::fs::write(&tmp, &plan.text).map_err(|e| Error::io(&tmp, e))?;
-            std::fs::rename(&tmp, &copy).map_err(|e| Error::io(&copy, e))
+            std::fs::rename(&tmp, &copy).map_err(|e| Error::io(&copy, e))?;
+            match std::fs::read_to_string(&copy) {
+                Ok(t) if t == plan.text => Ok(()),
+                _ => Err(Error::input(format!(
+                    "{}: the folder holds the members of another plan; use a new --out folder",
+                    dir.display()
+                ))),
+            }
         }
     }
 }

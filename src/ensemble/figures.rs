@@ -2,7 +2,7 @@
 //! quantile lines and the median over the members that ran, against time) and, per kept
 //! series, the value at the last kept time against each parameter (one point a member).
 
-use super::{status, Member, QUANTILES};
+use super::{quantiles_of, status, Member, QUANTILES};
 use crate::error::Result;
 use crate::output::diagnostics::SeriesRecord;
 use crate::plot::chart::{sequence, Figure, Line, Panel};
@@ -49,18 +49,11 @@ pub fn plot(dir: &Path, out: &Path) -> Result<Vec<PathBuf>> {
         let colors = sequence(3);
         let mut lines = Vec::new();
         let mut all = Vec::new();
-        for (k, q) in QUANTILES.iter().enumerate() {
-            let pts: Vec<(f64, f64)> = (0..nt)
-                .map(|j| {
-                    let mut col: Vec<f64> = done
-                        .iter()
-                        .map(|(_, ser)| ser[s][j])
-                        .filter(|v| v.is_finite())
-                        .collect();
-                    col.sort_by(|a, b| a.total_cmp(b));
-                    (t[j], super::quantile(&col, *q))
-                })
-                .collect();
+        let qs: Vec<_> = (0..nt)
+            .map(|j| quantiles_of(done.iter().map(|(_, ser)| ser[s][j])))
+            .collect();
+        for k in 0..QUANTILES.len() {
+            let pts: Vec<(f64, f64)> = (0..nt).map(|j| (t[j], qs[j][k])).collect();
             all.extend(pts.iter().map(|p| p.1));
             let band = k.min(QUANTILES.len() - 1 - k); // 0 outer, 1 inner, 2 median
             let label = match band {

@@ -18,6 +18,7 @@ pub mod plan;
 
 use crate::error::{Error, Result};
 use crate::output::diagnostics::SeriesRecord;
+use crate::output::results::PROFILE_CELL;
 use crate::solve::linear::SolverKind;
 use plan::Plan;
 use std::path::{Path, PathBuf};
@@ -90,22 +91,14 @@ pub fn run_member(plan: &Plan, case_text: &str, i: usize) -> Member {
                 sample(&rec.series, field, &plan.times_year)
             })
             .collect();
+        let times: Vec<f64> = rec.snapshots.iter().map(|s| s.time_year).collect();
         let mut profiles = Vec::new();
         for name in &plan.profiles {
+            let k = PROFILE_CELL.iter().position(|f| f.0 == name).unwrap_or(0);
             for &t in &plan.profile_times_year {
-                let snap = rec
-                    .snapshots
-                    .iter()
-                    .find(|s| (s.time_year - t).abs() <= 1e-9 * t.abs().max(1.0))
+                let j = crate::fit::compare::profile_at(&times, t)
                     .ok_or_else(|| Error::Numerical(format!("no profile written at {t} yr")))?;
-                let p = &snap.profile;
-                profiles.push(match name.as_str() {
-                    "temperature" => p.temperature_c.clone(),
-                    "head" => p.head.clone(),
-                    "liquid_content" => p.liquid_content.clone(),
-                    "relative_humidity" => p.relative_humidity.clone(),
-                    _ => p.vapor_density.clone(),
-                });
+                profiles.push(rec.snapshots[j].profile.cells()[k].to_vec());
             }
         }
         Ok((series, model.mesh.centers.clone(), profiles))
@@ -398,6 +391,13 @@ pub fn quantile(sorted: &[f64], q: f64) -> f64 {
     sorted[lo] + (h - lo as f64) * (sorted[hi] - sorted[lo])
 }
 
+/// The [`QUANTILES`] of the finite values among `values`.
+pub fn quantiles_of(values: impl Iterator<Item = f64>) -> [f64; QUANTILES.len()] {
+    let mut col: Vec<f64> = values.filter(|v| v.is_finite()).collect();
+    col.sort_by(|a, b| a.total_cmp(b));
+    QUANTILES.map(|p| quantile(&col, p))
+}
+
 /// Merges the members in `dir` into `dir/ensemble.h5`; returns the file and the counts
 /// (done, failed, missing).
 pub fn collect(dir: &Path) -> Result<(PathBuf, [usize; 3])> {
@@ -424,35 +424,33 @@ pub fn collect(dir: &Path) -> Result<(PathBuf, [usize; 3])> {
     let nz = depth.len();
     let mut prof = vec![ndarray::Array3::<f64>::from_elem((m, npt, nz), f64::NAN); npr];
     for (i, mem) in members.iter().enumerate() {
-        if let Member::Done {
-            profiles, depth: d, ..
-        } = mem
-        {
-            if npr > 0 && d.len() != nz {
-                return Err(Error::input(format!(
-                    "{}: member {i} has {} cells, the first member {nz}: profiles of members on different meshes cannot be merged",
-                    dir.display(),
-                    d.len()
-                )));
-            }
-            for (k, row) in profiles.iter().enumerate() {
-                for (z, v) in row.iter().enumerate() {
-                    prof[k / npt][[i, k % npt, z]] = *v;
-                }
-            }
-        }
-    }
-    for (i, mem) in members.iter().enumerate() {
         // Parameters from the plan itself (also for members that never ran).
         for (k, v) in plan.member(i).into_iter().enumerate() {
             params[[i, k]] = v;
         }
         match mem {
-            Member::Done { series: s, .. } => {
+            Member::Done {
+                series: s,
+                depth: d,
+                profiles,
+                ..
+            } => {
                 counts[0] += 1;
                 for (arr, row) in series.iter_mut().zip(s) {
                     for (t, v) in row.iter().enumerate() {
                         arr[[i, t]] = *v;
+                    }
+                }
+                if npr > 0 && d.len() != nz {
+                    return Err(Error::input(format!(
+                        "{}: member {i} has {} cells, the first member {nz}: profiles of members on different meshes cannot be merged",
+                        dir.display(),
+                        d.len()
+                    )));
+                }
+                for (k, row) in profiles.iter().enumerate() {
+                    for (z, v) in row.iter().enumerate() {
+                        prof[k / npt][[i, k % npt, z]] = *v;
                     }
                 }
             }
@@ -578,13 +576,11 @@ pub fn collect(dir: &Path) -> Result<(PathBuf, [usize; 3])> {
             attach_scale(&ds, &g_time, 1).map_err(e)?;
             let mut qs = ndarray::Array2::<f64>::from_elem((QUANTILES.len(), nt), f64::NAN);
             for t in 0..nt {
-                let mut col: Vec<f64> = (0..m)
-                    .map(|i| arr[[i, t]])
-                    .filter(|v| v.is_finite())
-                    .collect();
-                col.sort_by(|a, b| a.total_cmp(b));
-                for (k, p) in QUANTILES.iter().enumerate() {
-                    qs[[k, t]] = quantile(&col, *p);
+                for (k, v) in quantiles_of(arr.column(t).iter().copied())
+                    .iter()
+                    .enumerate()
+                {
+                    qs[[k, t]] = *v;
                 }
             }
             let ds = q
@@ -622,19 +618,17 @@ pub fn collect(dir: &Path) -> Result<(PathBuf, [usize; 3])> {
             attr(&pz, "long_name", "depth of the cell centres")?;
             set_scale(&pz, "depth").map_err(e)?;
             for (name, arr) in plan.profiles.iter().zip(&prof) {
-                let unit = match name.as_str() {
-                    "temperature" => "degC",
-                    "head" => "m",
-                    "vapor_density" => "kg m-3",
-                    _ => "1",
-                };
+                let (unit, long) = PROFILE_CELL
+                    .iter()
+                    .find(|f| f.0 == name)
+                    .map_or(("1", ""), |f| (f.1, f.2));
                 let ds = pg
                     .new_dataset_builder()
                     .with_data(arr)
                     .create(name.as_str())
                     .map_err(e)?;
                 attr(&ds, "units", unit)?;
-                attr(&ds, "long_name", &format!("{name} (member × time × depth)"))?;
+                attr(&ds, "long_name", &format!("{long} (member × time × depth)"))?;
                 attach_scale(&ds, &pm, 0).map_err(e)?;
                 attach_scale(&ds, &pt, 1).map_err(e)?;
                 attach_scale(&ds, &pz, 2).map_err(e)?;

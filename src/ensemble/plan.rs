@@ -24,6 +24,7 @@ use crate::case::tree::{Source, Value};
 use crate::case::Override;
 use crate::error::{Error, Result};
 use crate::output::diagnostics::SeriesRecord;
+use crate::output::results::PROFILE_CELL;
 use std::path::{Path, PathBuf};
 
 /// How a parameter's values are drawn.
@@ -87,6 +88,9 @@ pub struct Plan {
     pub profiles: Vec<String>,
     pub profile_times_year: Vec<f64>,
     pub parameters: Vec<PlanParameter>,
+    /// Latin hypercube: per parameter, the stratum of each member (a permutation of
+    /// 0..members drawn from the seed once, when the plan is read).
+    strata: Vec<Vec<usize>>,
 }
 
 /// SplitMix64 (Steele, Lea & Flood 2014): a tiny generator whose output is a fixed
@@ -188,7 +192,7 @@ impl Plan {
                 .iter()
                 .enumerate()
                 .map(|(k, p)| {
-                    let stratum = lhs_stratum(self.seed, k as u64, m, i);
+                    let stratum = self.strata[k][i];
                     let v = uniform(self.seed, i as u64, k as u64, 1);
                     p.distribution.quantile((stratum as f64 + v) / m as f64)
                 })
@@ -242,27 +246,20 @@ impl Plan {
     }
 }
 
-/// The stratum of member `i` for parameter `k`: position i in a permutation of 0..m
-/// drawn by Fisher–Yates from (seed, k). O(m) per call; m is at most a few thousand.
-fn lhs_stratum(seed: u64, k: u64, m: usize, i: usize) -> usize {
+/// The strata of parameter `k` for members 0..m: a permutation of 0..m drawn by
+/// Fisher–Yates from (seed, k).
+fn lhs_strata(seed: u64, k: u64, m: usize) -> Vec<usize> {
     let mut perm: Vec<usize> = (0..m).collect();
     for j in (1..m).rev() {
         let u = uniform(seed, k, j as u64, 2);
         let r = ((u * (j + 1) as f64) as usize).min(j);
         perm.swap(j, r);
     }
-    perm[i]
+    perm
 }
 
 const PLAN_KEYS: &[&str] = &["ensemble"];
-/// Profiles a member may keep (names as in the results file's /profiles).
-pub const PROFILES: [&str; 5] = [
-    "temperature",
-    "head",
-    "liquid_content",
-    "relative_humidity",
-    "vapor_density",
-];
+
 const ENSEMBLE_KEYS: &[&str] = &[
     "case",
     "table",
@@ -285,10 +282,6 @@ const PARAM_KEYS: &[&str] = &[
     "values",
     "column",
 ];
-
-fn finite(v: &Value) -> Result<f64> {
-    v.f64()
-}
 
 /// Reads and checks a plan file.
 pub fn read(path: &Path) -> Result<Plan> {
@@ -358,7 +351,7 @@ pub fn read(path: &Path) -> Result<Plan> {
         )?;
         let mut out = Vec::new();
         for item in v.array()? {
-            out.push(finite(&item)?);
+            out.push(item.f64()?);
         }
         if out.is_empty() || out.windows(2).any(|w| w[1] <= w[0]) {
             return Err(v.err("must be a non-empty list of increasing times"));
@@ -370,10 +363,9 @@ pub fn read(path: &Path) -> Result<Plan> {
             let mut out = Vec::new();
             for item in v.array()? {
                 let s = item.str()?;
-                if !PROFILES.contains(&s) {
-                    return Err(
-                        item.err(format!("unknown profile; allowed: {}", PROFILES.join(", ")))
-                    );
+                if !PROFILE_CELL.iter().any(|f| f.0 == s) {
+                    let names: Vec<&str> = PROFILE_CELL.iter().map(|f| f.0).collect();
+                    return Err(item.err(format!("unknown profile; allowed: {}", names.join(", "))));
                 }
                 out.push(s.to_string());
             }
@@ -385,7 +377,7 @@ pub fn read(path: &Path) -> Result<Plan> {
         Some(v) => {
             let mut out = Vec::new();
             for item in v.array()? {
-                out.push(finite(&item)?);
+                out.push(item.f64()?);
             }
             if out.is_empty() || out.windows(2).any(|w| w[1] <= w[0]) {
                 return Err(v.err("must be a non-empty list of increasing times"));
@@ -421,7 +413,7 @@ pub fn read(path: &Path) -> Result<Plan> {
         let key_text = key.str()?.to_string();
         Override::set(&key_text, "0.0").map_err(|err| key.err(err))?;
         let dv = t.req("distribution", "how values are drawn")?;
-        let num = |k: &str| -> Result<f64> { finite(&t.req(k, "a number")?) };
+        let num = |k: &str| -> Result<f64> { t.req(k, "a number")?.f64() };
         let distribution = match dv.choice(&[
             "uniform",
             "log-uniform",
@@ -478,7 +470,7 @@ pub fn read(path: &Path) -> Result<Plan> {
                 let v = t.req("values", "the list of values")?;
                 let mut vals = Vec::new();
                 for x in v.array()? {
-                    vals.push(finite(&x)?);
+                    vals.push(x.f64()?);
                 }
                 if vals.is_empty() {
                     return Err(v.err("must not be empty"));
@@ -513,12 +505,20 @@ pub fn read(path: &Path) -> Result<Plan> {
         profiles,
         profile_times_year,
         parameters,
+        strata: Vec::new(),
     };
     if plan.member_count() == 0 || plan.member_count() > 1_000_000 {
         return Err(e.err(format!(
             "{} members: allowed 1 … 1 000 000",
             plan.member_count()
         )));
+    }
+    let mut plan = plan;
+    if plan.sampling == Sampling::LatinHypercube {
+        let m = plan.member_count();
+        plan.strata = (0..plan.parameters.len())
+            .map(|k| lhs_strata(plan.seed, k as u64, m))
+            .collect();
     }
     Ok(plan)
 }

@@ -157,6 +157,16 @@ fn toml_number(x: f64) -> String {
     format!("{x:?}")
 }
 
+/// What every model run of a fit sets besides the parameters: the fit's local-error
+/// tolerance and the observation times as output times.
+fn run_overrides(rtol: f64, obs: &Observations) -> Result<Vec<Override>> {
+    let times: Vec<String> = obs.times().iter().map(|t| toml_number(*t)).collect();
+    Ok(vec![
+        Override::set("time.rtol", &toml_number(rtol))?,
+        Override::set("output.times_year", &format!("[{}]", times.join(", ")))?,
+    ])
+}
+
 /// The results of an in-memory run in the form `compare` reads.
 pub fn results_of(model: &Model, rec: &Recorder) -> Results {
     let mut p = Profiles::default();
@@ -193,12 +203,7 @@ impl CaseResiduals<'_> {
         for (par, v) in self.fit.parameters.iter().zip(p) {
             ovs.push(Override::set(&par.key, &toml_number(*v))?);
         }
-        ovs.push(Override::set("time.rtol", &toml_number(self.fit.rtol))?);
-        let times: Vec<String> = self.obs.times().iter().map(|t| toml_number(*t)).collect();
-        ovs.push(Override::set(
-            "output.times_year",
-            &format!("[{}]", times.join(", ")),
-        )?);
+        ovs.extend(run_overrides(self.fit.rtol, self.obs)?);
         Ok(ovs)
     }
 
@@ -498,11 +503,7 @@ pub fn write_outputs(r: &FitReport, out: &Path) -> Result<Vec<PathBuf>> {
 /// CSV files and figures at the optimum.
 pub fn compare_at_optimum(r: &FitReport, out: &Path) -> Result<super::compare::CompareOutput> {
     let obs = super::observations::read(&r.fit.observations)?;
-    let times: Vec<String> = obs.times().iter().map(|t| toml_number(*t)).collect();
-    let ovs = [
-        Override::set("time.rtol", &toml_number(r.fit.rtol))?,
-        Override::set("output.times_year", &format!("[{}]", times.join(", ")))?,
-    ];
+    let ovs = run_overrides(r.fit.rtol, &obs)?;
     let best = out.join("best.toml");
     let text = std::fs::read_to_string(&best).map_err(|e| Error::io(&best, e))?;
     // Relative paths inside the case (CSV tables) stay relative to the original case.

@@ -27,6 +27,17 @@ pub struct Profile {
 }
 
 impl Profile {
+    /// The cell profiles in the order of [`crate::output::results::PROFILE_CELL`].
+    pub fn cells(&self) -> [&[f64]; 5] {
+        [
+            &self.temperature_c,
+            &self.head,
+            &self.liquid_content,
+            &self.vapor_density,
+            &self.relative_humidity,
+        ]
+    }
+
     /// Fills from the last evaluation of `sys`.
     pub fn fill(&mut self, sys: &System) {
         let n = sys.n;

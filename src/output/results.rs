@@ -567,14 +567,7 @@ impl ResultsFile {
     pub fn write_snapshot(&mut self, time_year: f64, p: &Profile) -> Result<()> {
         let e = self.write_error();
         append_1d(&self.sets.profile_time, &[time_year]).map_err(&e)?;
-        let cells = [
-            &p.temperature_c,
-            &p.head,
-            &p.liquid_content,
-            &p.vapor_density,
-            &p.relative_humidity,
-        ];
-        for (ds, v) in self.sets.cells.iter().zip(cells) {
+        for (ds, v) in self.sets.cells.iter().zip(p.cells()) {
             append_row(ds, v).map_err(&e)?;
         }
         let faces = [

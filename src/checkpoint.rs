@@ -11,6 +11,7 @@ use crate::error::{Error, Result};
 use crate::model::Model;
 use crate::output::h5util::{attr_f64, attr_str, describe, read_attr_str};
 use crate::props::constants::SECONDS_PER_YEAR;
+use crate::solute::SoluteState;
 use crate::solve::stepper::{Counters, StepState};
 use hdf5::File;
 use ndarray::Array1;
@@ -150,7 +151,14 @@ pub fn column_hash(m: &Model) -> String {
 /// the end time and the outputs).
 pub fn physics_hash(m: &Model) -> String {
     let t = &m.time;
-    fnv1a(&format!(
+    // The solutes join the hashed text only when there are some, so the hashes of cases
+    // without solutes are those of earlier versions.
+    let solutes = if m.solutes.is_empty() {
+        String::new()
+    } else {
+        format!("|{:?}", m.solutes)
+    };
+    let base = fnv1a(&format!(
         "{}|{:?}|{:?}|{:?}|{:?}|{:?}|{:?}|{:?}|{:?}|{:?}|{:?}",
         column_hash(m),
         m.physics,
@@ -176,7 +184,12 @@ pub fn physics_hash(m: &Model) -> String {
         m.output.snapshot_times,
         m.output.series_every,
         m.checkpoint.every
-    ))
+    ));
+    if solutes.is_empty() {
+        base
+    } else {
+        fnv1a(&format!("{base}{solutes}"))
+    }
 }
 
 /// Run-loop position stored alongside the stepper state.
@@ -222,6 +235,8 @@ pub struct Checkpoint {
     pub created: String,
     pub format: String,
     pub info: CheckpointInfo,
+    /// The solute state (None: the run has no solutes).
+    pub solutes: Option<SoluteState>,
 }
 
 fn e(path: &Path) -> impl Fn(hdf5::Error) -> Error + '_ {
@@ -237,9 +252,20 @@ pub fn write(
     position: LoopPosition,
     results_file: &Path,
     info: &CheckpointInfo,
+    solutes: Option<&SoluteState>,
 ) -> Result<()> {
     let tmp = path.with_extension("h5.tmp");
-    write_via(&tmp, path, model, state, position, results_file, info).map_err(|err| {
+    write_via(
+        &tmp,
+        path,
+        model,
+        state,
+        position,
+        results_file,
+        info,
+        solutes,
+    )
+    .map_err(|err| {
         let _ = std::fs::remove_file(&tmp);
         Error::Io(format!(
             "{}: checkpoint not written (earlier checkpoints are kept): {err}",
@@ -248,6 +274,7 @@ pub fn write(
     })
 }
 
+#[allow(clippy::too_many_arguments)]
 fn write_via(
     tmp: &Path,
     path: &Path,
@@ -256,6 +283,7 @@ fn write_via(
     position: LoopPosition,
     results_file: &Path,
     info: &CheckpointInfo,
+    solutes: Option<&SoluteState>,
 ) -> Result<()> {
     {
         let file = File::create(tmp).map_err(e(tmp))?;
@@ -482,6 +510,9 @@ fn write_via(
             "last local error estimate of the step control (scaled)",
         )
         .map_err(&er)?;
+        if let Some(sol) = solutes {
+            write_solutes(&file, sol).map_err(&er)?;
+        }
         // The checksum over everything above (every dataset and attribute, as read back).
         let sum = content_checksum(&file).map_err(&er)?;
         attr_str(&root, CHECKSUM_ATTR, &sum).map_err(&er)?;
@@ -503,6 +534,118 @@ fn write_via(
         }
     }
     Ok(())
+}
+
+/// The solute datasets of a checkpoint (root level, so that the checksum covers them).
+fn write_solutes(file: &File, sol: &SoluteState) -> hdf5::Result<()> {
+    let ns = sol.names.len();
+    let names: Vec<hdf5::types::VarLenUnicode> = sol
+        .names
+        .iter()
+        .map(|s| s.parse().unwrap_or_default())
+        .collect();
+    let ds = file
+        .new_dataset_builder()
+        .with_data(&Array1::from_vec(names))
+        .create("solute_names")?;
+    describe(&ds, "1", "names of the solutes, in the case's order")?;
+    let h = sol.history.len();
+    let mut times = vec![sol.now.t];
+    let mut mass = sol.now.mass.clone();
+    let mut cum = sol.now.cumulative.clone();
+    for p in &sol.history {
+        times.push(p.t);
+        mass.extend_from_slice(&p.mass);
+        cum.extend_from_slice(&p.cumulative);
+    }
+    let table = |name: &str, cols: usize, v: Vec<f64>, units: &str, long: &str| {
+        let a = ndarray::Array2::from_shape_vec((h + 1, cols), v)
+            .map_err(|x| hdf5::Error::from(x.to_string()))?;
+        let ds = file.new_dataset_builder().with_data(&a).create(name)?;
+        describe(&ds, units, long)
+    };
+    let ds = file
+        .new_dataset_builder()
+        .with_data(&Array1::from_vec(times))
+        .create("solute_time_s")?;
+    describe(
+        &ds,
+        "s",
+        "time of the current solute point, then of the history points (newest first)",
+    )?;
+    table(
+        "solute_mass",
+        sol.now.mass.len(),
+        mass,
+        "g m-3",
+        "solute mass per bulk volume (dissolved and precipitated) of each solute (cells, solute after solute): current point, then history points",
+    )?;
+    table(
+        "solute_cumulative",
+        3 * ns,
+        cum,
+        "g m-2",
+        "per solute: cumulative surface inflow, bottom outflow and throughput: current point, then history points",
+    )?;
+    let ds = file
+        .new_dataset_builder()
+        .with_data(&Array1::from_vec(sol.initial_mass.clone()))
+        .create("solute_initial_mass")?;
+    describe(
+        &ds,
+        "g m-3",
+        "solute mass per bulk volume at the start of the run",
+    )
+}
+
+/// The solute state of a checkpoint (None when it has none).
+fn read_solutes(file: &File) -> std::result::Result<Option<SoluteState>, &'static str> {
+    use hdf5::types::VarLenUnicode;
+    let Ok(names) = file.dataset("solute_names") else {
+        return Ok(None);
+    };
+    let names: Vec<String> = names
+        .read_raw::<VarLenUnicode>()
+        .map_err(|_| "solute_names")?
+        .iter()
+        .map(|s| s.as_str().to_string())
+        .collect();
+    let times = file
+        .dataset("solute_time_s")
+        .and_then(|d| d.read_raw::<f64>())
+        .map_err(|_| "solute_time_s")?;
+    let mass = file
+        .dataset("solute_mass")
+        .and_then(|d| d.read_2d::<f64>())
+        .map_err(|_| "solute_mass")?;
+    let cum = file
+        .dataset("solute_cumulative")
+        .and_then(|d| d.read_2d::<f64>())
+        .map_err(|_| "solute_cumulative")?;
+    let initial_mass = file
+        .dataset("solute_initial_mass")
+        .and_then(|d| d.read_raw::<f64>())
+        .map_err(|_| "solute_initial_mass")?;
+    if times.is_empty()
+        || mass.nrows() != times.len()
+        || cum.nrows() != times.len()
+        || cum.ncols() != 3 * names.len()
+        || initial_mass.len() != mass.ncols()
+    {
+        return Err("solute state");
+    }
+    let mut points = (0..times.len()).map(|k| crate::solute::SolutePoint {
+        t: times[k],
+        mass: mass.row(k).to_vec(),
+        cumulative: cum.row(k).to_vec(),
+    });
+    let now = points.next().ok_or("solute state")?;
+    Ok(Some(SoluteState {
+        names,
+        now,
+        initial_mass,
+        history: points.collect(),
+    }))
 }
 
 /// What kind of deepdry file `path` is: `Some("deepdry-results")`, `Some("deepdry-checkpoint")`
@@ -739,6 +882,7 @@ pub fn read(path: &Path) -> Result<Checkpoint> {
             created: s("created")?,
             format,
             info,
+            solutes: read_solutes(&file).map_err(bad)?,
         })
     };
     inner()

@@ -42,5 +42,6 @@ pub mod props;
 pub mod run;
 pub mod schedule;
 pub mod sim;
+pub mod solute;
 pub mod solve;
 pub mod verify;

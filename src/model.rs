@@ -299,4 +299,68 @@ pub struct Model {
     pub time: TimeControl,
     pub output: OutputControl,
     pub checkpoint: CheckpointControl,
+    /// Dissolved solutes carried by the liquid water (empty: none).
+    pub solutes: Vec<Solute>,
+}
+
+/// How a solute enters at the land surface.
+#[derive(Debug, Clone)]
+pub enum SoluteSurface {
+    /// Deposition (wet and dry) onto the surface Fd(t) [g m⁻² s⁻¹]: it enters the soil
+    /// whatever the water flux does (with evaporation it stays in the top cell).
+    Deposition(Schedule),
+    /// Concentration of the infiltrating water c_in(t) [g m⁻³]: the solute enters with
+    /// the downward liquid flux only.
+    Inflow(Schedule),
+}
+
+/// The solute condition at the bottom boundary.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum SoluteBottom {
+    /// Groundwater of fixed concentration [g m⁻³]: it enters with upward liquid flow and
+    /// exchanges by diffusion and dispersion across the boundary; outflow carries the
+    /// bottom cell's concentration.
+    Concentration(f64),
+    /// No diffusive or dispersive flux across the boundary: the solute leaves (or enters)
+    /// with the liquid flux at the bottom cell's concentration.
+    ZeroGradient,
+}
+
+/// The initial solute profile.
+#[derive(Debug, Clone)]
+pub enum SoluteInitial {
+    /// One concentration in the liquid everywhere [g m⁻³].
+    Constant(f64),
+    /// A table of concentration in the liquid [g m⁻³] against depth [m], interpolated
+    /// linearly onto the cell centres (held constant beyond its ends).
+    Profile {
+        depth: Vec<f64>,
+        concentration: Vec<f64>,
+    },
+    /// The steady profile under the flow of the initial state and the surface input at
+    /// the start time.
+    Steady,
+}
+
+/// One solute (e.g. chloride) dissolved in the liquid water.
+#[derive(Debug, Clone)]
+pub struct Solute {
+    /// Name, used in dataset names (`concentration_<name>`): letters, digits, `_`.
+    pub name: String,
+    /// Diffusion coefficient in free water at 25 °C [m² s⁻¹]; scaled with T/μ(T)
+    /// (Stokes–Einstein) and by the Millington–Quirk tortuosity in the soil.
+    pub free_diffusivity: f64,
+    /// Longitudinal dispersivity αL [m]: mechanical dispersion θ Dh = αL |q|.
+    pub dispersivity: f64,
+    pub surface: SoluteSurface,
+    pub bottom: SoluteBottom,
+    pub initial: SoluteInitial,
+    /// Fraction of the concentration taken up with root water uptake [-] (0: excluded,
+    /// as chloride); used once the model has roots.
+    pub uptake_fraction: f64,
+    /// Solubility limit [g m⁻³ of liquid]: above it the excess is stored as a solid that
+    /// redissolves when water returns. `None`: no limit.
+    pub solubility: Option<f64>,
+    /// Depth [m] at which the chloride mass-balance recharge estimate Fd/c is reported.
+    pub recharge_depth: Option<f64>,
 }

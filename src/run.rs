@@ -210,6 +210,8 @@ struct Prepared {
     parent: Option<(String, f64)>,
     /// A new results file starts with a series record and a snapshot of the start state.
     initial_output: bool,
+    /// The solute state to continue (resume) or to start from (branch).
+    solutes: Option<crate::solute::SoluteState>,
 }
 
 /// A new run from the case's initial state.
@@ -235,6 +237,7 @@ fn start_fresh(
         output: OutputPosition::default(),
         parent: None,
         initial_output: true,
+        solutes: None,
     })
 }
 
@@ -270,6 +273,7 @@ fn start_resume(model: &Model, path: &Path, folder: &Path, results: &Path) -> Re
     let results = ResultsFile::open_append(
         results,
         &ck.faces,
+        &model.solutes,
         ck.position.snapshots as usize,
         ck.position.series_rows as usize,
         ck.info.last_series_year,
@@ -298,6 +302,7 @@ fn start_resume(model: &Model, path: &Path, folder: &Path, results: &Path) -> Re
         output,
         parent: ck.info.parent,
         initial_output: false,
+        solutes: ck.solutes,
     })
 }
 
@@ -329,6 +334,11 @@ fn start_branch(
         output: OutputPosition::default(),
         parent: Some((path.display().to_string(), parent_year)),
         initial_output: true,
+        // The branch carries on the checkpoint's solutes when the case has the same ones;
+        // otherwise the case's initial solute profiles apply.
+        solutes: ck
+            .solutes
+            .filter(|s| s.names.iter().eq(model.solutes.iter().map(|m| &m.name))),
     })
 }
 
@@ -443,7 +453,14 @@ pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
         Begin::Unknowns { t, .. } => *t,
         Begin::State(s) => s.t,
     };
-    let mut sim = Simulation::new(model, plan, start.begin, start.output, opts.solver);
+    let mut sim = Simulation::new(
+        model,
+        plan,
+        start.begin,
+        start.output,
+        opts.solver,
+        start.solutes,
+    )?;
     // In this order: the bar is cleared before anything is reported, and the results
     // file is flushed before a checkpoint counts its rows.
     let mut progress = Progress::new(opts.progress);

@@ -119,6 +119,7 @@ fn model() -> Model {
         bottom,
     };
     Model {
+        solutes: Vec::new(),
         title: "table test".into(),
         case_text: String::new(),
         overrides: Vec::new(),

@@ -98,7 +98,9 @@ fn new_simulation(model: &Model) -> Simulation<'_> {
         begin,
         OutputPosition::default(),
         SolverKind::BlockThomas,
+        None,
     )
+    .unwrap()
 }
 
 #[test]

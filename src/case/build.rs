@@ -33,6 +33,7 @@ const ROOT_KEYS: &[&str] = &[
     "time",
     "output",
     "checkpoint",
+    "solutes",
 ];
 
 /// Default binary diffusivity of vapour in air: 2.12e-5 (T/273.15 K)^1.88 m² s⁻¹ at
@@ -79,7 +80,7 @@ pub fn default_output_folder(origin: &str, base_dir: &Path) -> std::path::PathBu
 }
 
 /// A number satisfying `ok`, else an error saying `allowed`.
-fn num(v: &Value, ok: impl Fn(f64) -> bool, allowed: &str) -> R<f64> {
+pub(super) fn num(v: &Value, ok: impl Fn(f64) -> bool, allowed: &str) -> R<f64> {
     let x = v.f64()?;
     if ok(x) {
         Ok(x)
@@ -92,7 +93,12 @@ fn positive(v: &Value) -> R<f64> {
     num(v, |x| x > 0.0, "must be > 0")
 }
 
-fn opt_num(t: &Table, key: &str, ok: impl Fn(f64) -> bool, allowed: &str) -> R<Option<f64>> {
+pub(super) fn opt_num(
+    t: &Table,
+    key: &str,
+    ok: impl Fn(f64) -> bool,
+    allowed: &str,
+) -> R<Option<f64>> {
     t.get(key).map(|v| num(&v, ok, allowed)).transpose()
 }
 
@@ -175,6 +181,7 @@ pub fn build(src: &Source) -> R<Model> {
     let output = read_output(&root, &time)?;
     let checkpoint = read_checkpoint(&root)?;
     below_boiling(&root, &physics, &surface, &bottom)?;
+    let solutes = super::solutes::read_solutes(&root, depth)?;
     Ok(Model {
         title,
         case_text: src.text.to_string(),
@@ -190,6 +197,7 @@ pub fn build(src: &Source) -> R<Model> {
         time,
         output,
         checkpoint,
+        solutes,
     })
 }
 

@@ -14,6 +14,7 @@ pub mod build;
 pub mod csvfile;
 pub mod overrides;
 pub mod schedules;
+pub mod solutes;
 pub mod summary;
 pub mod tree;
 

@@ -132,6 +132,25 @@ pub const GEOTHERMAL_FLUX: Quantity = Quantity {
     note: " (positive upward; a typical continental value is 0.065 W/m²)",
 };
 
+pub const DEPOSITION: Quantity = Quantity {
+    unit: "g/m²/yr",
+    scale: 1.0 / SECONDS_PER_YEAR,
+    offset: 0.0,
+    lo: 0.0,
+    hi: 1.0e6,
+    lo_open: false,
+    note: " (solute deposited on the surface, wet and dry)",
+};
+pub const CONCENTRATION: Quantity = Quantity {
+    unit: "g/m³",
+    scale: 1.0,
+    offset: 0.0,
+    lo: 0.0,
+    hi: 1.0e6,
+    lo_open: false,
+    note: " (per m³ of liquid water; 1 g/m³ = 1 mg/L)",
+};
+
 /// Number formatting for messages and summaries: up to 6 significant digits, exponent
 /// form for very large or small magnitudes.
 pub fn fmt_g(x: f64) -> String {

@@ -24,6 +24,8 @@ pub struct Profile {
     pub vapor_iso: Vec<f64>,
     pub vapor_th: Vec<f64>,
     pub heat: Vec<f64>,
+    /// The solutes' profiles, in the case's order (filled by the simulation).
+    pub solutes: Vec<crate::solute::SoluteProfile>,
 }
 
 impl Profile {

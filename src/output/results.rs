@@ -74,6 +74,82 @@ pub const PROFILE_FACE: [(&str, &str, &str); 5] = [
     ),
 ];
 
+/// Which profile of a solute a dataset holds.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum SoluteProfileKind {
+    Concentration,
+    Flux,
+    Age,
+    Precipitate,
+}
+
+/// The solute profile datasets of `solutes`: (name, units, long name, kind, solute index).
+/// Accumulation ages only for solutes with a deposition, precipitate only with a
+/// solubility limit.
+fn solute_profile_sets(
+    solutes: &[crate::model::Solute],
+) -> Vec<(String, &'static str, String, SoluteProfileKind, usize)> {
+    use crate::model::SoluteSurface;
+    let mut out = Vec::new();
+    for (k, s) in solutes.iter().enumerate() {
+        let n = &s.name;
+        out.push((
+            format!("concentration_{n}"),
+            "g m-3",
+            format!("concentration of {n} in the liquid water (g per m3 of liquid = mg/L)"),
+            SoluteProfileKind::Concentration,
+            k,
+        ));
+        out.push((
+            format!("flux_{n}"),
+            "g m-2 s-1",
+            format!("flux of {n} (advection, diffusion, dispersion), positive downward"),
+            SoluteProfileKind::Flux,
+            k,
+        ));
+        if matches!(s.surface, SoluteSurface::Deposition(_)) {
+            out.push((
+                format!("accumulation_age_{n}"),
+                "year",
+                format!(
+                    "accumulation age of {n}: mass stored from the surface to the cell centre divided by the mean deposition over the run (assumes a known, steady deposition)"
+                ),
+                SoluteProfileKind::Age,
+                k,
+            ));
+        }
+        if s.solubility.is_some() {
+            out.push((
+                format!("precipitate_{n}"),
+                "g m-3",
+                format!("{n} precipitated as a solid above its solubility (g per m3 of bulk soil)"),
+                SoluteProfileKind::Precipitate,
+                k,
+            ));
+        }
+    }
+    out
+}
+
+/// The solute series datasets: (name, units, long name), solute after solute in the
+/// order of [`crate::solute::SERIES_FIELDS`].
+fn solute_series_sets(solutes: &[crate::model::Solute]) -> Vec<(String, &'static str, String)> {
+    solutes
+        .iter()
+        .flat_map(|s| {
+            crate::solute::SERIES_FIELDS
+                .iter()
+                .map(move |(prefix, units, long)| {
+                    (
+                        format!("{prefix}_{}", s.name),
+                        *units,
+                        format!("{long} ({})", s.name),
+                    )
+                })
+        })
+        .collect()
+}
+
 pub struct ResultsFile {
     pub path: PathBuf,
     file: File,
@@ -81,6 +157,8 @@ pub struct ResultsFile {
     pending: Vec<SeriesRecord>,
     /// Water stored per layer of the queued rows, row after row.
     pending_layers: Vec<f64>,
+    /// Solute series values of the queued rows, row after row.
+    pending_solutes: Vec<f64>,
     /// The layer of each cell and the number of layers.
     pub cell_layer: Vec<usize>,
     pub layers: usize,
@@ -141,6 +219,9 @@ struct Sets {
     series: Vec<Dataset>,
     /// `/series/layer_water_storage` [records × layers].
     layer_storage: Dataset,
+    /// Solute profiles (with what each holds) and solute series.
+    solute_profiles: Vec<(Dataset, SoluteProfileKind, usize)>,
+    solute_series: Vec<Dataset>,
 }
 
 /// Strings as HDF5 variable-length UTF-8.
@@ -206,7 +287,11 @@ impl Sets {
     /// (netCDF-4 layout: `time`, `depth` and `face_depth` are dimension scales of their
     /// group, attached to every profile and series dataset); or, with `mesh` = `None`,
     /// opens them in an existing file.
-    fn get(file: &File, mesh: Option<(&[f64], &[f64], &[String])>) -> hdf5::Result<Sets> {
+    fn get(
+        file: &File,
+        mesh: Option<(&[f64], &[f64], &[String])>,
+        solutes: &[crate::model::Solute],
+    ) -> hdf5::Result<Sets> {
         let create = mesh.is_some();
         let group = |name: &str| {
             if create {
@@ -259,6 +344,26 @@ impl Sets {
                 .map(|(name, units, long)| one(&ser, name, units, long))
                 .collect::<hdf5::Result<_>>()?,
             layer_storage,
+            solute_profiles: solute_profile_sets(solutes)
+                .into_iter()
+                .map(|(name, units, long, kind, k)| {
+                    let width = if kind == SoluteProfileKind::Flux {
+                        cells + 1
+                    } else {
+                        cells
+                    };
+                    let ds = if create {
+                        growable_2d(&prof, &name, width, units, &long)?
+                    } else {
+                        prof.dataset(&name)?
+                    };
+                    Ok((ds, kind, k))
+                })
+                .collect::<hdf5::Result<_>>()?,
+            solute_series: solute_series_sets(solutes)
+                .iter()
+                .map(|(name, units, long)| one(&ser, name, units, long))
+                .collect::<hdf5::Result<_>>()?,
         };
         if let Some((centers, faces, layer_names)) = mesh {
             let depth = write_1d(&prof, "depth", centers, "m", "depth of the cell centres")?;
@@ -279,8 +384,17 @@ impl Sets {
                 attach_scale(ds, &sets.profile_time, 0)?;
                 attach_scale(ds, &face_depth, 1)?;
             }
-            for ds in &sets.series {
+            for ds in sets.series.iter().chain(&sets.solute_series) {
                 attach_scale(ds, &sets.series_time, 0)?;
+            }
+            for (ds, kind, _) in &sets.solute_profiles {
+                attach_scale(ds, &sets.profile_time, 0)?;
+                let z = if *kind == SoluteProfileKind::Flux {
+                    &face_depth
+                } else {
+                    &depth
+                };
+                attach_scale(ds, z, 1)?;
             }
             attr_str(
                 &sets.layer_storage,
@@ -301,7 +415,15 @@ impl Sets {
 
     /// The cell and face profile datasets, [snapshots × cells or faces].
     fn profiles(&self) -> impl Iterator<Item = &Dataset> {
-        self.cells.iter().chain(self.faces.iter())
+        self.cells
+            .iter()
+            .chain(self.faces.iter())
+            .chain(self.solute_profiles.iter().map(|(d, _, _)| d))
+    }
+
+    /// Every series dataset besides `/series/time` (one value per row).
+    fn all_series(&self) -> impl Iterator<Item = &Dataset> {
+        self.series.iter().chain(self.solute_series.iter())
     }
 
     /// Drops the rows after `snapshots` snapshots and `series_rows` series rows.
@@ -313,7 +435,7 @@ impl Sets {
         }
         truncate(&self.series_time, series_rows)?;
         truncate(&self.layer_storage, series_rows)?;
-        for d in &self.series {
+        for d in self.all_series() {
             truncate(d, series_rows)?;
         }
         Ok(())
@@ -394,6 +516,7 @@ impl ResultsFile {
         let sets = Sets::get(
             &file,
             Some((&model.mesh.centers, &model.mesh.faces, &layer_names)),
+            &model.solutes,
         )
         .map_err(&e)?;
         Ok(Self::writer(path, file, sets, cell_layer))
@@ -409,6 +532,7 @@ impl ResultsFile {
             cell_layer,
             pending: Vec::new(),
             pending_layers: Vec::new(),
+            pending_solutes: Vec::new(),
             snapshots: 0,
             records: 0,
             last_series_year: None,
@@ -429,6 +553,7 @@ impl ResultsFile {
     pub fn open_append(
         path: &Path,
         faces: &[f64],
+        solutes: &[crate::model::Solute],
         snapshots: usize,
         series_rows: usize,
         last_series_year: Option<f64>,
@@ -475,13 +600,23 @@ impl ResultsFile {
             .iter()
             .map(|f| format!("series/{}", f.0))
             .chain(["profiles/depth", "series/layer_water_storage"].map(String::from))
+            .chain(
+                solute_profile_sets(solutes)
+                    .into_iter()
+                    .map(|d| format!("profiles/{}", d.0)),
+            )
+            .chain(
+                solute_series_sets(solutes)
+                    .into_iter()
+                    .map(|d| format!("series/{}", d.0)),
+            )
             .find(|n| file.dataset(n).is_err());
         if let Some(n) = missing {
             return Err(damaged(format!(
                 "it was written by an earlier deepdry version and has no {n}"
             )));
         }
-        let sets = Sets::get(&file, None).map_err(h5err)?;
+        let sets = Sets::get(&file, None, solutes).map_err(h5err)?;
         let cell_layer: Vec<usize> = ds("mesh/layer")?
             .read_raw::<i32>()
             .map_err(h5err)?
@@ -500,7 +635,7 @@ impl ResultsFile {
         let short = sets
             .profiles()
             .map(|d| (d, snapshots, "snapshots"))
-            .chain(sets.series.iter().map(|d| (d, series_rows, "series rows")))
+            .chain(sets.all_series().map(|d| (d, series_rows, "series rows")))
             .chain(std::iter::once((
                 &sets.layer_storage,
                 series_rows,
@@ -552,15 +687,19 @@ impl ResultsFile {
     /// storage per layer (NaN).
     pub fn push_series(&mut self, rec: SeriesRecord) {
         let nan = vec![f64::NAN; self.layers];
-        self.push_series_layers(rec, &nan);
+        self.push_series_layers(rec, &nan, &[]);
     }
 
-    /// Queues one series row and the water stored in each layer [kg m⁻²] (as many
-    /// values as layers; missing ones are NaN).
-    pub fn push_series_layers(&mut self, rec: SeriesRecord, layer_water: &[f64]) {
+    /// Queues one series row, the water stored in each layer [kg m⁻²] (as many values
+    /// as layers; missing ones are NaN) and the solute series values (as
+    /// [`crate::solute::SoluteColumn::series_values`]; missing ones are NaN).
+    pub fn push_series_layers(&mut self, rec: SeriesRecord, layer_water: &[f64], solutes: &[f64]) {
         self.pending.push(rec);
         self.pending_layers
             .extend((0..self.layers).map(|k| layer_water.get(k).copied().unwrap_or(f64::NAN)));
+        let ns = self.sets.solute_series.len();
+        self.pending_solutes
+            .extend((0..ns).map(|k| solutes.get(k).copied().unwrap_or(f64::NAN)));
     }
 
     /// Writes a snapshot at `time_year`, then everything queued, then flushes the file.
@@ -578,6 +717,20 @@ impl ResultsFile {
             &p.heat,
         ];
         for (ds, v) in self.sets.faces.iter().zip(faces) {
+            append_row(ds, v).map_err(&e)?;
+        }
+        for (ds, kind, k) in &self.sets.solute_profiles {
+            let Some(sp) = p.solutes.get(*k) else {
+                return Err(Error::Internal(format!(
+                    "snapshot without the profiles of solute {k}"
+                )));
+            };
+            let v = match kind {
+                SoluteProfileKind::Concentration => &sp.concentration,
+                SoluteProfileKind::Flux => &sp.flux,
+                SoluteProfileKind::Age => &sp.accumulation_age,
+                SoluteProfileKind::Precipitate => &sp.precipitate,
+            };
             append_row(ds, v).map_err(&e)?;
         }
         self.snapshots += 1;
@@ -601,6 +754,12 @@ impl ResultsFile {
             )
             .map_err(|x| Error::Internal(x.to_string()))?;
             super::h5util::append_rows(&self.sets.layer_storage, &rows).map_err(&e)?;
+            let ns = self.sets.solute_series.len();
+            let values = std::mem::take(&mut self.pending_solutes);
+            for (k, ds) in self.sets.solute_series.iter().enumerate() {
+                let col: Vec<f64> = values.iter().skip(k).step_by(ns).copied().collect();
+                append_1d(ds, &col).map_err(&e)?;
+            }
             self.records += self.pending.len();
             self.last_series_year = self.pending.last().map(|r| r.time_year);
             self.pending.clear();

@@ -34,7 +34,7 @@ pub fn run_in_memory(model: &Model, solver: SolverKind) -> Result<(Recorder, Fin
         dt: model.time.dt_initial,
         u,
     };
-    let mut sim = Simulation::new(model, plan, begin, OutputPosition::default(), solver);
+    let mut sim = Simulation::new(model, plan, begin, OutputPosition::default(), solver, None)?;
     let mut recorder = Recorder::default();
     let mut obs: [&mut dyn Observer; 1] = [&mut recorder];
     sim.start(&mut obs, true)?;

@@ -66,7 +66,8 @@ impl Observer for ResultsWriter {
             &self.file.cell_layer,
             self.file.layers,
         );
-        self.file.push_series_layers(*record, &layers);
+        let solutes = sim.solutes().map(|c| c.series_values()).unwrap_or_default();
+        self.file.push_series_layers(*record, &layers, &solutes);
         Ok(())
     }
     fn snapshot(&mut self, sim: &Simulation, time_year: f64, profile: &Profile) -> Result<()> {
@@ -147,6 +148,7 @@ impl Checkpointer {
             position,
             &self.results,
             &info,
+            sim.solutes().map(|c| &c.state),
         )
     }
 }
@@ -246,11 +248,16 @@ pub struct Snapshot {
 pub struct Recorder {
     pub series: Vec<SeriesRecord>,
     pub snapshots: Vec<Snapshot>,
+    /// Per series record, the solute series values (see
+    /// [`crate::solute::SERIES_FIELDS`]; empty without solutes).
+    pub solute_series: Vec<Vec<f64>>,
 }
 
 impl Observer for Recorder {
-    fn series(&mut self, _sim: &Simulation, record: &SeriesRecord) -> Result<()> {
+    fn series(&mut self, sim: &Simulation, record: &SeriesRecord) -> Result<()> {
         self.series.push(*record);
+        self.solute_series
+            .push(sim.solutes().map(|c| c.series_values()).unwrap_or_default());
         Ok(())
     }
     fn snapshot(&mut self, _sim: &Simulation, time_year: f64, profile: &Profile) -> Result<()> {

@@ -14,6 +14,7 @@ use crate::model::Model;
 use crate::output::diagnostics::{drying_front_depth, Profile, SeriesRecord};
 use crate::physics::{column_balance, ColumnStepper as Stepper, System};
 use crate::props::constants::SECONDS_PER_YEAR;
+use crate::solute::{SoluteColumn, SoluteState};
 use crate::solve::linear::{make_solver, SolverKind};
 use crate::solve::newton::NewtonFailure;
 use crate::solve::stepper::{Counters, StepFailure, StepInfo, StepOptions, StepState};
@@ -224,33 +225,64 @@ pub struct Simulation<'m> {
     output: OutputPosition,
     /// Reused buffers for the snapshots.
     profile: Profile,
+    /// The solutes carried along with each step (None when the case has none).
+    solutes: Option<SoluteColumn>,
 }
 
 impl<'m> Simulation<'m> {
     /// A simulation of `model` from `begin`, with the outputs at `output` (the default for
-    /// a new run), solving linear systems with `solver`.
+    /// a new run), solving linear systems with `solver`. The solutes (if any) start from
+    /// `solutes` when given (a resumed run continues that state; a branch, `Begin::Unknowns`,
+    /// starts from its masses), else from the case's initial solute profiles.
     pub fn new(
         model: &'m Model,
         plan: SyncPlan,
         begin: Begin,
         output: OutputPosition,
         solver: SolverKind,
-    ) -> Simulation<'m> {
+        solutes: Option<SoluteState>,
+    ) -> Result<Simulation<'m>> {
         let mut sys = System::new(model);
+        let fresh = matches!(begin, Begin::Unknowns { .. });
         let state = match begin {
             Begin::Unknowns { t, dt, u } => Stepper::initial_state(&mut sys, t, dt, u),
             Begin::State(state) => *state,
         };
         let lin = make_solver(solver, sys.n);
         let st = Stepper::new(&mut sys, state, step_options(model), lin);
-        Simulation {
+        let solutes = if model.solutes.is_empty() {
+            None
+        } else {
+            let mut column = SoluteColumn::new(model);
+            // The flow at the start state, evaluated directly (the stepper's next step
+            // evaluates it afresh, so this changes nothing it computes).
+            let (t, u) = (st.state.t, st.state.u.clone());
+            sys.evaluate_direct(t, &u);
+            match solutes {
+                Some(state) => column.set_state(state, &mut sys, t, &u, fresh)?,
+                None if fresh => column.start(model, &mut sys, t, &u)?,
+                None => {
+                    return Err(Error::input(
+                        "the checkpoint carries no solute state, but the case has [[solutes]]; branch from it with --start-from instead".to_string(),
+                    ))
+                }
+            }
+            Some(column)
+        };
+        Ok(Simulation {
             model,
             sys,
             st,
             plan,
             output,
             profile: Profile::default(),
-        }
+            solutes,
+        })
+    }
+
+    /// The solute transport (None when the case has no solutes).
+    pub fn solutes(&self) -> Option<&SoluteColumn> {
+        self.solutes.as_ref()
     }
 
     pub fn model(&self) -> &'m Model {
@@ -277,6 +309,7 @@ impl<'m> Simulation<'m> {
         if initial_output {
             self.sys.evaluate_direct(self.st.state.t, &self.st.state.u);
             self.profile.fill(&self.sys);
+            self.fill_solute_profiles();
             let rec = series_record(&self.sys, &self.st, 0.0, 0);
             self.emit_series(obs, rec)?;
             self.emit_snapshot(obs)?;
@@ -316,6 +349,9 @@ impl<'m> Simulation<'m> {
                 Ok(info) => info,
                 Err(f) => return Err(self.fail(&f, obs)),
             };
+            if let Some(column) = self.solutes.as_mut() {
+                column.advance(&mut self.sys, &self.st.state, &info)?;
+            }
             self.output.since_series += 1;
             let landed = self.st.state.t == t_sync;
             if landed && is_member(&self.plan.jumps, t_sync) {
@@ -334,6 +370,7 @@ impl<'m> Simulation<'m> {
                 // whatever the solver kept (a branch from this state shows the same).
                 self.sys.evaluate_direct(self.st.state.t, &self.st.state.u);
                 self.profile.fill(&self.sys);
+                self.fill_solute_profiles();
                 self.emit_snapshot(obs)?;
             }
             let mut checkpoint = landed && is_member(&self.plan.checkpoints, t_sync);
@@ -436,6 +473,17 @@ impl<'m> Simulation<'m> {
             o.series(self, &rec)?;
         }
         Ok(())
+    }
+
+    /// The solute profiles of the state into `self.profile` (the flow evaluated directly
+    /// at the state in `self.sys`).
+    fn fill_solute_profiles(&mut self) {
+        match self.solutes.as_mut() {
+            Some(column) => {
+                column.profiles(&mut self.sys, &self.st.state.u, &mut self.profile.solutes)
+            }
+            None => self.profile.solutes.clear(),
+        }
     }
 
     /// Gives the observers the profiles in `self.profile`, at the current time.

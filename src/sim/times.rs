@@ -56,6 +56,13 @@ pub fn forcing_times(model: &Model) -> Vec<f64> {
             add_schedule(s, &mut ts);
         }
     }
+    for solute in &model.solutes {
+        match &solute.surface {
+            crate::model::SoluteSurface::Deposition(s) | crate::model::SoluteSurface::Inflow(s) => {
+                add_schedule(s, &mut ts)
+            }
+        }
+    }
     clean_times(model, ts)
 }
 

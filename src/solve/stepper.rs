@@ -83,7 +83,12 @@ pub struct StepFailure {
 pub struct StepInfo {
     pub dt: f64,
     pub newton_iterations: usize,
+    /// Order k of the step's formula and its derivative weights: the storages M at the
+    /// new time satisfy `dM/dt ≈ Σ_{j=0..=k} alpha[j] M_{n+1−j}` (node 0 the new time,
+    /// node 1 the previous state, nodes 2.. the history, newest first). Quantities carried
+    /// along with the step (solutes) use the same formula.
     pub order: usize,
+    pub alpha: [f64; 7],
 }
 
 /// An earlier accepted point kept for the multistep formula.
@@ -812,6 +817,7 @@ impl<const B: usize> Stepper<B> {
                 dt,
                 newton_iterations: stats.iterations,
                 order: a.k,
+                alpha: a.alpha,
             });
         }
     }

@@ -73,6 +73,7 @@ pub fn column(
     let n = mesh.n_cells();
     let depth = mesh.depth();
     Model {
+        solutes: Vec::new(),
         title: "test column".into(),
         case_text: String::new(),
         overrides: Vec::new(),

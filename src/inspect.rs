@@ -61,6 +61,24 @@ pub fn summary(path: &Path) -> Result<String> {
             let _ = writeln!(out, "branch of: {p} at {t:e} yr");
         }
         let _ = writeln!(out, "physics hash: {}", ck.physics_hash);
+        if let Some(sol) = &ck.solutes {
+            let widths: Vec<f64> = ck.faces.windows(2).map(|w| w[1] - w[0]).collect();
+            let n = widths.len();
+            for (k, name) in sol.names.iter().enumerate() {
+                let Some(mass) = sol.now.mass.get(k * n..(k + 1) * n) else {
+                    continue;
+                };
+                let stored: f64 = mass.iter().zip(&widths).map(|(m, w)| m * w).sum();
+                let cum = &sol.now.cumulative[3 * k..3 * k + 3];
+                let _ = writeln!(
+                    out,
+                    "solute {name}: stored {} g m-2, in at the surface {} g m-2, out at the bottom {} g m-2 since the run's start",
+                    human(stored, 4),
+                    human(cum[0], 4),
+                    human(cum[1], 4)
+                );
+            }
+        }
         return Ok(out);
     }
     let e = |err: hdf5::Error| crate::output::h5util::io_error(path, err);
@@ -106,6 +124,27 @@ pub fn summary(path: &Path) -> Result<String> {
         }
     }
     let _ = writeln!(out, "snapshots: {}", times.len());
+    // Solutes: the last series row of each (datasets `<field>_<name>`).
+    let mut names: Vec<String> = file
+        .group("series")
+        .and_then(|g| g.member_names())
+        .unwrap_or_default()
+        .into_iter()
+        .filter_map(|n| n.strip_prefix("storage_").map(str::to_string))
+        .collect();
+    names.sort();
+    let last = |n: &str| read(n).last().copied().unwrap_or(f64::NAN);
+    let solutes: Vec<(String, Vec<f64>)> = names
+        .into_iter()
+        .map(|name| {
+            let v = crate::solute::SERIES_FIELDS
+                .iter()
+                .map(|(prefix, _, _)| last(&format!("series/{prefix}_{name}")))
+                .collect();
+            (name, v)
+        })
+        .collect();
+    out.push_str(&crate::run::solute_lines(&solutes));
     let wb = read("series/water_balance_relative_error");
     let eb = read("series/energy_balance_relative_error");
     if let (Some(w), Some(en)) = (wb.last(), eb.last()) {

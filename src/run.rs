@@ -68,6 +68,38 @@ pub struct RunSummary {
     pub final_state: StepState,
     /// The overrides applied to the case (`KEY=VALUE`; empty when none).
     pub overrides: Vec<String>,
+    /// Per solute: its name and its final series values (as
+    /// [`crate::solute::SoluteColumn::series_values`]).
+    pub solutes: Vec<(String, Vec<f64>)>,
+}
+
+/// The summary lines of the solutes: totals, balance, bulge and recharge estimate.
+pub fn solute_lines(solutes: &[(String, Vec<f64>)]) -> String {
+    use crate::output::human;
+    let mut out = String::new();
+    for (name, v) in solutes {
+        if v.len() < crate::solute::SERIES_PER_SOLUTE {
+            continue;
+        }
+        out.push_str(&format!(
+            "{name}: stored {} g m-2, in at the surface {} g m-2, out at the bottom {} g m-2; balance error {} g m-2 (relative {}); peak {} g m-3 at {} m",
+            human(v[0], 4),
+            human(v[1], 4),
+            human(v[2], 4),
+            human(v[3], 3),
+            human(v[4], 3),
+            human(v[6], 4),
+            human(v[5], 4),
+        ));
+        if v[7].is_finite() {
+            out.push_str(&format!(
+                "; chloride mass-balance recharge estimate {} mm/yr",
+                human(v[7], 3)
+            ));
+        }
+        out.push('\n');
+    }
+    out
 }
 
 impl RunSummary {
@@ -80,7 +112,7 @@ impl RunSummary {
              steps {} (rejected {}), Newton iterations {}, Jacobian evaluations {}, factorisations {}\n\
              water balance error {} kg m-2 (relative {}); energy balance error {} J m-2 (relative {})\n\
              water flux at the surface {} mm/yr, at the bottom {} mm/yr (positive downward)\n\
-             results: {}\n{}",
+             {}results: {}\n{}",
             years(self.start),
             years(self.end),
             self.wall_seconds,
@@ -95,6 +127,7 @@ impl RunSummary {
             human(self.balance_rel[0], 3),
             human(self.surface_flux_mm_yr, 4),
             human(self.bottom_flux_mm_yr, 4),
+            solute_lines(&self.solutes),
             self.results.display(),
             if self.overrides.is_empty() {
                 String::new()
@@ -425,6 +458,34 @@ fn check_final_balance(
     Ok(())
 }
 
+/// The final check of [`check_final_balance`] for every solute: relative error above
+/// [`BALANCE_LIMIT`] with an absolute error above [`BALANCE_FLOOR`] of the stored mass.
+fn check_solute_balance(
+    model: &Model,
+    t: f64,
+    column: &crate::solute::SoluteColumn,
+    checkpoint: Option<&Path>,
+) -> Result<()> {
+    let v = column.series_values();
+    let per = crate::solute::SERIES_PER_SOLUTE;
+    for (k, name) in column.state.names.iter().enumerate() {
+        let (storage, abs, rel) = (v[k * per], v[k * per + 3], v[k * per + 4]);
+        let bad = !abs.is_finite()
+            || !rel.is_finite()
+            || (rel > BALANCE_LIMIT && abs.abs() > BALANCE_FLOOR * storage.abs());
+        if bad {
+            return Err(Error::Numerical(format!(
+                "balance check failed at year {:.6e}: the cumulative relative balance error of solute `{name}` {rel:.3e} ({abs:.3e} g m-2) exceeds {BALANCE_LIMIT:e} (docs/limits.md); results and the final checkpoint{} are kept",
+                model.time.year(t),
+                checkpoint
+                    .map(|p| format!(" {}", p.display()))
+                    .unwrap_or_default()
+            )));
+        }
+    }
+    Ok(())
+}
+
 /// Runs `model` (from its initial state, or as `opts.start` says) to its end time.
 pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
     let wall = Instant::now();
@@ -500,6 +561,9 @@ pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
         &end.balance_rel,
         checkpoints.last(),
     )?;
+    if let Some(column) = sim.solutes() {
+        check_solute_balance(model, sim.state().t, column, checkpoints.last())?;
+    }
     Ok(RunSummary {
         results: results_path,
         start: model.time.year(begin_t),
@@ -512,5 +576,20 @@ pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
         bottom_flux_mm_yr: mm_per_year(end.bottom_water_flux),
         final_state: sim.state().clone(),
         overrides: model.overrides.clone(),
+        solutes: sim
+            .solutes()
+            .map(|c| {
+                let v = c.series_values();
+                c.state
+                    .names
+                    .iter()
+                    .enumerate()
+                    .map(|(k, n)| {
+                        let per = crate::solute::SERIES_PER_SOLUTE;
+                        (n.clone(), v[k * per..(k + 1) * per].to_vec())
+                    })
+                    .collect()
+            })
+            .unwrap_or_default(),
     })
 }

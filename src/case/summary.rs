@@ -318,5 +318,66 @@ pub fn summary(m: &Model) -> String {
         when.join(", "),
         c.keep
     );
+    solutes(o, m);
     out
+}
+
+/// The solutes: input, bottom, initial state, and what the mesh does to advection (the
+/// numerical dispersion of upwinding, about Δz/2, against the dispersivity: the cell
+/// Péclet number Δz/αL of dispersion-dominated flow; with αL = 0 molecular diffusion alone
+/// limits it, and it depends on the flow).
+fn solutes(o: &mut String, m: &Model) {
+    use crate::case::schedules::{CONCENTRATION, DEPOSITION};
+    use crate::model::{SoluteBottom, SoluteInitial, SoluteSurface};
+    if m.solutes.is_empty() {
+        return;
+    }
+    let dz_max = m.mesh.widths.iter().cloned().fold(0.0, f64::max);
+    let dz_min = m.mesh.widths.iter().cloned().fold(f64::INFINITY, f64::min);
+    let _ = writeln!(o, "Solutes:");
+    for s in &m.solutes {
+        let input = match &s.surface {
+            SoluteSurface::Deposition(d) => format!("deposition {}", sched(d, &DEPOSITION)),
+            SoluteSurface::Inflow(c) => {
+                format!("in infiltrating water at {}", sched(c, &CONCENTRATION))
+            }
+        };
+        let bottom = match s.bottom {
+            SoluteBottom::Concentration(c) => format!("groundwater at {} g/m³", fmt_g(c)),
+            SoluteBottom::ZeroGradient => "zero gradient".to_string(),
+        };
+        let initial = match &s.initial {
+            SoluteInitial::Constant(c) => format!("{} g/m³", fmt_g(*c)),
+            SoluteInitial::Profile { depth, .. } => format!("CSV profile of {} rows", depth.len()),
+            SoluteInitial::Steady => "steady under the initial flow".to_string(),
+        };
+        let peclet = if s.dispersivity > 0.0 {
+            format!(
+                "cell Péclet number Δz/αL {} to {}",
+                fmt_g(dz_min / s.dispersivity),
+                fmt_g(dz_max / s.dispersivity)
+            )
+        } else {
+            "no dispersivity: the cell Péclet number is q Δz/(θ Dm), set by the flow".to_string()
+        };
+        let _ = writeln!(
+            o,
+            "  {}: D0 {} m²/s at 25 °C, dispersivity {} m; {input}; bottom {bottom}; initial {initial}{}{}",
+            s.name,
+            fmt_g(s.free_diffusivity),
+            fmt_g(s.dispersivity),
+            s.solubility
+                .map(|c| format!("; solubility {} g/m³", fmt_g(c)))
+                .unwrap_or_default(),
+            s.recharge_depth
+                .map(|z| format!("; recharge estimate at {} m", fmt_g(z)))
+                .unwrap_or_default(),
+        );
+        let _ = writeln!(
+            o,
+            "    upwind advection adds a numerical dispersivity of about Δz/2 = {} to {} m; {peclet}",
+            fmt_g(dz_min / 2.0),
+            fmt_g(dz_max / 2.0),
+        );
+    }
 }

@@ -420,9 +420,13 @@ impl SoluteColumn {
         if j == 0 {
             // Surface: deposition enters whatever the water does; an inflow concentration
             // enters with infiltrating water only. Nothing leaves through the surface.
+            // The input of a step ending at `t` is the schedule's value just before `t`
+            // (its left limit): a step landing on a jump of a stepped schedule takes the
+            // value that held over the step, so stepped deposition is integrated exactly.
+            let before = t.next_down();
             return match &s.surface {
-                SoluteSurface::Deposition(d) => (0.0, 0.0, d.value(t).max(0.0)),
-                SoluteSurface::Inflow(c) => (0.0, 0.0, qp * c.value(t).max(0.0)),
+                SoluteSurface::Deposition(d) => (0.0, 0.0, d.value(before).max(0.0)),
+                SoluteSurface::Inflow(c) => (0.0, 0.0, qp * c.value(before).max(0.0)),
             };
         }
         let e = self.conductance(s, j);

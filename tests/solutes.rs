@@ -270,3 +270,52 @@ fn bad_solute_tables_are_refused_in_one_line() {
     let o = run_deepdry(&case, &dir.join("out"), &[]);
     assert_one_line_error(&o, 2, &["initial_steady", "no steady profile"]);
 }
+
+/// `compare` reads solute concentrations (`concentration_<name>` observations): an
+/// observation equal to the model's value at a cell centre has zero residual, one
+/// 20 g/m³ above it a residual of 20, so the bias (model − observed, averaged) is exactly
+/// −10; an unknown solute is refused naming the run's.
+#[test]
+fn compare_reads_solute_concentrations() {
+    let dir = Scratch::new("solute-compare");
+    let case = dir.write("case.toml", &small_with(CHLORIDE, "bdf"));
+    let a = dir.join("a");
+    run_ok(&case, &a, &[]);
+    let results = a.join("results.h5");
+    let sets = datasets(&results).unwrap();
+    let depth = sets["profiles/depth"].floats();
+    let times = sets["profiles/time"].floats();
+    let conc = sets["profiles/concentration_chloride"].floats();
+    let n = depth.len();
+    let k = times.len() - 1;
+    let (z, c) = (depth[5], conc[k * n + 5]);
+    let obs = dir.write(
+        "obs.csv",
+        &format!(
+            "time_year,depth_m,quantity,value,sigma\n{t},{z},concentration_chloride,{c},1.0\n{t},{z},concentration_chloride,{},1.0\n",
+            c + 20.0,
+            t = times[k]
+        ),
+    );
+    let out = dir.join("cmp");
+    let o = deepdry(&["compare", arg(&results), arg(&obs), "--out", arg(&out)]);
+    assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
+    let summary = std::fs::read_to_string(out.join("compare-summary.csv")).unwrap();
+    let row = summary
+        .lines()
+        .find(|l| l.starts_with("concentration_chloride,"))
+        .unwrap_or_else(|| panic!("no chloride row: {summary}"));
+    let cols: Vec<&str> = row.split(',').collect();
+    assert_eq!(cols[2], "2", "{row}");
+    let bias: f64 = cols[3].parse().unwrap();
+    assert!((bias + 10.0).abs() < 1e-9, "{row}");
+    let bad = dir.write(
+        "bad.csv",
+        &format!(
+            "time_year,depth_m,quantity,value,sigma\n{},{z},concentration_nitrate,1,1\n",
+            times[k]
+        ),
+    );
+    let o = deepdry(&["compare", arg(&results), arg(&bad), "--out", arg(&out)]);
+    assert_one_line_error(&o, 2, &["concentration_nitrate", "its solutes: chloride"]);
+}

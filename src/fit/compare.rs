@@ -88,7 +88,13 @@ fn model_profile(res: &Results, q: &Quantity, k: usize) -> Option<Vec<f64>> {
             .iter()
             .map(|h| (-h).max(SUCTION_FLOOR).log10())
             .collect(),
-        Quantity::Concentration(_) => return None,
+        Quantity::Concentration(name) => res
+            .solutes
+            .iter()
+            .find(|s| &s.name == name)?
+            .concentration
+            .get(k)?
+            .clone(),
     })
 }
 
@@ -119,10 +125,19 @@ pub fn match_observations(res: &Results, obs: &Observations) -> Result<Vec<Match
         }
         let prof = model_profile(res, &o.quantity, k).ok_or_else(|| {
             Error::input(format!(
-                "{file}:{}: quantity = {}: {} has no such profile (this run has no solutes)",
+                "{file}:{}: quantity = {}: {} has no such profile (its solutes: {})",
                 o.line,
                 o.quantity.name(),
-                res.path.display()
+                res.path.display(),
+                if res.solutes.is_empty() {
+                    "none".to_string()
+                } else {
+                    res.solutes
+                        .iter()
+                        .map(|s| s.name.as_str())
+                        .collect::<Vec<_>>()
+                        .join(", ")
+                }
             ))
         })?;
         out.push(Matched {

@@ -178,6 +178,37 @@ pub fn results_of(model: &Model, rec: &Recorder) -> Results {
         p.relative_humidity
             .push(s.profile.relative_humidity.clone());
     }
+    let solutes = model
+        .solutes
+        .iter()
+        .enumerate()
+        .map(|(k, sol)| crate::plot::data::SoluteProfiles {
+            name: sol.name.clone(),
+            concentration: rec
+                .snapshots
+                .iter()
+                .map(|s| {
+                    s.profile
+                        .solutes
+                        .get(k)
+                        .map(|p| p.concentration.clone())
+                        .unwrap_or_default()
+                })
+                .collect(),
+            accumulation_age: Some(
+                rec.snapshots
+                    .iter()
+                    .map(|s| {
+                        s.profile
+                            .solutes
+                            .get(k)
+                            .map(|p| p.accumulation_age.clone())
+                            .unwrap_or_default()
+                    })
+                    .collect(),
+            ),
+        })
+        .collect();
     Results {
         path: PathBuf::from("(in memory)"),
         title: model.title.clone(),
@@ -185,6 +216,7 @@ pub fn results_of(model: &Model, rec: &Recorder) -> Results {
         face_depth: model.mesh.faces.clone(),
         profiles: p,
         series: Default::default(),
+        solutes,
     }
 }
 

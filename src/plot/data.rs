@@ -54,6 +54,18 @@ pub struct Results {
     pub face_depth: Vec<f64>,
     pub profiles: Profiles,
     pub series: Series,
+    /// The solutes' profiles (empty when the run has none).
+    pub solutes: Vec<SoluteProfiles>,
+}
+
+/// One solute's profiles, [snapshots][cells].
+#[derive(Debug, Clone, Default)]
+pub struct SoluteProfiles {
+    pub name: String,
+    /// Concentration in the liquid [g m-3].
+    pub concentration: Vec<Vec<f64>>,
+    /// Accumulation age [year] (None without deposition).
+    pub accumulation_age: Option<Vec<Vec<f64>>>,
 }
 
 fn not_results(path: &Path, why: impl std::fmt::Display) -> Error {
@@ -200,6 +212,29 @@ pub fn read(path: &Path) -> Result<Results> {
         drying_front_depth: ser("drying_front_depth")?,
         time: stime,
     };
+    // Solutes: every `profiles/concentration_<name>`.
+    let mut names: Vec<String> = file
+        .group("profiles")
+        .and_then(|g| g.member_names())
+        .unwrap_or_default()
+        .into_iter()
+        .filter_map(|n| n.strip_prefix("concentration_").map(str::to_string))
+        .collect();
+    names.sort();
+    let mut solutes = Vec::new();
+    for name in names {
+        let age_name = format!("accumulation_age_{name}");
+        let accumulation_age = if file.dataset(&format!("profiles/{age_name}")).is_ok() {
+            Some(cell(&age_name)?)
+        } else {
+            None
+        };
+        solutes.push(SoluteProfiles {
+            concentration: cell(&format!("concentration_{name}"))?,
+            accumulation_age,
+            name,
+        });
+    }
     Ok(Results {
         path: path.to_path_buf(),
         title,
@@ -207,5 +242,6 @@ pub fn read(path: &Path) -> Result<Results> {
         face_depth,
         profiles,
         series,
+        solutes,
     })
 }

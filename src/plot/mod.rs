@@ -11,6 +11,7 @@
 pub mod chart;
 pub mod data;
 pub mod scale;
+pub mod solutes;
 pub mod times;
 
 use crate::error::{Error, Result};
@@ -62,6 +63,7 @@ pub fn plot_results(path: &Path, opts: &PlotOptions) -> Result<Vec<PathBuf>> {
     }
     let out = out_folder(path, opts.out.as_deref())?;
     let mut figures = profile_figures(&res, &snaps);
+    figures.extend(solutes::solute_figures(&res, &snaps));
     figures.extend(series_figures(&res, opts.log_time));
     chart::register_fonts();
     let mut written = Vec::new();
@@ -131,7 +133,7 @@ pub fn format_years(t: f64) -> String {
     }
 }
 
-fn title_of(res: &Results) -> String {
+pub(crate) fn title_of(res: &Results) -> String {
     if res.title.trim().is_empty() {
         res.path
             .file_stem()
@@ -165,7 +167,7 @@ pub(crate) fn axis_for(scale: Scale, values: impl IntoIterator<Item = f64>) -> A
     Axis::new(scale, lo, hi)
 }
 
-fn times_text(res: &Results, snaps: &[usize]) -> String {
+pub(crate) fn times_text(res: &Results, snaps: &[usize]) -> String {
     let t: Vec<f64> = snaps.iter().map(|&i| res.profiles.time[i]).collect();
     match t.len() {
         1 => format!("at t = {} yr", format_years(t[0])),
@@ -177,7 +179,7 @@ fn times_text(res: &Results, snaps: &[usize]) -> String {
     }
 }
 
-fn time_lines(
+pub(crate) fn time_lines(
     res: &Results,
     snaps: &[usize],
     depth: &[f64],
@@ -202,7 +204,7 @@ fn time_lines(
         .collect()
 }
 
-fn values<'a>(lines: &'a [Line]) -> impl Iterator<Item = f64> + 'a {
+pub(crate) fn values<'a>(lines: &'a [Line]) -> impl Iterator<Item = f64> + 'a {
     lines.iter().flat_map(|l| l.points.iter().map(|p| p.0))
 }
 

@@ -1,0 +1,77 @@
+//! Solute profiles: the concentration in the liquid (log scale: a bulge spans decades)
+//! and, for solutes with a deposition, the accumulation age, one line per snapshot.
+
+use super::chart::{Figure, Panel};
+use super::data::Results;
+use super::scale::{self, Scale};
+use super::{axis_for, depth_axis, time_lines, times_text, title_of, values};
+
+/// Smallest concentration drawn on the log axis [g m-3]; lower values (and 0) are drawn
+/// at it.
+pub const CONCENTRATION_FLOOR: f64 = 1e-3;
+
+/// The solute figures (name, figure): `profiles-concentration-<name>` and, with a
+/// deposition, `profiles-accumulation-age-<name>`.
+pub fn solute_figures(res: &Results, snaps: &[usize]) -> Vec<(String, Figure)> {
+    let title = title_of(res);
+    let when = times_text(res, snaps);
+    let depth = depth_axis(res);
+    let single = |what: String, x, x_label: String, lines| Figure {
+        title: title.clone(),
+        subtitle: format!("{what} {when}"),
+        panels: vec![Panel {
+            heading: String::new(),
+            x,
+            y: depth,
+            x_label,
+            y_label: "depth [m]".into(),
+            lines,
+            x_zero: false,
+            y_zero: false,
+        }],
+        columns: 1,
+        size: (1000, 760),
+        legend_heading: "snapshot".into(),
+    };
+    let mut figs = Vec::new();
+    for s in &res.solutes {
+        let lines = time_lines(res, snaps, &res.depth, &s.concentration, |c| {
+            if c.is_finite() {
+                c.max(CONCENTRATION_FLOOR)
+            } else {
+                c
+            }
+        });
+        let x = axis_for(Scale::Log, values(&lines));
+        figs.push((
+            format!("profiles-concentration-{}", s.name),
+            single(
+                format!("{} concentration profiles", s.name),
+                x,
+                format!(
+                    "{} in the liquid [g m⁻³ = mg L⁻¹], log scale (below {} drawn at it)",
+                    s.name,
+                    scale::format_real(CONCENTRATION_FLOOR)
+                ),
+                lines,
+            ),
+        ));
+        if let Some(age) = &s.accumulation_age {
+            let lines = time_lines(res, snaps, &res.depth, age, |a| a);
+            let x = axis_for(Scale::Linear, values(&lines));
+            figs.push((
+                format!("profiles-accumulation-age-{}", s.name),
+                single(
+                    format!(
+                        "{} accumulation age (mass stored above ÷ mean deposition)",
+                        s.name
+                    ),
+                    x,
+                    "accumulation age [yr] (assumes a known, steady deposition)".into(),
+                    lines,
+                ),
+            ));
+        }
+    }
+    figs
+}

@@ -595,7 +595,19 @@ fn write_solutes(file: &File, sol: &SoluteState) -> hdf5::Result<()> {
         &ds,
         "g m-3",
         "solute mass per bulk volume at the start of the run",
-    )
+    )?;
+    if !sol.osmotic_head.is_empty() {
+        let ds = file
+            .new_dataset_builder()
+            .with_data(&Array1::from_vec(sol.osmotic_head.clone()))
+            .create("solute_osmotic_head")?;
+        describe(
+            &ds,
+            "m",
+            "osmotic head of the pore water in each cell at the state (the first guess of the next step's coupling)",
+        )?;
+    }
+    Ok(())
 }
 
 /// The solute state of a checkpoint (None when it has none).
@@ -640,11 +652,16 @@ fn read_solutes(file: &File) -> std::result::Result<Option<SoluteState>, &'stati
         cumulative: cum.row(k).to_vec(),
     });
     let now = points.next().ok_or("solute state")?;
+    let osmotic_head = match file.dataset("solute_osmotic_head") {
+        Ok(d) => d.read_raw::<f64>().map_err(|_| "solute_osmotic_head")?,
+        Err(_) => Vec::new(),
+    };
     Ok(Some(SoluteState {
         names,
         now,
         initial_mass,
         history: points.collect(),
+        osmotic_head,
     }))
 }
 

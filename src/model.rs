@@ -363,4 +363,17 @@ pub struct Solute {
     pub solubility: Option<f64>,
     /// Depth [m] at which the chloride mass-balance recharge estimate Fd/c is reported.
     pub recharge_depth: Option<f64>,
+    /// Osmotic effect on the vapour (None: off).
+    pub osmotic: Option<Osmotic>,
+}
+
+/// The osmotic potential of a solute by van 't Hoff: π = i (c/M) R T.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Osmotic {
+    /// Dissolved particles per formula unit counted in `molar_mass` (NaCl counted as
+    /// chloride: 2).
+    pub ions: f64,
+    /// Molar mass of the solute as its concentration counts it [g mol⁻¹] (chloride:
+    /// 35.45).
+    pub molar_mass: f64,
 }

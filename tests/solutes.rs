@@ -319,3 +319,66 @@ fn compare_reads_solute_concentrations() {
     let o = deepdry(&["compare", arg(&results), arg(&bad), "--out", arg(&out)]);
     assert_one_line_error(&o, 2, &["concentration_nitrate", "its solutes: chloride"]);
 }
+
+/// The osmotic effect: the relative humidity of the pore air is the Kelvin value of the
+/// matric head times exp(−Mw i (c/M)/ρw) (van 't Hoff's π = i (c/M) R T as a head
+/// −π/(ρw g) added to h in the Kelvin equation: derived, exact in the model up to the
+/// coupling tolerance of 1 mm of head, 7e-9 relative); with it the salty column loses
+/// less water than without; and a resumed osmotic run is bitwise the uninterrupted one.
+#[test]
+fn osmotic_potential_lowers_the_humidity_and_the_loss() {
+    let salty = r#"
+[[solutes]]
+name = "chloride"
+free_diffusivity_m2_per_s = 2.03e-9
+deposition_g_per_m2_per_year = 0.5
+initial_concentration_g_per_m3 = 30000.0
+bottom_concentration_g_per_m3 = 30000.0
+solubility_g_per_m3 = 2.16e5
+osmotic_ions = 2
+molar_mass_g_per_mol = 35.45
+"#;
+    let small = Small {
+        end_year: 4.0,
+        checkpoint_every: 1.0,
+        snapshot_every: 1.0,
+        ..Small::default()
+    };
+    let text = format!("{}{salty}", small.text());
+    let parse = |t: &str| {
+        deepdry::case::parse_with_overrides(t, "case.toml", std::path::Path::new("."), &[]).unwrap()
+    };
+    let (on, fin_on) = deepdry::sim::run_in_memory(&parse(&text), SolverKind::BlockThomas).unwrap();
+    let off_text = text.replace("osmotic_ions = 2", "osmotic_ions = 0");
+    let (_, fin_off) =
+        deepdry::sim::run_in_memory(&parse(&off_text), SolverKind::BlockThomas).unwrap();
+    // Less evaporation with the osmotic effect (fluxes are negative: upward).
+    assert!(
+        fin_on.surface_water_flux > fin_off.surface_water_flux,
+        "surface flux with {:e}, without {:e}",
+        fin_on.surface_water_flux,
+        fin_off.surface_water_flux
+    );
+    // The humidity of every cell at every snapshot.
+    let (g, mw, r) = (9.80665, 0.018_015_268, 8.314_462_618);
+    let mut worst: f64 = 0.0;
+    for s in &on.snapshots {
+        let p = &s.profile;
+        let c = &p.solutes[0].concentration;
+        for (i, &ci) in c.iter().enumerate() {
+            let t = p.temperature_c[i] + 273.15;
+            let kelvin = (g * mw * p.head[i].min(0.0) / (r * t)).exp();
+            let expected = kelvin * (-mw * 2.0 * ci / 35.45 / 1000.0).exp();
+            worst = worst.max((p.relative_humidity[i] / expected - 1.0).abs());
+        }
+    }
+    assert!(worst < 1e-7, "relative humidity off by {worst:e}");
+    // Bitwise resume.
+    let dir = Scratch::new("solute-osmotic");
+    let case = dir.write("case.toml", &text);
+    let (a, b) = (dir.join("a"), dir.join("b"));
+    run_ok(&case, &a, &[]);
+    run_ok(&case, &b, &[]);
+    run_ok(&case, &b, &["--resume", arg(&checkpoint_at(&b, 2.0))]);
+    assert_same_datasets(&a.join("results.h5"), &b.join("results.h5"));
+}

@@ -25,6 +25,8 @@ pub const SOLUTE_KEYS: &[&str] = &[
     "root_uptake_fraction",
     "solubility_g_per_m3",
     "recharge_depth_m",
+    "osmotic_ions",
+    "molar_mass_g_per_mol",
 ];
 
 /// Most solutes a case may carry (each adds a linear solve per step and its datasets).
@@ -173,6 +175,28 @@ fn read_solute(t: &Table, depth: f64) -> R<Solute> {
     if recharge_depth.is_some() && !matches!(surface, SoluteSurface::Deposition(_)) {
         t.only_with("recharge_depth_m", "deposition_g_per_m2_per_year")?;
     }
+    let osmotic = match t.get("osmotic_ions") {
+        None => {
+            t.only_with("molar_mass_g_per_mol", "osmotic_ions")?;
+            None
+        }
+        Some(v) => {
+            let ions = num(
+                &v,
+                |i| i == 0.0 || (1.0..=10.0).contains(&i),
+                "must be 0 (no osmotic effect) or in [1, 10] (NaCl counted as chloride: 2)",
+            )?;
+            let molar_mass = num(
+                &t.req(
+                    "molar_mass_g_per_mol",
+                    "molar mass of the solute as its concentration counts it, e.g. 35.45 for chloride; needed with osmotic_ions",
+                )?,
+                |m| m > 0.0 && m <= 1000.0,
+                "must be in (0, 1000] g/mol",
+            )?;
+            (ions > 0.0).then_some(crate::model::Osmotic { ions, molar_mass })
+        }
+    };
     Ok(Solute {
         name,
         free_diffusivity,
@@ -183,6 +207,7 @@ fn read_solute(t: &Table, depth: f64) -> R<Solute> {
         uptake_fraction,
         solubility,
         recharge_depth,
+        osmotic,
     })
 }
 

@@ -18,7 +18,8 @@ impl System {
         rv: Option<Dual<N>>,
     ) -> CellProps<N> {
         let rv = rv.unwrap_or_else(|| equilibrium_vapor(t, h).3);
-        cell_props(self.soil_of(cell), &self.physics, t, h, rv)
+        // The boundary points hold pure water (no osmotic head).
+        cell_props(self.soil_of(cell), &self.physics, t, h, rv, 0.0)
     }
 
     /// Fluxes through the land surface (face 0) given the top cell's properties `c0`,

@@ -92,18 +92,24 @@ pub fn head_from_rh<const N: usize>(rh: f64, t: Dual<N>) -> Dual<N> {
 }
 
 /// Evaluates every property of a cell of `soil` at state (t, h, rv).
+///
+/// `osmotic` [m] is the osmotic head of the pore water (≤ 0; 0 for pure water): it lowers
+/// the Kelvin relative humidity, hr = exp(g Mw (h + osmotic)/(R T)), and nothing else
+/// (the liquid flow is driven by the matric head alone: no membrane effect, reflection
+/// coefficient 0). It is a constant within a flow step (see `crate::solute`).
 pub fn cell_props<const N: usize>(
     soil: &Soil,
     physics: &Physics,
     t: Dual<N>,
     h: Dual<N>,
     rv: Dual<N>,
+    osmotic: f64,
 ) -> CellProps<N> {
     let phi = soil.retention.theta_s();
     let ((th, dth), (kr, dkr)) = soil.retention.theta_and_relative_conductivity(h.v);
     let theta = h.chain(th, dth);
     let theta_a = (-theta + phi).max(Dual::cst(0.0));
-    let (hr, rvs, drvs, rveq) = equilibrium_vapor(t, h);
+    let (hr, rvs, drvs, rveq) = equilibrium_vapor(t, h + osmotic);
     // In equilibrium the vapour density is rveq(T, h) itself (the `rv` given is ignored):
     // the physics then depends on T and h alone, and the algebraic vapour row of the
     // system decouples (see `System::assemble`).

@@ -75,6 +75,9 @@ pub struct System {
     d_reduced: Derivs<2, 4>,
     /// Whether the last evaluation left out the flux parts of linearised faces.
     parts_left_out: bool,
+    /// Osmotic head of the pore water in each cell [m] (empty: none; see
+    /// [`cell::cell_props`]): set from the solutes before each step.
+    pub osmotic_head: Vec<f64>,
 }
 
 /// Whether every value is finite, in one branch-free pass (x·0 is 0 for finite x and
@@ -141,6 +144,7 @@ impl System {
             D0::cst(293.15),
             D0::cst(-1.0),
             D0::cst(0.01),
+            0.0,
         );
         System {
             n,
@@ -161,6 +165,7 @@ impl System {
             d_full: Derivs::default(),
             d_reduced: Derivs::default(),
             parts_left_out: false,
+            osmotic_head: Vec::new(),
         }
     }
 
@@ -186,7 +191,16 @@ impl System {
             Dual::var(x[T], 0),
             Dual::var(x[H], 1),
             Dual::var(x[RV], 2),
+            self.osmotic_head.get(i).copied().unwrap_or(0.0),
         )
+    }
+
+    /// Sets the osmotic head of every cell [m] (≤ 0; empty: none) and drops the kept
+    /// evaluations made with the old ones.
+    pub fn set_osmotic_heads(&mut self, heads: &[f64]) {
+        self.osmotic_head.clear();
+        self.osmotic_head.extend_from_slice(heads);
+        self.forget_linearization();
     }
 
     /// Drops the evaluations with derivatives kept as bases of linearised evaluations:

@@ -21,6 +21,21 @@ use crate::solve::stepper::{Counters, StepFailure, StepInfo, StepOptions, StepSt
 
 use super::times::{is_member, SyncPlan};
 
+/// Largest change of any cell's osmotic head [m] accepted between two coupling
+/// iterations of a step: 1 mm of head changes the Kelvin relative humidity by 7e-9
+/// relative (g Mw/(R T) ≈ 7.3e-5 m⁻¹ at 20 °C), below the flow's own tolerances.
+pub const OSMOTIC_TOLERANCE_M: f64 = 1.0e-3;
+/// Most coupling iterations per step (see [`Simulation::coupled_step`]).
+pub const OSMOTIC_ITERATIONS: usize = 4;
+
+/// Why a step could not be taken.
+enum StepError {
+    /// The flow step failed at the minimum Δt (the observers are told).
+    Flow(StepFailure),
+    /// Another error (a solute solve).
+    Other(Error),
+}
+
 /// A one-line message for a step that failed at the minimum Δt.
 pub fn numerical_message(sys: &System, f: &StepFailure, what: &str, epoch_year: f64) -> Error {
     let names = ["energy balance", "water balance", "vapour equation"];
@@ -267,6 +282,11 @@ impl<'m> Simulation<'m> {
                     ))
                 }
             }
+            // The osmotic heads of the start state. (Without an osmotic effect the system
+            // is left alone: its kept evaluations are part of the resumed state.)
+            if column.osmotic() {
+                sys.set_osmotic_heads(&column.state.osmotic_head);
+            }
             Some(column)
         };
         Ok(Simulation {
@@ -345,13 +365,11 @@ impl<'m> Simulation<'m> {
     pub fn advance_to(&mut self, t_sync: f64, obs: &mut [&mut dyn Observer]) -> Result<Advance> {
         let model = self.model;
         while self.st.state.t < t_sync {
-            let info = match self.st.step(&mut self.sys, t_sync) {
+            let info = match self.coupled_step(t_sync) {
                 Ok(info) => info,
-                Err(f) => return Err(self.fail(&f, obs)),
+                Err(StepError::Flow(f)) => return Err(self.fail(&f, obs)),
+                Err(StepError::Other(e)) => return Err(e),
             };
-            if let Some(column) = self.solutes.as_mut() {
-                column.advance(&mut self.sys, &self.st.state, &info)?;
-            }
             self.output.since_series += 1;
             let landed = self.st.state.t == t_sync;
             if landed && is_member(&self.plan.jumps, t_sync) {
@@ -390,6 +408,77 @@ impl<'m> Simulation<'m> {
             }
         }
         Ok(Advance::Reached)
+    }
+
+    /// One accepted step of the flow and, when the case has solutes, of the solutes with
+    /// the same formula. With an osmotic effect, flow and solutes are coupled both ways
+    /// by fixed-point iteration within the step: the flow step is solved with the osmotic
+    /// heads of the current guess (held constant over the step), the solutes follow, the
+    /// heads are recomputed from the new concentrations and temperatures; when they moved
+    /// by more than [`OSMOTIC_TOLERANCE_M`] the step is taken again from the same start
+    /// with the new heads; after [`OSMOTIC_ITERATIONS`] such tries, with half the step
+    /// (the coupling's contraction factor shrinks with the step). The first guess is the
+    /// last step's result, part of the checkpointed state.
+    fn coupled_step(&mut self, t_sync: f64) -> std::result::Result<StepInfo, StepError> {
+        let Some(column) = self.solutes.as_mut() else {
+            return self.st.step(&mut self.sys, t_sync).map_err(StepError::Flow);
+        };
+        if !column.osmotic() {
+            let info = self
+                .st
+                .step(&mut self.sys, t_sync)
+                .map_err(StepError::Flow)?;
+            column
+                .advance(&mut self.sys, &self.st.state, &info)
+                .map_err(StepError::Other)?;
+            return Ok(info);
+        }
+        let mut start_flow = self.st.state.clone();
+        let start_solutes = column.state.clone();
+        let mut guess = column.state.osmotic_head.clone();
+        let mut heads = Vec::new();
+        let mut iteration = 0;
+        loop {
+            iteration += 1;
+            self.sys.set_osmotic_heads(&guess);
+            let info = self
+                .st
+                .step(&mut self.sys, t_sync)
+                .map_err(StepError::Flow)?;
+            column
+                .advance(&mut self.sys, &self.st.state, &info)
+                .map_err(StepError::Other)?;
+            column.osmotic_heads_into(&self.sys, &mut heads);
+            let moved = heads
+                .iter()
+                .zip(&guess)
+                .fold(0.0f64, |a, (x, y)| a.max((x - y).abs()));
+            let smallest = info.dt <= self.st.opts.dt_min * (1.0 + 1e-9);
+            if moved <= OSMOTIC_TOLERANCE_M || (smallest && iteration >= OSMOTIC_ITERATIONS) {
+                if moved > OSMOTIC_TOLERANCE_M {
+                    log::warn!(
+                        "osmotic coupling: heads still moved {moved:.3e} m after {iteration} iterations at the smallest step, t = {:.6e} yr; step accepted",
+                        self.model.time.year(self.st.state.t)
+                    );
+                }
+                column.state.osmotic_head.clone_from(&heads);
+                return Ok(info);
+            }
+            // Again from the start of the step: with the new heads, or, when the
+            // iteration does not settle within OSMOTIC_ITERATIONS, with half the step
+            // (the coupling weakens with the step) from the start's heads.
+            let rejected = self.st.state.counters.rejected;
+            self.st.state.clone_from(&start_flow);
+            column.state.clone_from(&start_solutes);
+            if iteration % OSMOTIC_ITERATIONS == 0 {
+                start_flow.dt = (0.5 * info.dt).max(self.st.opts.dt_min);
+                start_flow.counters.rejected = rejected + 1;
+                self.st.state.clone_from(&start_flow);
+                guess.clone_from(&start_solutes.osmotic_head);
+            } else {
+                std::mem::swap(&mut guess, &mut heads);
+            }
+        }
     }
 
     /// Gives the observers a checkpoint of the current state.

@@ -110,6 +110,9 @@ pub struct SoluteState {
     pub initial_mass: Vec<f64>,
     /// Earlier points, newest first, at the times of the flow stepper's history.
     pub history: Vec<SolutePoint>,
+    /// Osmotic head of each cell at the current point [m] (empty when no solute has an
+    /// osmotic effect): the first guess of the next step's coupling iteration.
+    pub osmotic_head: Vec<f64>,
 }
 
 /// The profiles of one solute at one time.
@@ -125,6 +128,9 @@ pub struct SoluteProfile {
     /// Precipitated solid [g m⁻³ of bulk] (cells); 0 without a solubility limit.
     pub precipitate: Vec<f64>,
 }
+
+/// Whether the dilute-range warning was given (once per process).
+static DILUTE_WARNED: std::sync::atomic::AtomicBool = std::sync::atomic::AtomicBool::new(false);
 
 /// Most history points kept (order 5 needs 5 earlier points besides the current one).
 const MAX_HISTORY: usize = 6;
@@ -345,6 +351,7 @@ impl SoluteColumn {
                 now: zero_point(),
                 initial_mass: vec![0.0; ns * n],
                 history: Vec::new(),
+                osmotic_head: Vec::new(),
             },
             n,
             widths: m.widths.clone(),
@@ -625,7 +632,46 @@ impl SoluteColumn {
         self.state.initial_mass.clone_from(&self.state.now.mass);
         self.state.history.clear();
         let _ = model;
+        let mut heads = Vec::new();
+        self.osmotic_heads_into(sys, &mut heads);
+        self.state.osmotic_head = heads;
         Ok(())
+    }
+
+    /// Whether any solute lowers the vapour's relative humidity (osmotic effect).
+    pub fn osmotic(&self) -> bool {
+        self.solutes.iter().any(|s| s.osmotic.is_some())
+    }
+
+    /// The osmotic head of every cell [m] from the concentrations of the last solve and
+    /// the temperatures of the flow evaluation in `sys`: ho = −Σ i (c/M) R T/(ρw g)
+    /// (van 't Hoff, dilute solutions). Empty when no solute has an osmotic effect. Logs a
+    /// warning (once per run) past 1 mol per kg of water, where van 't Hoff overstates
+    /// the osmotic pressure of concentrated brines.
+    pub fn osmotic_heads_into(&self, sys: &System, out: &mut Vec<f64>) {
+        use crate::props::constants::{GAS_CONSTANT, GRAVITY, WATER_DENSITY};
+        out.clear();
+        if !self.osmotic() {
+            return;
+        }
+        let n = self.n;
+        out.resize(n, 0.0);
+        for (k, s) in self.solutes.iter().enumerate() {
+            let Some(o) = s.osmotic else { continue };
+            for i in 0..n {
+                let molar = self.conc[k * n + i] / o.molar_mass; // mol per m³ of liquid
+                if molar > 1000.0 && !DILUTE_WARNED.swap(true, std::sync::atomic::Ordering::Relaxed)
+                {
+                    log::warn!(
+                        "solute `{}`: {molar:.0} mol/m³ at depth {:.3} m, beyond the dilute range (about 1 mol/kg) where the van 't Hoff osmotic potential holds; it overstates the effect of a brine",
+                        s.name,
+                        self.centers[i]
+                    );
+                }
+                let t = sys.cells[i].t.v;
+                out[i] -= o.ions * molar * GAS_CONSTANT * t / (WATER_DENSITY * GRAVITY);
+            }
+        }
     }
 
     /// Continues from a saved state (a resumed run), with the flow evaluated at `u` in
@@ -666,6 +712,11 @@ impl SoluteColumn {
             self.m
                 .copy_from_slice(&self.state.now.mass[k * n..(k + 1) * n]);
             self.store_profiles(k, t);
+        }
+        if fresh {
+            let mut heads = Vec::new();
+            self.osmotic_heads_into(sys, &mut heads);
+            self.state.osmotic_head = heads;
         }
         Ok(())
     }

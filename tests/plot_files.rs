@@ -72,7 +72,12 @@ fn writes_every_plot_as_svg_and_png() {
         assert!(fluxes.contains(needle), "flux profiles lack {needle:?}");
     }
     let series = svg("series-water-fluxes");
-    for needle in ["surface", "bottom", "time [yr], log scale", "mm/yr"] {
+    for needle in [
+        "surface",
+        "bottom",
+        "time [years after year 0], log scale",
+        "mm/yr",
+    ] {
         assert!(series.contains(needle), "flux series lack {needle:?}");
     }
     assert!(svg("series-drying-front").contains("drying-front depth [m]"));

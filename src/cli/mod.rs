@@ -112,9 +112,15 @@ pub enum Command {
         /// (default: up to 6 spread in log time).
         #[arg(long, value_delimiter = ',', num_args = 1.., allow_negative_numbers = true)]
         times: Option<Vec<f64>>,
-        /// Logarithmic time axis for the time series (automatic beyond 3 decades).
+        /// Logarithmic time axis for the time series (automatic beyond 3 decades), in
+        /// years after the time origin.
         #[arg(long)]
         log_time: bool,
+        /// The year a log time axis counts from (default: the case's
+        /// output.log_origin_year, else the run's start year); records at or before it
+        /// are left out of a log axis, with a note.
+        #[arg(long, allow_negative_numbers = true, value_name = "YEAR")]
+        time_origin: Option<f64>,
     },
     /// Write a results file as CSV files (series, profiles in long form, mesh) and a
     /// README.txt describing their columns; units are in the column names.
@@ -310,14 +316,20 @@ fn run_command(cli: Cli) -> Result<()> {
             out,
             times,
             log_time,
+            time_origin,
         } => {
             let opts = crate::plot::PlotOptions {
                 out,
                 times,
                 log_time,
+                time_origin,
             };
-            for p in crate::plot::plot_results(&results, &opts)? {
+            let plotted = crate::plot::plot_results_with_notes(&results, &opts)?;
+            for p in plotted.files {
                 println!("{}", p.display());
+            }
+            for n in plotted.notes {
+                eprintln!("deepdry: note: {n}");
             }
             Ok(())
         }

@@ -112,6 +112,24 @@ fn default_output_folder_is_the_results_folder_and_times_are_honoured() {
 }
 
 #[test]
+fn the_times_asked_for_in_the_case_are_drawn_by_default() {
+    let dir = scratch("asked");
+    let file = dir.join("asked.h5");
+    write_synthetic_with(
+        &file,
+        "Asked times",
+        "title = \"a\"\n[output]\ntimes_year = [1.0, 1000.0]\n",
+        0.0,
+    );
+    plot_results(&file, &PlotOptions::default()).unwrap();
+    let temp = std::fs::read_to_string(dir.join("profiles-temperature.svg")).unwrap();
+    for needle in ["t = 1 yr", "t = 1000 yr", "at 6 times"] {
+        assert!(temp.contains(needle), "temperature plot lacks {needle:?}");
+    }
+    let _ = std::fs::remove_dir_all(&dir);
+}
+
+#[test]
 fn linear_time_axis_for_a_short_run() {
     let axis = deepdry::plot::time_axis(&[0.0, 1.0, 2.0, 5.0], false);
     assert_eq!(axis.scale, deepdry::plot::scale::Scale::Linear);

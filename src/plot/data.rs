@@ -57,6 +57,9 @@ pub struct Results {
     /// The case's `output.log_origin_year` [year] (after its `--set` overrides), when it
     /// has one: the default origin of a log time axis.
     pub log_origin_year: Option<f64>,
+    /// The case's `output.times_year` [year] (after its overrides): the snapshot times
+    /// the user asked for, drawn first by default.
+    pub asked_times: Vec<f64>,
 }
 
 /// The value of `output.KEY` in the case text a results file keeps, with the last
@@ -203,6 +206,10 @@ pub fn read(path: &Path) -> Result<Results> {
     let overrides = read_attr_str(&file, "overrides").unwrap_or_default();
     let log_origin_year =
         case_output_key(&case_text, &overrides, "log_origin_year").and_then(|v| number(&v));
+    let asked_times = match case_output_key(&case_text, &overrides, "times_year") {
+        Some(toml::Value::Array(a)) => a.iter().filter_map(number).collect(),
+        _ => Vec::new(),
+    };
 
     let face_depth = read_vec(&file, path, "mesh/face_depth", None)?;
     if face_depth.len() < 2 {
@@ -247,5 +254,6 @@ pub fn read(path: &Path) -> Result<Results> {
         profiles,
         series,
         log_origin_year,
+        asked_times,
     })
 }

@@ -76,7 +76,7 @@ pub fn plot_results_with_notes(path: &Path, opts: &PlotOptions) -> Result<Plotte
     let snaps = match &opts.times {
         Some(t) if !t.is_empty() => times::pick_nearest(&res.profiles.time, t)
             .map_err(|e| Error::input(format!("{}: {e}", path.display())))?,
-        _ => times::pick_default(&res.profiles.time, times::DEFAULT_COUNT),
+        _ => times::pick_default_with(&res.profiles.time, times::DEFAULT_COUNT, &res.asked_times),
     };
     if snaps.is_empty() {
         return Err(Error::input(format!(

@@ -606,7 +606,7 @@ pub fn series_figures_on(res: &Results, ta: TimeAxis) -> Vec<(String, Figure)> {
         single(
             "drying-front depth",
             y,
-            "drying-front depth [m]",
+            "drying-front depth [m] (gaps: no dry zone on top)",
             lines,
             false,
             "series",

@@ -80,6 +80,11 @@ fn writes_every_plot_as_svg_and_png() {
     ] {
         assert!(series.contains(needle), "flux series lack {needle:?}");
     }
+    // One name for the scale, in words, on every figure.
+    assert!(series.contains("symmetric log"));
+    for name in PLOT_NAMES {
+        assert!(!svg(name).contains("symlog"), "{name} says symlog");
+    }
     assert!(svg("series-drying-front").contains("drying-front depth [m]"));
     assert!(svg("series-water-storage").contains("water storage [kg m⁻² = mm]"));
     let errs = svg("series-balance-errors");

@@ -26,7 +26,7 @@ pub const FLUX_TO_MM_PER_YEAR: f64 = YEAR;
 /// Smallest suction drawn [m]: heads above −SUCTION_FLOOR (wetter, including h ≥ 0)
 /// are drawn at this suction on the log axis.
 pub const SUCTION_FLOOR: f64 = 1e-3;
-/// Decades between the largest flux and the edge of the symlog linear band.
+/// Decades between the largest flux and the edge of the symmetric-log linear band.
 pub const SYMLOG_DECADES: i32 = 4;
 /// The time axis is logarithmic when the run spans more than this many decades.
 pub const AUTO_LOG_TIME_DECADES: f64 = 3.0;
@@ -334,7 +334,7 @@ pub fn profile_figures(res: &Results, snaps: &[usize]) -> Vec<(String, Figure)> 
         ),
     ));
 
-    // The four water-flux parts on one shared symlog axis.
+    // The four water-flux parts on one shared symmetric-log axis.
     let parts: [(&str, &Vec<Vec<f64>>); 4] = [
         (
             "liquid, isothermal (head and gravity)",
@@ -577,7 +577,7 @@ pub fn series_figures_on(res: &Results, ta: TimeAxis) -> Vec<(String, Figure)> {
             "net water flux at the boundaries",
             y,
             &format!(
-                "water flux [mm/yr], + downward; symlog, linear within ±{}",
+                "water flux [mm/yr], + downward; symmetric log, linear within ±{}",
                 scale::format_real(sl.linear)
             ),
             lines,

@@ -10,6 +10,7 @@
 
 pub mod chart;
 pub mod data;
+pub mod palette;
 pub mod scale;
 pub mod times;
 
@@ -514,10 +515,11 @@ pub fn series_figures_on(res: &Results, ta: TimeAxis) -> Vec<(String, Figure)> {
             _ => String::new(),
         }
     );
-    let blue = RGBColor(30, 90, 180);
-    let red = RGBColor(200, 60, 30);
-    // The first line of each series plot (blue) is drawn wider so that it shows beside
-    // the second where they overlap.
+    // Two colours of the palette two lightness steps apart (dark navy, light orange),
+    // distinct in grey as in colour; the first line is drawn wider so that it shows
+    // beside the second where they overlap.
+    let blue = palette::PALETTE[0];
+    let red = palette::PALETTE[3];
     let line = |label: &str, color: RGBColor, v: &[f64], f: &dyn Fn(f64) -> f64| Line {
         label: label.into(),
         color,

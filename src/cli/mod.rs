@@ -213,6 +213,19 @@ pub enum TableCommand {
         /// Layer name.
         #[arg(long)]
         layer: String,
+        /// Temperature [°C] of the relative humidity (and of the conductivity when the
+        /// case corrects it for viscosity); default: humidity at 20 °C, conductivity Ks·Kr.
+        #[arg(long, allow_negative_numbers = true)]
+        temperature: Option<f64>,
+        /// First head [m], below 0 (default −0.01).
+        #[arg(long, allow_negative_numbers = true)]
+        from_head: Option<f64>,
+        /// Last head [m], below --from-head (default: the soil's oven-dry head).
+        #[arg(long, allow_negative_numbers = true)]
+        to_head: Option<f64>,
+        /// Rows per decade of suction (default 10).
+        #[arg(long)]
+        per_decade: Option<usize>,
     },
 }
 
@@ -408,9 +421,25 @@ fn run_command(cli: Cli) -> Result<()> {
                 print!("{}", crate::props::table::water_csv(from, to, step)?);
                 Ok(())
             }
-            TableCommand::Soil { case, layer } => {
+            TableCommand::Soil {
+                case,
+                layer,
+                temperature,
+                from_head,
+                to_head,
+                per_decade,
+            } => {
                 let model = crate::case::load(&case)?;
-                print!("{}", crate::props::table::soil_csv(&model, &layer)?);
+                let opts = crate::props::table::SoilTableOptions {
+                    temperature_c: temperature,
+                    from_head,
+                    to_head,
+                    per_decade,
+                };
+                print!(
+                    "{}",
+                    crate::props::table::soil_csv_with(&model, &layer, &opts)?
+                );
                 Ok(())
             }
         },

@@ -159,9 +159,27 @@ pub fn summary(path: &Path) -> Result<String> {
         let _ = writeln!(
             out,
             "branch of: {p} at {} yr (hash {})",
-            attr("parent_time_year"),
+            parent_time_year(&root),
             attr("parent_physics_hash")
         );
     }
     Ok(out)
+}
+
+/// A branch's `parent_time_year` for the summary: a number attribute, or the string that
+/// results files written before it was a number hold ("4e0"); "?" when neither.
+fn parent_time_year(root: &hdf5::Group) -> String {
+    let number = root
+        .attr("parent_time_year")
+        .and_then(|a| a.read_scalar::<f64>())
+        .ok()
+        .or_else(|| {
+            read_attr_str(root, "parent_time_year")
+                .ok()
+                .and_then(|s| s.trim().parse::<f64>().ok())
+        });
+    match number {
+        Some(y) if y.is_finite() => crate::output::years(y),
+        _ => "?".into(),
+    }
 }

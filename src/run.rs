@@ -355,7 +355,7 @@ fn start_branch(
     replace_earlier_run(folder, Some(path));
     let parent_year = ck.year();
     results.set_attr("parent_checkpoint", &path.display().to_string())?;
-    results.set_attr("parent_time_year", &format!("{parent_year:e}"))?;
+    results.set_attr_f64("parent_time_year", parent_year)?;
     results.set_attr("parent_physics_hash", &ck.physics_hash)?;
     Ok(Prepared {
         begin: Begin::Unknowns {

@@ -481,3 +481,16 @@ fn check_prints_the_summary() {
     );
     assert!(text.contains("31 snapshot times"), "{text}");
 }
+
+#[test]
+fn summary_names_the_pore_size_index_and_the_thermal_conductivity_apart() {
+    // climate-shift.toml: a Brooks–Corey soil (λ = 1.2) with a constant thermal
+    // conductivity of 1.2 W/(m K): one symbol must not stand for both.
+    let m = deepdry::case::load(&root().join("cases/climate-shift.toml")).unwrap();
+    let s = deepdry::case::summary(&m);
+    assert!(s.contains("pore-size index λ 1.2"), "{s}");
+    assert!(s.contains("thermal conductivity 1.2 W/(m K)"), "{s}");
+    for line in s.lines() {
+        assert!(line.matches('λ').count() <= 1, "{line}");
+    }
+}

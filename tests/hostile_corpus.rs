@@ -334,6 +334,74 @@ fn corpus() -> Vec<Hostile> {
     );
     far.run = true;
     out.push(far);
+    // Extreme but in-range van Genuchten α and n (issue 16): the first wetting of a
+    // 30-cell column (surface head stepping to −0.01 m at year 1) ended in a Newton
+    // failure (exit 3) with α = 1e-5 1/m and n = 1.05, and without a dry end with α =
+    // 1e-6 and n = 1.05 (measured before this check). Such a curve does not drain before
+    // the oven-dry head and is refused when read, naming the key and the smallest α.
+    let wetting = mutate(
+        &mutate(
+            &mutate(&b, "cells = 8", "cells = 30"),
+            "end_year = 2",
+            "end_year = 3",
+        ),
+        "relative_humidity = 0.25",
+        "head_m = { steps = [[0.0, -10.0], [1.0, -0.01]] }",
+    );
+    for (name, text, words) in [
+        (
+            "alpha 1e-5, n 1.05, run",
+            mutate(
+                &mutate(&wetting, "alpha_per_m = 7.5", "alpha_per_m = 1e-5"),
+                "n = 1.89",
+                "n = 1.05",
+            ),
+            vec![
+                "alpha_per_m = 1e-5",
+                "at least 0.0001 1/m",
+                "oven-dry head of -100000 m",
+            ],
+        ),
+        (
+            "alpha 1e-6, n 1.05, without a dry end, run",
+            mutate(
+                &mutate(
+                    &mutate(&wetting, "alpha_per_m = 7.5", "alpha_per_m = 1e-6"),
+                    "n = 1.89",
+                    "n = 1.05",
+                ),
+                "dry_end = \"fayer-simmons\"\n",
+                "",
+            ),
+            vec!["alpha_per_m = 1e-6", "at least 0.0001 1/m"],
+        ),
+        (
+            "alpha 0.005 with an oven-dry head of -1000 m, run",
+            mutate(
+                &mutate(&wetting, "alpha_per_m = 7.5", "alpha_per_m = 0.005"),
+                "dry_end = \"fayer-simmons\"\n",
+                "dry_end = \"fayer-simmons\"\noven_dry_head_m = -1000.0\n",
+            ),
+            vec!["alpha_per_m = 0.005", "at least 0.01 1/m", "-1000 m"],
+        ),
+    ] {
+        let mut h = case(name, text, 2, &words);
+        h.run = true;
+        out.push(h);
+    }
+    // The smallest α allowed runs that wetting (α = 1e-4 1/m, n = 1.05).
+    let mut ok = case(
+        "alpha 1e-4, n 1.05, run",
+        mutate(
+            &mutate(&wetting, "alpha_per_m = 7.5", "alpha_per_m = 1e-4"),
+            "n = 1.89",
+            "n = 1.05",
+        ),
+        0,
+        &["run finished"],
+    );
+    ok.run = true;
+    out.push(ok);
     out
 }
 

@@ -72,8 +72,18 @@ fn writes_every_plot_as_svg_and_png() {
         assert!(fluxes.contains(needle), "flux profiles lack {needle:?}");
     }
     let series = svg("series-water-fluxes");
-    for needle in ["surface", "bottom", "time [yr], log scale", "mm/yr"] {
+    for needle in [
+        "surface",
+        "bottom",
+        "time [years after year 0], log scale",
+        "mm/yr",
+    ] {
         assert!(series.contains(needle), "flux series lack {needle:?}");
+    }
+    // One name for the scale, in words, on every figure.
+    assert!(series.contains("symmetric log"));
+    for name in PLOT_NAMES {
+        assert!(!svg(name).contains("symlog"), "{name} says symlog");
     }
     assert!(svg("series-drying-front").contains("drying-front depth [m]"));
     assert!(svg("series-water-storage").contains("water storage [kg m⁻² = mm]"));
@@ -103,6 +113,24 @@ fn default_output_folder_is_the_results_folder_and_times_are_honoured() {
     assert!(temp.contains("t = 100 yr"));
     assert!(!temp.contains("t = 10 yr"));
     assert!(!temp.contains("t = 10000 yr"));
+    let _ = std::fs::remove_dir_all(&dir);
+}
+
+#[test]
+fn the_times_asked_for_in_the_case_are_drawn_by_default() {
+    let dir = scratch("asked");
+    let file = dir.join("asked.h5");
+    write_synthetic_with(
+        &file,
+        "Asked times",
+        "title = \"a\"\n[output]\ntimes_year = [1.0, 1000.0]\n",
+        0.0,
+    );
+    plot_results(&file, &PlotOptions::default()).unwrap();
+    let temp = std::fs::read_to_string(dir.join("profiles-temperature.svg")).unwrap();
+    for needle in ["t = 1 yr", "t = 1000 yr", "at 6 times"] {
+        assert!(temp.contains(needle), "temperature plot lacks {needle:?}");
+    }
     let _ = std::fs::remove_dir_all(&dir);
 }
 

@@ -200,3 +200,50 @@ fn lines_split_at_hairpin_turns_only() {
     assert_eq!(gentle_runs(&[(1, 1)]), vec![(0, 0)]);
     assert_eq!(gentle_runs(&[(1, 1), (1, 1)]), vec![(0, 1)]);
 }
+
+/// The decades ±c·10^k of a symmetric-log axis (c = `band`) from k = 0 to `kmax`.
+fn decades(band: f64, kmax: i32, sign: f64) -> Vec<f64> {
+    (0..=kmax).map(|k| sign * band * 10f64.powi(k)).collect()
+}
+
+fn has(ticks: &[f64], v: f64) -> bool {
+    ticks.iter().any(|t| (t - v).abs() <= 1e-9 * v.abs())
+}
+
+#[test]
+fn symlog_ticks_label_every_decade_on_both_sides() {
+    // A symmetric range, ±0.1 with the band at 10⁻⁶: five decades a side plus 0, and the
+    // same decades on both sides, also with room for only nine labels (the series plots).
+    let s = SymLog::new(1e-6);
+    let axis = Axis::new(Scale::SymLog(s), -0.1, 0.1);
+    for max in [9, 11, 12] {
+        let ticks = axis.ticks(max, false);
+        assert_eq!(ticks.len(), 13, "max {max}: {ticks:?}");
+        for v in decades(1e-6, 5, 1.0)
+            .into_iter()
+            .chain(decades(1e-6, 5, -1.0))
+        {
+            assert!(has(&ticks, v), "max {max}: {v} missing from {ticks:?}");
+        }
+        assert!(ticks.iter().all(|t| has(&ticks, -t)), "lopsided: {ticks:?}");
+    }
+    // A lopsided range (down to −0.1, up to 10⁻⁴): every decade on each side, no gaps.
+    let axis = Axis::new(Scale::SymLog(s), -0.1, 1e-4);
+    let ticks = axis.ticks(9, false);
+    let mut want = decades(1e-6, 5, -1.0);
+    want.push(0.0);
+    want.extend(decades(1e-6, 2, 1.0));
+    want.sort_by(|a, b| a.total_cmp(b));
+    assert_eq!(ticks.len(), want.len(), "{ticks:?}");
+    assert!(want.iter().all(|v| has(&ticks, *v)), "{ticks:?}");
+    // Far more decades than labels: a common stride from the band edge on both sides,
+    // and the unlabelled decades still drawn as minor ticks.
+    let axis = Axis::new(Scale::SymLog(SymLog::new(1e-12)), -1e12, 1e12);
+    let major = axis.ticks(4, false);
+    let minor = axis.ticks(4, true);
+    assert!(major.iter().all(|t| has(&major, -t)), "{major:?}");
+    for k in 0..=24 {
+        let v = 1e-12 * 10f64.powi(k);
+        assert!(has(&major, v) || has(&minor, v), "decade {v} not drawn");
+    }
+}

@@ -1,7 +1,7 @@
 //! The snapshot picker of `deepdry plot`.
 
 use deepdry::error::Error;
-use deepdry::plot::times::{pick_default, pick_nearest};
+use deepdry::plot::times::{pick_default, pick_default_with, pick_nearest};
 
 const TIMES: [f64; 6] = [0.0, 0.1, 1.0, 10.0, 100.0, 1000.0];
 
@@ -63,4 +63,32 @@ fn default_without_an_initial_snapshot() {
     assert_eq!(picked.len(), 6);
     assert_eq!(picked[0], 0);
     assert_eq!(picked[5], 19);
+}
+
+/// The snapshot times of the synthetic results files (tests/plot_support).
+const SYNTHETIC: [f64; 8] = [0.0, 0.01, 0.1, 1.0, 10.0, 100.0, 1000.0, 10000.0];
+
+#[test]
+fn default_puts_the_asked_for_times_first() {
+    // Spread in log time alone, six of the eight leave out 1 and 1000 yr.
+    assert_eq!(pick_default(&SYNTHETIC, 6), vec![0, 1, 2, 4, 5, 7]);
+    // Asked for in output.times_year: both are drawn, and the rest is filled up to six.
+    let picked = pick_default_with(&SYNTHETIC, 6, &[1000.0, 1.0]);
+    assert_eq!(picked.len(), 6, "{picked:?}");
+    assert!(picked.contains(&3) && picked.contains(&6), "{picked:?}");
+    assert!(picked.windows(2).all(|w| w[0] < w[1]));
+    // Asked-for times the file does not have (a run that stopped early) are skipped.
+    assert_eq!(
+        pick_default_with(&SYNTHETIC, 6, &[3.0, 2e4]),
+        pick_default(&SYNTHETIC, 6)
+    );
+    // More asked for than drawn: six of them, spread over the list, ends included.
+    let picked = pick_default_with(&SYNTHETIC, 6, &SYNTHETIC);
+    assert_eq!(picked.len(), 6);
+    assert_eq!((picked[0], picked[5]), (0, 7));
+    // A single asked time with a short file: everything.
+    assert_eq!(
+        pick_default_with(&TIMES, 6, &[10.0]),
+        vec![0, 1, 2, 3, 4, 5]
+    );
 }

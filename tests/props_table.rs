@@ -10,7 +10,9 @@ use deepdry::model::{
 };
 use deepdry::props::conductivity::FaceAveraging;
 use deepdry::props::retention::{DryEnd, Retention, RetentionLaw};
-use deepdry::props::table::{soil_csv, water_csv, SOIL_HEADER, WATER_HEADER};
+use deepdry::props::table::{
+    soil_csv, soil_csv_with, water_csv, SoilTableOptions, SOIL_HEADER, WATER_HEADER,
+};
 use deepdry::props::thermal::ThermalConductivity;
 use deepdry::props::vapor::{Diffusivity, Enhancement};
 use deepdry::props::water;
@@ -231,4 +233,94 @@ fn soil_csv_unknown_layer_lists_the_layers() {
     assert!(!m.contains('\n'));
     assert!(m.starts_with("--layer: middle:"), "{m}");
     assert!(m.contains("top, deep"), "{m}");
+}
+
+fn rows(csv: &str) -> Vec<Vec<f64>> {
+    csv.lines()
+        .skip(1)
+        .map(|l| l.split(',').map(|v| v.parse().unwrap()).collect())
+        .collect()
+}
+
+#[test]
+fn soil_csv_at_a_temperature_over_a_head_range() {
+    let m = model();
+    let opts = SoilTableOptions {
+        temperature_c: Some(35.0),
+        from_head: Some(-1.0),
+        to_head: Some(-1000.0),
+        per_decade: Some(5),
+    };
+    let csv = soil_csv_with(&m, "top", &opts).unwrap();
+    assert_eq!(
+        csv.lines().next().unwrap(),
+        "head_m,liquid_content,relative_conductivity,conductivity_m_s,relative_humidity_35C,thermal_conductivity_W_m_K"
+    );
+    let r = rows(&csv);
+    // Three decades at five per decade: 15 intervals, 16 rows, both ends exact.
+    assert_eq!(r.len(), 16);
+    assert_eq!((r[0][0], r[15][0]), (-1.0, -1000.0));
+    // Kelvin equation hr = exp(M g h/(R T)) (common practice), with M = 0.018015 kg/mol,
+    // g = 9.80665 m/s², R = 8.314462618 J/(mol K) (CODATA), T = 308.15 K: at h = −1000 m
+    // hr = exp(−0.068958) = 0.933366.
+    let want = (0.018015 * 9.80665 * -1000.0 / (8.314462618 * 308.15f64)).exp();
+    assert!((r[15][4] - want).abs() < 1e-5, "{} vs {want}", r[15][4]);
+    // The case corrects K for viscosity (reference 20 °C): K(35 °C)/K(20 °C) =
+    // μ(20 °C)/μ(35 °C) = 1001.6/719.5 µPa s (IAPWS 2008 viscosity at 0.1 MPa, from
+    // memory) = 1.3921.
+    let plain = rows(&soil_csv(&m, "top").unwrap());
+    let at_1m = plain.iter().find(|row| row[0] == -1.0).unwrap();
+    let ratio = r[0][3] / at_1m[3];
+    assert!((ratio - 1001.6 / 719.5).abs() < 3e-3 * ratio, "{ratio}");
+    // Same liquid content and thermal conductivity: they do not depend on temperature.
+    assert_eq!((r[0][1], r[0][5]), (at_1m[1], at_1m[5]));
+}
+
+#[test]
+fn soil_csv_options_out_of_range_name_the_option() {
+    let m = model();
+    let bad = |opts: SoilTableOptions| input_message(soil_csv_with(&m, "deep", &opts));
+    let d = SoilTableOptions::default();
+    let msg = bad(SoilTableOptions {
+        temperature_c: Some(150.0),
+        ..d
+    });
+    assert!(
+        msg.contains("--temperature: 150") && msg.contains("0–110 °C"),
+        "{msg}"
+    );
+    let msg = bad(SoilTableOptions {
+        from_head: Some(0.5),
+        ..d
+    });
+    assert!(
+        msg.contains("--from-head: 0.5") && msg.contains("below 0"),
+        "{msg}"
+    );
+    // Layer "deep" dries out at −1e4 m (its Fayer–Simmons oven-dry head).
+    let msg = bad(SoilTableOptions {
+        to_head: Some(-1e6),
+        ..d
+    });
+    assert!(
+        msg.contains("--to-head") && msg.contains("-10000 m"),
+        "{msg}"
+    );
+    let msg = bad(SoilTableOptions {
+        from_head: Some(-10.0),
+        to_head: Some(-1.0),
+        ..d
+    });
+    assert!(
+        msg.contains("--to-head: -1") && msg.contains("below --from-head"),
+        "{msg}"
+    );
+    let msg = bad(SoilTableOptions {
+        per_decade: Some(0),
+        ..d
+    });
+    assert!(
+        msg.contains("--per-decade: 0") && msg.contains("1 to 1000"),
+        "{msg}"
+    );
 }

@@ -369,15 +369,28 @@ fn branches_start_from_the_same_state_and_record_their_parent() {
     // Parent recorded in the branch's results file, and shown by inspect.
     let r1 = b1.join("results.h5");
     assert_eq!(root_attr(&r1, "parent_checkpoint").unwrap(), arg(&ck));
-    let pt: f64 = root_attr(&r1, "parent_time_year").unwrap().parse().unwrap();
+    // The parent's time is a number (issue 16: it was the string "4e0").
+    let pt = root_attr_f64(&r1, "parent_time_year").expect("a number attribute");
     assert!((pt - 4.0).abs() < 1e-12, "{pt}");
+    assert_eq!(root_attr(&r1, "parent_time_year"), None);
     let o = deepdry(&["inspect", arg(&r1)]);
     assert_eq!(o.status.code(), Some(0));
     assert!(
-        stdout(&o).contains(&format!("branch of: {}", arg(&ck))),
+        stdout(&o).contains(&format!("branch of: {} at 4 yr", arg(&ck))),
         "{}",
         stdout(&o)
     );
+    // inspect still reads the string of files written before (a copy with the old form).
+    let old = dir.join("old-branch.h5");
+    std::fs::copy(&r1, &old).unwrap();
+    {
+        let _g = h5_guard();
+        let f = hdf5::File::open_rw(&old).unwrap();
+        f.delete_attr("parent_time_year").unwrap();
+        deepdry::output::h5util::attr_str(&f, "parent_time_year", "4e0").unwrap();
+    }
+    let o = deepdry(&["inspect", arg(&old)]);
+    assert!(stdout(&o).contains(" at 4 yr (hash "), "{}", stdout(&o));
     // A different mesh and a different soil are refused, and nothing is written.
     let other_mesh = dir.write(
         "mesh.toml",

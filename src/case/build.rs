@@ -13,7 +13,7 @@ use crate::mesh::{Grading, Mesh, Resolution};
 use crate::model::*;
 use crate::props::conductivity::FaceAveraging;
 use crate::props::constants::{CELSIUS_ZERO, SECONDS_PER_YEAR};
-use crate::props::retention::{DryEnd, Retention, RetentionLaw};
+use crate::props::retention::{DryEnd, Retention, RetentionLaw, OVEN_DRY_HEAD};
 use crate::props::thermal::ThermalConductivity;
 use crate::props::vapor::{Diffusivity, Enhancement};
 use std::path::Path;
@@ -256,6 +256,13 @@ fn below_boiling(
 pub const MAX_ALPHA_PER_M: f64 = 1000.0;
 /// Largest van Genuchten n: 20 (soils lie between about 1.05 and 10).
 pub const MAX_VG_N: f64 = 20.0;
+/// A van Genuchten curve must drain before oven dryness: α times the magnitude of the
+/// soil's oven-dry head must be at least this (1/α, the head scale of drainage, at most a
+/// tenth of it; α ≥ 1e-4 1/m with the default −1e5 m). Below it the liquid content hardly
+/// changes up to oven dryness while the conductivity falls by decades (n near 1), and
+/// the first wetting of such a column failed in Newton (α = 1e-6 to 3e-5 1/m with n =
+/// 1.01 to 1.2 at −1e5 m; all of α ≥ 1e-4 ran).
+pub const MIN_VG_ALPHA_TIMES_OVEN_DRY: f64 = 10.0;
 
 /// Shallowest column a case may give: 1 cm (a column of 1e-9 m ran with a water balance
 /// that did not close by half of its throughput).
@@ -503,6 +510,32 @@ fn read_soil(name: &str, v: &Value) -> R<Soil> {
             None
         }
     };
+    if let RetentionLaw::VanGenuchten { alpha, .. } = &law {
+        let alpha = *alpha;
+        let oven_dry = match &dry_end {
+            Some(DryEnd::FayerSimmons { oven_dry_head }) => *oven_dry_head,
+            None => OVEN_DRY_HEAD,
+        };
+        let min = MIN_VG_ALPHA_TIMES_OVEN_DRY / oven_dry.abs();
+        if alpha < min {
+            let at = t
+                .get("van_genuchten")
+                .and_then(|vg| {
+                    vg.table(&["theta_r", "theta_s", "alpha_per_m", "n", "l"])
+                        .ok()
+                })
+                .and_then(|vg| vg.get("alpha_per_m"));
+            let msg = format!(
+                "must be at least {} 1/m for this soil: with a smaller α the curve does not drain before its oven-dry head of {} m (1/α must be at most a tenth of it)",
+                fmt_g(min),
+                fmt_g(oven_dry)
+            );
+            return Err(match at {
+                Some(a) => a.err(msg),
+                None => v.err(format!("alpha_per_m {msg}")),
+            });
+        }
+    }
 
     let (key, kv) = t.one_of(
         &[

@@ -118,9 +118,11 @@ fn soil(s: &Soil) -> String {
         None => String::new(),
     };
     let thermal = match &s.thermal {
-        ThermalConductivity::Constant { value } => format!("λ {} W/(m K)", fmt_g(*value)),
+        ThermalConductivity::Constant { value } => {
+            format!("thermal conductivity {} W/(m K)", fmt_g(*value))
+        }
         ThermalConductivity::Campbell { a, b, c, d, e } => format!(
-            "λ Campbell A {}, B {}, C {}, D {}, E {}",
+            "thermal conductivity Campbell A {}, B {}, C {}, D {}, E {}",
             fmt_g(*a),
             fmt_g(*b),
             fmt_g(*c),
@@ -132,7 +134,7 @@ fn soil(s: &Soil) -> String {
             saturated,
             fine,
         } => format!(
-            "λ Johansen dry {} / saturated {} W/(m K), {} texture",
+            "thermal conductivity Johansen dry {} / saturated {} W/(m K), {} texture",
             fmt_g(*dry),
             fmt_g(*saturated),
             if *fine { "fine" } else { "coarse" }

@@ -112,9 +112,15 @@ pub enum Command {
         /// (default: up to 6 spread in log time).
         #[arg(long, value_delimiter = ',', num_args = 1.., allow_negative_numbers = true)]
         times: Option<Vec<f64>>,
-        /// Logarithmic time axis for the time series (automatic beyond 3 decades).
+        /// Logarithmic time axis for the time series (automatic beyond 3 decades), in
+        /// years after the time origin.
         #[arg(long)]
         log_time: bool,
+        /// The year a log time axis counts from (default: the case's
+        /// output.log_origin_year, else the run's start year); records at or before it
+        /// are left out of a log axis, with a note.
+        #[arg(long, allow_negative_numbers = true, value_name = "YEAR")]
+        time_origin: Option<f64>,
     },
     /// Write a results file as CSV files (series, profiles in long form, mesh) and a
     /// README.txt describing their columns; units are in the column names.
@@ -207,6 +213,19 @@ pub enum TableCommand {
         /// Layer name.
         #[arg(long)]
         layer: String,
+        /// Temperature [°C] of the relative humidity (and of the conductivity when the
+        /// case corrects it for viscosity); default: humidity at 20 °C, conductivity Ks·Kr.
+        #[arg(long, allow_negative_numbers = true)]
+        temperature: Option<f64>,
+        /// First head [m], below 0 (default −0.01).
+        #[arg(long, allow_negative_numbers = true)]
+        from_head: Option<f64>,
+        /// Last head [m], below --from-head (default: the soil's oven-dry head).
+        #[arg(long, allow_negative_numbers = true)]
+        to_head: Option<f64>,
+        /// Rows per decade of suction (default 10).
+        #[arg(long)]
+        per_decade: Option<usize>,
     },
 }
 
@@ -310,14 +329,20 @@ fn run_command(cli: Cli) -> Result<()> {
             out,
             times,
             log_time,
+            time_origin,
         } => {
             let opts = crate::plot::PlotOptions {
                 out,
                 times,
                 log_time,
+                time_origin,
             };
-            for p in crate::plot::plot_results(&results, &opts)? {
+            let plotted = crate::plot::plot_results_with_notes(&results, &opts)?;
+            for p in plotted.files {
                 println!("{}", p.display());
+            }
+            for n in plotted.notes {
+                eprintln!("deepdry: note: {n}");
             }
             Ok(())
         }
@@ -396,9 +421,25 @@ fn run_command(cli: Cli) -> Result<()> {
                 print!("{}", crate::props::table::water_csv(from, to, step)?);
                 Ok(())
             }
-            TableCommand::Soil { case, layer } => {
+            TableCommand::Soil {
+                case,
+                layer,
+                temperature,
+                from_head,
+                to_head,
+                per_decade,
+            } => {
                 let model = crate::case::load(&case)?;
-                print!("{}", crate::props::table::soil_csv(&model, &layer)?);
+                let opts = crate::props::table::SoilTableOptions {
+                    temperature_c: temperature,
+                    from_head,
+                    to_head,
+                    per_decade,
+                };
+                print!(
+                    "{}",
+                    crate::props::table::soil_csv_with(&model, &layer, &opts)?
+                );
                 Ok(())
             }
         },

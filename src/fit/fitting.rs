@@ -215,8 +215,8 @@ pub fn results_of(model: &Model, rec: &Recorder) -> Results {
         depth: model.mesh.centers.clone(),
         face_depth: model.mesh.faces.clone(),
         profiles: p,
-        series: Default::default(),
         solutes,
+        ..Default::default()
     }
 }
 

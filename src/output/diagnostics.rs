@@ -5,9 +5,7 @@ use crate::physics::System;
 use crate::props::constants::{CELSIUS_ZERO, WATER_DENSITY};
 
 /// Liquid content above the driest value in the column that marks the drying front
-/// [m³ m⁻³]. The drying-front depth is the shallowest depth (linearly interpolated
-/// between cell centres) where θl exceeds min(θl) + this threshold; 0 when the surface
-/// cell already does, or when no cell does (nearly uniform content: no dry zone).
+/// [m³ m⁻³] (see [`drying_front_of`]).
 pub const DRYING_FRONT_THRESHOLD: f64 = 0.01;
 
 /// Cell and face profiles at one time (reused buffers).
@@ -79,24 +77,43 @@ impl Profile {
     }
 }
 
-/// Drying-front depth [m] (see [`DRYING_FRONT_THRESHOLD`]) from the last evaluation.
+/// Drying-front depth [m] (see [`drying_front_of`]) from the last evaluation.
 pub fn drying_front_depth(sys: &System) -> f64 {
     let th: Vec<f64> = sys.cells.iter().map(|c| c.theta.v).collect();
-    let min = th.iter().cloned().fold(f64::INFINITY, f64::min);
-    let level = min + DRYING_FRONT_THRESHOLD;
-    if th[0] > level {
-        return 0.0;
-    }
-    for i in 1..th.len() {
-        if th[i] > level {
-            let (z0, z1) = (sys.centers[i - 1], sys.centers[i]);
-            let f = (level - th[i - 1]) / (th[i] - th[i - 1]);
-            return z0 + f * (z1 - z0);
+    drying_front_of(&th, &sys.centers)
+}
+
+/// Drying-front depth [m] of a column with liquid content `theta` [m³ m⁻³] at cell
+/// centres `centers` [m] (surface first), or NaN when the column has no dry zone on top.
+///
+/// With θmin the smallest content and k the shallowest cell whose content exceeds
+/// θmin + [`DRYING_FRONT_THRESHOLD`], the front is the depth where the content crosses
+/// that level between cells k − 1 and k (linear between cell centres) — provided the
+/// driest cell lies above cell k, i.e. the column is driest in a zone on top of the
+/// front. There is no front (NaN) when no cell exceeds the level (a uniformly wet or
+/// uniformly dry column), or when the driest cell is at or below cell k (a column that
+/// is wetter at the top, or whose driest cell is deeper, e.g. a coarser layer under a
+/// wet finer one before any drying).
+pub fn drying_front_of(theta: &[f64], centers: &[f64]) -> f64 {
+    let mut imin = None;
+    for (i, &v) in theta.iter().enumerate() {
+        if v.is_finite() && imin.is_none_or(|j: usize| v < theta[j]) {
+            imin = Some(i);
         }
     }
-    // No cell exceeds the column minimum by the threshold: the liquid content is nearly
-    // uniform and there is no dry zone above a wetter one.
-    0.0
+    let Some(imin) = imin else {
+        return f64::NAN;
+    };
+    let level = theta[imin] + DRYING_FRONT_THRESHOLD;
+    let Some(k) = theta.iter().position(|&v| v > level) else {
+        return f64::NAN;
+    };
+    if imin >= k || k >= centers.len() {
+        return f64::NAN;
+    }
+    let (z0, z1) = (centers[k - 1], centers[k]);
+    let f = (level - theta[k - 1]) / (theta[k] - theta[k - 1]);
+    z0 + f * (z1 - z0)
 }
 
 /// Water stored in each layer [kg m⁻²] (liquid and vapour, Σ width × content over the
@@ -194,7 +211,8 @@ impl SeriesRecord {
         (
             "drying_front_depth",
             "m",
-            "shallowest depth where liquid content exceeds the column minimum by 0.01",
+            "shallowest depth where liquid content exceeds the column minimum by 0.01, \
+             with the driest cell above it; NaN when there is no such dry zone on top",
         ),
         ("dt", "s", "time step just taken"),
         (

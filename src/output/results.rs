@@ -683,6 +683,12 @@ impl ResultsFile {
         attr_str(&root, name, value).map_err(h5(&self.path))
     }
 
+    /// Sets a number attribute on the root group.
+    pub fn set_attr_f64(&self, name: &str, value: f64) -> Result<()> {
+        let root = self.file.as_group().map_err(h5(&self.path))?;
+        super::h5util::attr_f64(&root, name, value).map_err(h5(&self.path))
+    }
+
     /// Queues one series row (written at the next snapshot or flush), with no water
     /// storage per layer (NaN).
     pub fn push_series(&mut self, rec: SeriesRecord) {

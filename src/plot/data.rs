@@ -54,6 +54,12 @@ pub struct Results {
     pub face_depth: Vec<f64>,
     pub profiles: Profiles,
     pub series: Series,
+    /// The case's `output.log_origin_year` [year] (after its `--set` overrides), when it
+    /// has one: the default origin of a log time axis.
+    pub log_origin_year: Option<f64>,
+    /// The case's `output.times_year` [year] (after its overrides): the snapshot times
+    /// the user asked for, drawn first by default.
+    pub asked_times: Vec<f64>,
     /// The solutes' profiles (empty when the run has none).
     pub solutes: Vec<SoluteProfiles>,
 }
@@ -66,6 +72,38 @@ pub struct SoluteProfiles {
     pub concentration: Vec<Vec<f64>>,
     /// Accumulation age [year] (None without deposition).
     pub accumulation_age: Option<Vec<Vec<f64>>>,
+}
+
+/// The value of `output.KEY` in the case text a results file keeps, with the last
+/// `--set output.KEY=...` among `overrides` (one `KEY=VALUE` per line) applied; `None`
+/// when neither has it or the text cannot be read (old or hand-made files).
+pub fn case_output_key(case_text: &str, overrides: &str, key: &str) -> Option<toml::Value> {
+    let path = format!("output.{key}");
+    let mut value = case_text
+        .parse::<toml::Table>()
+        .ok()
+        .and_then(|t| t.get("output")?.get(key).cloned());
+    for line in overrides.lines() {
+        if let Some((k, v)) = line.split_once('=') {
+            if k.trim() == path {
+                value = format!("v = {}", v.trim())
+                    .parse::<toml::Table>()
+                    .ok()
+                    .and_then(|t| t.get("v").cloned());
+            }
+        } else if line.trim() == format!("{path} (removed)") {
+            value = None;
+        }
+    }
+    value
+}
+
+fn number(v: &toml::Value) -> Option<f64> {
+    match v {
+        toml::Value::Float(x) if x.is_finite() => Some(*x),
+        toml::Value::Integer(i) => Some(*i as f64),
+        _ => None,
+    }
 }
 
 fn not_results(path: &Path, why: impl std::fmt::Display) -> Error {
@@ -176,6 +214,14 @@ pub fn read(path: &Path) -> Result<Results> {
         return Err(not_results(path, format!("kind is `{kind}`")));
     }
     let title = read_attr_str(&file, "title").unwrap_or_default();
+    let case_text = read_attr_str(&file, "case_text").unwrap_or_default();
+    let overrides = read_attr_str(&file, "overrides").unwrap_or_default();
+    let log_origin_year =
+        case_output_key(&case_text, &overrides, "log_origin_year").and_then(|v| number(&v));
+    let asked_times = match case_output_key(&case_text, &overrides, "times_year") {
+        Some(toml::Value::Array(a)) => a.iter().filter_map(number).collect(),
+        _ => Vec::new(),
+    };
 
     let face_depth = read_vec(&file, path, "mesh/face_depth", None)?;
     if face_depth.len() < 2 {
@@ -243,5 +289,7 @@ pub fn read(path: &Path) -> Result<Results> {
         profiles,
         series,
         solutes,
+        log_origin_year,
+        asked_times,
     })
 }

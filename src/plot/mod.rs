@@ -10,6 +10,7 @@
 
 pub mod chart;
 pub mod data;
+pub mod palette;
 pub mod scale;
 pub mod solutes;
 pub mod times;
@@ -27,7 +28,7 @@ pub const FLUX_TO_MM_PER_YEAR: f64 = YEAR;
 /// Smallest suction drawn [m]: heads above −SUCTION_FLOOR (wetter, including h ≥ 0)
 /// are drawn at this suction on the log axis.
 pub const SUCTION_FLOOR: f64 = 1e-3;
-/// Decades between the largest flux and the edge of the symlog linear band.
+/// Decades between the largest flux and the edge of the symmetric-log linear band.
 pub const SYMLOG_DECADES: i32 = 4;
 /// The time axis is logarithmic when the run spans more than this many decades.
 pub const AUTO_LOG_TIME_DECADES: f64 = 3.0;
@@ -44,16 +45,40 @@ pub struct PlotOptions {
     pub times: Option<Vec<f64>>,
     /// Logarithmic time axis for the series (also chosen automatically for long runs).
     pub log_time: bool,
+    /// The year a log time axis counts from [year] (the axis shows years after it).
+    /// Default: the case's `output.log_origin_year` when it has one, else the first
+    /// time of the series (the run's start).
+    pub time_origin: Option<f64>,
+}
+
+/// What `deepdry plot` wrote, and notes for the user (one line each).
+#[derive(Debug, Clone, Default)]
+pub struct Plotted {
+    pub files: Vec<PathBuf>,
+    pub notes: Vec<String>,
 }
 
 /// Draws every plot of the results file `path`; returns the files written (SVG and PNG
 /// of each plot).
 pub fn plot_results(path: &Path, opts: &PlotOptions) -> Result<Vec<PathBuf>> {
+    plot_results_with_notes(path, opts).map(|p| p.files)
+}
+
+/// [`plot_results`], with the notes the user should see (points a log time axis leaves
+/// out).
+pub fn plot_results_with_notes(path: &Path, opts: &PlotOptions) -> Result<Plotted> {
+    if let Some(o) = opts.time_origin {
+        if !o.is_finite() {
+            return Err(Error::input(format!(
+                "--time-origin: {o}: must be a finite year"
+            )));
+        }
+    }
     let res = data::read(path)?;
     let snaps = match &opts.times {
         Some(t) if !t.is_empty() => times::pick_nearest(&res.profiles.time, t)
             .map_err(|e| Error::input(format!("{}: {e}", path.display())))?,
-        _ => times::pick_default(&res.profiles.time, times::DEFAULT_COUNT),
+        _ => times::pick_default_with(&res.profiles.time, times::DEFAULT_COUNT, &res.asked_times),
     };
     if snaps.is_empty() {
         return Err(Error::input(format!(
@@ -64,13 +89,30 @@ pub fn plot_results(path: &Path, opts: &PlotOptions) -> Result<Vec<PathBuf>> {
     let out = out_folder(path, opts.out.as_deref())?;
     let mut figures = profile_figures(&res, &snaps);
     figures.extend(solutes::solute_figures(&res, &snaps));
-    figures.extend(series_figures(&res, opts.log_time));
-    chart::register_fonts();
-    let mut written = Vec::new();
-    for (name, fig) in &figures {
-        written.extend(write_figure(&out, name, fig)?);
+    let origin = opts
+        .time_origin
+        .or(res.log_origin_year)
+        .unwrap_or_else(|| res.series.time.first().copied().unwrap_or(0.0));
+    let mut notes = Vec::new();
+    if !res.series.time.is_empty() {
+        let t = series_time_axis(&res.series.time, origin, opts.log_time);
+        let left_out = t.left_out(&res.series.time);
+        if left_out > 0 {
+            notes.push(format!(
+                "{left_out} of {} series records are at or before the time origin, year {}, \
+                 and are left out of the log time axis (--time-origin sets the origin)",
+                res.series.time.len(),
+                format_years(origin).replace('−', "-")
+            ));
+        }
+        figures.extend(series_figures_on(&res, t));
     }
-    Ok(written)
+    chart::register_fonts();
+    let mut files = Vec::new();
+    for (name, fig) in &figures {
+        files.extend(write_figure(&out, name, fig)?);
+    }
+    Ok(Plotted { files, notes })
 }
 
 /// The output folder, created when missing; an [`Error::Io`] when it cannot be.
@@ -295,7 +337,7 @@ pub fn profile_figures(res: &Results, snaps: &[usize]) -> Vec<(String, Figure)> 
         ),
     ));
 
-    // The four water-flux parts on one shared symlog axis.
+    // The four water-flux parts on one shared symmetric-log axis.
     let parts: [(&str, &Vec<Vec<f64>>); 4] = [
         (
             "liquid, isothermal (head and gravity)",
@@ -363,60 +405,123 @@ pub fn profile_figures(res: &Results, snaps: &[usize]) -> Vec<(String, Figure)> 
     figs
 }
 
-/// The time axis of the series: log when asked for or when the run spans more than
-/// [`AUTO_LOG_TIME_DECADES`] decades (times <= 0 are then left out).
-pub fn time_axis(time: &[f64], log_time: bool) -> Axis {
-    let pos_min = time
+/// The time axis of the series and how a time maps onto it.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct TimeAxis {
+    pub axis: Axis,
+    /// On a log axis, the year it counts from (a time t is drawn at t − origin); `None`
+    /// on a linear axis, which shows the years themselves.
+    pub origin: Option<f64>,
+}
+
+impl TimeAxis {
+    /// Where time `t` [year] is drawn.
+    pub fn x(&self, t: f64) -> f64 {
+        match self.origin {
+            Some(o) => t - o,
+            None => t,
+        }
+    }
+
+    /// How many of `time` a log axis leaves out (finite times at or before the origin).
+    pub fn left_out(&self, time: &[f64]) -> usize {
+        match self.origin {
+            Some(o) => time.iter().filter(|t| t.is_finite() && **t <= o).count(),
+            None => 0,
+        }
+    }
+
+    /// The axis label: "time [yr]", or "time [years after year O], log scale".
+    pub fn label(&self) -> String {
+        match self.origin {
+            Some(o) => format!("time [years after year {}], log scale", format_years(o)),
+            None => "time [yr]".into(),
+        }
+    }
+}
+
+/// The time axis of the series for times counted from `origin` [year]: log (years after
+/// the origin; times at or before it cannot be shown) when asked for or when the times
+/// after the origin span more than [`AUTO_LOG_TIME_DECADES`] decades, else linear in
+/// years. A log axis needs a time after the origin; without one the axis is linear.
+pub fn series_time_axis(time: &[f64], origin: f64, log_time: bool) -> TimeAxis {
+    let after: Vec<f64> = time
+        .iter()
+        .filter(|t| t.is_finite())
+        .map(|t| t - origin)
+        .collect();
+    let pos_min = after
         .iter()
         .cloned()
-        .filter(|t| *t > 0.0 && t.is_finite())
+        .filter(|t| *t > 0.0)
+        .fold(f64::INFINITY, f64::min);
+    let max = after.iter().cloned().fold(f64::NEG_INFINITY, f64::max);
+    let spans = pos_min.is_finite() && max > 0.0 && (max / pos_min).log10() > AUTO_LOG_TIME_DECADES;
+    if (log_time || spans) && pos_min.is_finite() {
+        return TimeAxis {
+            axis: axis_for(Scale::Log, after),
+            origin: Some(origin),
+        };
+    }
+    let min = time
+        .iter()
+        .cloned()
+        .filter(|t| t.is_finite())
         .fold(f64::INFINITY, f64::min);
     let max = time
         .iter()
         .cloned()
         .filter(|t| t.is_finite())
         .fold(f64::NEG_INFINITY, f64::max);
-    let spans = pos_min.is_finite() && max > 0.0 && (max / pos_min).log10() > AUTO_LOG_TIME_DECADES;
-    if (log_time || spans) && pos_min.is_finite() {
-        axis_for(Scale::Log, time.iter().cloned())
+    let axis = if min.is_finite() && max > min {
+        Axis::new(Scale::Linear, min, max)
     } else {
-        let min = time
-            .iter()
-            .cloned()
-            .filter(|t| t.is_finite())
-            .fold(f64::INFINITY, f64::min);
-        if min.is_finite() && max > min {
-            Axis::new(Scale::Linear, min, max)
-        } else {
-            axis_for(Scale::Linear, time.iter().cloned())
-        }
-    }
+        axis_for(Scale::Linear, time.iter().cloned())
+    };
+    TimeAxis { axis, origin: None }
 }
 
-fn time_label(axis: &Axis) -> String {
-    match axis.scale {
-        Scale::Log => "time [yr], log scale".into(),
-        _ => "time [yr]".into(),
-    }
+/// [`series_time_axis`] counted from year 0.
+pub fn time_axis(time: &[f64], log_time: bool) -> Axis {
+    series_time_axis(time, 0.0, log_time).axis
 }
 
-/// The time-series figures (name, figure); none when the file has no series rows.
+/// The time-series figures (name, figure) on a time axis counted from year 0; none when
+/// the file has no series rows.
 pub fn series_figures(res: &Results, log_time: bool) -> Vec<(String, Figure)> {
+    if res.series.time.is_empty() {
+        return Vec::new();
+    }
+    series_figures_on(res, series_time_axis(&res.series.time, 0.0, log_time))
+}
+
+/// The time-series figures on the time axis `ta`; none when the file has no series rows.
+pub fn series_figures_on(res: &Results, ta: TimeAxis) -> Vec<(String, Figure)> {
     let s = &res.series;
     if s.time.is_empty() {
         return Vec::new();
     }
     let title = title_of(res);
-    let t = time_axis(&s.time, log_time);
+    let t = ta.axis;
+    let left_out = ta.left_out(&s.time);
     let span = format!(
-        "t = {} to {} yr",
+        "t = {} to {} yr{}",
         format_years(s.time.iter().cloned().fold(f64::INFINITY, f64::min)),
-        format_years(s.time.iter().cloned().fold(f64::NEG_INFINITY, f64::max))
+        format_years(s.time.iter().cloned().fold(f64::NEG_INFINITY, f64::max)),
+        match ta.origin {
+            Some(o) if left_out > 0 => format!(
+                " ({left_out} record{} at or before year {} not on the log axis)",
+                if left_out == 1 { "" } else { "s" },
+                format_years(o)
+            ),
+            _ => String::new(),
+        }
     );
-    let blue = RGBColor(30, 90, 180);
-    let red = RGBColor(200, 60, 30);
-    // The first line of each series plot (blue) is drawn wider so that it shows beside
-    // the second where they overlap.
+    // Two colours of the palette two lightness steps apart (dark navy, light orange),
+    // distinct in grey as in colour; the first line is drawn wider so that it shows
+    // beside the second where they overlap.
+    let blue = palette::PALETTE[0];
+    let red = palette::PALETTE[3];
     let line = |label: &str, color: RGBColor, v: &[f64], f: &dyn Fn(f64) -> f64| Line {
         label: label.into(),
         color,
@@ -425,8 +530,8 @@ pub fn series_figures(res: &Results, log_time: bool) -> Vec<(String, Figure)> {
             &s.time
                 .iter()
                 .zip(v)
-                .filter(|(t_, _)| t.scale.shows(**t_))
-                .map(|(t_, v)| (*t_, f(*v)))
+                .map(|(t_, v)| (ta.x(*t_), f(*v)))
+                .filter(|(x, _)| t.scale.shows(*x))
                 .collect::<Vec<_>>(),
             &t,
             SERIES_BUCKETS,
@@ -440,7 +545,7 @@ pub fn series_figures(res: &Results, log_time: bool) -> Vec<(String, Figure)> {
                 heading: String::new(),
                 x: t,
                 y,
-                x_label: time_label(&t),
+                x_label: ta.label(),
                 y_label: y_label.into(),
                 lines,
                 x_zero: false,
@@ -476,7 +581,7 @@ pub fn series_figures(res: &Results, log_time: bool) -> Vec<(String, Figure)> {
             "net water flux at the boundaries",
             y,
             &format!(
-                "water flux [mm/yr], + downward; symlog, linear within ±{}",
+                "water flux [mm/yr], + downward; symmetric log, linear within ±{}",
                 scale::format_real(sl.linear)
             ),
             lines,
@@ -505,7 +610,7 @@ pub fn series_figures(res: &Results, log_time: bool) -> Vec<(String, Figure)> {
         single(
             "drying-front depth",
             y,
-            "drying-front depth [m]",
+            "drying-front depth [m] (gaps: no dry zone on top)",
             lines,
             false,
             "series",

@@ -25,7 +25,7 @@ impl SymLog {
     pub fn new(linear: f64) -> Self {
         assert!(
             linear > 0.0 && linear.is_finite(),
-            "symlog band must be > 0"
+            "the symmetric-log band must be > 0"
         );
         SymLog { linear }
     }
@@ -99,7 +99,7 @@ impl Scale {
     }
 
     /// An axis range covering `values` (those the scale can show): padded on a linear
-    /// scale, widened to whole decades on a log or symlog scale (symlog always includes 0).
+    /// scale, widened to whole decades on a log or symmetric-log scale (which always includes 0).
     /// `None` when no value can be shown.
     pub fn range_for(&self, values: impl IntoIterator<Item = f64>) -> Option<(f64, f64)> {
         let (mut lo, mut hi) = (f64::INFINITY, f64::NEG_INFINITY);
@@ -325,13 +325,18 @@ fn log_ticks(lo: f64, hi: f64, max: usize, minor: bool) -> Vec<f64> {
     out
 }
 
+/// Ticks of a symmetric-log axis: 0 and ±c·10^k for every decade k ≥ 0 on the axis (c the
+/// band half-width). Every decade is labelled while there are at most `2 max` of them;
+/// beyond that every j-th decade counted from the band edge on both sides (so a symmetric
+/// range gets the same decades on both sides), the others as minor ticks.
 fn symlog_ticks(s: SymLog, lo: f64, hi: f64, max: usize, minor: bool) -> Vec<f64> {
     let (a, b) = (s.forward(lo.min(hi)), s.forward(lo.max(hi)));
-    // Decades outside the band on each side: k = 0 is ±c, k = 1 is ±10c, ...
-    let kpos = (b.floor() as i32 - 1).max(-1);
-    let kneg = ((-a).floor() as i32 - 1).max(-1);
+    // Decades outside the band on each side: k = 0 is ±c, k = 1 is ±10c, ... (the slack
+    // keeps a decade whose transform rounds to just below a whole number).
+    let kpos = ((b + 1e-9).floor() as i32 - 1).max(-1);
+    let kneg = ((-a + 1e-9).floor() as i32 - 1).max(-1);
     let count = (kpos + 1 + kneg + 1 + 1).max(1) as usize;
-    let every = count.div_ceil(max.max(2)).max(1) as i32;
+    let every = count.div_ceil(2 * max.max(2)).max(1) as i32;
     let mut out = Vec::new();
     if !minor {
         out.push(0.0);
@@ -339,14 +344,16 @@ fn symlog_ticks(s: SymLog, lo: f64, hi: f64, max: usize, minor: bool) -> Vec<f64
     for (sign, kmax) in [(1.0, kpos), (-1.0, kneg)] {
         for k in 0..=kmax {
             let base = s.linear * 10f64.powi(k);
+            let labelled = k % every == 0;
             if minor {
                 if every == 1 {
                     for m in 2..10 {
                         out.push(sign * m as f64 * base);
                     }
+                } else if !labelled {
+                    out.push(sign * base);
                 }
-            } else if (kmax - k) % every == 0 {
-                // Thinned from the outermost decade in, so both ends are labelled.
+            } else if labelled {
                 out.push(sign * base);
             }
         }

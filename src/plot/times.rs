@@ -74,6 +74,55 @@ pub fn pick_default(available: &[f64], count: usize) -> Vec<usize> {
     sorted_unique(available, out)
 }
 
+/// The default snapshots with the times the user asked for first: the snapshots at the
+/// `asked` times (those the file has, to rounding), then as many of [`pick_default`]'s
+/// as fit in `count`. When more than `count` times were asked for, `count` of them spread
+/// over the list (the first and last included).
+pub fn pick_default_with(available: &[f64], count: usize, asked: &[f64]) -> Vec<usize> {
+    let count = count.max(1);
+    let first: Vec<usize> = asked
+        .iter()
+        .filter(|t| t.is_finite())
+        .filter_map(|&t| {
+            let i = nearest(available, t, |a, b| (a - b).abs());
+            let at = available.get(i)?;
+            ((at - t).abs() <= 1e-9 * t.abs().max(1.0)).then_some(i)
+        })
+        .collect();
+    let first = sorted_unique(available, first);
+    let k = first.len();
+    if k == 0 {
+        return pick_default(available, count);
+    }
+    if k >= count {
+        let spread = (0..count)
+            .map(|j| {
+                first[if count == 1 {
+                    k - 1
+                } else {
+                    j * (k - 1) / (count - 1)
+                }]
+            })
+            .collect();
+        return sorted_unique(available, spread);
+    }
+    let mut best = first.clone();
+    for extra in (count - k)..=available.len() {
+        let mut u = first.clone();
+        u.extend(pick_default(available, extra));
+        let u = sorted_unique(available, u);
+        if u.len() > count {
+            break;
+        }
+        let full = u.len() == count;
+        best = u;
+        if full {
+            break;
+        }
+    }
+    best
+}
+
 fn nearest(available: &[f64], t: f64, dist: impl Fn(f64, f64) -> f64) -> usize {
     let mut best = 0;
     let mut d_best = f64::INFINITY;

@@ -138,7 +138,7 @@ impl RetentionLaw {
                 lambda,
                 l,
             } => format!(
-                "Brooks–Corey–Mualem θr {}, θs {}, |hb| {} m, λ {}, l {}",
+                "Brooks–Corey–Mualem θr {}, θs {}, |hb| {} m, pore-size index λ {}, l {}",
                 g(theta_r),
                 g(theta_s),
                 g(air_entry),

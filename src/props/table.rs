@@ -101,17 +101,38 @@ pub fn water_csv(from_c: f64, to_c: f64, step_c: f64) -> Result<String> {
 /// Heads of the soil table: −0.01 m to `end` (< −0.01 m), log-spaced, ~10 per decade, both
 /// ends included.
 pub fn soil_table_heads(end: f64) -> impl Iterator<Item = f64> {
-    const START: f64 = -0.01;
-    let end = if end < START { end } else { OVEN_DRY_HEAD };
-    let decades = (end / START).log10();
-    let n = ((10.0 * decades).ceil() as usize).max(1);
+    let end = if end < -0.01 { end } else { OVEN_DRY_HEAD };
+    log_heads(-0.01, end, 10)
+}
+
+/// Heads from `start` to `end` (both < 0, `end` < `start`), log-spaced in suction with
+/// about `per_decade` per decade, both ends included.
+fn log_heads(start: f64, end: f64, per_decade: usize) -> impl Iterator<Item = f64> {
+    let decades = (end / start).log10();
+    let n = ((per_decade as f64 * decades).ceil() as usize).max(1);
     (0..=n).map(move |i| {
         if i == n {
             end
         } else {
-            START * 10f64.powf(decades * i as f64 / n as f64)
+            start * 10f64.powf(decades * i as f64 / n as f64)
         }
     })
+}
+
+/// Options of `deepdry table soil`.
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub struct SoilTableOptions {
+    /// Temperature of the table [°C]: the relative humidity is the Kelvin value at it and,
+    /// when the case corrects the conductivity for viscosity, the conductivity is at it.
+    /// `None`: relative humidity at 20 °C, conductivity Ks·Kr (at the reference temperature).
+    pub temperature_c: Option<f64>,
+    /// First head [m] (< 0; default −0.01 m).
+    pub from_head: Option<f64>,
+    /// Last head [m] (below `from_head`, not below the soil's oven-dry head; default the
+    /// oven-dry head).
+    pub to_head: Option<f64>,
+    /// Rows per decade of suction (1 to 1000; default 10).
+    pub per_decade: Option<usize>,
 }
 
 /// CSV `head_m,liquid_content,relative_conductivity,conductivity_m_s,relative_humidity_20C,thermal_conductivity_W_m_K`
@@ -123,6 +144,13 @@ pub fn soil_table_heads(end: f64) -> impl Iterator<Item = f64> {
 /// thermal conductivity is λ(θ) with porosity θs. An unknown layer name is an
 /// [`Error::Input`] that lists the layer names.
 pub fn soil_csv(model: &Model, layer: &str) -> Result<String> {
+    soil_csv_with(model, layer, &SoilTableOptions::default())
+}
+
+/// [`soil_csv`] with a temperature and a head range ([`SoilTableOptions`]). The relative
+/// humidity column is `relative_humidity_<T>C` for the table temperature T. Options out
+/// of range are an [`Error::Input`] naming the option and the allowed range.
+pub fn soil_csv_with(model: &Model, layer: &str, opts: &SoilTableOptions) -> Result<String> {
     let Some(found) = model.layers.iter().find(|l| l.name == layer) else {
         let names: Vec<&str> = model.layers.iter().map(|l| l.name.as_str()).collect();
         let known = if names.is_empty() {
@@ -143,15 +171,56 @@ pub fn soil_csv(model: &Model, layer: &str) -> Result<String> {
     })?;
     let ret = &soil.retention;
     let porosity = ret.theta_s();
-    let t20 = 20.0 + CELSIUS_ZERO;
+    let dry = ret.oven_dry_head();
+    let fmt = crate::case::schedules::fmt_g;
+    let tc = opts.temperature_c.unwrap_or(20.0);
+    if !(WATER_TABLE_MIN_C..=WATER_TABLE_MAX_C).contains(&tc) {
+        return Err(Error::input(format!(
+            "--temperature: {tc}: must be within {WATER_TABLE_MIN_C}–{WATER_TABLE_MAX_C} °C, where the water-property laws are valid"
+        )));
+    }
+    let from = opts.from_head.unwrap_or(-0.01);
+    if !(from < 0.0 && from > dry) {
+        return Err(Error::input(format!(
+            "--from-head: {from}: must be a head in m below 0 and above the oven-dry head of layer {layer}'s soil ({} m)",
+            fmt(dry)
+        )));
+    }
+    let to = opts.to_head.unwrap_or(dry);
+    if !(to < from && to >= dry) {
+        return Err(Error::input(format!(
+            "--to-head: {to}: must be a head in m below --from-head ({}) and not below the oven-dry head of layer {layer}'s soil ({} m)",
+            fmt(from),
+            fmt(dry)
+        )));
+    }
+    let per = opts.per_decade.unwrap_or(10);
+    if !(1..=1000).contains(&per) {
+        return Err(Error::input(format!(
+            "--per-decade: {per}: must be 1 to 1000"
+        )));
+    }
+    let t = tc + CELSIUS_ZERO;
+    let viscosity = match opts.temperature_c {
+        Some(_) if model.physics.viscosity_correction => {
+            crate::props::conductivity::viscosity_factor(t, model.physics.reference_temperature).0
+        }
+        _ => 1.0,
+    };
     let mut out = String::with_capacity(80 * 128);
-    out.push_str(SOIL_HEADER);
+    if opts.temperature_c.is_some() {
+        out.push_str(
+            &SOIL_HEADER.replace("relative_humidity_20C", &format!("relative_humidity_{tc}C")),
+        );
+    } else {
+        out.push_str(SOIL_HEADER);
+    }
     out.push('\n');
-    for h in soil_table_heads(ret.oven_dry_head()) {
+    for h in log_heads(from, to, per) {
         let (theta, _) = ret.theta(h);
         let (kr, _) = ret.relative_conductivity(h);
-        let k = soil.saturated_conductivity * kr;
-        let (hr, _, _) = water::relative_humidity(h, t20);
+        let k = soil.saturated_conductivity * kr * viscosity;
+        let (hr, _, _) = water::relative_humidity(h, t);
         let (lam, _) = soil.thermal.value(theta, porosity);
         let _ = writeln!(
             out,

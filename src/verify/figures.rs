@@ -1,19 +1,94 @@
 //! SVG figures of the verification report (plotters, SVG backend only): model values as
-//! markers, references as lines.
+//! markers, references as lines drawn over them, each series in its own colour, marker
+//! shape or dash pattern ([`crate::plot::palette`]), and the legend below the chart, where
+//! it cannot cover data.
 
 use super::{Figure, Style};
 use crate::error::{Error, Result};
+use crate::plot::palette::{self, Marker};
 use plotters::coord::ranged1d::{AsRangedCoord, ValueFormatter};
+use plotters::coord::Shift;
 use plotters::prelude::*;
 
-const COLORS: [RGBColor; 6] = [
-    RGBColor(31, 119, 180),
-    RGBColor(214, 39, 40),
-    RGBColor(44, 160, 44),
-    RGBColor(148, 103, 189),
-    RGBColor(255, 127, 14),
-    RGBColor(23, 190, 207),
-];
+/// Size of the chart [px]; the legend adds [`LEGEND_ROW`] per series below it.
+const CHART: (u32, u32) = (720, 480);
+const LEGEND_ROW: u32 = 22;
+/// Left edge of the legend [px] (about the chart's y-axis).
+const LEGEND_X: i32 = 82;
+
+/// Draws `marker` centred on the pixel `(x, y)` of `area` (filled shapes get a thin dark
+/// outline so that the light colours show on white).
+fn draw_marker<DB: DrawingBackend>(
+    area: &DrawingArea<DB, Shift>,
+    marker: Marker,
+    (x, y): (i32, i32),
+    color: RGBColor,
+) -> std::result::Result<(), DrawingAreaErrorKind<DB::ErrorType>> {
+    let fill = color.filled();
+    let edge = RGBColor(40, 40, 40).stroke_width(1);
+    let stroke = color.stroke_width(2);
+    let outline = |pts: Vec<(i32, i32)>| {
+        let mut closed = pts.clone();
+        closed.push(pts[0]);
+        PathElement::new(closed, edge)
+    };
+    match marker {
+        Marker::Circle => {
+            area.draw(&Circle::new((x, y), 4, fill))?;
+            area.draw(&Circle::new((x, y), 4, edge))
+        }
+        Marker::Square => {
+            let p = vec![
+                (x - 4, y - 4),
+                (x + 4, y - 4),
+                (x + 4, y + 4),
+                (x - 4, y + 4),
+            ];
+            area.draw(&Polygon::new(p.clone(), fill))?;
+            area.draw(&outline(p))
+        }
+        Marker::Triangle => {
+            let p = vec![(x, y - 5), (x + 5, y + 4), (x - 5, y + 4)];
+            area.draw(&Polygon::new(p.clone(), fill))?;
+            area.draw(&outline(p))
+        }
+        Marker::Diamond => {
+            let p = vec![(x, y - 5), (x + 5, y), (x, y + 5), (x - 5, y)];
+            area.draw(&Polygon::new(p.clone(), fill))?;
+            area.draw(&outline(p))
+        }
+        Marker::Cross => {
+            area.draw(&PathElement::new(
+                vec![(x - 4, y - 4), (x + 4, y + 4)],
+                stroke,
+            ))?;
+            area.draw(&PathElement::new(
+                vec![(x - 4, y + 4), (x + 4, y - 4)],
+                stroke,
+            ))
+        }
+        Marker::Plus => {
+            area.draw(&PathElement::new(vec![(x - 5, y), (x + 5, y)], stroke))?;
+            area.draw(&PathElement::new(vec![(x, y - 5), (x, y + 5)], stroke))
+        }
+    }
+}
+
+/// A dashed (or solid) line through pixel points on `area`.
+fn draw_line<DB: DrawingBackend>(
+    area: &DrawingArea<DB, Shift>,
+    pts: Vec<(i32, i32)>,
+    dash: Option<(u32, u32)>,
+    color: RGBColor,
+) -> std::result::Result<(), DrawingAreaErrorKind<DB::ErrorType>> {
+    let style = color.stroke_width(2);
+    match dash {
+        None => area.draw(&PathElement::new(pts, style)),
+        Some((on, off)) => area.draw(&plotters::element::DashedPathElement::new(
+            pts, on, off, style,
+        )),
+    }
+}
 
 fn bounds(values: impl Iterator<Item = f64>, log: bool) -> (f64, f64) {
     let (mut lo, mut hi) = (f64::INFINITY, f64::NEG_INFINITY);
@@ -48,7 +123,8 @@ pub fn svg(fig: &Figure) -> Result<String> {
     crate::plot::chart::register_fonts();
     let mut out = String::new();
     {
-        let root = SVGBackend::with_string(&mut out, (720, 480)).into_drawing_area();
+        let size = (CHART.0, CHART.1 + 14 + LEGEND_ROW * fig.series.len() as u32);
+        let root = SVGBackend::with_string(&mut out, size).into_drawing_area();
         let xs = fig.series.iter().flat_map(|s| s.points.iter().map(|p| p.0));
         let ys = fig.series.iter().flat_map(|s| s.points.iter().map(|p| p.1));
         let (x0, x1) = bounds(xs, fig.log_x);
@@ -87,7 +163,8 @@ where
 {
     let e = |err: DrawingAreaErrorKind<std::io::Error>| err.to_string();
     root.fill(&WHITE).map_err(e)?;
-    let mut chart = ChartBuilder::on(root)
+    let (top, _) = root.split_vertically(CHART.1);
+    let mut chart = ChartBuilder::on(&top)
         .caption(&fig.title, ("sans-serif", 18))
         .margin(12)
         .x_label_area_size(44)
@@ -121,44 +198,53 @@ where
         .light_line_style(RGBColor(235, 235, 235))
         .draw()
         .map_err(e)?;
-    for (k, s) in fig.series.iter().enumerate() {
-        let color = COLORS[k % COLORS.len()];
-        let pts: Vec<(f64, f64)> = s
-            .points
+    // Markers first, then the reference lines over them (a line hidden under markers
+    // would hide the comparison it is there for).
+    let pixels = |s: &super::Series| -> Vec<(i32, i32)> {
+        s.points
             .iter()
             .filter(|p| p.0.is_finite() && p.1.is_finite())
             .filter(|p| (!fig.log_x || p.0 > 0.0) && (!fig.log_y || p.1 * sign > 0.0))
-            .map(|p| (p.0, p.1 * sign))
-            .collect();
-        match s.style {
-            Style::Line => {
-                chart
-                    .draw_series(LineSeries::new(pts, color.stroke_width(2)))
-                    .map_err(e)?
-                    .label(s.label.as_str())
-                    .legend(move |(x, y)| {
-                        PathElement::new(vec![(x, y), (x + 18, y)], color.stroke_width(2))
-                    });
+            .map(|p| chart.backend_coord(&(p.0, p.1 * sign)))
+            .collect()
+    };
+    for pass in [Style::Points, Style::Line] {
+        for (k, s) in fig.series.iter().enumerate() {
+            if s.style != pass {
+                continue;
             }
-            Style::Points => {
-                chart
-                    .draw_series(pts.into_iter().map(|p| Circle::new(p, 3, color.filled())))
-                    .map_err(e)?
-                    .label(s.label.as_str())
-                    .legend(move |(x, y)| Circle::new((x + 9, y), 3, color.filled()));
+            let (color, marker, dash) = palette::style(k);
+            let pts = pixels(s);
+            match s.style {
+                Style::Points => {
+                    for p in pts {
+                        draw_marker(root, marker, p, color).map_err(e)?;
+                    }
+                }
+                Style::Line => draw_line(root, pts, dash, color).map_err(e)?,
             }
         }
     }
-    chart
-        .configure_series_labels()
-        .background_style(WHITE.mix(0.85))
-        .border_style(BLACK)
-        .position(if fig.y_down {
-            SeriesLabelPosition::LowerRight
-        } else {
-            SeriesLabelPosition::UpperRight
-        })
-        .draw()
+    // The legend, below the chart.
+    let font = ("sans-serif", 14).into_font().color(&BLACK);
+    for (k, s) in fig.series.iter().enumerate() {
+        let (color, marker, dash) = palette::style(k);
+        let y = CHART.1 as i32 + 12 + LEGEND_ROW as i32 * k as i32;
+        match s.style {
+            Style::Points => draw_marker(root, marker, (LEGEND_X + 14, y), color).map_err(e)?,
+            Style::Line => {
+                draw_line(root, vec![(LEGEND_X, y), (LEGEND_X + 30, y)], dash, color).map_err(e)?
+            }
+        }
+        root.draw_text(
+            &s.label,
+            &font.pos(plotters::style::text_anchor::Pos::new(
+                plotters::style::text_anchor::HPos::Left,
+                plotters::style::text_anchor::VPos::Center,
+            )),
+            (LEGEND_X + 40, y),
+        )
         .map_err(e)?;
+    }
     Ok(())
 }

@@ -65,6 +65,12 @@ fn profile(t: f64, centers: &[f64], faces: &[f64]) -> Profile {
 /// Writes a synthetic results file at `path`: 8 snapshots from 0 to 10⁴ yr and 301
 /// series records (t = 0, then log-spaced from 10⁻³ to 10⁴ yr).
 pub fn write_synthetic(path: &Path, title: &str) {
+    write_synthetic_with(path, title, "title = \"synthetic\"\n", 0.0);
+}
+
+/// [`write_synthetic`] with the given case text kept in the file and every time
+/// (snapshots and series) shifted by `year0` years: the run starts at year `year0`.
+pub fn write_synthetic_with(path: &Path, title: &str, case_text: &str, year0: f64) {
     let mut model = common::column(
         common::uniform_mesh(DEPTH, CELLS),
         common::sandy_loam(),
@@ -75,7 +81,7 @@ pub fn write_synthetic(path: &Path, title: &str) {
         1e4 * common::YEAR,
     );
     model.title = title.into();
-    model.case_text = "title = \"synthetic\"\n".into();
+    model.case_text = case_text.into();
     let centers = model.mesh.centers.clone();
     let faces = model.mesh.faces.clone();
     let mut rf = ResultsFile::create(path, &model, true).unwrap();
@@ -89,7 +95,7 @@ pub fn write_synthetic(path: &Path, title: &str) {
             1e-10 * (1.0 + (k as f64).sin())
         };
         rf.push_series(SeriesRecord {
-            time_year: t,
+            time_year: year0 + t,
             surface_water_flux: -3e-9 / (1.0 + t).sqrt() + 1e-11,
             bottom_water_flux: 2e-12 * (t / 100.0).ln().tanh().max(-1.0),
             surface_heat_flux: -1.0,
@@ -106,7 +112,7 @@ pub fn write_synthetic(path: &Path, title: &str) {
         });
         while next_snapshot < SNAPSHOT_TIMES.len() && SNAPSHOT_TIMES[next_snapshot] <= t {
             let ts = SNAPSHOT_TIMES[next_snapshot];
-            rf.write_snapshot(ts, &profile(ts, &centers, &faces))
+            rf.write_snapshot(year0 + ts, &profile(ts, &centers, &faces))
                 .unwrap();
             next_snapshot += 1;
         }

@@ -335,6 +335,14 @@ pub fn root_attr(path: &Path, name: &str) -> Option<String> {
     Some(v.as_str().to_string())
 }
 
+/// A scalar f64 attribute of the root group (None when missing or not a number).
+pub fn root_attr_f64(path: &Path, name: &str) -> Option<f64> {
+    let _g = h5_guard();
+    hdf5::silence_errors(true);
+    let f = hdf5::File::open(path).ok()?;
+    f.attr(name).ok()?.read_scalar::<f64>().ok()
+}
+
 /// Asserts that the two files hold the same datasets with bitwise-equal contents; returns
 /// the number of datasets and of values compared.
 pub fn assert_same_datasets(a: &Path, b: &Path) -> (usize, usize) {

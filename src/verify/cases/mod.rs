@@ -367,6 +367,17 @@ fn only_solute(model: &Model) -> Result<&crate::model::Solute> {
     }
 }
 
+/// The surface temperature at the start [K] (the solute cases are isothermal at it).
+fn start_surface_temperature(model: &Model) -> Result<f64> {
+    let t0 = model.time.start;
+    match &model.surface.at(t0).heat {
+        crate::model::SurfaceHeat::Temperature(s) => Ok(s.value(t0)),
+        _ => Err(Error::Internal(
+            "the case needs a surface temperature".to_string(),
+        )),
+    }
+}
+
 /// Cell widths from the face depths [m].
 fn widths_of(face_depth: &[f64]) -> Vec<f64> {
     face_depth.windows(2).map(|w| w[1] - w[0]).collect()

@@ -46,7 +46,8 @@ fn params(model: &Model) -> Result<Params> {
             ))
         }
     };
-    let temperature = kelvin_of(20.0);
+    // Isothermal: the bottom and the surface at the same temperature (README).
+    let temperature = start_surface_temperature(model)?;
     let d0 = r::free_diffusivity_at(s.free_diffusivity, temperature);
     let dm = r::liquid_diffusion_coefficient(d0, theta, soil.retention.theta_s());
     let v = q / theta;

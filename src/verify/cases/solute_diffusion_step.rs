@@ -37,7 +37,7 @@ fn diffusion_run(cells: usize) -> Result<DiffRun> {
     let phi = model.soils[0].retention.theta_s();
     // θ = θs everywhere: Dm = D0(T) θs^(7/3)/φ².
     let d = r::liquid_diffusion_coefficient(
-        r::free_diffusivity_at(s.free_diffusivity, kelvin_of(20.0)),
+        r::free_diffusivity_at(s.free_diffusivity, start_surface_temperature(&model)?),
         phi,
         phi,
     );

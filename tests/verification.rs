@@ -114,8 +114,9 @@ fn climate_shift_balances_close_to_1e_minus_8() {
     check("balance-closure");
 }
 
-/// Steady chloride under steady recharge: c = Fd/q in every cell and the recharge estimate
-/// Fd/c = q, both within 1e-12 (Allison & Hughes 1978; Eriksson & Khunakasem 1969).
+/// Steady chloride under steady recharge: c = Fd/q in every cell (reached, and from
+/// initial_steady) and the recharge estimate Fd/c = q, within 1e-12 (Allison & Hughes 1978;
+/// Eriksson & Khunakasem 1969).
 #[test]
 fn steady_chloride_is_deposition_over_recharge() {
     check("steady-chloride");

@@ -114,6 +114,41 @@ fn climate_shift_balances_close_to_1e_minus_8() {
     check("balance-closure");
 }
 
+/// Steady chloride under steady recharge: c = Fd/q in every cell (reached, and from
+/// initial_steady) and the recharge estimate Fd/c = q, within 1e-12 (Allison & Hughes 1978;
+/// Eriksson & Khunakasem 1969).
+#[test]
+fn steady_chloride_is_deposition_over_recharge() {
+    check("steady-chloride");
+}
+
+/// Flux-inlet advection–dispersion (van Genuchten & Alves 1982): error within 1.1× the
+/// upwind modified-equation estimate, observed order 1 ± 0.1 in Δz.
+#[test]
+fn advection_dispersion_matches_flux_inlet_solution_at_first_order() {
+    check("solute-advection-dispersion");
+}
+
+/// Diffusion from a fixed bottom concentration (Crank 1975, erfc with images): error within
+/// 2.5× the truncation estimate, observed order 2 ± 0.2 in Δz.
+#[test]
+fn solute_diffusion_matches_erfc_at_second_order() {
+    check("solute-diffusion-step");
+}
+
+/// A closed column drying into dry air keeps its solute to 1e-12 while the water leaves.
+#[test]
+fn closed_column_keeps_its_solute_while_drying() {
+    check("solute-closed-drying");
+}
+
+/// Stepped deposition, salty groundwater and a solubility limit: the solute balance from
+/// the cumulative series closes to 1e-12.
+#[test]
+fn solute_balance_closes_to_1e_minus_12() {
+    check("solute-balance-closure");
+}
+
 /// Bad input to the runner: an unknown case name is refused in one line.
 #[test]
 fn unknown_case_name_is_refused() {

@@ -152,6 +152,96 @@ pub fn drying_front_similarity(stefan: f64) -> f64 {
     b
 }
 
+/// Scaled complementary error function erfcx(x) = e^(x²) erfc(x) for x ≥ 0, to ~1e-14
+/// relative, without overflow for large x (the continued fraction of [`erfc`] without its
+/// factor e^(−x²)).
+pub fn erfcx(x: f64) -> f64 {
+    if x < 1.5 {
+        (x * x).exp() * erfc(x)
+    } else {
+        let mut f = x;
+        for k in (1..=200).rev() {
+            f = x + (k as f64 / 2.0) / f;
+        }
+        1.0 / (PI.sqrt() * f)
+    }
+}
+
+/// `e^(a) erfc(b)` for b ≥ 0 as `e^(a − b²) erfcx(b)`: finite where e^a alone overflows.
+fn exp_erfc(a: f64, b: f64) -> f64 {
+    (a - b * b).exp() * erfcx(b)
+}
+
+/// Free-water diffusivity of a solute at temperature `t` [K] from its value `d0_25` at
+/// 25 °C by the Stokes–Einstein scaling D ∝ T/μ(T) (common practice), with the IAPWS 2008
+/// viscosity of water.
+pub fn free_diffusivity_at(d0_25: f64, t: f64) -> f64 {
+    const T25: f64 = 298.15;
+    let mu = |t: f64| crate::props::water::viscosity(t).0;
+    d0_25 * (t / T25) * mu(T25) / mu(t)
+}
+
+/// Molecular diffusion coefficient of a solute in the liquid of a soil with liquid content
+/// θ and porosity φ: `Dm = D0 θ^(7/3)/φ²` (Millington & Quirk 1961, the liquid-phase form
+/// of the design note's §1). The flux is −θ Dm ∂c/∂z, so in the θ-weighted balance with
+/// uniform θ the diffusion coefficient of c is Dm itself.
+pub fn liquid_diffusion_coefficient(d0: f64, theta: f64, porosity: f64) -> f64 {
+    d0 * theta.powf(7.0 / 3.0) / (porosity * porosity)
+}
+
+/// Relative concentration c/c0 of the advection–dispersion equation ∂c/∂t = D ∂²c/∂x² −
+/// v ∂c/∂x on x > 0, c(x, 0) = 0, with a **flux (third-type) inlet** v c − D ∂c/∂x = v c0
+/// at x = 0 and c bounded as x → ∞ (Lindstrom et al. 1967; van Genuchten & Alves 1982,
+/// USDA Tech. Bull. 1661, the third-type solution for a semi-infinite column; formula from
+/// memory, verified in the unit tests below by its residuals in the PDE, the inlet
+/// condition and the initial condition, which fix the bounded solution uniquely):
+///
+/// `c/c0 = ½ erfc(u₋) + √(v²t/(πD)) e^(−u₋²) − ½ (1 + v x/D + v²t/D) e^(vx/D) erfc(u₊)`,
+/// `u± = (x ± v t)/(2√(D t))`.
+pub fn flux_inlet_concentration(x: f64, t: f64, v: f64, d: f64) -> f64 {
+    let s = 2.0 * (d * t).sqrt();
+    let um = (x - v * t) / s;
+    let up = (x + v * t) / s;
+    0.5 * erfc(um) + (v * v * t / (PI * d)).sqrt() * (-um * um).exp()
+        - 0.5 * (1.0 + v * x / d + v * v * t / d) * exp_erfc(v * x / d, up)
+}
+
+/// Relative concentration c/c0 of the same problem with a **fixed concentration
+/// (first-type) inlet** c(0, t) = c0 (Ogata & Banks 1961, USGS Prof. Paper 411-A; formula
+/// from memory, verified in the unit tests like the flux-inlet form):
+/// `c/c0 = ½ [erfc(u₋) + e^(vx/D) erfc(u₊)]`.
+pub fn ogata_banks(x: f64, t: f64, v: f64, d: f64) -> f64 {
+    let s = 2.0 * (d * t).sqrt();
+    let um = (x - v * t) / s;
+    let up = (x + v * t) / s;
+    0.5 * (erfc(um) + exp_erfc(v * x / d, up))
+}
+
+/// Relative concentration c/cb of diffusion ∂c/∂t = D ∂²c/∂x² into a layer 0 < x < L,
+/// initially free of solute, with c = cb held at x = 0 and no flux at x = L, at distance
+/// `x` from the fixed face: the erfc solution of a semi-infinite medium (Crank 1975,
+/// *The Mathematics of Diffusion*, §3.3; from memory) with its images in the no-flux face
+/// and the fixed face (method of images, derived in
+/// `validation/solute-diffusion-step/README.md`):
+/// `c/cb = Σ_{n≥0} (−1)ⁿ [erfc((2nL + x)/(2√(Dt))) + erfc((2(n+1)L − x)/(2√(Dt)))]`.
+/// The terms fall below 1e-300 once (2nL + x)/(2√(Dt)) > 26, so a few suffice while
+/// √(Dt) < L (the use here); the sum is cut at 1000 terms.
+pub fn diffusion_from_face(x: f64, t: f64, d: f64, length: f64) -> f64 {
+    let s = 2.0 * (d * t).sqrt();
+    let mut sum = 0.0;
+    let mut sign = 1.0;
+    for n in 0..1000 {
+        let a = (2.0 * n as f64 * length + x) / s;
+        if a > 26.0 {
+            break;
+        }
+        let b = (2.0 * (n as f64 + 1.0) * length - x) / s;
+        sum += sign * (erfc(a) + erfc(b));
+        sign = -sign;
+    }
+    sum
+}
+
 /// Observed order of convergence from errors on successive refinements by `ratio`.
 pub fn observed_orders(errors: &[f64], ratio: f64) -> Vec<f64> {
     errors
@@ -207,5 +297,82 @@ mod tests {
             let ratio = b * b / (st / 2.0) - 1.0;
             assert!((ratio + st / 3.0).abs() < 0.2 * st, "St {st}: {ratio}");
         }
+    }
+    /// The flux-inlet and Ogata–Banks solutions solve their problems: the PDE residual by
+    /// central differences, the inlet conditions, c → 0 initially and far downstream.
+    #[test]
+    fn advection_dispersion_solutions_satisfy_their_problems() {
+        let (v, d) = (0.4, 0.02);
+        for f in [flux_inlet_concentration, ogata_banks] {
+            for &(x, t) in &[(0.05, 0.3), (0.2, 0.5), (0.5, 1.0), (1.0, 2.0), (0.1, 0.05)] {
+                let (hx, ht) = (1e-4, 1e-5);
+                let ct = (f(x, t + ht, v, d) - f(x, t - ht, v, d)) / (2.0 * ht);
+                let cx = (f(x + hx, t, v, d) - f(x - hx, t, v, d)) / (2.0 * hx);
+                let cxx =
+                    (f(x + hx, t, v, d) - 2.0 * f(x, t, v, d) + f(x - hx, t, v, d)) / (hx * hx);
+                let res = ct - (d * cxx - v * cx);
+                assert!(
+                    res.abs() < 1e-5 * (ct.abs() + v * cx.abs() + 1.0),
+                    "{x} {t}: {res}"
+                );
+            }
+            // Initially solute-free, and none far downstream.
+            assert!(f(0.5, 1e-6, v, d).abs() < 1e-12);
+            assert!(f(50.0, 1.0, v, d).abs() < 1e-12);
+        }
+        // Inlet conditions: first type c = 1; third type v c − D ∂c/∂x = v.
+        for t in [0.01, 0.3, 2.0] {
+            assert!((ogata_banks(0.0, t, v, d) - 1.0).abs() < 1e-13);
+            let h = 1e-6;
+            let f = flux_inlet_concentration;
+            let cx =
+                (-3.0 * f(0.0, t, v, d) + 4.0 * f(h, t, v, d) - f(2.0 * h, t, v, d)) / (2.0 * h);
+            let inlet = v * f(0.0, t, v, d) - d * cx;
+            assert!((inlet - v).abs() < 1e-6 * v, "t {t}: {inlet}");
+        }
+        // Large Péclet numbers: finite (no overflow of e^(vx/D)), and the two inlets agree
+        // away from the inlet as the dispersion vanishes.
+        let (x, t, d) = (0.9, 2.0, 1e-5);
+        let (a, b) = (
+            flux_inlet_concentration(x, t, v, d),
+            ogata_banks(x, t, v, d),
+        );
+        assert!(
+            a.is_finite() && b.is_finite() && (a - b).abs() < 1e-3,
+            "{a} {b}"
+        );
+    }
+
+    #[test]
+    fn erfcx_is_continuous_and_scaled() {
+        for x in [0.0, 0.5, 1.4, 2.0, 3.0] {
+            assert!((erfcx(x) - (x * x).exp() * erfc(x)).abs() < 1e-13 * erfcx(x));
+        }
+        assert!(((erfcx(1.5 - 1e-12) - erfcx(1.5)) / erfcx(1.5)).abs() < 1e-10);
+        // erfcx(x) → 1/(x√π) for large x.
+        assert!((erfcx(1e6) * 1e6 * PI.sqrt() - 1.0).abs() < 1e-9);
+    }
+
+    /// The image series: c = cb at the fixed face, no flux at x = L, 0 initially.
+    #[test]
+    fn diffusion_from_face_meets_its_conditions() {
+        let (d, l) = (0.05, 2.0);
+        for t in [0.1, 5.0, 50.0] {
+            assert!((diffusion_from_face(0.0, t, d, l) - 1.0).abs() < 1e-13);
+            let h = 1e-5;
+            let g = (diffusion_from_face(l + h, t, d, l) - diffusion_from_face(l - h, t, d, l))
+                / (2.0 * h);
+            assert!(g.abs() < 1e-8, "t {t}: {g}");
+            let (x, ht) = (0.7, 1e-4);
+            let ct = (diffusion_from_face(x, t + ht, d, l) - diffusion_from_face(x, t - ht, d, l))
+                / (2.0 * ht);
+            let hx = 1e-3;
+            let cxx = (diffusion_from_face(x + hx, t, d, l)
+                - 2.0 * diffusion_from_face(x, t, d, l)
+                + diffusion_from_face(x - hx, t, d, l))
+                / (hx * hx);
+            assert!((ct - d * cxx).abs() < 1e-5, "t {t}: {ct} {cxx}");
+        }
+        assert!(diffusion_from_face(1.0, 1e-4, d, l).abs() < 1e-15);
     }
 }

@@ -52,7 +52,12 @@ mod gardner_evaporation;
 mod kinetic_to_equilibrium;
 mod mesh_order;
 mod periodic_surface;
+mod solute_advection_dispersion;
+mod solute_balance_closure;
+mod solute_closed_drying;
+mod solute_diffusion_step;
 mod srivastava_yeh_infiltration;
+mod steady_chloride;
 mod surface_step;
 mod time_order;
 mod two_layer_geotherm;
@@ -66,7 +71,12 @@ use gardner_evaporation::gardner_evaporation;
 use kinetic_to_equilibrium::kinetic_to_equilibrium;
 use mesh_order::mesh_order;
 use periodic_surface::periodic_surface;
+use solute_advection_dispersion::solute_advection_dispersion;
+use solute_balance_closure::solute_balance_closure;
+use solute_closed_drying::solute_closed_drying;
+use solute_diffusion_step::solute_diffusion_step;
 use srivastava_yeh_infiltration::srivastava_yeh_infiltration;
+use steady_chloride::steady_chloride;
 use surface_step::surface_step;
 use time_order::time_order;
 use two_layer_geotherm::two_layer_geotherm;
@@ -139,6 +149,31 @@ pub fn all() -> Vec<Case> {
             "balance-closure",
             "water and energy balance closure over a 100 kyr climate-shift run",
             balance_closure
+        ),
+        case!(
+            "steady-chloride",
+            "steady chloride under steady recharge: c = Fd/q, recharge estimate = q",
+            steady_chloride
+        ),
+        case!(
+            "solute-advection-dispersion",
+            "advection-dispersion from a flux inlet (Ogata-Banks problem): profile, order 1 in dz",
+            solute_advection_dispersion
+        ),
+        case!(
+            "solute-diffusion-step",
+            "solute diffusion from a fixed bottom concentration: erfc, order 2 in space",
+            solute_diffusion_step
+        ),
+        case!(
+            "solute-closed-drying",
+            "closed column drying: total solute constant while the water leaves",
+            solute_closed_drying
+        ),
+        case!(
+            "solute-balance-closure",
+            "solute balance closure: stepped deposition, solubility limit, BDF steps",
+            solute_balance_closure
         ),
     ]
 }
@@ -268,6 +303,92 @@ fn read_results(path: &std::path::Path) -> Result<Results> {
         series_water_err: d1("series/water_balance_error")?,
         series_energy_err: d1("series/energy_balance_error")?,
     })
+}
+
+/// One solute's datasets in a results file (`/profiles/<kind>_<name>`,
+/// `/series/<kind>_<name>`; the names are fixed by issue 18 and `src/output/results.rs`).
+#[derive(Debug, Clone, Default)]
+struct SoluteResults {
+    /// [snapshot][cell] concentration in the liquid [g m⁻³].
+    concentration: Vec<Vec<f64>>,
+    /// [snapshot][cell] precipitate [g m⁻³ of bulk] (empty without a solubility limit).
+    precipitate: Vec<Vec<f64>>,
+    /// Series [g m⁻²]: stored, cumulative surface inflow, cumulative bottom outflow,
+    /// balance error; relative balance error [-]; recharge estimate [mm yr⁻¹].
+    storage: Vec<f64>,
+    surface_cumulative: Vec<f64>,
+    bottom_cumulative: Vec<f64>,
+    balance_error: Vec<f64>,
+    balance_relative_error: Vec<f64>,
+    recharge_estimate: Vec<f64>,
+    /// Series: the step that ended at each record [s].
+    dt: Vec<f64>,
+}
+
+fn read_solute_results(path: &std::path::Path, name: &str) -> Result<SoluteResults> {
+    let e = |err: hdf5::Error| Error::io(path, err);
+    let f = hdf5::File::open(path).map_err(e)?;
+    let d1 = |n: &str| -> Result<Vec<f64>> {
+        Ok(f.dataset(n)
+            .map_err(e)?
+            .read_1d::<f64>()
+            .map_err(e)?
+            .to_vec())
+    };
+    let d2 = |n: &str| -> Result<Vec<Vec<f64>>> {
+        let a = f.dataset(n).map_err(e)?.read_2d::<f64>().map_err(e)?;
+        Ok(a.outer_iter().map(|row| row.to_vec()).collect())
+    };
+    let precipitate = format!("profiles/precipitate_{name}");
+    Ok(SoluteResults {
+        concentration: d2(&format!("profiles/concentration_{name}"))?,
+        precipitate: if f.link_exists(&precipitate) {
+            d2(&precipitate)?
+        } else {
+            Vec::new()
+        },
+        storage: d1(&format!("series/storage_{name}"))?,
+        surface_cumulative: d1(&format!("series/surface_cumulative_{name}"))?,
+        bottom_cumulative: d1(&format!("series/bottom_cumulative_{name}"))?,
+        balance_error: d1(&format!("series/balance_error_{name}"))?,
+        balance_relative_error: d1(&format!("series/balance_relative_error_{name}"))?,
+        recharge_estimate: d1(&format!("series/recharge_estimate_{name}"))?,
+        dt: d1("series/dt")?,
+    })
+}
+
+/// The model's only solute (the solute cases carry one).
+fn only_solute(model: &Model) -> Result<&crate::model::Solute> {
+    match model.solutes.as_slice() {
+        [s] => Ok(s),
+        _ => Err(Error::Internal(
+            "a solute verification case carries exactly one solute".to_string(),
+        )),
+    }
+}
+
+/// The surface temperature at the start [K] (the solute cases are isothermal at it).
+fn start_surface_temperature(model: &Model) -> Result<f64> {
+    let t0 = model.time.start;
+    match &model.surface.at(t0).heat {
+        crate::model::SurfaceHeat::Temperature(s) => Ok(s.value(t0)),
+        _ => Err(Error::Internal(
+            "the case needs a surface temperature".to_string(),
+        )),
+    }
+}
+
+/// Cell widths from the face depths [m].
+fn widths_of(face_depth: &[f64]) -> Vec<f64> {
+    face_depth.windows(2).map(|w| w[1] - w[0]).collect()
+}
+
+/// Text of a list of numbers in `e` notation.
+fn fmt_list(v: &[f64]) -> String {
+    v.iter()
+        .map(|x| format!("{x:.3e}"))
+        .collect::<Vec<_>>()
+        .join(", ")
 }
 
 impl Results {

@@ -68,7 +68,7 @@ pub const SERIES_FIELDS: [(&str, &str, &str); SERIES_PER_SOLUTE] = [
     (
         "balance_relative_error",
         "1",
-        "solute balance error relative to max(|storage change|, boundary throughput)",
+        "solute balance error relative to max(|storage change|, boundary throughput, 1e-6 of the stored mass)",
     ),
     (
         "bulge_depth",
@@ -131,6 +131,10 @@ pub struct SoluteProfile {
 
 /// Whether the dilute-range warning was given (once per process).
 static DILUTE_WARNED: std::sync::atomic::AtomicBool = std::sync::atomic::AtomicBool::new(false);
+
+/// Fraction of the stored mass below which a storage change is judged against it in the
+/// relative balance error.
+pub const RELATIVE_FLOOR: f64 = 1.0e-6;
 
 /// Most history points kept (order 5 needs 5 earlier points besides the current one).
 const MAX_HISTORY: usize = 6;
@@ -816,7 +820,12 @@ impl SoluteColumn {
                 .sum();
             let cum = &self.state.now.cumulative[3 * k..3 * k + 3];
             let error = change - (cum[0] - cum[1]);
-            let denom = change.abs().max(cum[2].abs());
+            // Changes below a millionth of the stored mass are judged against that (a
+            // closed column would otherwise divide round-off by round-off).
+            let denom = change
+                .abs()
+                .max(cum[2].abs())
+                .max(RELATIVE_FLOOR * storage.abs());
             let relative = if denom > 0.0 {
                 error.abs() / denom
             } else {

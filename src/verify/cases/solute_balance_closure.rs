@@ -152,10 +152,10 @@ pub(super) fn solute_balance_closure(v: Variant) -> Result<CaseResult> {
                 1e-12,
             ),
             Check::new(
-                "deposited: |surface cumulative − ∫Fd dt| / Σ|jump|·(step ending on it)",
+                "deposited: |surface cumulative − ∫Fd dt| / ∫Fd dt",
                 "exact integral of the stepped schedule",
-                dep_gap / bound,
-                1.0,
+                dep_gap / exact,
+                1e-9,
             ),
         ],
         figures: vec![fig, prof_fig],

@@ -484,6 +484,26 @@ fn write_via(
             "J m-2, kg m-2",
             "per history point: cumulative inflow through the top boundary (energy, water)",
         )?;
+        let hk: Vec<f64> = state
+            .history
+            .iter()
+            .flat_map(|hp| hp.sink.clone())
+            .collect();
+        table(
+            "history_sink",
+            hlen,
+            state.sink.len(),
+            hk,
+            "J m-2, kg m-2",
+            "per history point: cumulative outflow through internal sinks (root water uptake): energy, water",
+        )?;
+        f64s(
+            "sink",
+            &state.sink,
+            "J m-2, kg m-2",
+            "cumulative outflow through internal sinks (root water uptake) since the start: energy, water",
+        )
+        .map_err(&er)?;
         let c = &state.counters;
         let ints: Vec<u64> = vec![
             c.steps,
@@ -582,10 +602,10 @@ fn write_solutes(file: &File, sol: &SoluteState) -> hdf5::Result<()> {
     )?;
     table(
         "solute_cumulative",
-        3 * ns,
+        crate::solute::CUMULATIVE * ns,
         cum,
         "g m-2",
-        "per solute: cumulative surface inflow, bottom outflow and throughput: current point, then history points",
+        "per solute: cumulative surface inflow, bottom outflow, throughput and root uptake: current point, then history points",
     )?;
     let ds = file
         .new_dataset_builder()
@@ -641,7 +661,7 @@ fn read_solutes(file: &File) -> std::result::Result<Option<SoluteState>, &'stati
     if times.is_empty()
         || mass.nrows() != times.len()
         || cum.nrows() != times.len()
-        || cum.ncols() != 3 * names.len()
+        || cum.ncols() != crate::solute::CUMULATIVE * names.len()
         || initial_mass.len() != mass.ncols()
     {
         return Err("solute state");
@@ -790,6 +810,12 @@ pub fn read(path: &Path) -> Result<Checkpoint> {
             .and_then(|d| d.read_2d::<f64>())
             .ok()
             .filter(|a| a.dim() == (hu.nrows(), nq));
+        // Sink outflow (absent in checkpoints written before sinks: none, 0).
+        let hk = file
+            .dataset("history_sink")
+            .and_then(|d| d.read_2d::<f64>())
+            .ok()
+            .filter(|a| a.dim() == (hu.nrows(), nq));
         let history = (0..hu.nrows())
             .map(|k| crate::solve::stepper::HistoryPoint {
                 t: hm[[k, 0]],
@@ -800,6 +826,9 @@ pub fn read(path: &Path) -> Result<Checkpoint> {
                 top_inflow: ht
                     .as_ref()
                     .map_or_else(|| vec![f64::NAN; nq], |a| a.row(k).to_vec()),
+                sink: hk
+                    .as_ref()
+                    .map_or_else(|| vec![0.0; nq], |a| a.row(k).to_vec()),
             })
             .collect();
         let state = StepState {
@@ -820,6 +849,10 @@ pub fn read(path: &Path) -> Result<Checkpoint> {
                 .ok()
                 .filter(|w| w.len() == nq)
                 .unwrap_or_else(|| vec![f64::NAN; nq]),
+            sink: v("sink")
+                .ok()
+                .filter(|w| w.len() == nq)
+                .unwrap_or_else(|| vec![0.0; nq]),
             initial_totals: two("initial_totals")?.to_vec(),
             initial_storage: v("initial_storage")?,
             counters: Counters {

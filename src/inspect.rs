@@ -69,7 +69,8 @@ pub fn summary(path: &Path) -> Result<String> {
                     continue;
                 };
                 let stored: f64 = mass.iter().zip(&widths).map(|(m, w)| m * w).sum();
-                let cum = &sol.now.cumulative[3 * k..3 * k + 3];
+                let per = crate::solute::CUMULATIVE;
+                let cum = &sol.now.cumulative[per * k..per * (k + 1)];
                 let _ = writeln!(
                     out,
                     "solute {name}: stored {} g m-2, in at the surface {} g m-2, out at the bottom {} g m-2 since the run's start",

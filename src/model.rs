@@ -301,6 +301,55 @@ pub struct Model {
     pub checkpoint: CheckpointControl,
     /// Dissolved solutes carried by the liquid water (empty: none).
     pub solutes: Vec<Solute>,
+    /// Plants taking up water by their roots, by period (None in a period: no plants).
+    pub vegetation: Periods<Option<Vegetation>>,
+}
+
+/// Plants over one period: potential transpiration, where the roots are, and how water
+/// stress reduces the uptake.
+#[derive(Debug, Clone)]
+pub struct Vegetation {
+    /// Potential transpiration Tp(t) [m of water per s].
+    pub transpiration: Schedule,
+    /// Fraction of the roots in each cell (sums to 1 over the column).
+    pub root_fraction: Vec<f64>,
+    /// How the root fractions were given (for the summary).
+    pub roots: RootShape,
+    /// The four heads of the water-stress reduction of Feddes et al. (1978) [m],
+    /// h1 > h2 > h3 > h4: no uptake wetter than h1 (anaerobiosis), full uptake between h2
+    /// and h3, linear between h1 and h2 and from h3 down to 0 at the wilting head h4.
+    pub stress_heads: [f64; 4],
+}
+
+/// The root distribution as given in the case.
+#[derive(Debug, Clone, PartialEq)]
+pub enum RootShape {
+    /// Uniform density down to `depth` [m].
+    Uniform { depth: f64 },
+    /// Density falling linearly to 0 at `depth` [m].
+    Linear { depth: f64 },
+    /// The asymptotic form of Jackson et al. (1996): the fraction of roots above depth d
+    /// [cm] is 1 − β^d, cut at `depth` [m] and renormalised.
+    Asymptotic { beta: f64, depth: f64 },
+    /// A table of relative root density against depth (linear between rows, 0 below).
+    Table { depth: Vec<f64>, density: Vec<f64> },
+}
+
+impl Vegetation {
+    /// The Feddes reduction α(h) ∈ [0, 1] and dα/dh [m⁻¹].
+    #[inline]
+    pub fn stress(&self, h: f64) -> (f64, f64) {
+        let [h1, h2, h3, h4] = self.stress_heads;
+        if h >= h1 || h <= h4 {
+            (0.0, 0.0)
+        } else if h > h2 {
+            ((h1 - h) / (h1 - h2), -1.0 / (h1 - h2))
+        } else if h >= h3 {
+            (1.0, 0.0)
+        } else {
+            ((h - h4) / (h3 - h4), 1.0 / (h3 - h4))
+        }
+    }
 }
 
 /// How a solute enters at the land surface.

@@ -307,6 +307,7 @@ fn start_resume(model: &Model, path: &Path, folder: &Path, results: &Path) -> Re
         results,
         &ck.faces,
         &model.solutes,
+        crate::output::results::has_plants(model),
         ck.position.snapshots as usize,
         ck.position.series_rows as usize,
         ck.info.last_series_year,

@@ -114,6 +114,54 @@ impl Schedule {
         }
     }
 
+    /// The exact integral of the schedule over [a, b] [value × s] (a ≤ b): piecewise
+    /// constant and piecewise linear pieces summed exactly, sinusoids by their
+    /// antiderivative.
+    pub fn integral(&self, a: f64, b: f64) -> f64 {
+        if b <= a {
+            return 0.0;
+        }
+        match self {
+            Schedule::Constant(c) => c * (b - a),
+            Schedule::Steps { times, values } => {
+                // values[k] on [times[k], times[k+1]), values[0] before times[0].
+                let mut sum = 0.0;
+                let mut from = a;
+                for (k, v) in values.iter().enumerate() {
+                    let end = times.get(k + 1).copied().unwrap_or(f64::INFINITY).min(b);
+                    if end > from {
+                        sum += v * (end - from);
+                        from = end;
+                    }
+                    if from >= b {
+                        break;
+                    }
+                }
+                sum
+            }
+            Schedule::Table { times, .. } => {
+                // Trapezoids between the knots inside (a, b) (exact for linear pieces).
+                let mut knots = vec![a];
+                knots.extend(times.iter().copied().filter(|&t| t > a && t < b));
+                knots.push(b);
+                knots
+                    .windows(2)
+                    .map(|w| 0.5 * (self.value(w[0]) + self.value(w[1])) * (w[1] - w[0]))
+                    .sum()
+            }
+            Schedule::Sine {
+                mean,
+                amplitude,
+                period,
+                phase,
+            } => {
+                let w = 2.0 * PI / period;
+                mean * (b - a) - amplitude / w * ((w * (b - phase)).cos() - (w * (a - phase)).cos())
+            }
+            Schedule::Sum(parts) => parts.iter().map(|p| p.integral(a, b)).sum(),
+        }
+    }
+
     /// Lower and upper bounds of the values the schedule can take at any time. Exact for
     /// every form except sums, where the bounds of the parts are added (a safe envelope).
     pub fn bounds(&self) -> (f64, f64) {

@@ -365,3 +365,29 @@ fn jacobian_matches_finite_differences_other_boundaries() {
     });
     check(&m, 4, "head, no flow");
 }
+
+/// Root water uptake (Feddes-reduced, a sink in the water and energy rows) in the
+/// Jacobian: stress heads chosen so that the random heads fall on both sloped parts of
+/// the reduction and on its plateau.
+#[test]
+fn jacobian_matches_finite_differences_with_root_uptake() {
+    let mut m = column(
+        uniform_mesh(2.0, 8),
+        sandy_loam(),
+        dry_surface(291.15, 0.2),
+        water_table(298.15),
+        291.15,
+        298.15,
+        YEAR,
+    );
+    let shape = RootShape::Linear { depth: 1.5 };
+    let root_fraction = deepdry::case::vegetation::root_fractions(&shape, &m.mesh.faces);
+    m.vegetation = Periods::single(Some(Vegetation {
+        // 300 mm/yr in m/s.
+        transpiration: Schedule::Constant(0.3 / YEAR),
+        root_fraction,
+        roots: shape,
+        stress_heads: [-0.005, -0.05, -1.0, -1.0e4],
+    }));
+    check(&m, 4, "root water uptake");
+}

@@ -122,6 +122,7 @@ fn model() -> Model {
     };
     Model {
         solutes: Vec::new(),
+        vegetation: deepdry::model::Periods::single(None),
         title: "table test".into(),
         case_text: String::new(),
         overrides: Vec::new(),

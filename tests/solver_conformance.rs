@@ -191,6 +191,7 @@ fn decay_error(k: usize, m: i32) -> f64 {
                 inflow: vec![],
                 throughput: vec![],
                 top_inflow: vec![],
+                sink: vec![],
             }
         })
         .collect();

@@ -34,6 +34,7 @@ const ROOT_KEYS: &[&str] = &[
     "output",
     "checkpoint",
     "solutes",
+    "vegetation",
 ];
 
 /// Default binary diffusivity of vapour in air: 2.12e-5 (T/273.15 K)^1.88 m² s⁻¹ at
@@ -175,13 +176,14 @@ pub fn build(src: &Source) -> R<Model> {
         })
         .collect();
     let physics = read_physics(&root)?;
-    let surface = read_periods(&root, "surface", &time, read_surface)?;
-    let bottom = read_periods(&root, "bottom", &time, read_bottom)?;
+    let surface = read_periods(&root, "surface", &time, SURFACE_KEYS, read_surface)?;
+    let bottom = read_periods(&root, "bottom", &time, BOTTOM_KEYS, read_bottom)?;
     let initial = read_initial(&root, &time, depth, &surface, &bottom, &soils, &layers)?;
     let output = read_output(&root, &time)?;
     let checkpoint = read_checkpoint(&root)?;
     below_boiling(&root, &physics, &surface, &bottom)?;
     let solutes = super::solutes::read_solutes(&root, depth)?;
+    let vegetation = super::vegetation::read_vegetation(&root, &time, &mesh)?;
     Ok(Model {
         title,
         case_text: src.text.to_string(),
@@ -198,6 +200,7 @@ pub fn build(src: &Source) -> R<Model> {
         output,
         checkpoint,
         solutes,
+        vegetation,
     })
 }
 
@@ -1000,17 +1003,13 @@ fn read_bottom(t: &Table) -> R<BottomBc> {
 
 /// A boundary given as one table (one period) or as an array of tables, each from its
 /// `from_year` on.
-fn read_periods<T>(
+pub(super) fn read_periods<T>(
     root: &Table,
     key: &str,
     time: &TimeControl,
-    read_one: fn(&Table) -> R<T>,
+    allowed: &[&str],
+    read_one: impl Fn(&Table) -> R<T>,
 ) -> R<Periods<T>> {
-    let allowed = if key == "surface" {
-        SURFACE_KEYS
-    } else {
-        BOTTOM_KEYS
-    };
     let v = root.get(key).ok_or_else(|| {
         Error::input(format!(
             "{}: missing section [{key}] (the {key} boundary conditions)",

@@ -17,6 +17,7 @@ pub mod schedules;
 pub mod solutes;
 pub mod summary;
 pub mod tree;
+pub mod vegetation;
 
 pub use overrides::Override;
 

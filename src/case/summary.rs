@@ -320,8 +320,53 @@ pub fn summary(m: &Model) -> String {
         when.join(", "),
         c.keep
     );
+    vegetation(o, m);
     solutes(o, m);
     out
+}
+
+/// The vegetation periods: potential transpiration, roots, stress heads.
+fn vegetation(o: &mut String, m: &Model) {
+    use crate::case::vegetation::TRANSPIRATION;
+    use crate::model::RootShape;
+    if m.vegetation.periods.iter().all(|p| p.1.is_none()) {
+        return;
+    }
+    let _ = writeln!(o, "Vegetation:");
+    for (start, veg) in &m.vegetation.periods {
+        let when = if start.is_finite() {
+            format!("from year {}", year_of(*start))
+        } else {
+            "at the start".to_string()
+        };
+        let what = match veg {
+            None => "no plants".to_string(),
+            Some(v) => {
+                let roots = match &v.roots {
+                    RootShape::Uniform { depth } => format!("uniform to {} m", fmt_g(*depth)),
+                    RootShape::Linear { depth } => {
+                        format!("falling linearly to 0 at {} m", fmt_g(*depth))
+                    }
+                    RootShape::Asymptotic { beta, depth } => format!(
+                        "asymptotic (Jackson et al. 1996) with β = {} to {} m",
+                        fmt_g(*beta),
+                        fmt_g(*depth)
+                    ),
+                    RootShape::Table { depth, .. } => format!("table of {} rows", depth.len()),
+                };
+                let [h1, h2, h3, h4] = v.stress_heads;
+                format!(
+                    "potential transpiration {}; roots {roots}; water stress (Feddes) none wetter than {} m, full from {} to {} m, none drier than {} m",
+                    sched(&v.transpiration, &TRANSPIRATION),
+                    fmt_g(h1),
+                    fmt_g(h2),
+                    fmt_g(h3),
+                    fmt_g(h4)
+                )
+            }
+        };
+        let _ = writeln!(o, "  {when}: {what}");
+    }
 }
 
 /// The solutes: input, bottom, initial state, and what the mesh does to advection (the

@@ -24,6 +24,8 @@ pub struct Profile {
     pub heat: Vec<f64>,
     /// The solutes' profiles, in the case's order (filled by the simulation).
     pub solutes: Vec<crate::solute::SoluteProfile>,
+    /// Root water uptake [kg m⁻³ s⁻¹] per cell (empty without vegetation).
+    pub root_water_uptake: Vec<f64>,
 }
 
 impl Profile {
@@ -66,6 +68,11 @@ impl Profile {
             self.liquid_content[i] = c.theta.v;
             self.vapor_density[i] = c.rv.v;
             self.relative_humidity[i] = c.rv.v / c.rvs.v;
+        }
+        self.root_water_uptake.clear();
+        if sys.has_vegetation {
+            self.root_water_uptake
+                .extend(sys.uptake.iter().zip(&sys.widths).map(|(u, w)| u / w));
         }
         for (j, f) in sys.faces.iter().enumerate() {
             self.liquid_iso[j] = WATER_DENSITY * f.liquid_iso.v;

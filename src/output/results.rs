@@ -81,6 +81,8 @@ enum SoluteProfileKind {
     Flux,
     Age,
     Precipitate,
+    /// Not a solute's: the root water uptake profile.
+    RootUptake,
 }
 
 /// The solute profile datasets of `solutes`: (name, units, long name, kind, solute index).
@@ -88,9 +90,19 @@ enum SoluteProfileKind {
 /// solubility limit.
 fn solute_profile_sets(
     solutes: &[crate::model::Solute],
+    vegetation: bool,
 ) -> Vec<(String, &'static str, String, SoluteProfileKind, usize)> {
     use crate::model::SoluteSurface;
     let mut out = Vec::new();
+    if vegetation {
+        out.push((
+            "root_water_uptake".to_string(),
+            "kg m-3 s-1",
+            "root water uptake per bulk volume (Feddes-reduced potential transpiration times the root distribution)".to_string(),
+            SoluteProfileKind::RootUptake,
+            0,
+        ));
+    }
     for (k, s) in solutes.iter().enumerate() {
         let n = &s.name;
         out.push((
@@ -133,8 +145,11 @@ fn solute_profile_sets(
 
 /// The solute series datasets: (name, units, long name), solute after solute in the
 /// order of [`crate::solute::SERIES_FIELDS`].
-fn solute_series_sets(solutes: &[crate::model::Solute]) -> Vec<(String, &'static str, String)> {
-    solutes
+fn solute_series_sets(
+    solutes: &[crate::model::Solute],
+    vegetation: bool,
+) -> Vec<(String, &'static str, String)> {
+    let mut out: Vec<(String, &'static str, String)> = solutes
         .iter()
         .flat_map(|s| {
             crate::solute::SERIES_FIELDS
@@ -147,9 +162,16 @@ fn solute_series_sets(solutes: &[crate::model::Solute]) -> Vec<(String, &'static
                     )
                 })
         })
-        .collect()
+        .collect();
+    if vegetation {
+        out.extend(
+            crate::sim::simulation::VEGETATION_SERIES
+                .iter()
+                .map(|(n, u, l)| (n.to_string(), *u, l.to_string())),
+        );
+    }
+    out
 }
-
 pub struct ResultsFile {
     pub path: PathBuf,
     file: File,
@@ -229,6 +251,12 @@ fn var_len(v: &[String]) -> Vec<VarLenUnicode> {
     v.iter().map(|s| s.parse().unwrap_or_default()).collect()
 }
 
+/// Whether any vegetation period of `model` has plants (the results then carry the root
+/// water uptake datasets).
+pub fn has_plants(model: &Model) -> bool {
+    model.vegetation.periods.iter().any(|p| p.1.is_some())
+}
+
 /// The layer index of every cell of `model` (into `model.layers`).
 pub fn layer_of_cell(model: &Model) -> Vec<usize> {
     model
@@ -291,6 +319,7 @@ impl Sets {
         file: &File,
         mesh: Option<(&[f64], &[f64], &[String])>,
         solutes: &[crate::model::Solute],
+        vegetation: bool,
     ) -> hdf5::Result<Sets> {
         let create = mesh.is_some();
         let group = |name: &str| {
@@ -344,7 +373,7 @@ impl Sets {
                 .map(|(name, units, long)| one(&ser, name, units, long))
                 .collect::<hdf5::Result<_>>()?,
             layer_storage,
-            solute_profiles: solute_profile_sets(solutes)
+            solute_profiles: solute_profile_sets(solutes, vegetation)
                 .into_iter()
                 .map(|(name, units, long, kind, k)| {
                     let width = if kind == SoluteProfileKind::Flux {
@@ -360,7 +389,7 @@ impl Sets {
                     Ok((ds, kind, k))
                 })
                 .collect::<hdf5::Result<_>>()?,
-            solute_series: solute_series_sets(solutes)
+            solute_series: solute_series_sets(solutes, vegetation)
                 .iter()
                 .map(|(name, units, long)| one(&ser, name, units, long))
                 .collect::<hdf5::Result<_>>()?,
@@ -517,6 +546,7 @@ impl ResultsFile {
             &file,
             Some((&model.mesh.centers, &model.mesh.faces, &layer_names)),
             &model.solutes,
+            has_plants(model),
         )
         .map_err(&e)?;
         Ok(Self::writer(path, file, sets, cell_layer))
@@ -550,10 +580,12 @@ impl ResultsFile {
     /// and last snapshot. A file that is missing, cannot be opened or read (for example
     /// damaged by a kill during a flush), or does not match is refused with one line that
     /// says how to go on; the file is not modified then.
+    #[allow(clippy::too_many_arguments)]
     pub fn open_append(
         path: &Path,
         faces: &[f64],
         solutes: &[crate::model::Solute],
+        vegetation: bool,
         snapshots: usize,
         series_rows: usize,
         last_series_year: Option<f64>,
@@ -601,12 +633,12 @@ impl ResultsFile {
             .map(|f| format!("series/{}", f.0))
             .chain(["profiles/depth", "series/layer_water_storage"].map(String::from))
             .chain(
-                solute_profile_sets(solutes)
+                solute_profile_sets(solutes, vegetation)
                     .into_iter()
                     .map(|d| format!("profiles/{}", d.0)),
             )
             .chain(
-                solute_series_sets(solutes)
+                solute_series_sets(solutes, vegetation)
                     .into_iter()
                     .map(|d| format!("series/{}", d.0)),
             )
@@ -616,7 +648,7 @@ impl ResultsFile {
                 "it was written by an earlier deepdry version and has no {n}"
             )));
         }
-        let sets = Sets::get(&file, None, solutes).map_err(h5err)?;
+        let sets = Sets::get(&file, None, solutes, vegetation).map_err(h5err)?;
         let cell_layer: Vec<usize> = ds("mesh/layer")?
             .read_raw::<i32>()
             .map_err(h5err)?
@@ -726,6 +758,10 @@ impl ResultsFile {
             append_row(ds, v).map_err(&e)?;
         }
         for (ds, kind, k) in &self.sets.solute_profiles {
+            if *kind == SoluteProfileKind::RootUptake {
+                append_row(ds, &p.root_water_uptake).map_err(&e)?;
+                continue;
+            }
             let Some(sp) = p.solutes.get(*k) else {
                 return Err(Error::Internal(format!(
                     "snapshot without the profiles of solute {k}"
@@ -736,6 +772,7 @@ impl ResultsFile {
                 SoluteProfileKind::Flux => &sp.flux,
                 SoluteProfileKind::Age => &sp.accumulation_age,
                 SoluteProfileKind::Precipitate => &sp.precipitate,
+                SoluteProfileKind::RootUptake => &p.root_water_uptake,
             };
             append_row(ds, v).map_err(&e)?;
         }

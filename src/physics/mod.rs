@@ -17,7 +17,8 @@ pub mod dual;
 pub mod flux;
 mod rules;
 
-use crate::model::{BottomBc, Model, Periods, Physics, Soil, SurfaceBc, VaporMode};
+use crate::model::{BottomBc, Model, Periods, Physics, Soil, SurfaceBc, VaporMode, Vegetation};
+use crate::props::constants::{T_REF, WATER_DENSITY, WATER_HEAT_CAPACITY};
 use crate::solve::blocktri::{Block, BlockTri};
 pub use crate::solve::problem::NonFinite;
 pub use rules::{VariableRules, BLOCK};
@@ -78,6 +79,14 @@ pub struct System {
     /// Osmotic head of the pore water in each cell [m] (empty: none; see
     /// [`cell::cell_props`]): set from the solutes before each step.
     pub osmotic_head: Vec<f64>,
+    /// Plants by period (None: none).
+    pub vegetation: Periods<Option<Vegetation>>,
+    /// Whether any period has plants.
+    pub has_vegetation: bool,
+    /// Root water uptake of each cell from the last assembly [kg m⁻² s⁻¹ of column: the
+    /// cell's sink times its width], and its total [energy W m⁻², water kg m⁻² s⁻¹].
+    pub uptake: Vec<f64>,
+    pub uptake_totals: [f64; 2],
 }
 
 /// Whether every value is finite, in one branch-free pass (x·0 is 0 for finite x and
@@ -166,6 +175,10 @@ impl System {
             d_reduced: Derivs::default(),
             parts_left_out: false,
             osmotic_head: Vec::new(),
+            has_vegetation: model.vegetation.periods.iter().any(|p| p.1.is_some()),
+            vegetation: model.vegetation.clone(),
+            uptake: vec![0.0; n],
+            uptake_totals: [0.0; 2],
         }
     }
 
@@ -388,7 +401,8 @@ impl System {
         let w = self.widths[i];
         let cp = &self.cells[i];
         let store_e = w * ((c * cp.energy.v).abs() + hist[BLOCK * i + ENERGY].abs());
-        let store_w = w * ((c * cp.water.v).abs() + hist[BLOCK * i + WATER].abs());
+        let store_w = w * ((c * cp.water.v).abs() + hist[BLOCK * i + WATER].abs())
+            + self.uptake.get(i).map_or(0.0, |u| u.abs());
         let vapor_algebraic = cp.rv.v.abs() + cp.rveq.v.abs();
         let vapor_scale = match rate {
             Some(b) => {
@@ -486,6 +500,72 @@ impl System {
         self.kept().storage_blocks_into(self, out);
     }
 
+    /// The plants in force for a step ending at `t` (the period of its left limit, so a
+    /// step ending on a change of period belongs to the period before).
+    #[inline]
+    fn plants(&self, t: f64) -> Option<(&Vegetation, f64)> {
+        let before = t.next_down();
+        self.vegetation
+            .at(before)
+            .as_ref()
+            .map(|v| (v, v.transpiration.value(before).max(0.0)))
+    }
+
+    /// Root water uptake at time `t` from the cell values of the last evaluation into
+    /// `self.uptake` and `self.uptake_totals` (sink per cell, Feddes-reduced potential
+    /// transpiration times the cell's root fraction, in kg m⁻² s⁻¹; it carries the
+    /// liquid enthalpy ρw cw (T − T0) per m³ out of the energy balance).
+    pub fn compute_uptake(&mut self, t: f64) {
+        let mut totals = [0.0; 2];
+        let mut uptake = std::mem::take(&mut self.uptake);
+        match self.plants(t) {
+            None => uptake.iter_mut().for_each(|u| *u = 0.0),
+            Some((veg, tp)) => {
+                for (i, u) in uptake.iter_mut().enumerate() {
+                    let (alpha, _) = veg.stress(self.cells[i].h.v);
+                    let s = WATER_DENSITY * tp * alpha * veg.root_fraction[i];
+                    *u = s;
+                    totals[1] += s;
+                    totals[0] += s * WATER_HEAT_CAPACITY * (self.cells[i].t.v - T_REF);
+                }
+            }
+        }
+        self.uptake = uptake;
+        self.uptake_totals = totals;
+    }
+
+    /// Adds the root water uptake at `t` to the water and energy rows of the residual.
+    fn add_uptake(&mut self, t: f64, res: &mut [f64]) {
+        self.compute_uptake(t);
+        for i in 0..self.n {
+            let s = self.uptake[i];
+            if s != 0.0 {
+                res[BLOCK * i + WATER] += s;
+                res[BLOCK * i + ENERGY] += s * WATER_HEAT_CAPACITY * (self.cells[i].t.v - T_REF);
+            }
+        }
+    }
+
+    /// The derivatives of the uptake terms with respect to the cell's own T and h.
+    fn add_uptake_jacobian(&self, t: f64, jac: &mut BlockTri<BLOCK>) {
+        let Some((veg, tp)) = self.plants(t) else {
+            return;
+        };
+        for i in 0..self.n {
+            let cell = &self.cells[i];
+            let (alpha, dalpha) = veg.stress(cell.h.v);
+            let k = WATER_DENSITY * tp * veg.root_fraction[i];
+            if k == 0.0 {
+                continue;
+            }
+            let enthalpy = WATER_HEAT_CAPACITY * (cell.t.v - T_REF);
+            let d = &mut jac.diag[i];
+            d[WATER][H] += k * dalpha;
+            d[ENERGY][H] += k * dalpha * enthalpy;
+            d[ENERGY][T] += k * alpha * WATER_HEAT_CAPACITY;
+        }
+    }
+
     /// Fills the residual (and, when given, the Jacobian) at state `u`, time `t`, with
     /// integrator coefficient `c` and history `hist` (3 per cell).
     pub fn assemble(
@@ -543,6 +623,9 @@ impl System {
                 }
             }
         }
+        if self.has_vegetation {
+            self.add_uptake(t, res);
+        }
         if !all_finite(&res[..BLOCK * n]) {
             let k = res.iter().position(|r| !r.is_finite()).unwrap_or(0);
             return Err(NonFinite {
@@ -552,6 +635,9 @@ impl System {
         }
         if let Some(jac) = jac {
             self.kept().jacobian_into(self, c, jac);
+            if self.has_vegetation {
+                self.add_uptake_jacobian(t, jac);
+            }
             for blocks in [&jac.lower, &jac.diag, &jac.upper] {
                 if blocks.iter().all(|b| b.iter().all(|r| all_finite(r))) {
                     continue;

@@ -95,6 +95,11 @@ impl Problem<BLOCK> for System {
         ([top[0], top[1], 0.0, 0.0], [bot[0], bot[1], 0.0, 0.0])
     }
 
+    fn sink_flows(&self) -> Conserved {
+        let u = &self.uptake_totals;
+        [u[0], u[1], 0.0, 0.0]
+    }
+
     fn assemble(
         &mut self,
         t: f64,

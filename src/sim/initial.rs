@@ -145,6 +145,12 @@ pub fn initial_unknowns(model: &Model, solver: SolverKind) -> Result<Vec<f64>> {
             let mut m = model.clone();
             m.surface = Periods::single(freeze_surface(surface, model.time.start));
             m.bottom = Periods::single(freeze_bottom(bottom, model.time.start));
+            // The plants of the start, at their transpiration of the start.
+            let t0 = model.time.start;
+            m.vegetation = Periods::single(model.vegetation.at(t0).clone().map(|mut v| {
+                v.transpiration = crate::schedule::Schedule::Constant(v.transpiration.value(t0));
+                v
+            }));
             steady_state(&m, guess, solver)
         }
     }

@@ -66,8 +66,8 @@ impl Observer for ResultsWriter {
             &self.file.cell_layer,
             self.file.layers,
         );
-        let solutes = sim.solutes().map(|c| c.series_values()).unwrap_or_default();
-        self.file.push_series_layers(*record, &layers, &solutes);
+        self.file
+            .push_series_layers(*record, &layers, &sim.extra_series());
         Ok(())
     }
     fn snapshot(&mut self, sim: &Simulation, time_year: f64, profile: &Profile) -> Result<()> {
@@ -248,16 +248,16 @@ pub struct Snapshot {
 pub struct Recorder {
     pub series: Vec<SeriesRecord>,
     pub snapshots: Vec<Snapshot>,
-    /// Per series record, the solute series values (see
-    /// [`crate::solute::SERIES_FIELDS`]; empty without solutes).
+    /// Per series record, the series values beyond the record: the solutes' (see
+    /// [`crate::solute::SERIES_FIELDS`]), then the vegetation's (see
+    /// [`crate::sim::simulation::VEGETATION_SERIES`]); empty without either.
     pub solute_series: Vec<Vec<f64>>,
 }
 
 impl Observer for Recorder {
     fn series(&mut self, sim: &Simulation, record: &SeriesRecord) -> Result<()> {
         self.series.push(*record);
-        self.solute_series
-            .push(sim.solutes().map(|c| c.series_values()).unwrap_or_default());
+        self.solute_series.push(sim.extra_series());
         Ok(())
     }
     fn snapshot(&mut self, _sim: &Simulation, time_year: f64, profile: &Profile) -> Result<()> {

@@ -28,6 +28,52 @@ pub const OSMOTIC_TOLERANCE_M: f64 = 1.0e-3;
 /// Most coupling iterations per step (see [`Simulation::coupled_step`]).
 pub const OSMOTIC_ITERATIONS: usize = 4;
 
+/// The vegetation series (name, units, long name), in the order of
+/// [`Simulation::extra_series`].
+pub const VEGETATION_SERIES: [(&str, &str, &str); 4] = [
+    (
+        "root_water_uptake",
+        "kg m-2 s-1",
+        "root water uptake of the column (actual transpiration)",
+    ),
+    (
+        "root_water_uptake_cumulative",
+        "kg m-2",
+        "root water uptake since the start, integrated with the stepper's weights",
+    ),
+    (
+        "potential_transpiration",
+        "kg m-2 s-1",
+        "potential transpiration of the plants in force",
+    ),
+    (
+        "potential_transpiration_cumulative",
+        "kg m-2",
+        "potential transpiration since the case's start time (exact integral of the schedule over the periods with plants)",
+    ),
+];
+
+/// Potential transpiration [kg m⁻² s⁻¹] at `t` (the value of the step ending at `t`: the
+/// left limit) and its exact integral since the case's start time [kg m⁻²].
+pub fn potential_transpiration(model: &Model, t: f64) -> (f64, f64) {
+    use crate::props::constants::WATER_DENSITY;
+    let before = t.next_down();
+    let rate = model
+        .vegetation
+        .at(before)
+        .as_ref()
+        .map_or(0.0, |v| v.transpiration.value(before).max(0.0));
+    let periods = &model.vegetation.periods;
+    let mut total = 0.0;
+    for (k, (start, veg)) in periods.iter().enumerate() {
+        let Some(v) = veg else { continue };
+        let a = start.max(model.time.start);
+        let b = periods.get(k + 1).map_or(t, |p| p.0.min(t));
+        total += v.transpiration.integral(a, b);
+    }
+    (WATER_DENSITY * rate, WATER_DENSITY * total)
+}
+
 /// Why a step could not be taken.
 enum StepError {
     /// The flow step failed at the minimum Δt (the observers are told).
@@ -99,8 +145,8 @@ pub fn series_record(sys: &System, st: &Stepper, dt: f64, iters: usize) -> Serie
     let (abs, rel) = column_balance(sys, st);
     let (top, bot) = sys.boundary_fluxes();
     // Conserved quantities in the stepper's order [energy, water]; the bottom's outflow is
-    // the top's inflow minus the net inflow.
-    let (w_top, w_net) = (&st.state.top_inflow, &st.state.inflow);
+    // the top's inflow minus the net inflow minus what the sinks (roots) took.
+    let (w_top, w_net, w_sink) = (&st.state.top_inflow, &st.state.inflow, &st.state.sink);
     SeriesRecord {
         time_year: st.state.t / SECONDS_PER_YEAR,
         surface_water_flux: top[1],
@@ -116,9 +162,9 @@ pub fn series_record(sys: &System, st: &Stepper, dt: f64, iters: usize) -> Serie
         dt,
         newton_iterations: iters as f64,
         surface_water_cumulative: w_top[1],
-        bottom_water_cumulative: w_top[1] - w_net[1],
+        bottom_water_cumulative: w_top[1] - w_net[1] - w_sink[1],
         surface_energy_cumulative: w_top[0],
-        bottom_energy_cumulative: w_top[0] - w_net[0],
+        bottom_energy_cumulative: w_top[0] - w_net[0] - w_sink[0],
     }
 }
 
@@ -305,6 +351,28 @@ impl<'m> Simulation<'m> {
         self.solutes.as_ref()
     }
 
+    /// The series values beyond [`SeriesRecord`]: every solute's
+    /// ([`crate::solute::SERIES_FIELDS`]), then the vegetation's
+    /// ([`VEGETATION_SERIES`]) when the case has plants, at the current state.
+    pub fn extra_series(&self) -> Vec<f64> {
+        let mut out = self
+            .solutes
+            .as_ref()
+            .map(|c| c.series_values())
+            .unwrap_or_default();
+        if self.sys.has_vegetation {
+            let t = self.st.state.t;
+            let potential = potential_transpiration(self.model, t);
+            out.extend_from_slice(&[
+                self.sys.uptake_totals[1],
+                self.st.state.sink.get(1).copied().unwrap_or(f64::NAN),
+                potential.0,
+                potential.1,
+            ]);
+        }
+        out
+    }
+
     pub fn model(&self) -> &'m Model {
         self.model
     }
@@ -328,6 +396,9 @@ impl<'m> Simulation<'m> {
     pub fn start(&mut self, obs: &mut [&mut dyn Observer], initial_output: bool) -> Result<()> {
         if initial_output {
             self.sys.evaluate_direct(self.st.state.t, &self.st.state.u);
+            if self.sys.has_vegetation {
+                self.sys.compute_uptake(self.st.state.t);
+            }
             self.profile.fill(&self.sys);
             self.fill_solute_profiles();
             let rec = series_record(&self.sys, &self.st, 0.0, 0);
@@ -387,6 +458,9 @@ impl<'m> Simulation<'m> {
                 // The profiles of the state evaluated directly, not linearised: the same
                 // whatever the solver kept (a branch from this state shows the same).
                 self.sys.evaluate_direct(self.st.state.t, &self.st.state.u);
+                if self.sys.has_vegetation {
+                    self.sys.compute_uptake(self.st.state.t);
+                }
                 self.profile.fill(&self.sys);
                 self.fill_solute_profiles();
                 self.emit_snapshot(obs)?;

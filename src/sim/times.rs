@@ -56,6 +56,12 @@ pub fn forcing_times(model: &Model) -> Vec<f64> {
             add_schedule(s, &mut ts);
         }
     }
+    for (start, veg) in &model.vegetation.periods {
+        ts.push(*start);
+        if let Some(v) = veg {
+            add_schedule(&v.transpiration, &mut ts);
+        }
+    }
     for solute in &model.solutes {
         match &solute.surface {
             crate::model::SoluteSurface::Deposition(s) | crate::model::SoluteSurface::Inflow(s) => {

@@ -40,7 +40,11 @@ use crate::props::constants::SECONDS_PER_YEAR;
 use crate::solve::stepper::{StepInfo, StepState};
 
 /// Number of series values per solute (see [`SERIES_FIELDS`]).
-pub const SERIES_PER_SOLUTE: usize = 8;
+pub const SERIES_PER_SOLUTE: usize = 9;
+
+/// Cumulative flows kept per solute: surface inflow, bottom outflow, throughput, root
+/// uptake [g m⁻²].
+pub const CUMULATIVE: usize = 4;
 
 /// The series per solute: name prefix (the dataset is `<prefix>_<solute>`), units, long
 /// name, in the order of [`SoluteColumn::series_values`].
@@ -84,6 +88,11 @@ pub const SERIES_FIELDS: [(&str, &str, &str); SERIES_PER_SOLUTE] = [
         "recharge_estimate",
         "mm year-1",
         "chloride mass-balance recharge estimate: mean deposition / concentration at recharge_depth_m",
+    ),
+    (
+        "uptake_cumulative",
+        "g m-2",
+        "solute taken up with root water since the start (root_uptake_fraction of the concentration)",
     ),
 ];
 
@@ -176,6 +185,10 @@ pub struct SoluteColumn {
     /// Concentration [g m⁻³] and face flux [g m⁻² s⁻¹] of the last solve, solute after solute.
     pub conc: Vec<f64>,
     pub flux: Vec<f64>,
+    /// Root water uptake of each cell [m³ of water per m² of column per s] (from the flow),
+    /// and the solute uptake of the last solve [g m⁻² s⁻¹].
+    water_uptake: Vec<f64>,
+    uptake_rate: f64,
     /// The masses and cumulative flows being computed for the new time.
     next_mass: Vec<f64>,
     next_cumulative: Vec<f64>,
@@ -346,7 +359,7 @@ impl SoluteColumn {
         let zero_point = || SolutePoint {
             t: model.time.start,
             mass: vec![0.0; ns * n],
-            cumulative: vec![0.0; 3 * ns],
+            cumulative: vec![0.0; CUMULATIVE * ns],
         };
         SoluteColumn {
             solutes: model.solutes.clone(),
@@ -377,8 +390,10 @@ impl SoluteColumn {
             slope: vec![0.0; n],
             conc: vec![0.0; ns * n],
             flux: vec![0.0; ns * (n + 1)],
+            water_uptake: vec![0.0; n],
+            uptake_rate: 0.0,
             next_mass: vec![0.0; ns * n],
-            next_cumulative: vec![0.0; 3 * ns],
+            next_cumulative: vec![0.0; CUMULATIVE * ns],
             factor: FactorTable::new(),
         }
     }
@@ -420,6 +435,9 @@ impl SoluteColumn {
         };
         for (j, f) in sys.faces.iter().enumerate() {
             self.q[j] = f.liquid().v;
+        }
+        for (w, u) in self.water_uptake.iter_mut().zip(&sys.uptake) {
+            *w = u / crate::props::constants::WATER_DENSITY;
         }
     }
 
@@ -507,9 +525,12 @@ impl SoluteColumn {
         for _iter in 0..MAX_ITERATIONS {
             self.concentrations(s);
             // Residual R_i = w (c0 m + hist) − J_i + J_{i+1}, and its Jacobian in m.
+            // Root uptake takes the fraction f_u of the concentration with the water.
+            let fu = s.uptake_fraction;
             for i in 0..n {
-                self.rhs[i] = self.widths[i] * c0 * self.m[i] + self.hist[i];
-                self.diag[i] = self.widths[i] * c0;
+                let up = fu * self.water_uptake[i];
+                self.rhs[i] = self.widths[i] * c0 * self.m[i] + self.hist[i] + up * self.c[i];
+                self.diag[i] = self.widths[i] * c0 + up * self.slope[i];
                 self.lower[i] = 0.0;
                 self.upper[i] = 0.0;
             }
@@ -576,6 +597,13 @@ impl SoluteColumn {
         let s = &solutes[k];
         self.concentrations(s);
         self.conc[k * n..(k + 1) * n].copy_from_slice(&self.c);
+        self.uptake_rate = s.uptake_fraction
+            * self
+                .water_uptake
+                .iter()
+                .zip(&self.c)
+                .map(|(w, c)| w * c)
+                .sum::<f64>();
         for j in 0..=n {
             let (a, b, f) = self.face_coefficients(s, j, t);
             let c_up = if j > 0 { self.c[j - 1] } else { 0.0 };
@@ -697,7 +725,7 @@ impl SoluteColumn {
                 self.state.names.join(", ")
             )));
         }
-        let ok = |p: &SolutePoint| p.mass.len() == ns * n && p.cumulative.len() == 3 * ns;
+        let ok = |p: &SolutePoint| p.mass.len() == ns * n && p.cumulative.len() == CUMULATIVE * ns;
         if !ok(&state.now) || state.initial_mass.len() != ns * n || !state.history.iter().all(ok) {
             return Err(Error::input(
                 "the checkpoint's solute state does not fit the case's mesh".to_string(),
@@ -773,9 +801,10 @@ impl SoluteColumn {
             // Cumulative flows by the same formula: α0 W_new + Σ αj W_j = F(new).
             let top = self.flux[s * (n + 1)];
             let bottom = self.flux[s * (n + 1) + n];
-            let rates = [top, bottom, top.abs() + bottom.abs()];
+            let up = self.uptake_rate;
+            let rates = [top, bottom, top.abs() + bottom.abs() + up.abs(), up];
             for (r, rate) in rates.iter().enumerate() {
-                let idx = 3 * s + r;
+                let idx = CUMULATIVE * s + r;
                 let mut w = alpha[1] * self.state.now.cumulative[idx];
                 for j in 2..=k {
                     w += alpha[j] * self.state.history[j - 2].cumulative[idx];
@@ -818,8 +847,8 @@ impl SoluteColumn {
                 .zip(&self.widths)
                 .map(|((m, m0), w)| (m - m0) * w)
                 .sum();
-            let cum = &self.state.now.cumulative[3 * k..3 * k + 3];
-            let error = change - (cum[0] - cum[1]);
+            let cum = &self.state.now.cumulative[CUMULATIVE * k..CUMULATIVE * (k + 1)];
+            let error = change - (cum[0] - cum[1] - cum[3]);
             // Changes below a millionth of the stored mass are judged against that (a
             // closed column would otherwise divide round-off by round-off).
             let denom = change
@@ -859,6 +888,7 @@ impl SoluteColumn {
                 self.centers[peak_i],
                 peak,
                 recharge,
+                cum[3],
             ]);
         }
         out

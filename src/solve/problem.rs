@@ -87,6 +87,13 @@ pub trait Problem<const B: usize> {
     /// evaluation (per unit of the weights' measure and time).
     fn boundary_flows(&self) -> (Conserved, Conserved);
 
+    /// Flows of the conserved quantities out of the domain through internal sinks (e.g.
+    /// root water uptake), summed over the blocks, from the last evaluation (per unit of
+    /// the weights' measure and time). Default: none.
+    fn sink_flows(&self) -> Conserved {
+        [0.0; MAX_CONSERVED]
+    }
+
     /// Fills the residual (and, when given, the Jacobian) at state `u`, time `t`, with
     /// integrator coefficient `c` and history `hist` (B per block); refuses NaN and Inf.
     #[allow(clippy::too_many_arguments)]

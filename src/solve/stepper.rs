@@ -104,6 +104,8 @@ pub struct HistoryPoint {
     pub throughput: Vec<f64>,
     /// Cumulative inflow through the top boundary at `t` (as [`StepState::top_inflow`]).
     pub top_inflow: Vec<f64>,
+    /// Cumulative outflow through internal sinks at `t` (as [`StepState::sink`]).
+    pub sink: Vec<f64>,
 }
 
 impl HistoryPoint {
@@ -115,6 +117,7 @@ impl HistoryPoint {
             inflow: vec![0.0; conserved],
             throughput: vec![0.0; conserved],
             top_inflow: vec![0.0; conserved],
+            sink: vec![0.0; conserved],
         }
     }
 }
@@ -145,6 +148,9 @@ pub struct StepState {
     /// [`StepState::inflow`]; the bottom boundary's outflow is `top_inflow − inflow`.
     /// NaN when unknown (a run continued from a checkpoint written before it was kept).
     pub top_inflow: Vec<f64>,
+    /// Cumulative outflow through internal sinks ([`Problem::sink_flows`]) of each
+    /// conserved quantity, by the same formula; the net inflow is top − bottom − sink.
+    pub sink: Vec<f64>,
     /// Content of each conserved quantity at the start (Σ V M).
     pub initial_totals: Vec<f64>,
     /// Storages of every block at the start: the storage change is summed block by
@@ -305,6 +311,7 @@ impl<const B: usize> Stepper<B> {
             inflow: vec![0.0; nq],
             throughput: vec![0.0; nq],
             top_inflow: vec![0.0; nq],
+            sink: vec![0.0; nq],
             counters: Counters::default(),
             history: Vec::new(),
             order: 1,
@@ -683,13 +690,16 @@ impl<const B: usize> Stepper<B> {
         // Cumulative inflow by the same formula as the storages:
         // α0 W_new + α1 W_old + Σ αj W_j = F_in(new).
         let (top, bot) = sys.boundary_flows();
+        let sink = sys.sink_flows();
         let nq = s.inflow.len();
         let mut new_inflow = [0.0; MAX_CONSERVED];
         let mut new_throughput = [0.0; MAX_CONSERVED];
         let mut new_top = [0.0; MAX_CONSERVED];
+        let mut new_sink = [0.0; MAX_CONSERVED];
         for q in 0..nq {
-            let fin = top[q] - bot[q];
-            let fabs = top[q].abs() + bot[q].abs();
+            // (x − 0.0 is x: without sinks the sums are those of before.)
+            let fin = top[q] - bot[q] - sink[q];
+            let fabs = top[q].abs() + bot[q].abs() + sink[q].abs();
             let mut a = alpha[1] * s.inflow[q];
             let mut b = alpha[1] * s.throughput[q];
             for j in 2..=k {
@@ -705,6 +715,11 @@ impl<const B: usize> Stepper<B> {
                 w += alpha[j] * s.history[j - 2].top_inflow[q];
             }
             new_top[q] = (top[q] - w) / c;
+            let mut w = alpha[1] * s.sink[q];
+            for j in 2..=k {
+                w += alpha[j] * s.history[j - 2].sink[q];
+            }
+            new_sink[q] = (sink[q] - w) / c;
         }
         {
             // Shift the history: the old current point becomes the newest history point,
@@ -721,6 +736,7 @@ impl<const B: usize> Stepper<B> {
             point.inflow.clone_from(&s.inflow);
             point.throughput.clone_from(&s.throughput);
             point.top_inflow.clone_from(&s.top_inflow);
+            point.sink.clone_from(&s.sink);
             // The old storages go with the point; the new ones are filled below.
             std::mem::swap(&mut point.storage, &mut s.storage);
             s.history.insert(0, point);
@@ -729,6 +745,7 @@ impl<const B: usize> Stepper<B> {
         s.inflow.copy_from_slice(&new_inflow[..nq]);
         s.throughput.copy_from_slice(&new_throughput[..nq]);
         s.top_inflow.copy_from_slice(&new_top[..nq]);
+        s.sink.copy_from_slice(&new_sink[..nq]);
         let base = if dt < dt_try { dt_try } else { dt };
         s.dt = (base * factor).clamp(self.opts.dt_min, self.opts.dt_max);
         s.t = a.t_new;

@@ -74,6 +74,7 @@ pub fn column(
     let depth = mesh.depth();
     Model {
         solutes: Vec::new(),
+        vegetation: deepdry::model::Periods::single(None),
         title: "test column".into(),
         case_text: String::new(),
         overrides: Vec::new(),

@@ -42,6 +42,12 @@ pub struct Series {
     pub energy_balance_relative_error: Vec<f64>,
     /// [m]
     pub drying_front_depth: Vec<f64>,
+    /// Root water uptake and potential transpiration [kg m-2 s-1], and their cumulative
+    /// totals [kg m-2] (empty without vegetation).
+    pub root_water_uptake: Vec<f64>,
+    pub potential_transpiration: Vec<f64>,
+    pub root_water_uptake_cumulative: Vec<f64>,
+    pub potential_transpiration_cumulative: Vec<f64>,
 }
 
 /// What the plots need from a results file.
@@ -62,6 +68,8 @@ pub struct Results {
     pub asked_times: Vec<f64>,
     /// The solutes' profiles (empty when the run has none).
     pub solutes: Vec<SoluteProfiles>,
+    /// Root water uptake [kg m-3 s-1], [snapshots][cells] (None without vegetation).
+    pub root_water_uptake: Option<Vec<Vec<f64>>>,
 }
 
 /// One solute's profiles, [snapshots][cells].
@@ -249,6 +257,14 @@ pub fn read(path: &Path) -> Result<Results> {
     let stime = read_vec(&file, path, "series/time", None)?;
     let r = Some(stime.len());
     let ser = |name: &str| read_vec(&file, path, &format!("series/{name}"), r);
+    // A series that only some runs have (empty when absent).
+    let optional_ser = |name: &str| -> Result<Vec<f64>> {
+        if file.dataset(&format!("series/{name}")).is_ok() {
+            ser(name)
+        } else {
+            Ok(Vec::new())
+        }
+    };
     let series = Series {
         surface_water_flux: ser("surface_water_flux")?,
         bottom_water_flux: ser("bottom_water_flux")?,
@@ -256,7 +272,16 @@ pub fn read(path: &Path) -> Result<Results> {
         water_balance_relative_error: ser("water_balance_relative_error")?,
         energy_balance_relative_error: ser("energy_balance_relative_error")?,
         drying_front_depth: ser("drying_front_depth")?,
+        root_water_uptake: optional_ser("root_water_uptake")?,
+        potential_transpiration: optional_ser("potential_transpiration")?,
+        root_water_uptake_cumulative: optional_ser("root_water_uptake_cumulative")?,
+        potential_transpiration_cumulative: optional_ser("potential_transpiration_cumulative")?,
         time: stime,
+    };
+    let root_water_uptake = if file.dataset("profiles/root_water_uptake").is_ok() {
+        Some(cell("root_water_uptake")?)
+    } else {
+        None
     };
     // Solutes: every `profiles/concentration_<name>`.
     let mut names: Vec<String> = file
@@ -289,6 +314,7 @@ pub fn read(path: &Path) -> Result<Results> {
         profiles,
         series,
         solutes,
+        root_water_uptake,
         log_origin_year,
         asked_times,
     })

@@ -420,7 +420,7 @@ fn read_retention(t: &Table) -> R<RetentionLaw> {
     )?;
     Ok(match key {
         "van_genuchten" => {
-            let vg = v.table(&["theta_r", "theta_s", "alpha_per_m", "n", "l"])?;
+            let vg = v.table(&["theta_r", "theta_s", "alpha_per_m", "n", "l", "air_entry_m"])?;
             let (theta_r, theta_s) = theta_pair(&vg)?;
             let alpha = req_num(
                 &vg,
@@ -438,12 +438,20 @@ fn read_retention(t: &Table) -> R<RetentionLaw> {
             )?;
             // Kr ~ Se^(l + 2/m) when dry, m = 1 − 1/n.
             let l = pore_connectivity(&vg, -2.0 * n / (n - 1.0))?;
+            let air_entry = opt_num(
+                &vg,
+                "air_entry_m",
+                |a| (0.0..=1.0).contains(&a),
+                "must be in [0, 1] m (the magnitude of the air-entry head of Vogel et al. 2001, e.g. 0.02; 0: the plain curve)",
+            )?
+            .unwrap_or(0.0);
             RetentionLaw::VanGenuchten {
                 theta_r,
                 theta_s,
                 alpha,
                 n,
                 l,
+                air_entry,
             }
         }
         "brooks_corey" => {

@@ -1196,18 +1196,7 @@ fn read_profile(file: &Value, depth: f64, soils: &[Soil], layers: &[Layer]) -> R
         alternatives: &["head_m", "liquid_content"],
     };
     let (cols, names) = csvfile::read(file, header, "initial profile")?;
-    if cols.lines.len() < 2 {
-        return Err(cols.err(0, "a profile needs at least two rows"));
-    }
-    cols.strictly_increasing(0, "depth_m")?;
-    for (row, &z) in cols.columns[0].iter().enumerate() {
-        if !(0.0..=depth).contains(&z) {
-            return Err(cols.err(
-                row,
-                format!("depth_m = {z}: outside the column [0, {}] m", fmt_g(depth)),
-            ));
-        }
-    }
+    cols.depth_profile(depth)?;
     let mut temperature = Vec::with_capacity(cols.lines.len());
     for (row, &c) in cols.columns[1].iter().enumerate() {
         if !(T_MIN_C..=T_MAX_C).contains(&c) {

@@ -419,12 +419,7 @@ impl<'m> Simulation<'m> {
     /// a series record and a snapshot of the start state (a new results file begins so).
     pub fn start(&mut self, obs: &mut [&mut dyn Observer], initial_output: bool) -> Result<()> {
         if initial_output {
-            self.sys.evaluate_direct(self.st.state.t, &self.st.state.u);
-            if self.sys.has_vegetation {
-                self.sys.compute_uptake(self.st.state.t);
-            }
-            self.profile.fill(&self.sys);
-            self.fill_solute_profiles();
+            self.fill_profiles();
             let rec = series_record(&self.sys, &self.st, 0.0, 0);
             self.emit_series(obs, rec)?;
             self.emit_snapshot(obs)?;
@@ -481,12 +476,7 @@ impl<'m> Simulation<'m> {
             if at_snapshot {
                 // The profiles of the state evaluated directly, not linearised: the same
                 // whatever the solver kept (a branch from this state shows the same).
-                self.sys.evaluate_direct(self.st.state.t, &self.st.state.u);
-                if self.sys.has_vegetation {
-                    self.sys.compute_uptake(self.st.state.t);
-                }
-                self.profile.fill(&self.sys);
-                self.fill_solute_profiles();
+                self.fill_profiles();
                 self.emit_snapshot(obs)?;
             }
             let mut checkpoint = landed && is_member(&self.plan.checkpoints, t_sync);
@@ -660,6 +650,18 @@ impl<'m> Simulation<'m> {
             o.series(self, &rec)?;
         }
         Ok(())
+    }
+
+    /// The profiles of the state into `self.profile`: the state evaluated directly, not
+    /// linearised (the same whatever the solver kept: a branch from this state shows the
+    /// same), with its root uptake and solute profiles.
+    fn fill_profiles(&mut self) {
+        self.sys.evaluate_direct(self.st.state.t, &self.st.state.u);
+        if self.sys.has_vegetation {
+            self.sys.compute_uptake(self.st.state.t);
+        }
+        self.profile.fill(&self.sys);
+        self.fill_solute_profiles();
     }
 
     /// The solute profiles of the state into `self.profile` (the flow evaluated directly

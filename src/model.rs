@@ -26,6 +26,10 @@ pub struct Soil {
     pub solid_heat_capacity: f64,
     /// Enhancement factor η(θl) on the thermal vapour flux.
     pub enhancement: Enhancement,
+    /// Specific storage Ss [m⁻¹]: water stored per bulk volume per metre of positive
+    /// pressure head (compression of water and matrix), so that a saturated cell stores
+    /// θs + Ss·h (0: incompressible).
+    pub specific_storage: f64,
 }
 
 /// A layer: a depth interval filled with one soil.

@@ -110,6 +110,7 @@ fn soil(name: &str, dry_end: Option<DryEnd>) -> Soil {
         thermal: ThermalConductivity::campbell_1985(1.5, 0.1),
         solid_heat_capacity: 2.0e6,
         enhancement: Enhancement::Cass { clay_fraction: 0.1 },
+        specific_storage: 0.0,
     }
 }
 

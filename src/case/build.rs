@@ -363,6 +363,7 @@ const SOIL_KEYS: &[&str] = &[
     "particle_density_kg_per_m3",
     "solid_specific_heat_J_per_kg_K",
     "enhancement",
+    "specific_storage_per_m",
 ];
 
 fn read_soils(root: &Table) -> R<Vec<Soil>> {
@@ -683,6 +684,13 @@ fn read_soil(name: &str, v: &Value) -> R<Soil> {
         }
     };
 
+    let specific_storage = opt_num(
+        &t,
+        "specific_storage_per_m",
+        |s| (0.0..=1.0e-2).contains(&s),
+        "must be in [0, 0.01] 1/m (sediments: about 1e-6 to 1e-3 1/m)",
+    )?
+    .unwrap_or(0.0);
     Ok(Soil {
         name: name.to_string(),
         retention: Retention { law, dry_end },
@@ -690,6 +698,7 @@ fn read_soil(name: &str, v: &Value) -> R<Soil> {
         thermal,
         solid_heat_capacity,
         enhancement,
+        specific_storage,
     })
 }
 

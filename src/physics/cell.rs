@@ -137,12 +137,20 @@ pub fn cell_props<const N: usize>(
     let (lam, dlam) = soil.thermal.value(theta.v, phi);
     let lambda = theta.chain(lam, dlam);
 
+    // Stored liquid: θ plus the specific storage of positive heads (a saturated cell
+    // stores θs + Ss·h), in the water and the energy storage; θ itself (and so the air
+    // content, K, λ) is the retention curve's.
+    let stored = if soil.specific_storage > 0.0 && h.v > 0.0 {
+        theta + h * soil.specific_storage
+    } else {
+        theta
+    };
     let dt0 = t - T_REF;
     let vapor_store = theta_a * rv;
     let energy = dt0 * soil.solid_heat_capacity
-        + theta * dt0 * (WATER_DENSITY * WATER_HEAT_CAPACITY)
+        + stored * dt0 * (WATER_DENSITY * WATER_HEAT_CAPACITY)
         + vapor_store * vapor_enthalpy(t);
-    let water = theta * WATER_DENSITY + vapor_store;
+    let water = stored * WATER_DENSITY + vapor_store;
     CellProps {
         t,
         h,

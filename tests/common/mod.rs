@@ -36,6 +36,7 @@ pub fn sandy_loam() -> Soil {
         },
         solid_heat_capacity: (1.0 - 0.41) * 2.0e6,
         enhancement: Enhancement::None,
+        specific_storage: 0.0,
     }
 }
 

@@ -215,6 +215,10 @@ pub struct CheckpointInfo {
     pub last_snapshot_year: Option<f64>,
     /// The checkpoint a branched run started from, and its time [yr].
     pub parent: Option<(String, f64)>,
+    /// The end year of the run that wrote the checkpoint (read back only: written from the
+    /// model; absent in checkpoints of earlier versions). A run extended past its case's
+    /// end (`--extend-to`) records the later end here.
+    pub run_end_year: Option<f64>,
 }
 
 /// A checkpoint read back from disk.
@@ -307,6 +311,7 @@ fn write_via(
         .map_err(&er)?;
         attr_f64(&root, "time_origin_year", model.time.epoch_year).map_err(&er)?;
         attr_f64(&root, "time_year", model.time.year(state.t)).map_err(&er)?;
+        attr_f64(&root, "end_year", model.time.year(model.time.end)).map_err(&er)?;
         let f64s = |name: &str, v: &[f64], units: &str, long: &str| -> hdf5::Result<()> {
             let ds = file
                 .new_dataset_builder()
@@ -892,6 +897,11 @@ pub fn read(path: &Path) -> Result<Checkpoint> {
                 .unwrap_or(f64::NAN);
             info.parent = Some((p, t));
         }
+        info.run_end_year = root
+            .attr("end_year")
+            .and_then(|a| a.read_scalar::<f64>())
+            .ok()
+            .filter(|y| y.is_finite());
         if state.initial_storage.len() != state.u.len() {
             return Err(bad("initial_storage"));
         }

@@ -52,6 +52,16 @@ pub enum Command {
         /// Start a new run (new results file) from this checkpoint's state (branching).
         #[arg(long)]
         start_from: Option<PathBuf>,
+        /// Continue the finished run in the output folder from its final checkpoint to
+        /// this later year, appending to its results file (the case's end year is
+        /// replaced by YEAR for this run; the case must be unchanged otherwise).
+        #[arg(
+            long,
+            value_name = "YEAR",
+            allow_negative_numbers = true,
+            conflicts_with_all = ["resume", "start_from", "overwrite"]
+        )]
+        extend_to: Option<f64>,
     },
     /// Measure performance: the reference case and a scaling series over the cell count.
     Bench {
@@ -284,8 +294,27 @@ fn run_command(cli: Cli) -> Result<()> {
             solver,
             resume,
             start_from,
+            extend_to,
         } => {
-            let model = crate::case::load_with_overrides(&case, &overrides(&set)?)?;
+            let overrides = overrides(&set)?;
+            if let Some(year) = extend_to {
+                crate::run::install_signal_handlers()?;
+                let opts = crate::run::RunOptions {
+                    out,
+                    overwrite: false,
+                    progress: !quiet,
+                    solver: if solver == "sparse-lu" {
+                        crate::solve::linear::SolverKind::SparseLu
+                    } else {
+                        crate::solve::linear::SolverKind::BlockThomas
+                    },
+                    start: crate::run::Start::Fresh,
+                };
+                let summary = crate::run::extend(&case, &overrides, year, &opts)?;
+                print!("{}", summary.text());
+                return Ok(());
+            }
+            let model = crate::case::load_with_overrides(&case, &overrides)?;
             crate::run::install_signal_handlers()?;
             let start = match (resume, start_from) {
                 (Some(p), _) => crate::run::Start::Resume(p),

@@ -140,6 +140,7 @@ impl Checkpointer {
             last_series_year: out.last_series_year,
             last_snapshot_year: out.last_snapshot_year,
             parent: self.parent.clone(),
+            run_end_year: None,
         };
         crate::checkpoint::write(
             path,

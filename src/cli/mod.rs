@@ -131,6 +131,11 @@ pub enum Command {
         /// are left out of a log axis, with a note.
         #[arg(long, allow_negative_numbers = true, value_name = "YEAR")]
         time_origin: Option<f64>,
+        /// For the results of a branch (`--start-from`): draw the series of the parent
+        /// run up to the branch year in front of the branch's (the parent's results file
+        /// is found through the branch's parent checkpoint); profiles stay the branch's.
+        #[arg(long)]
+        with_parent: bool,
     },
     /// Write a results file as CSV files (series, profiles in long form, mesh) and a
     /// README.txt describing their columns; units are in the column names.
@@ -359,12 +364,14 @@ fn run_command(cli: Cli) -> Result<()> {
             times,
             log_time,
             time_origin,
+            with_parent,
         } => {
             let opts = crate::plot::PlotOptions {
                 out,
                 times,
                 log_time,
                 time_origin,
+                with_parent,
             };
             let plotted = crate::plot::plot_results_with_notes(&results, &opts)?;
             for p in plotted.files {

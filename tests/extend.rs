@@ -61,6 +61,12 @@ fn extension_equals_a_single_run(method: &'static str, name: &str) {
     run_ok(&case, &ext, &["--extend-to", "20"]);
     assert_same_datasets(&full20.join("results.h5"), &ext.join("results.h5"));
     assert_same_datasets(&checkpoint_at(&full20, 20.0), &checkpoint_at(&ext, 20.0));
+    let o = deepdry(&["inspect", arg(&ext.join("results.h5"))]);
+    assert!(
+        stdout(&o).contains("extended past the case's end to year 20"),
+        "{}",
+        stdout(&o)
+    );
 }
 
 #[test]

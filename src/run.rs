@@ -669,12 +669,16 @@ pub fn extend(
     let ck = checkpoint::read(&newest)?;
     let ck_year = ck.year();
     let tol = 1e-9 * ck_year.abs().max(1.0);
-    if ck_year < case_end - tol {
+    // The end of the run that wrote the checkpoint (the case's, for checkpoints that do
+    // not record it). The run finished when the checkpoint is at that end or at the
+    // case's (an extension interrupted after it is continued by extending again).
+    let ran_to = ck.info.run_end_year.unwrap_or(case_end);
+    if ck_year < ran_to.min(case_end) - tol {
         return Err(Error::input(format!(
-            "{}: the newest checkpoint is at year {}, before the case's end (year {}): the run did not finish; continue it with --resume {}",
+            "{}: the newest checkpoint is at year {}, before the end of the run that wrote it (year {}): the run did not finish; continue it with --resume {}",
             newest.display(),
             crate::output::years(ck_year),
-            crate::output::years(case_end),
+            crate::output::years(ran_to),
             newest.display()
         )));
     }
@@ -696,7 +700,6 @@ pub fn extend(
         Ok(m)
     };
     // The case that wrote the checkpoint: this one, run to the end that run had.
-    let ran_to = ck.info.run_end_year.unwrap_or(case_end);
     let wrote = if ran_to == case_end {
         given
     } else {

@@ -157,7 +157,7 @@ fn bad_extensions_are_refused_in_one_line_and_change_nothing() {
         &o,
         2,
         &[
-            "checkpoint-05yr.h5: the newest checkpoint is at year 5, before the case's end (year 10)",
+            "checkpoint-05yr.h5: the newest checkpoint is at year 5, before the end of the run that wrote it (year 10)",
             "the run did not finish",
             "--resume",
         ],
@@ -183,6 +183,17 @@ fn bad_extensions_are_refused_in_one_line_and_change_nothing() {
     );
     run_ok(&case2, &out2, &["--extend-to", "15"]);
     let full = dir.join("full");
+    // The case file edited to end at 15 instead: the run to 10 is still found finished
+    // (its checkpoints record their end) and extends as the unedited case would.
+    let edited = Small {
+        end_year: 15.0,
+        ..with_ck.clone()
+    };
+    let edited = dir.write("edited.toml", &edited.text());
+    let out3 = dir.join("out3");
+    run_ok(&case2, &out3, &[]);
+    run_ok(&edited, &out3, &["--extend-to", "15"]);
+    assert_same_datasets(&out2.join("results.h5"), &out3.join("results.h5"));
     run_ok(&case2, &full, &["--set", "time.end_year=15.0"]);
     assert_same_datasets(&full.join("results.h5"), &out2.join("results.h5"));
 }

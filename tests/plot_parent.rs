@@ -76,6 +76,41 @@ fn a_branch_is_drawn_after_its_parent_and_a_lost_parent_is_refused() {
     let svg = std::fs::read_to_string(alone.join("series-water-storage.svg")).unwrap();
     assert!(svg.contains("t = 4 to 10 yr") && !svg.contains("the parent run"));
 
+    // A branch run from the scratch folder with relative paths, plotted from elsewhere:
+    // the parent checkpoint is found against an ancestor of the branch folder.
+    let o = std::process::Command::new(bin())
+        .current_dir(&dir.path)
+        .args([
+            "run",
+            "branch.toml",
+            "--start-from",
+            "parent/checkpoint-04yr.h5",
+            "--out",
+            "runs/branch2",
+            "--quiet",
+        ])
+        .output()
+        .unwrap();
+    assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
+    let b2 = dir.join("runs").join("branch2").join("results.h5");
+    assert_eq!(
+        root_attr(&b2, "parent_checkpoint").as_deref(),
+        Some("parent/checkpoint-04yr.h5")
+    );
+    let o = std::process::Command::new(bin())
+        .current_dir("/")
+        .args([
+            "plot",
+            arg(&b2),
+            "--with-parent",
+            "--out",
+            arg(&dir.join("pics2")),
+        ])
+        .output()
+        .unwrap();
+    assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
+    assert!(stderr(&o).contains("up to year 4"), "{}", stderr(&o));
+
     // The parent checkpoint pruned: its folder's results.h5 is used.
     std::fs::remove_file(&ck).unwrap();
     let (found, _) = data::parent_of(&bres).unwrap();

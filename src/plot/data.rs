@@ -300,7 +300,8 @@ pub fn read(path: &Path) -> Result<Results> {
 
 /// The results file of the run the branch with results `path` started from, and the
 /// year it branched: through the branch's `parent_checkpoint` attribute (as given to
-/// `--start-from`: tried as it is, then against the branch's folder) to that checkpoint's
+/// `--start-from`: tried as it is, then against the branch's folder and its ancestors) to
+/// that checkpoint's
 /// `results_file_absolute` (then its `results_file`, and `results.h5` beside it). When the
 /// parent checkpoint is gone (pruned), `results.h5` in its folder. One-line errors name
 /// what was tried.
@@ -333,6 +334,16 @@ pub fn parent_of(path: &Path) -> Result<(PathBuf, f64)> {
     let branch_dir = path.parent().unwrap_or(Path::new("."));
     let mut checkpoints = vec![given.clone()];
     if given.is_relative() {
+        // Relative to the folder the branch was run from: one of the branch folder's
+        // ancestors, when that folder was given below it.
+        let branch_dir = crate::checkpoint::absolute(branch_dir);
+        for base in branch_dir.ancestors() {
+            let c = base.join(&given);
+            if c.exists() {
+                checkpoints.push(c);
+                break;
+            }
+        }
         checkpoints.push(branch_dir.join(&given));
     }
     let mut tried: Vec<PathBuf> = Vec::new();

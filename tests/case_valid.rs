@@ -83,7 +83,8 @@ fn benchmark_case_encodes_the_specification() {
             theta_s: 0.41,
             alpha: 7.5,
             n: 1.89,
-            l: 0.5
+            l: 0.5,
+            air_entry: 0.0,
         }
     );
     assert_eq!(s.retention.dry_end, None);

@@ -77,6 +77,7 @@ fn laws() -> Vec<(&'static str, RetentionLaw)> {
                 alpha: 3.6,
                 n: 1.56,
                 l: 0.5,
+                air_entry: 0.0,
             },
         ),
         (
@@ -87,6 +88,19 @@ fn laws() -> Vec<(&'static str, RetentionLaw)> {
                 alpha: 0.8,
                 n: 1.09,
                 l: 0.5,
+                air_entry: 0.0,
+            },
+        ),
+        (
+            // The air-entry modification of Vogel et al. (2001) with |hs| = 0.02 m.
+            "vG loam, air entry",
+            RetentionLaw::VanGenuchten {
+                theta_r: 0.078,
+                theta_s: 0.43,
+                alpha: 3.6,
+                n: 1.56,
+                l: 0.5,
+                air_entry: 0.02,
             },
         ),
         (
@@ -97,6 +111,7 @@ fn laws() -> Vec<(&'static str, RetentionLaw)> {
                 alpha: 14.5,
                 n: 2.68,
                 l: 0.5,
+                air_entry: 0.0,
             },
         ),
         (

@@ -18,6 +18,7 @@ fn loam() -> RetentionLaw {
         alpha: 3.6,
         n: 1.56,
         l: 0.5,
+        air_entry: 0.0,
     }
 }
 
@@ -173,4 +174,57 @@ fn kr_finite_at_extreme_heads() {
     let (kr, dkr) = ret.relative_conductivity(-1e7);
     assert!(kr > 1e-28 && kr < 1e-26, "{kr}");
     assert!(dkr.is_finite() && dkr > 0.0);
+}
+
+/// The air-entry modification (Vogel et al. 2001, as recalled: Se* = Se(h)/Se(hs) and
+/// Kr = Se*^l [(1 − F(Se))/(1 − F(Se(hs)))]², F(Se) = (1 − Se^(1/m))^m): saturated at and
+/// above hs, continuous there, the Mualem slope finite at saturation (the plain curve's
+/// grows without bound as h → 0 for n < 2), the far-dry end unchanged in shape (Se* is Se
+/// scaled by a constant), and the inverse θ → h consistent.
+#[test]
+fn air_entry_modification_saturates_at_hs_with_a_finite_slope() {
+    use deepdry::props::retention::{Retention, RetentionLaw};
+    let law = |air_entry: f64| Retention {
+        law: RetentionLaw::VanGenuchten {
+            theta_r: 0.065,
+            theta_s: 0.41,
+            alpha: 7.5,
+            n: 1.89,
+            l: 0.5,
+            air_entry,
+        },
+        dry_end: None,
+    };
+    let (plain, modified) = (law(0.0), law(0.02));
+    // Saturated from hs up.
+    for h in [-0.02, -0.01, -1e-6] {
+        assert_eq!(modified.theta(h).0, 0.41);
+        assert_eq!(modified.relative_conductivity(h), (1.0, 0.0));
+    }
+    // Continuous at hs from below.
+    let below = modified.theta(-0.020_000_001).0;
+    assert!((below - 0.41).abs() < 1e-8, "{below}");
+    let kr = modified.relative_conductivity(-0.020_000_001).0;
+    assert!((kr - 1.0).abs() < 1e-4, "{kr}");
+    // Slope of Kr just below saturation: finite with the air entry, unbounded without.
+    let slope_mod = modified.relative_conductivity(-0.0201).1;
+    assert!(slope_mod.is_finite() && slope_mod < 1e3, "{slope_mod}");
+    let slope_plain_near = plain.relative_conductivity(-1e-8).1;
+    let slope_plain_far = plain.relative_conductivity(-1e-4).1;
+    assert!(
+        slope_plain_near > 2.0 * slope_plain_far,
+        "plain curve: dKr/dh {slope_plain_near} at -1e-8 m vs {slope_plain_far} at -1e-4 m"
+    );
+    // Se* = Se / Se(hs): the ratio of effective saturations is the same constant at every
+    // head below hs.
+    let ratio = |h: f64| modified.effective_saturation(h).0 / plain.effective_saturation(h).0;
+    let (r1, r2) = (ratio(-0.5), ratio(-50.0));
+    assert!((r1 / r2 - 1.0).abs() < 1e-12, "{r1} vs {r2}");
+    assert!(r1 > 1.0);
+    // Inverse.
+    for h in [-0.05, -1.0, -30.0] {
+        let th = modified.theta(h).0;
+        let back = modified.head_from_theta(th).unwrap();
+        assert!((back / h - 1.0).abs() < 1e-9, "{h} -> {th} -> {back}");
+    }
 }

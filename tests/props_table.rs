@@ -102,6 +102,7 @@ fn soil(name: &str, dry_end: Option<DryEnd>) -> Soil {
                 alpha: 3.6,
                 n: 1.56,
                 l: 0.5,
+                air_entry: 0.0,
             },
             dry_end,
         },

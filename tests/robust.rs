@@ -344,18 +344,48 @@ fn extreme_valid_input_runs_a_short_span() {
 }
 
 #[test]
-fn a_saturated_surface_over_a_dry_column_fails_cleanly() {
-    // Known solver limitation (reported, in src/solve): a surface head of 0 (ponded
-    // infiltration) makes Newton fail at the minimum step as the wetting front reaches
-    // saturated soil. It must fail as a numerical error (exit 3, one line, last good
-    // state saved), never as a panic or a hang. When the solver handles it, this test
-    // fails on purpose: then make it a short_run in extreme_valid_input_runs_a_short_span.
+fn a_saturated_surface_over_a_dry_column() {
+    // A surface head of 0 (ponded infiltration) over a dry 10 m sandy loam. With the plain
+    // van Genuchten–Mualem curve (n = 1.89 < 2) the conductivity's slope is unbounded at
+    // saturation and Newton fails at the minimum step as the wetting front reaches
+    // saturated soil: exit 3, one line naming the remedy, last good state saved.
     let dir = Scratch::new("ponded");
     let case = dir.write("case.toml", &column(10.0, 30, 20.0, 21.0, "head_m = 0.0"));
     let out = dir.join("out");
     let o = run_deepdry(&case, &out, &[]);
-    assert_one_line_error(&o, 3, &["step failed at t = ", "failed-state.h5"]);
+    assert_one_line_error(
+        &o,
+        3,
+        &[
+            "step failed at t = ",
+            "failed-state.h5",
+            "air_entry_m = 0.02",
+        ],
+    );
     read_checkpoint(&out.join("failed-state.h5")).unwrap();
+    // With the air-entry modification of Vogel et al. (2001) it runs to the end: the
+    // column fills to saturation, and the flux through a uniform saturated column with
+    // the head 0 at both ends is Darcy's q = Ks (unit gradient; exact), while the
+    // balance closes.
+    // (K without its viscosity dependence: the wetting front's latent and sensible heat
+    // leave temperatures within a few hundredths of a kelvin of uniform at 0.1 yr, which
+    // moves K by ~1e-5 through the viscosity.)
+    let text = column(10.0, 30, 20.0, 20.0, "head_m = 0.0")
+        .replace("n = 1.89 }", "n = 1.89, air_entry_m = 0.02 }")
+        + "[physics]\nviscosity_correction = false\n";
+    let u = short_run(&dir, "ponded-air-entry", &text);
+    assert!(
+        u.iter().skip(1).step_by(3).all(|h| *h > -0.02),
+        "not saturated"
+    );
+    let results = dir.join("ponded-air-entry").join("results.h5");
+    let sets = datasets(&results).unwrap();
+    let q = *sets["series/bottom_water_flux"].floats().last().unwrap();
+    let ks = 1.23e-5 * 1000.0;
+    assert!(
+        (q / ks - 1.0).abs() < 1e-6,
+        "saturated flux {q} vs Ks {ks} kg m-2 s-1"
+    );
 }
 
 #[test]

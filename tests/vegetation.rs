@@ -243,3 +243,35 @@ fn bad_vegetation_tables_are_refused_in_one_line() {
         assert_one_line_error(&o, 2, fragments);
     }
 }
+
+/// `plot` draws the uptake profiles and actual against potential transpiration; the
+/// results file carries the vegetation datasets with units.
+#[test]
+fn plot_draws_uptake_and_transpiration() {
+    let dir = Scratch::new("vegetation-plot");
+    let case = dir.write("case.toml", &wet_case(""));
+    let out = dir.join("out");
+    run_ok(&case, &out, &[]);
+    let results = out.join("results.h5");
+    let sets = datasets(&results).unwrap();
+    for name in [
+        "profiles/root_water_uptake",
+        "series/root_water_uptake",
+        "series/root_water_uptake_cumulative",
+        "series/potential_transpiration",
+        "series/potential_transpiration_cumulative",
+    ] {
+        assert!(sets.contains_key(name), "no {name}");
+    }
+    let figs = dir.join("figs");
+    let o = deepdry(&["plot", arg(&results), "--out", arg(&figs)]);
+    assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
+    for f in [
+        "profiles-root-water-uptake.svg",
+        "series-transpiration.svg",
+        "series-transpiration-cumulative.svg",
+    ] {
+        let text = std::fs::read_to_string(figs.join(f)).unwrap_or_default();
+        assert!(text.contains("<svg"), "{f} missing or empty");
+    }
+}

@@ -149,6 +149,13 @@ fn solute_balance_closes_to_1e_minus_12() {
     check("solute-balance-closure");
 }
 
+/// Root water uptake: steady flux = infiltration minus the uptake above (mass
+/// conservation), unstressed uptake = potential, the Feddes et al. (1978) shape, balance.
+#[test]
+fn root_uptake_matches_its_integral_and_the_potential() {
+    check("root-uptake");
+}
+
 /// Bad input to the runner: an unknown case name is refused in one line.
 #[test]
 fn unknown_case_name_is_refused() {

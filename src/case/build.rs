@@ -420,7 +420,7 @@ fn read_retention(t: &Table) -> R<RetentionLaw> {
     )?;
     Ok(match key {
         "van_genuchten" => {
-            let vg = v.table(&["theta_r", "theta_s", "alpha_per_m", "n", "l"])?;
+            let vg = v.table(&["theta_r", "theta_s", "alpha_per_m", "n", "l", "air_entry_m"])?;
             let (theta_r, theta_s) = theta_pair(&vg)?;
             let alpha = req_num(
                 &vg,
@@ -438,12 +438,20 @@ fn read_retention(t: &Table) -> R<RetentionLaw> {
             )?;
             // Kr ~ Se^(l + 2/m) when dry, m = 1 − 1/n.
             let l = pore_connectivity(&vg, -2.0 * n / (n - 1.0))?;
+            let air_entry = opt_num(
+                &vg,
+                "air_entry_m",
+                |a| (0.0..=1.0).contains(&a),
+                "must be in [0, 1] m (the magnitude of the air-entry head of Vogel et al. 2001, e.g. 0.02; 0: the plain curve)",
+            )?
+            .unwrap_or(0.0);
             RetentionLaw::VanGenuchten {
                 theta_r,
                 theta_s,
                 alpha,
                 n,
                 l,
+                air_entry,
             }
         }
         "brooks_corey" => {
@@ -1188,18 +1196,7 @@ fn read_profile(file: &Value, depth: f64, soils: &[Soil], layers: &[Layer]) -> R
         alternatives: &["head_m", "liquid_content"],
     };
     let (cols, names) = csvfile::read(file, header, "initial profile")?;
-    if cols.lines.len() < 2 {
-        return Err(cols.err(0, "a profile needs at least two rows"));
-    }
-    cols.strictly_increasing(0, "depth_m")?;
-    for (row, &z) in cols.columns[0].iter().enumerate() {
-        if !(0.0..=depth).contains(&z) {
-            return Err(cols.err(
-                row,
-                format!("depth_m = {z}: outside the column [0, {}] m", fmt_g(depth)),
-            ));
-        }
-    }
+    cols.depth_profile(depth)?;
     let mut temperature = Vec::with_capacity(cols.lines.len());
     for (row, &c) in cols.columns[1].iter().enumerate() {
         if !(T_MIN_C..=T_MAX_C).contains(&c) {

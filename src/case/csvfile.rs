@@ -24,6 +24,27 @@ impl Columns {
         Error::input(format!("{}:{line}: {msg}", self.path.display()))
     }
 
+    /// Checks a depth profile: at least two rows, column 0 (`depth_m`) strictly increasing
+    /// and inside the column [0, `depth`] m.
+    pub fn depth_profile(&self, depth: f64) -> Result<(), Error> {
+        if self.lines.len() < 2 {
+            return Err(self.err(0, "a profile needs at least two rows"));
+        }
+        self.strictly_increasing(0, "depth_m")?;
+        for (row, &z) in self.columns[0].iter().enumerate() {
+            if !(0.0..=depth).contains(&z) {
+                return Err(self.err(
+                    row,
+                    format!(
+                        "depth_m = {z}: outside the column [0, {}] m",
+                        super::schedules::fmt_g(depth)
+                    ),
+                ));
+            }
+        }
+        Ok(())
+    }
+
     /// Checks that column `col` (named `name`) increases strictly.
     pub fn strictly_increasing(&self, col: usize, name: &str) -> Result<(), Error> {
         for (i, w) in self.columns[col].windows(2).enumerate() {

@@ -218,18 +218,7 @@ fn read_profile(file: &super::tree::Value, depth: f64) -> R<SoluteInitial> {
         Header::Exact(&["depth_m", "concentration_g_per_m3"]),
         "initial solute profile",
     )?;
-    if cols.lines.len() < 2 {
-        return Err(cols.err(0, "a profile needs at least two rows"));
-    }
-    cols.strictly_increasing(0, "depth_m")?;
-    for (row, &z) in cols.columns[0].iter().enumerate() {
-        if !(0.0..=depth).contains(&z) {
-            return Err(cols.err(
-                row,
-                format!("depth_m = {z}: outside the column [0, {}] m", fmt_g(depth)),
-            ));
-        }
-    }
+    cols.depth_profile(depth)?;
     for (row, &c) in cols.columns[1].iter().enumerate() {
         if !(0.0..=1.0e6).contains(&c) {
             return Err(cols.err(

@@ -160,18 +160,7 @@ fn read_root_table(file: &Value, depth: f64) -> R<RootShape> {
         Header::Exact(&["depth_m", "root_density"]),
         "root distribution",
     )?;
-    if cols.lines.len() < 2 {
-        return Err(cols.err(0, "a root table needs at least two rows"));
-    }
-    cols.strictly_increasing(0, "depth_m")?;
-    for (row, &z) in cols.columns[0].iter().enumerate() {
-        if !(0.0..=depth).contains(&z) {
-            return Err(cols.err(
-                row,
-                format!("depth_m = {z}: outside the column [0, {}] m", fmt_g(depth)),
-            ));
-        }
-    }
+    cols.depth_profile(depth)?;
     for (row, &d) in cols.columns[1].iter().enumerate() {
         if !(d >= 0.0 && d.is_finite()) {
             return Err(cols.err(row, format!("root_density = {d}: must be ≥ 0")));

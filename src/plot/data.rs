@@ -42,6 +42,12 @@ pub struct Series {
     pub energy_balance_relative_error: Vec<f64>,
     /// [m]
     pub drying_front_depth: Vec<f64>,
+    /// Root water uptake and potential transpiration [kg m-2 s-1], and their cumulative
+    /// totals [kg m-2] (empty without vegetation).
+    pub root_water_uptake: Vec<f64>,
+    pub potential_transpiration: Vec<f64>,
+    pub root_water_uptake_cumulative: Vec<f64>,
+    pub potential_transpiration_cumulative: Vec<f64>,
 }
 
 /// What the plots need from a results file.
@@ -62,6 +68,8 @@ pub struct Results {
     pub asked_times: Vec<f64>,
     /// The solutes' profiles (empty when the run has none).
     pub solutes: Vec<SoluteProfiles>,
+    /// Root water uptake [kg m-3 s-1], [snapshots][cells] (None without vegetation).
+    pub root_water_uptake: Option<Vec<Vec<f64>>>,
     /// The parent's results file and the branch year, when the series of a branch were
     /// joined to its parent's ([`join_parent`]).
     pub parent: Option<(PathBuf, f64)>,
@@ -252,6 +260,14 @@ pub fn read(path: &Path) -> Result<Results> {
     let stime = read_vec(&file, path, "series/time", None)?;
     let r = Some(stime.len());
     let ser = |name: &str| read_vec(&file, path, &format!("series/{name}"), r);
+    // A series that only some runs have (empty when absent).
+    let optional_ser = |name: &str| -> Result<Vec<f64>> {
+        if file.dataset(&format!("series/{name}")).is_ok() {
+            ser(name)
+        } else {
+            Ok(Vec::new())
+        }
+    };
     let series = Series {
         surface_water_flux: ser("surface_water_flux")?,
         bottom_water_flux: ser("bottom_water_flux")?,
@@ -259,7 +275,16 @@ pub fn read(path: &Path) -> Result<Results> {
         water_balance_relative_error: ser("water_balance_relative_error")?,
         energy_balance_relative_error: ser("energy_balance_relative_error")?,
         drying_front_depth: ser("drying_front_depth")?,
+        root_water_uptake: optional_ser("root_water_uptake")?,
+        potential_transpiration: optional_ser("potential_transpiration")?,
+        root_water_uptake_cumulative: optional_ser("root_water_uptake_cumulative")?,
+        potential_transpiration_cumulative: optional_ser("potential_transpiration_cumulative")?,
         time: stime,
+    };
+    let root_water_uptake = if file.dataset("profiles/root_water_uptake").is_ok() {
+        Some(cell("root_water_uptake")?)
+    } else {
+        None
     };
     // Solutes: every `profiles/concentration_<name>`.
     let mut names: Vec<String> = file
@@ -292,6 +317,7 @@ pub fn read(path: &Path) -> Result<Results> {
         profiles,
         series,
         solutes,
+        root_water_uptake,
         log_origin_year,
         asked_times,
         parent: None,
@@ -408,12 +434,24 @@ pub fn join_parent(res: &mut Results, parent: &Results, year: f64) -> Result<()>
         .take_while(|t| **t < year - tol)
         .count();
     let (b, p) = (&mut res.series, &parent.series);
+    let nb = b.time.len();
+    // A series one of the two runs lacks (the vegetation's) is NaN over its part: a gap.
     let join = |mine: &mut Vec<f64>, theirs: &[f64]| {
-        let mut v = theirs[..n.min(theirs.len())].to_vec();
-        v.append(mine);
+        if mine.is_empty() && theirs.is_empty() {
+            return;
+        }
+        let mut v = if theirs.len() >= n {
+            theirs[..n].to_vec()
+        } else {
+            vec![f64::NAN; n]
+        };
+        if mine.len() == nb {
+            v.append(mine);
+        } else {
+            v.resize(n + nb, f64::NAN);
+        }
         *mine = v;
     };
-    join(&mut b.time, &p.time);
     join(&mut b.surface_water_flux, &p.surface_water_flux);
     join(&mut b.bottom_water_flux, &p.bottom_water_flux);
     join(&mut b.water_storage, &p.water_storage);
@@ -426,6 +464,17 @@ pub fn join_parent(res: &mut Results, parent: &Results, year: f64) -> Result<()>
         &p.energy_balance_relative_error,
     );
     join(&mut b.drying_front_depth, &p.drying_front_depth);
+    join(&mut b.root_water_uptake, &p.root_water_uptake);
+    join(&mut b.potential_transpiration, &p.potential_transpiration);
+    join(
+        &mut b.root_water_uptake_cumulative,
+        &p.root_water_uptake_cumulative,
+    );
+    join(
+        &mut b.potential_transpiration_cumulative,
+        &p.potential_transpiration_cumulative,
+    );
+    join(&mut b.time, &p.time);
     res.parent = Some((parent.path.clone(), year));
     Ok(())
 }

@@ -610,6 +610,52 @@ pub fn series_figures_on(res: &Results, ta: TimeAxis) -> Vec<(String, Figure)> {
         ),
     ));
 
+    if !s.root_water_uptake.is_empty() && !s.potential_transpiration.is_empty() {
+        let lines = vec![
+            line(
+                "actual (root water uptake)",
+                blue,
+                &s.root_water_uptake,
+                &mm,
+            ),
+            line("potential", red, &s.potential_transpiration, &mm),
+        ];
+        let y = axis_for(Scale::Linear, yvalues(&lines));
+        figs.push((
+            "series-transpiration".to_string(),
+            single(
+                "transpiration: actual (root water uptake) and potential",
+                y,
+                "transpiration [mm/yr]",
+                lines,
+                true,
+                "transpiration",
+            ),
+        ));
+        let same = |v: f64| v;
+        let lines = vec![
+            line("actual", blue, &s.root_water_uptake_cumulative, &same),
+            line(
+                "potential",
+                red,
+                &s.potential_transpiration_cumulative,
+                &same,
+            ),
+        ];
+        let y = axis_for(Scale::Linear, yvalues(&lines));
+        figs.push((
+            "series-transpiration-cumulative".to_string(),
+            single(
+                "cumulative transpiration: actual and potential",
+                y,
+                "cumulative transpiration [kg m⁻² = mm]",
+                lines,
+                true,
+                "transpiration",
+            ),
+        ));
+    }
+
     let id = |v: f64| v;
     let lines = vec![line("drying front", blue, &s.drying_front_depth, &id)];
     let vals = yvalues(&lines);

@@ -1,5 +1,6 @@
-//! Solute profiles: the concentration in the liquid (log scale: a bulge spans decades)
-//! and, for solutes with a deposition, the accumulation age, one line per snapshot.
+//! Solute and root profiles: the concentration in the liquid (log scale: a bulge spans
+//! decades), for solutes with a deposition the accumulation age, and the root water
+//! uptake, one line per snapshot.
 
 use super::chart::{Figure, Panel};
 use super::data::Results;
@@ -34,6 +35,20 @@ pub fn solute_figures(res: &Results, snaps: &[usize]) -> Vec<(String, Figure)> {
         legend_heading: "snapshot".into(),
     };
     let mut figs = Vec::new();
+    if let Some(rows) = &res.root_water_uptake {
+        // kg m-3 s-1 → mm of water per year per metre of depth.
+        let lines = time_lines(res, snaps, &res.depth, rows, |u| u * super::YEAR);
+        let x = axis_for(Scale::Linear, values(&lines));
+        figs.push((
+            "profiles-root-water-uptake".to_string(),
+            single(
+                "root water uptake profiles".to_string(),
+                x,
+                "root water uptake [mm yr⁻¹ per m of depth]".into(),
+                lines,
+            ),
+        ));
+    }
     for s in &res.solutes {
         let lines = time_lines(res, snaps, &res.depth, &s.concentration, |c| {
             if c.is_finite() {

@@ -30,6 +30,13 @@ pub enum RetentionLaw {
         alpha: f64,
         n: f64,
         l: f64,
+        /// Air-entry head magnitude |hs| [m] of the modification of Vogel et al. (2001)
+        /// (0: off). The curve is saturated for |h| ≤ |hs| and scaled so that it reaches
+        /// θs there: Se* = Se(h)/Se(hs), Kr = Se*^l [(1 − w^m)/(1 − w_s^m)]² (w = 1 −
+        /// Se^(1/m) of the unscaled curve; form as recalled from Vogel et al. 2001, from
+        /// memory). With n < 2 the plain Mualem Kr has an unbounded slope at saturation;
+        /// the modification makes it finite (d ln Kr/dh ≈ n/|hs| there).
+        air_entry: f64,
     },
     /// Brooks & Corey (1964): Se = (h/hb)^(−λ) below the air-entry head; Mualem conductivity.
     /// `air_entry` is the magnitude |hb| [m].
@@ -112,6 +119,40 @@ struct Base {
     dln_kr: f64,
 }
 
+/// The plain van Genuchten–Mualem parts at h < 0: (ln Se, d ln Se/dh, 1 − w^m,
+/// d ln(1 − w^m)/dh) with w = 1 − Se^(1/m), m = 1 − 1/n.
+#[inline]
+fn vg_parts(alpha: f64, n: f64, h: f64) -> (f64, f64, f64, f64) {
+    let m = 1.0 - 1.0 / n;
+    let lx = (-alpha * h).ln(); // ln x, x = α|h|
+    let t = n * lx; // ln xⁿ
+                    // ln(1 + xⁿ), ln(1 + x⁻ⁿ), w = xⁿ/(1 + xⁿ) and 1 − w.
+    let (sp, sp_neg, w, one_m_w) = softplus_pair(t);
+    let ln_se = -m * sp;
+    // d ln Se/dh = α m n w/x = m n w/|h|  (α/x = 1/|h|)
+    let dln_se = m * n * w / (-h);
+    // Mualem: 1 − Se^(1/m) = w, Kr = Se^l (1 − w^m)².
+    let (one_m_wm, dterm) = if t > 30.0 {
+        // w^m = exp(−m ln(1 + x⁻ⁿ)) ⇒ 1 − w^m = m x⁻ⁿ (1 + O(x⁻ⁿ)).
+        // d/dh ln(1 − w^m) → α n / x = n/|h| (relative error O(x⁻ⁿ) < 1e-13).
+        (m * (-t).exp(), n / (-h))
+    } else {
+        let a = -m * sp_neg; // ln w^m
+                             // w^m and 1 − w^m, accurate near w^m → 1 and w^m → 0.
+        let (wm, one_m_wm) = if a > -std::f64::consts::LN_2 {
+            let one_m_wm = -a.exp_m1();
+            (1.0 - one_m_wm, one_m_wm)
+        } else {
+            let wm = a.exp();
+            (wm, 1.0 - wm)
+        };
+        // d/dh ln(1 − w^m) = α m n w^m (1 − w) / (x (1 − w^m))
+        //                  = m n w^m (1 − w) / (|h| (1 − w^m))
+        (one_m_wm, m * n * wm * one_m_w / (-h * one_m_wm))
+    };
+    (ln_se, dln_se, one_m_wm, dterm)
+}
+
 impl RetentionLaw {
     /// One line naming the law and its parameters with units (for `deepdry check`),
     /// numbers formatted by `g`.
@@ -123,13 +164,19 @@ impl RetentionLaw {
                 alpha,
                 n,
                 l,
+                air_entry,
             } => format!(
-                "van Genuchten–Mualem θr {}, θs {}, α {} 1/m, n {}, l {}",
+                "van Genuchten–Mualem θr {}, θs {}, α {} 1/m, n {}, l {}{}",
                 g(theta_r),
                 g(theta_s),
                 g(alpha),
                 g(n),
-                g(l)
+                g(l),
+                if air_entry > 0.0 {
+                    format!(", air entry −{} m (Vogel et al. 2001)", g(air_entry))
+                } else {
+                    String::new()
+                }
             ),
             RetentionLaw::BrooksCorey {
                 theta_r,
@@ -179,34 +226,29 @@ impl RetentionLaw {
     #[inline]
     fn base(&self, h: f64) -> Base {
         match *self {
-            RetentionLaw::VanGenuchten { alpha, n, l, .. } => {
-                let m = 1.0 - 1.0 / n;
-                let lx = (-alpha * h).ln(); // ln x, x = α|h|
-                let t = n * lx; // ln xⁿ
-                                // ln(1 + xⁿ), ln(1 + x⁻ⁿ), w = xⁿ/(1 + xⁿ) and 1 − w.
-                let (sp, sp_neg, w, one_m_w) = softplus_pair(t);
-                let ln_se = -m * sp;
-                // d ln Se/dh = α m n w/x = m n w/|h|  (α/x = 1/|h|)
-                let dln_se = m * n * w / (-h);
-                // Mualem: 1 − Se^(1/m) = w, Kr = Se^l (1 − w^m)².
-                let (one_m_wm, dterm) = if t > 30.0 {
-                    // w^m = exp(−m ln(1 + x⁻ⁿ)) ⇒ 1 − w^m = m x⁻ⁿ (1 + O(x⁻ⁿ)).
-                    // d/dh ln(1 − w^m) → α n / x = n/|h| (relative error O(x⁻ⁿ) < 1e-13).
-                    (m * (-t).exp(), n / (-h))
-                } else {
-                    let a = -m * sp_neg; // ln w^m
-                                         // w^m and 1 − w^m, accurate near w^m → 1 and w^m → 0.
-                    let (wm, one_m_wm) = if a > -std::f64::consts::LN_2 {
-                        let one_m_wm = -a.exp_m1();
-                        (1.0 - one_m_wm, one_m_wm)
-                    } else {
-                        let wm = a.exp();
-                        (wm, 1.0 - wm)
+            RetentionLaw::VanGenuchten {
+                alpha,
+                n,
+                l,
+                air_entry,
+                ..
+            } => {
+                if air_entry > 0.0 && -h <= air_entry {
+                    return Base {
+                        ln_se: 0.0,
+                        dln_se: 0.0,
+                        se: 1.0,
+                        kr: 1.0,
+                        dln_kr: 0.0,
                     };
-                    // d/dh ln(1 − w^m) = α m n w^m (1 − w) / (x (1 − w^m))
-                    //                  = m n w^m (1 − w) / (|h| (1 − w^m))
-                    (one_m_wm, m * n * wm * one_m_w / (-h * one_m_wm))
-                };
+                }
+                let (mut ln_se, dln_se, mut one_m_wm, dterm) = vg_parts(alpha, n, h);
+                if air_entry > 0.0 {
+                    // Scaled to reach saturation at hs (Vogel et al. 2001).
+                    let (ln_se_s, _, one_m_wm_s, _) = vg_parts(alpha, n, -air_entry);
+                    ln_se -= ln_se_s;
+                    one_m_wm /= one_m_wm_s;
+                }
                 let se = ln_se.exp();
                 // Se^l: the square root for Mualem's l = 1/2 (common practice).
                 let se_l = if l == 0.5 {
@@ -265,10 +307,21 @@ impl RetentionLaw {
     /// Closed-form inverse of the base law: head at effective saturation 0 < Se < 1.
     fn head_from_se(&self, se: f64) -> f64 {
         match *self {
-            RetentionLaw::VanGenuchten { alpha, n, .. } => {
+            RetentionLaw::VanGenuchten {
+                alpha,
+                n,
+                air_entry,
+                ..
+            } => {
                 let m = 1.0 - 1.0 / n;
+                // The unscaled Se (Se* Se(hs) with an air entry).
+                let ln_se = if air_entry > 0.0 {
+                    se.ln() + vg_parts(alpha, n, -air_entry).0
+                } else {
+                    se.ln()
+                };
                 // (α|h|)ⁿ = Se^(−1/m) − 1
-                let xn = (-se.ln() / m).exp_m1();
+                let xn = (-ln_se / m).exp_m1();
                 -xn.powf(1.0 / n) / alpha
             }
             RetentionLaw::BrooksCorey {

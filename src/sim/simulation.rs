@@ -108,14 +108,38 @@ pub fn numerical_message(sys: &System, f: &StepFailure, what: &str, epoch_year: 
     };
     let cell = cell.min(sys.n.saturating_sub(1));
     Error::Numerical(format!(
-        "{what}: step failed at t = {:.6e} yr with dt = {:.3e} s (the minimum): {kind}; worst {} residual {:.3e} (scaled; unknown {}) at depth {:.4} m (cell {cell})",
+        "{what}: step failed at t = {:.6e} yr with dt = {:.3e} s (the minimum): {kind}; worst {} residual {:.3e} (scaled; unknown {}) at depth {:.4} m (cell {cell}){}",
         epoch_year + f.t / SECONDS_PER_YEAR,
         f.dt,
         names[row.min(2)],
         res,
         unknowns[row.min(2)],
         sys.centers[cell],
+        saturation_hint(sys),
     ))
+}
+
+/// A hint for failures where soil reaches saturation: a van Genuchten soil with n < 2 and
+/// no air entry has a Mualem conductivity whose slope grows without bound as h → 0, which
+/// Newton cannot follow; the air-entry modification of Vogel et al. (2001) makes it finite.
+fn saturation_hint(sys: &System) -> String {
+    use crate::props::retention::RetentionLaw;
+    let near_saturation = sys.cells.iter().any(|c| c.h.v > -0.05);
+    if !near_saturation {
+        return String::new();
+    }
+    sys.soils
+        .iter()
+        .find_map(|s| match s.retention.law {
+            RetentionLaw::VanGenuchten { n, air_entry, .. } if n < 2.0 && air_entry == 0.0 => {
+                Some(format!(
+                    "; the soil reaches saturation and soil `{}` (van Genuchten n = {n} < 2) has no air entry: its conductivity's slope is unbounded at saturation; add air_entry_m = 0.02 to its van_genuchten table (Vogel et al. 2001; docs/case-file.md)",
+                    crate::case::summary::printable(&s.name)
+                ))
+            }
+            _ => None,
+        })
+        .unwrap_or_default()
 }
 
 /// Step options from the case.
@@ -395,12 +419,7 @@ impl<'m> Simulation<'m> {
     /// a series record and a snapshot of the start state (a new results file begins so).
     pub fn start(&mut self, obs: &mut [&mut dyn Observer], initial_output: bool) -> Result<()> {
         if initial_output {
-            self.sys.evaluate_direct(self.st.state.t, &self.st.state.u);
-            if self.sys.has_vegetation {
-                self.sys.compute_uptake(self.st.state.t);
-            }
-            self.profile.fill(&self.sys);
-            self.fill_solute_profiles();
+            self.fill_profiles();
             let rec = series_record(&self.sys, &self.st, 0.0, 0);
             self.emit_series(obs, rec)?;
             self.emit_snapshot(obs)?;
@@ -457,12 +476,7 @@ impl<'m> Simulation<'m> {
             if at_snapshot {
                 // The profiles of the state evaluated directly, not linearised: the same
                 // whatever the solver kept (a branch from this state shows the same).
-                self.sys.evaluate_direct(self.st.state.t, &self.st.state.u);
-                if self.sys.has_vegetation {
-                    self.sys.compute_uptake(self.st.state.t);
-                }
-                self.profile.fill(&self.sys);
-                self.fill_solute_profiles();
+                self.fill_profiles();
                 self.emit_snapshot(obs)?;
             }
             let mut checkpoint = landed && is_member(&self.plan.checkpoints, t_sync);
@@ -636,6 +650,18 @@ impl<'m> Simulation<'m> {
             o.series(self, &rec)?;
         }
         Ok(())
+    }
+
+    /// The profiles of the state into `self.profile`: the state evaluated directly, not
+    /// linearised (the same whatever the solver kept: a branch from this state shows the
+    /// same), with its root uptake and solute profiles.
+    fn fill_profiles(&mut self) {
+        self.sys.evaluate_direct(self.st.state.t, &self.st.state.u);
+        if self.sys.has_vegetation {
+            self.sys.compute_uptake(self.st.state.t);
+        }
+        self.profile.fill(&self.sys);
+        self.fill_solute_profiles();
     }
 
     /// The solute profiles of the state into `self.profile` (the flow evaluated directly

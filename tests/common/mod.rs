@@ -22,6 +22,7 @@ pub fn sandy_loam() -> Soil {
                 alpha: 7.5,
                 n: 1.89,
                 l: 0.5,
+                air_entry: 0.0,
             },
             dry_end: None,
         },

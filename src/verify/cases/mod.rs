@@ -52,6 +52,7 @@ mod gardner_evaporation;
 mod kinetic_to_equilibrium;
 mod mesh_order;
 mod periodic_surface;
+mod root_uptake;
 mod solute_advection_dispersion;
 mod solute_balance_closure;
 mod solute_closed_drying;
@@ -71,6 +72,7 @@ use gardner_evaporation::gardner_evaporation;
 use kinetic_to_equilibrium::kinetic_to_equilibrium;
 use mesh_order::mesh_order;
 use periodic_surface::periodic_surface;
+use root_uptake::root_uptake;
 use solute_advection_dispersion::solute_advection_dispersion;
 use solute_balance_closure::solute_balance_closure;
 use solute_closed_drying::solute_closed_drying;
@@ -174,6 +176,11 @@ pub fn all() -> Vec<Case> {
             "solute-balance-closure",
             "solute balance closure: stepped deposition, solubility limit, BDF steps",
             solute_balance_closure
+        ),
+        case!(
+            "root-uptake",
+            "root water uptake: steady flux = infiltration minus uptake above, unstressed uptake = potential, Feddes shape",
+            root_uptake
         ),
     ]
 }

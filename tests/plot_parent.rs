@@ -140,3 +140,64 @@ fn a_branch_is_drawn_after_its_parent_and_a_lost_parent_is_refused() {
     ]);
     assert_one_line_error(&o, 2, &["not the results of a branch", "parent_checkpoint"]);
 }
+
+#[test]
+fn a_series_only_one_run_has_is_a_gap_over_the_other_and_another_mesh_is_refused() {
+    let series = |time: Vec<f64>| {
+        let n = time.len();
+        data::Series {
+            surface_water_flux: vec![1.0; n],
+            bottom_water_flux: vec![2.0; n],
+            water_storage: vec![3.0; n],
+            water_balance_relative_error: vec![0.0; n],
+            energy_balance_relative_error: vec![0.0; n],
+            drying_front_depth: vec![f64::NAN; n],
+            time,
+            ..Default::default()
+        }
+    };
+    let mesh = vec![0.0, 1.0, 2.0];
+    // The parent without plants, the branch with them (planted at the branch year 2).
+    let parent = data::Results {
+        face_depth: mesh.clone(),
+        series: series(vec![0.0, 1.0, 2.0]),
+        ..Default::default()
+    };
+    let mut branch = data::Results {
+        face_depth: mesh.clone(),
+        series: data::Series {
+            root_water_uptake: vec![5.0, 6.0],
+            potential_transpiration: vec![7.0, 8.0],
+            ..series(vec![2.0, 3.0])
+        },
+        ..Default::default()
+    };
+    data::join_parent(&mut branch, &parent, 2.0).unwrap();
+    let s = &branch.series;
+    assert_eq!(s.time, vec![0.0, 1.0, 2.0, 3.0]);
+    assert_eq!(s.water_storage.len(), 4);
+    let u = &s.root_water_uptake;
+    assert_eq!(u.len(), 4);
+    assert!(u[0].is_nan() && u[1].is_nan());
+    assert_eq!(u[2..], [5.0, 6.0]);
+    assert_eq!(s.potential_transpiration[2..], [7.0, 8.0]);
+    // Neither run has them: still none.
+    assert!(s.root_water_uptake_cumulative.is_empty());
+
+    let other = data::Results {
+        face_depth: vec![0.0, 1.0, 3.0],
+        series: series(vec![0.0, 1.0]),
+        ..Default::default()
+    };
+    let mut b = data::Results {
+        face_depth: mesh,
+        series: series(vec![2.0]),
+        ..Default::default()
+    };
+    match data::join_parent(&mut b, &other, 2.0) {
+        Err(deepdry::error::Error::Input(m)) => {
+            assert!(m.contains("mesh differs") && !m.contains('\n'), "{m}")
+        }
+        other => panic!("{other:?}"),
+    }
+}

@@ -215,6 +215,10 @@ pub struct CheckpointInfo {
     pub last_snapshot_year: Option<f64>,
     /// The checkpoint a branched run started from, and its time [yr].
     pub parent: Option<(String, f64)>,
+    /// The end year of the run that wrote the checkpoint (read back only: written from the
+    /// model; absent in checkpoints of earlier versions). A run extended past its case's
+    /// end (`--extend-to`) records the later end here.
+    pub run_end_year: Option<f64>,
 }
 
 /// A checkpoint read back from disk.
@@ -307,6 +311,7 @@ fn write_via(
         .map_err(&er)?;
         attr_f64(&root, "time_origin_year", model.time.epoch_year).map_err(&er)?;
         attr_f64(&root, "time_year", model.time.year(state.t)).map_err(&er)?;
+        attr_f64(&root, "end_year", model.time.year(model.time.end)).map_err(&er)?;
         let f64s = |name: &str, v: &[f64], units: &str, long: &str| -> hdf5::Result<()> {
             let ds = file
                 .new_dataset_builder()
@@ -892,6 +897,11 @@ pub fn read(path: &Path) -> Result<Checkpoint> {
                 .unwrap_or(f64::NAN);
             info.parent = Some((p, t));
         }
+        info.run_end_year = root
+            .attr("end_year")
+            .and_then(|a| a.read_scalar::<f64>())
+            .ok()
+            .filter(|y| y.is_finite());
         if state.initial_storage.len() != state.u.len() {
             return Err(bad("initial_storage"));
         }
@@ -945,24 +955,65 @@ impl Checkpoint {
     }
 }
 
-/// File name of the checkpoint at `year` in `folder`.
-pub fn name_at(folder: &Path, year: f64) -> PathBuf {
-    folder.join(format!("checkpoint-{year:.9e}yr.h5"))
+/// File name of the checkpoint at `year` in `folder`: `checkpoint-<year>yr.h5`, the year
+/// written in full (`checkpoint-20000yr.h5`), with its integer part zero-padded to
+/// `digits` (see [`name_digits`]) so that the checkpoints of a run in years ≥ 0 list in
+/// time order, and with as many decimals as 10 significant digits need (trailing zeros
+/// dropped: a year on the checkpoint grid has none).
+pub fn name_at(folder: &Path, year: f64, digits: usize) -> PathBuf {
+    folder.join(format!("checkpoint-{}yr.h5", year_text(year, digits)))
 }
 
-/// Checkpoints in `folder` written by [`name_at`], sorted oldest first by time.
+/// The digits of the integer part of the largest year of `model`'s run (its start or its
+/// end, whichever is farther from year 0): the width of the years in checkpoint names.
+pub fn name_digits(model: &Model) -> usize {
+    let t = &model.time;
+    let largest = t.year(t.start).abs().max(t.year(t.end).abs());
+    largest.round().max(1.0).log10().floor().clamp(0.0, 30.0) as usize + 1
+}
+
+/// `year` as written in a checkpoint name (see [`name_at`]).
+pub fn year_text(year: f64, digits: usize) -> String {
+    if !year.is_finite() {
+        return format!("{year}");
+    }
+    let a = year.abs();
+    let magnitude = if a > 0.0 { a.log10().floor() } else { 0.0 };
+    let decimals = (9.0 - magnitude).clamp(0.0, 15.0) as usize;
+    let width = if decimals > 0 {
+        digits + 1 + decimals
+    } else {
+        digits
+    };
+    let mut s = format!("{a:0width$.decimals$}");
+    if s.contains('.') {
+        let kept = s.trim_end_matches('0').trim_end_matches('.').len();
+        s.truncate(kept);
+    }
+    if year < 0.0 && s.chars().any(|c| c.is_ascii_digit() && c != '0') {
+        s.insert(0, '-');
+    }
+    s
+}
+
+/// The year in a checkpoint's file name (the names of [`name_at`] and the earlier
+/// `checkpoint-1.234560000e5yr.h5`); None for other files.
+pub fn year_of_name(name: &str) -> Option<f64> {
+    name.strip_prefix("checkpoint-")
+        .and_then(|r| r.strip_suffix("yr.h5"))
+        .and_then(|m| m.parse::<f64>().ok())
+        .filter(|y| y.is_finite())
+}
+
+/// Checkpoints in `folder` (named as by [`name_at`], or in the earlier form), sorted
+/// oldest first by the year in their names.
 pub fn list(folder: &Path) -> Vec<(f64, PathBuf)> {
     let mut out = Vec::new();
     if let Ok(rd) = std::fs::read_dir(folder) {
         for entry in rd.flatten() {
             let name = entry.file_name().to_string_lossy().to_string();
-            if let Some(mid) = name
-                .strip_prefix("checkpoint-")
-                .and_then(|r| r.strip_suffix("yr.h5"))
-            {
-                if let Ok(t) = mid.parse::<f64>() {
-                    out.push((t, entry.path()));
-                }
+            if let Some(t) = year_of_name(&name) {
+                out.push((t, entry.path()));
             }
         }
     }
@@ -1007,12 +1058,9 @@ fn same_file(a: &Path, b: &Path) -> bool {
 /// Removes the checkpoints in `folder` later than `year` (by the times in their names),
 /// except `keep`. Returns how many were removed.
 pub fn remove_after(folder: &Path, year: f64, keep: &Path) -> usize {
-    let limit = name_at(Path::new(""), year)
-        .to_string_lossy()
-        .strip_prefix("checkpoint-")
-        .and_then(|r| r.strip_suffix("yr.h5"))
-        .and_then(|m| m.parse::<f64>().ok())
-        .unwrap_or(f64::INFINITY);
+    // Compared at the precision of the names (10 significant digits).
+    let limit =
+        year_of_name(&format!("checkpoint-{}yr.h5", year_text(year, 1))).unwrap_or(f64::INFINITY);
     let mut n = 0;
     for (tf, p) in list(folder) {
         if tf > limit && !same_file(&p, keep) && std::fs::remove_file(&p).is_ok() {

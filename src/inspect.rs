@@ -164,6 +164,16 @@ pub fn summary(path: &Path) -> Result<String> {
             attr("parent_physics_hash")
         );
     }
+    if let Ok(y) = root
+        .attr("extended_to_year")
+        .and_then(|a| a.read_scalar::<f64>())
+    {
+        let _ = writeln!(
+            out,
+            "extended past the case's end to year {} (deepdry run --extend-to)",
+            crate::output::years(y)
+        );
+    }
     Ok(out)
 }
 

@@ -153,6 +153,11 @@ pub enum Start {
     /// A new run (new results file) from this checkpoint's state, with this case's
     /// boundary conditions and end time; the mesh and soils must match.
     Branch(PathBuf),
+    /// Continue a finished run from this checkpoint (its newest) past the end it had, to
+    /// the model's end, appending to its results. The model is the case with a later end
+    /// year, whose physics hash differs from the checkpoint's only through the snapshot at
+    /// the end: [`extend`] checks the case against the checkpoint before it starts one.
+    Extend(PathBuf),
 }
 
 static INTERRUPT: std::sync::OnceLock<std::sync::Arc<std::sync::atomic::AtomicBool>> =
@@ -276,9 +281,25 @@ fn start_fresh(
 
 /// The run that wrote the checkpoint at `path`, continued (same case), appending to its
 /// results file after the rows the checkpoint counts.
-fn start_resume(model: &Model, path: &Path, folder: &Path, results: &Path) -> Result<Prepared> {
+fn start_resume(
+    model: &Model,
+    path: &Path,
+    folder: &Path,
+    results: &Path,
+    check_hash: bool,
+) -> Result<Prepared> {
     let ck = checkpoint::read(path)?;
-    if ck.physics_hash != checkpoint::physics_hash(model) {
+    let case_end = model.time.year(model.time.end);
+    if check_hash && ck.physics_hash != checkpoint::physics_hash(model) {
+        if let Some(y) = ck.info.run_end_year.filter(|y| *y != case_end) {
+            return Err(Error::input(format!(
+                "{}: written by this run extended to year {} (the case ends at year {}); continue it with --extend-to {}",
+                path.display(),
+                crate::output::years(y),
+                crate::output::years(case_end),
+                y
+            )));
+        }
         return Err(Error::input(format!(
             "{}: the case differs from the one that wrote this checkpoint (physics hash {} vs {}); to continue with changes, use --start-from to branch",
             path.display(),
@@ -297,7 +318,7 @@ fn start_resume(model: &Model, path: &Path, folder: &Path, results: &Path) -> Re
     }
     if ck.state.t >= model.time.end {
         return Err(Error::input(format!(
-            "{}: the checkpoint is at {:.6e} yr, at or after the case's end {:.6e} yr: nothing to continue",
+            "{}: the checkpoint is at {:.6e} yr, at or after the case's end {:.6e} yr: nothing to continue (to run on past the end, use --extend-to YEAR)",
             path.display(),
             ck.year(),
             model.time.year(model.time.end)
@@ -490,9 +511,14 @@ fn check_solute_balance(
 /// Runs `model` (from its initial state, or as `opts.start` says) to its end time.
 pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
     let wall = Instant::now();
-    if let (Start::Resume(path), true) = (&opts.start, opts.overwrite) {
+    if let (Start::Resume(path) | Start::Extend(path), true) = (&opts.start, opts.overwrite) {
         return Err(Error::input(format!(
-            "--resume {} continues the existing results file, --overwrite would discard it: give one of them (--start-from to branch into a new results file)",
+            "{} {} continues the existing results file, --overwrite would discard it: give one of them (--start-from to branch into a new results file)",
+            if matches!(opts.start, Start::Resume(_)) {
+                "--resume"
+            } else {
+                "--extend-to from"
+            },
             path.display()
         )));
     }
@@ -508,8 +534,15 @@ pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
     let results_path = folder.join("results.h5");
     let start = match &opts.start {
         Start::Fresh => start_fresh(model, opts, &folder, &results_path)?,
-        Start::Resume(path) => start_resume(model, path, &folder, &results_path)?,
+        Start::Resume(path) => start_resume(model, path, &folder, &results_path, true)?,
         Start::Branch(path) => start_branch(model, opts, path, &folder, &results_path)?,
+        Start::Extend(path) => {
+            let prepared = start_resume(model, path, &folder, &results_path, false)?;
+            prepared
+                .results
+                .set_attr_f64("extended_to_year", model.time.year(model.time.end))?;
+            prepared
+        }
     };
     let begin_t = match &start.begin {
         Begin::Unknowns { t, .. } => *t,
@@ -593,4 +626,99 @@ pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
             })
             .unwrap_or_default(),
     })
+}
+
+/// The override that sets a case's end year to `year`.
+fn end_override(year: f64) -> Result<crate::case::Override> {
+    crate::case::Override::parse(&format!("time.end_year={year:?}"))
+}
+
+/// `deepdry run CASE --extend-to YEAR`: continues the finished run of the case in its
+/// output folder from its final checkpoint (the newest in the folder) to `year`,
+/// appending to the same results file; the case's end year is replaced by `year` for this
+/// run (an override `time.end_year=YEAR`, shown in the summary). Refused in one line when
+/// the folder has no checkpoint, when the newest is before the case's end (the run did not
+/// finish: resume it), when `year` is not after it, or when the case differs from the one
+/// that wrote it (its physics hash, with the end year that run had, recorded in the
+/// checkpoint). The step limits stay those of the case (their defaults follow the span).
+/// A run to year 10 extended to 15 is bitwise a run to 15 when year 10 is on the output
+/// and checkpoint grids of both and the step limits are the same.
+pub fn extend(
+    case: &Path,
+    overrides: &[crate::case::Override],
+    year: f64,
+    opts: &RunOptions,
+) -> Result<RunSummary> {
+    let given = crate::case::load_with_overrides(case, overrides)?;
+    if !year.is_finite() {
+        return Err(Error::input(format!(
+            "--extend-to {year}: not a year; give the year to continue the run to"
+        )));
+    }
+    let folder = opts
+        .out
+        .clone()
+        .unwrap_or_else(|| given.output.folder.clone());
+    let case_end = given.time.year(given.time.end);
+    let Some((_, newest)) = checkpoint::list(&folder).pop() else {
+        return Err(Error::input(format!(
+            "{}: no checkpoint in the output folder; --extend-to continues a finished run from its final checkpoint: run the case first (or give its folder with --out)",
+            folder.display()
+        )));
+    };
+    let ck = checkpoint::read(&newest)?;
+    let ck_year = ck.year();
+    let tol = 1e-9 * ck_year.abs().max(1.0);
+    // The end of the run that wrote the checkpoint (the case's, for checkpoints that do
+    // not record it). The run finished when the checkpoint is at that end or at the
+    // case's (an extension interrupted after it is continued by extending again).
+    let ran_to = ck.info.run_end_year.unwrap_or(case_end);
+    if ck_year < ran_to.min(case_end) - tol {
+        return Err(Error::input(format!(
+            "{}: the newest checkpoint is at year {}, before the end of the run that wrote it (year {}): the run did not finish; continue it with --resume {}",
+            newest.display(),
+            crate::output::years(ck_year),
+            crate::output::years(ran_to),
+            newest.display()
+        )));
+    }
+    if year <= ck_year + tol {
+        return Err(Error::input(format!(
+            "--extend-to {year}: not after the run's end (year {}, final checkpoint {}); give a later year",
+            crate::output::years(ck_year),
+            newest.display()
+        )));
+    }
+    // The run keeps the step limits of the case it continues: their defaults follow the
+    // span (backward Euler's largest step is 1/100 of it), which the new end changes.
+    let steps = (given.time.dt_initial, given.time.dt_min, given.time.dt_max);
+    let with_end = |y: f64| -> Result<Model> {
+        let mut all = overrides.to_vec();
+        all.push(end_override(y)?);
+        let mut m = crate::case::load_with_overrides(case, &all)?;
+        (m.time.dt_initial, m.time.dt_min, m.time.dt_max) = steps;
+        Ok(m)
+    };
+    // The case that wrote the checkpoint: this one, run to the end that run had.
+    let wrote = if ran_to == case_end {
+        given
+    } else {
+        with_end(ran_to)?
+    };
+    let hash = checkpoint::physics_hash(&wrote);
+    if ck.physics_hash != hash {
+        return Err(Error::input(format!(
+            "{}: the case differs from the one that wrote this run's final checkpoint (physics hash {} vs {}); --extend-to continues the same case: to continue with changes, branch with --start-from {} --out ANOTHER_FOLDER",
+            newest.display(),
+            ck.physics_hash,
+            hash,
+            newest.display()
+        )));
+    }
+    let model = with_end(year)?;
+    let opts = RunOptions {
+        start: Start::Extend(newest),
+        ..opts.clone()
+    };
+    run(&model, &opts)
 }

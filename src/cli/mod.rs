@@ -52,6 +52,16 @@ pub enum Command {
         /// Start a new run (new results file) from this checkpoint's state (branching).
         #[arg(long)]
         start_from: Option<PathBuf>,
+        /// Continue the finished run in the output folder from its final checkpoint to
+        /// this later year, appending to its results file (the case's end year is
+        /// replaced by YEAR for this run; the case must be unchanged otherwise).
+        #[arg(
+            long,
+            value_name = "YEAR",
+            allow_negative_numbers = true,
+            conflicts_with_all = ["resume", "start_from", "overwrite"]
+        )]
+        extend_to: Option<f64>,
     },
     /// Measure performance: the reference case and a scaling series over the cell count.
     Bench {
@@ -121,6 +131,11 @@ pub enum Command {
         /// are left out of a log axis, with a note.
         #[arg(long, allow_negative_numbers = true, value_name = "YEAR")]
         time_origin: Option<f64>,
+        /// For the results of a branch (`--start-from`): draw the series of the parent
+        /// run up to the branch year in front of the branch's (the parent's results file
+        /// is found through the branch's parent checkpoint); profiles stay the branch's.
+        #[arg(long)]
+        with_parent: bool,
     },
     /// Write a results file as CSV files (series, profiles in long form, mesh) and a
     /// README.txt describing their columns; units are in the column names.
@@ -284,8 +299,27 @@ fn run_command(cli: Cli) -> Result<()> {
             solver,
             resume,
             start_from,
+            extend_to,
         } => {
-            let model = crate::case::load_with_overrides(&case, &overrides(&set)?)?;
+            let overrides = overrides(&set)?;
+            if let Some(year) = extend_to {
+                crate::run::install_signal_handlers()?;
+                let opts = crate::run::RunOptions {
+                    out,
+                    overwrite: false,
+                    progress: !quiet,
+                    solver: if solver == "sparse-lu" {
+                        crate::solve::linear::SolverKind::SparseLu
+                    } else {
+                        crate::solve::linear::SolverKind::BlockThomas
+                    },
+                    start: crate::run::Start::Fresh,
+                };
+                let summary = crate::run::extend(&case, &overrides, year, &opts)?;
+                print!("{}", summary.text());
+                return Ok(());
+            }
+            let model = crate::case::load_with_overrides(&case, &overrides)?;
             crate::run::install_signal_handlers()?;
             let start = match (resume, start_from) {
                 (Some(p), _) => crate::run::Start::Resume(p),
@@ -330,12 +364,14 @@ fn run_command(cli: Cli) -> Result<()> {
             times,
             log_time,
             time_origin,
+            with_parent,
         } => {
             let opts = crate::plot::PlotOptions {
                 out,
                 times,
                 log_time,
                 time_origin,
+                with_parent,
             };
             let plotted = crate::plot::plot_results_with_notes(&results, &opts)?;
             for p in plotted.files {

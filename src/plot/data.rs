@@ -70,6 +70,9 @@ pub struct Results {
     pub solutes: Vec<SoluteProfiles>,
     /// Root water uptake [kg m-3 s-1], [snapshots][cells] (None without vegetation).
     pub root_water_uptake: Option<Vec<Vec<f64>>>,
+    /// The parent's results file and the branch year, when the series of a branch were
+    /// joined to its parent's ([`join_parent`]).
+    pub parent: Option<(PathBuf, f64)>,
 }
 
 /// One solute's profiles, [snapshots][cells].
@@ -317,5 +320,161 @@ pub fn read(path: &Path) -> Result<Results> {
         root_water_uptake,
         log_origin_year,
         asked_times,
+        parent: None,
     })
+}
+
+/// The results file of the run the branch with results `path` started from, and the
+/// year it branched: through the branch's `parent_checkpoint` attribute (as given to
+/// `--start-from`: tried as it is, then against the branch's folder and its ancestors) to
+/// that checkpoint's
+/// `results_file_absolute` (then its `results_file`, and `results.h5` beside it). When the
+/// parent checkpoint is gone (pruned), `results.h5` in its folder. One-line errors name
+/// what was tried.
+pub fn parent_of(path: &Path) -> Result<(PathBuf, f64)> {
+    let file = File::open(path).map_err(|e| Error::io(path, format!("cannot open: {e}")))?;
+    let Ok(given) = read_attr_str(&file, "parent_checkpoint") else {
+        return Err(Error::input(format!(
+            "{}: not the results of a branch (no parent_checkpoint attribute); --with-parent joins a branch's series to its parent's",
+            path.display()
+        )));
+    };
+    let year = file
+        .attr("parent_time_year")
+        .and_then(|a| a.read_scalar::<f64>())
+        .ok()
+        .or_else(|| {
+            read_attr_str(&file, "parent_time_year")
+                .ok()
+                .and_then(|s| s.trim().parse().ok())
+        })
+        .filter(|y: &f64| y.is_finite())
+        .ok_or_else(|| {
+            Error::input(format!(
+                "{}: parent_time_year is missing or not a year",
+                path.display()
+            ))
+        })?;
+    drop(file);
+    let given = PathBuf::from(given);
+    let branch_dir = path.parent().unwrap_or(Path::new("."));
+    let mut checkpoints = vec![given.clone()];
+    if given.is_relative() {
+        // Relative to the folder the branch was run from: one of the branch folder's
+        // ancestors, when that folder was given below it.
+        let branch_dir = crate::checkpoint::absolute(branch_dir);
+        for base in branch_dir.ancestors() {
+            let c = base.join(&given);
+            if c.exists() {
+                checkpoints.push(c);
+                break;
+            }
+        }
+        checkpoints.push(branch_dir.join(&given));
+    }
+    let mut tried: Vec<PathBuf> = Vec::new();
+    let is_results = |p: &Path| {
+        File::open(p)
+            .ok()
+            .and_then(|f| read_attr_str(&f, "kind").ok())
+            .is_some_and(|k| k == RESULTS_KIND)
+    };
+    let me = crate::checkpoint::absolute(path);
+    for ck in &checkpoints {
+        let ck_dir = ck.parent().unwrap_or(Path::new("."));
+        let mut candidates = Vec::new();
+        if let Ok(f) = File::open(ck) {
+            for key in ["results_file_absolute", "results_file"] {
+                if let Ok(r) = read_attr_str(&f, key) {
+                    candidates.push(PathBuf::from(&r));
+                    if let Some(name) = Path::new(&r).file_name() {
+                        candidates.push(ck_dir.join(name));
+                    }
+                }
+            }
+        }
+        candidates.push(ck_dir.join("results.h5"));
+        for c in candidates {
+            if c.exists() && is_results(&c) && crate::checkpoint::absolute(&c) != me {
+                return Ok((c, year));
+            }
+            if !tried.contains(&c) {
+                tried.push(c);
+            }
+        }
+    }
+    Err(Error::input(format!(
+        "{}: the parent's results file was not found (parent checkpoint {}; tried {}); plot from the folder the branch was run in, or without --with-parent",
+        path.display(),
+        given.display(),
+        tried
+            .iter()
+            .map(|p| p.display().to_string())
+            .collect::<Vec<_>>()
+            .join(", ")
+    )))
+}
+
+/// Puts the parent's series records before `year` (the branch's start) in front of the
+/// branch's series in `res`; the profiles stay the branch's. Refused when the parent has
+/// another mesh (it is not this branch's parent).
+pub fn join_parent(res: &mut Results, parent: &Results, year: f64) -> Result<()> {
+    if parent.face_depth != res.face_depth {
+        return Err(Error::input(format!(
+            "{}: its mesh differs from the branch {}: not the branch's parent",
+            parent.path.display(),
+            res.path.display()
+        )));
+    }
+    let tol = 1e-9 * year.abs().max(1.0);
+    let n = parent
+        .series
+        .time
+        .iter()
+        .take_while(|t| **t < year - tol)
+        .count();
+    let (b, p) = (&mut res.series, &parent.series);
+    let nb = b.time.len();
+    // A series one of the two runs lacks (the vegetation's) is NaN over its part: a gap.
+    let join = |mine: &mut Vec<f64>, theirs: &[f64]| {
+        if mine.is_empty() && theirs.is_empty() {
+            return;
+        }
+        let mut v = if theirs.len() >= n {
+            theirs[..n].to_vec()
+        } else {
+            vec![f64::NAN; n]
+        };
+        if mine.len() == nb {
+            v.append(mine);
+        } else {
+            v.resize(n + nb, f64::NAN);
+        }
+        *mine = v;
+    };
+    join(&mut b.surface_water_flux, &p.surface_water_flux);
+    join(&mut b.bottom_water_flux, &p.bottom_water_flux);
+    join(&mut b.water_storage, &p.water_storage);
+    join(
+        &mut b.water_balance_relative_error,
+        &p.water_balance_relative_error,
+    );
+    join(
+        &mut b.energy_balance_relative_error,
+        &p.energy_balance_relative_error,
+    );
+    join(&mut b.drying_front_depth, &p.drying_front_depth);
+    join(&mut b.root_water_uptake, &p.root_water_uptake);
+    join(&mut b.potential_transpiration, &p.potential_transpiration);
+    join(
+        &mut b.root_water_uptake_cumulative,
+        &p.root_water_uptake_cumulative,
+    );
+    join(
+        &mut b.potential_transpiration_cumulative,
+        &p.potential_transpiration_cumulative,
+    );
+    join(&mut b.time, &p.time);
+    res.parent = Some((parent.path.clone(), year));
+    Ok(())
 }

@@ -49,6 +49,10 @@ pub struct PlotOptions {
     /// Default: the case's `output.log_origin_year` when it has one, else the first
     /// time of the series (the run's start).
     pub time_origin: Option<f64>,
+    /// For the results of a branch: the series of its parent run (found through the
+    /// branch's `parent_checkpoint`) before the branch year, joined in front of the
+    /// branch's own; the profiles stay the branch's.
+    pub with_parent: bool,
 }
 
 /// What `deepdry plot` wrote, and notes for the user (one line each).
@@ -74,7 +78,18 @@ pub fn plot_results_with_notes(path: &Path, opts: &PlotOptions) -> Result<Plotte
             )));
         }
     }
-    let res = data::read(path)?;
+    let mut res = data::read(path)?;
+    let mut notes = Vec::new();
+    if opts.with_parent {
+        let (parent_path, year) = data::parent_of(path)?;
+        let parent = data::read(&parent_path)?;
+        data::join_parent(&mut res, &parent, year)?;
+        notes.push(format!(
+            "series joined with the parent run's {} up to year {} (the branch year)",
+            parent_path.display(),
+            format_years(year).replace('−', "-")
+        ));
+    }
     let snaps = match &opts.times {
         Some(t) if !t.is_empty() => times::pick_nearest(&res.profiles.time, t)
             .map_err(|e| Error::input(format!("{}: {e}", path.display())))?,
@@ -93,7 +108,6 @@ pub fn plot_results_with_notes(path: &Path, opts: &PlotOptions) -> Result<Plotte
         .time_origin
         .or(res.log_origin_year)
         .unwrap_or_else(|| res.series.time.first().copied().unwrap_or(0.0));
-    let mut notes = Vec::new();
     if !res.series.time.is_empty() {
         let t = series_time_axis(&res.series.time, origin, opts.log_time);
         let left_out = t.left_out(&res.series.time);
@@ -516,7 +530,13 @@ pub fn series_figures_on(res: &Results, ta: TimeAxis) -> Vec<(String, Figure)> {
             ),
             _ => String::new(),
         }
-    );
+    ) + &match &res.parent {
+        Some((_, y)) => format!(
+            "; the parent run's up to year {}, this branch's after",
+            format_years(*y)
+        ),
+        None => String::new(),
+    };
     // Two colours of the palette two lightness steps apart (dark navy, light orange),
     // distinct in grey as in colour; the first line is drawn wider so that it shows
     // beside the second where they overlap.

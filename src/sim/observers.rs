@@ -88,7 +88,7 @@ impl Observer for ResultsWriter {
     }
 }
 
-/// Writes checkpoints into the output folder: `checkpoint-<t>yr.h5` at each checkpoint
+/// Writes checkpoints into the output folder: `checkpoint-<year>yr.h5` at each checkpoint
 /// (keeping the newest `keep`), one more when the wall-clock interval has passed, and
 /// `failed-state.h5` with the last good state when a step fails.
 pub struct Checkpointer {
@@ -140,6 +140,7 @@ impl Checkpointer {
             last_series_year: out.last_series_year,
             last_snapshot_year: out.last_snapshot_year,
             parent: self.parent.clone(),
+            run_end_year: None,
         };
         crate::checkpoint::write(
             path,
@@ -165,7 +166,12 @@ impl Observer for Checkpointer {
         })
     }
     fn checkpoint(&mut self, sim: &Simulation, data: &CheckpointData) -> Result<()> {
-        let path = crate::checkpoint::name_at(&self.folder, sim.model().time.year(sim.state().t));
+        let model = sim.model();
+        let path = crate::checkpoint::name_at(
+            &self.folder,
+            model.time.year(sim.state().t),
+            crate::checkpoint::name_digits(model),
+        );
         self.write(&path, sim, data)?;
         crate::checkpoint::prune(&self.folder, self.keep);
         self.last = Some(path);

@@ -75,9 +75,12 @@ pub fn forcing_times(model: &Model) -> Vec<f64> {
 /// Most checkpoint times a run accepts from `[checkpoint] every_year`.
 pub const MAX_CHECKPOINT_TIMES: f64 = 1.0e6;
 
-/// Checkpoint times inside (start, end] from the simulated-time interval; an interval
-/// that would give more than [`MAX_CHECKPOINT_TIMES`] is refused (it would take the
-/// memory of the machine before the first step).
+/// Checkpoint times inside (start, end) from the simulated-time interval: the whole
+/// multiples of `every_year` on the case's year axis (years 10 000, 20 000, … for a run
+/// from year −1 checkpointed every 10 000 years), so that the checkpoint names read as the
+/// interval the user asked for. An interval that would give more than
+/// [`MAX_CHECKPOINT_TIMES`] is refused (it would take the memory of the machine before the
+/// first step).
 pub fn checkpoint_times(model: &Model) -> Result<Vec<f64>> {
     let mut out = Vec::new();
     if let Some(every) = model.checkpoint.every {
@@ -91,13 +94,20 @@ pub fn checkpoint_times(model: &Model) -> Result<Vec<f64>> {
             )));
         }
         if every > 0.0 {
-            let mut k = 1.0;
+            let time = &model.time;
+            let every_year = every / SECONDS_PER_YEAR;
+            // Model time counts seconds from `epoch_year`, a whole multiple of 1e5 years:
+            // the grid year k·every is (k·every − epoch) years after it, computed from
+            // integers so that the times are exact to the run's resolution at any epoch.
+            let mut k = (time.year(time.start) / every_year).floor();
             loop {
-                let t = model.time.start + k * every;
-                if t >= model.time.end {
+                let t = (k * every_year - time.epoch_year) * SECONDS_PER_YEAR;
+                if t >= time.end - 1e-9 * every {
                     break;
                 }
-                out.push(t);
+                if t > time.start && (t - time.start).abs() > 1e-9 * every {
+                    out.push(t);
+                }
                 k += 1.0;
             }
         }

@@ -40,6 +40,29 @@ impl ResultsWriter {
     }
 
     fn still_there(&self, sim: &Simulation) -> Result<()> {
+        self.still_there_at(sim.model().time.year(sim.state().t))
+    }
+}
+
+impl ResultsWriter {
+    /// At the end of a run: closes the results file and reads it back
+    /// ([`ResultsFile::close_and_verify`]); a file damaged during the run (by another
+    /// program writing into it) ends the run with an I/O error (exit 4) naming the file.
+    pub fn close_and_verify(self, end_year: f64) -> Result<()> {
+        self.still_there_at(end_year)?;
+        let path = self.path.clone();
+        self.file.close_and_verify().map_err(|what| {
+            let folder = path.parent().unwrap_or(Path::new("."));
+            crate::error::Error::Io(format!(
+                "{}: the results file was damaged during the run (read back at year {end_year:.6e}: {what}), as if another program wrote into it; the checkpoints in {} are intact: {}",
+                path.display(),
+                folder.display(),
+                crate::output::results::CONTINUE_ADVICE
+            ))
+        })
+    }
+
+    fn still_there_at(&self, year: f64) -> Result<()> {
         let now = file_identity(&self.path);
         if self.identity.is_some() && now == self.identity {
             return Ok(());
@@ -51,9 +74,8 @@ impl ResultsWriter {
         };
         let folder = self.path.parent().unwrap_or(Path::new("."));
         Err(crate::error::Error::Io(format!(
-            "{}: the results file was {what} during the run (at year {:.6e}); the rows written since the last checkpoint are lost; the checkpoints in {} are intact: restore the results file and --resume, or run again with --overwrite",
+            "{}: the results file was {what} during the run (at year {year:.6e}); the rows written since the last checkpoint are lost; the checkpoints in {} are intact: restore the results file and --resume, or run again with --overwrite",
             self.path.display(),
-            sim.model().time.year(sim.state().t),
             folder.display()
         )))
     }

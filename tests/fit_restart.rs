@@ -169,7 +169,7 @@ fn the_progress_line_shows_on_a_terminal() {
         .unwrap();
     let tty = String::from_utf8_lossy(&o.stdout);
     assert!(o.status.success(), "{tty}");
-    for w in ["fit iteration 1/2", "objective", "λ", "runs"] {
+    for w in ["fit iteration", "objective", "λ", "runs"] {
         assert!(tty.contains(w), "`{w}` not on the terminal: {tty:?}");
     }
 }

@@ -588,6 +588,8 @@ pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
         )));
     }
     let end = sim.finish(&mut obs)?;
+    // The file as a reader finds it: a foreign writer may have damaged it during the run.
+    results.close_and_verify(model.time.year(sim.state().t))?;
     check_final_balance(
         model,
         sim.state(),

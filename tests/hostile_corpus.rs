@@ -544,6 +544,69 @@ fn a_results_file_replaced_during_the_run_ends_it_with_exit_4() {
     );
 }
 
+/// A foreign writer that overwrites the results file while the run holds it open (here
+/// everything after its first 4 KiB, with the run paused by SIGSTOP just after its first
+/// checkpoint, so the damage always lands between that checkpoint and the end): the run
+/// reads the file back at its next checkpoint (or its end), finds it damaged and ends with
+/// exit 4, naming the file and saying that the checkpoints are intact, and they are.
+#[test]
+fn a_results_file_damaged_by_another_writer_during_the_run_ends_it_with_exit_4() {
+    let dir = Scratch::new("results-damaged");
+    let text = Small {
+        cells: 60,
+        end_year: 4.0,
+        snapshot_every: 0.05,
+        checkpoint_every: 1.0,
+        extra_time: "max_step_year = 0.002\n".into(),
+        ..Small::default()
+    }
+    .text()
+    .replace("period_year = 3.0", "period_year = 0.1");
+    let case = dir.write("case.toml", &text);
+    // Undamaged, the same run ends well (and reads its file back).
+    run_ok(&case, &dir.join("clean"), &[]);
+    let out = dir.join("out");
+    let mut child = spawn_run(&case, &out, &[]);
+    let t0 = std::time::Instant::now();
+    while newest_checkpoint(&out).is_none() {
+        assert!(t0.elapsed().as_secs() < 60, "no checkpoint after 60 s");
+        std::thread::sleep(std::time::Duration::from_millis(5));
+    }
+    signal(&child, "-STOP");
+    assert!(
+        child.try_wait().unwrap().is_none(),
+        "the run ended before it could be paused"
+    );
+    let results = out.join("results.h5");
+    let len = std::fs::metadata(&results).unwrap().len();
+    assert!(len > 8192, "{len} bytes");
+    {
+        use std::io::{Seek, SeekFrom, Write};
+        let mut f = std::fs::OpenOptions::new()
+            .write(true)
+            .open(&results)
+            .unwrap();
+        f.seek(SeekFrom::Start(4096)).unwrap();
+        f.write_all(&vec![0x55u8; (len - 4096) as usize]).unwrap();
+    }
+    signal(&child, "-CONT");
+    let o = child.wait_with_output().unwrap();
+    let e = stderr(&o);
+    assert_eq!(o.status.code(), Some(4), "{e}");
+    assert_eq!(e.lines().count(), 1, "{e}");
+    for w in [
+        "results.h5",
+        "damaged during the run",
+        "checkpoints",
+        "intact",
+    ] {
+        assert!(e.contains(w), "lacks `{w}`: {e}");
+    }
+    for (_, ck) in checkpoints(&out) {
+        read_checkpoint(&ck).unwrap();
+    }
+}
+
 /// Messages that used to mislead: each now names the key and the valid range or remedy.
 #[test]
 fn messages_name_the_key_and_the_range_or_the_remedy() {

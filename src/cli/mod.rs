@@ -110,6 +110,10 @@ pub enum Command {
         /// Model runs at once (default: the machine's cores).
         #[arg(long, value_parser = clap::value_parser!(u16).range(1..=1024))]
         jobs: Option<u16>,
+        /// Continue an interrupted fit from its last accepted iteration
+        /// (`fit-progress.json` in the output folder).
+        #[arg(long)]
+        restart: bool,
     },
     /// Draw profiles and time series of a results file as SVG and PNG.
     Plot {
@@ -400,7 +404,12 @@ fn run_command(cli: Cli) -> Result<()> {
             }
             Ok(())
         }
-        Command::Fit { fit, out, jobs } => {
+        Command::Fit {
+            fit,
+            out,
+            jobs,
+            restart,
+        } => {
             let file = crate::fit::fitting::read_fit_file(&fit)?;
             let out = out.unwrap_or_else(|| {
                 fit.parent()
@@ -410,7 +419,15 @@ fn run_command(cli: Cli) -> Result<()> {
             let workers = jobs
                 .map(usize::from)
                 .unwrap_or_else(|| std::thread::available_parallelism().map_or(1, |n| n.get()));
-            let r = crate::fit::fitting::fit(&file, workers)?;
+            let r = crate::fit::fitting::fit_with(
+                &file,
+                &crate::fit::fitting::FitOptions {
+                    workers,
+                    out: Some(out.clone()),
+                    restart,
+                    progress: true,
+                },
+            )?;
             println!(
                 "fit: {} iterations, {} model runs, objective {:.6e} (reduced chi-square {:.4}), stopped: {}",
                 r.result.iterations, r.runs, r.result.objective, r.result.reduced_chi_square, r.result.stop

@@ -26,7 +26,7 @@
 //! run in parallel on the machine's cores, one single-threaded run each.
 
 use super::compare::match_observations;
-use super::lm::{minimize, LmOptions, LmResult, ParamSpec, Residuals};
+use super::lm::{minimize_from, LmEvent, LmOptions, LmResult, ParamSpec, Residuals};
 use super::observations::Observations;
 use crate::case::tree::{Source, Value};
 use crate::case::Override;
@@ -289,8 +289,48 @@ pub struct FitReport {
     pub warnings: Vec<String>,
 }
 
-/// Runs the fit.
+/// How a fit runs.
+#[derive(Debug, Clone, Default)]
+pub struct FitOptions {
+    /// Model runs at once.
+    pub workers: usize,
+    /// The output folder: when given, the state after each accepted iteration is written
+    /// there ([`super::progress`]).
+    pub out: Option<PathBuf>,
+    /// Continue from the progress file in `out` instead of the initial values.
+    pub restart: bool,
+    /// A progress line on stderr when it is a terminal.
+    pub progress: bool,
+}
+
+/// Runs the fit (no progress file, no progress line).
 pub fn fit(fit: &FitFile, workers: usize) -> Result<FitReport> {
+    fit_with(
+        fit,
+        &FitOptions {
+            workers,
+            ..Default::default()
+        },
+    )
+}
+
+/// The progress line on a terminal (hidden elsewhere).
+fn progress_bar(show: bool, max_iterations: usize) -> indicatif::ProgressBar {
+    use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
+    let bar = ProgressBar::with_draw_target(None, ProgressDrawTarget::stderr());
+    if !show || !std::io::IsTerminal::is_terminal(&std::io::stderr()) {
+        bar.set_draw_target(ProgressDrawTarget::hidden());
+    }
+    if let Ok(style) = ProgressStyle::with_template("{spinner} fit {msg}") {
+        bar.set_style(style);
+    }
+    bar.set_message(format!("iteration 0/{max_iterations}: first run"));
+    bar.enable_steady_tick(std::time::Duration::from_millis(250));
+    bar
+}
+
+/// Runs the fit as `o` says.
+pub fn fit_with(fit: &FitFile, o: &FitOptions) -> Result<FitReport> {
     let text = std::fs::read_to_string(&fit.case).map_err(|e| {
         Error::input(format!(
             "{}: case = {}: cannot read: {e}",
@@ -299,26 +339,79 @@ pub fn fit(fit: &FitFile, workers: usize) -> Result<FitReport> {
         ))
     })?;
     let obs = super::observations::read(&fit.observations)?;
+    let obs_bytes =
+        std::fs::read(&fit.observations).map_err(|e| Error::io(&fit.observations, e))?;
+    let identity = super::progress::FitIdentity::new(fit, &text, &obs_bytes);
+    let start = match (&o.out, o.restart) {
+        (Some(dir), true) => {
+            let p = super::progress::read(dir)?;
+            super::progress::check(&p, dir, fit, &identity)?;
+            Some(p.state)
+        }
+        (None, true) => {
+            return Err(Error::input(format!(
+                "{}: --restart needs the output folder of the interrupted fit (--out DIR)",
+                fit.path.display()
+            )))
+        }
+        _ => None,
+    };
+    if let Some(dir) = &o.out {
+        std::fs::create_dir_all(dir).map_err(|e| Error::io(dir, e))?;
+    }
     let mut res = CaseResiduals {
         fit,
         text,
         obs: &obs,
-        workers,
+        workers: o.workers,
         runs: 0,
     };
-    // The starting point must run (its error names the cause).
-    res.evaluate(
-        &fit.parameters
-            .iter()
-            .map(|p| p.spec.initial)
-            .collect::<Vec<_>>(),
-    )
-    .map_err(|e| {
-        Error::input(format!(
-            "{}: at the initial parameters: {e}",
-            fit.path.display()
-        ))
-    })?;
+    if start.is_none() {
+        // The starting point must run (its error names the cause).
+        res.evaluate(
+            &fit.parameters
+                .iter()
+                .map(|p| p.spec.initial)
+                .collect::<Vec<_>>(),
+        )
+        .map_err(|e| {
+            Error::input(format!(
+                "{}: at the initial parameters: {e}",
+                fit.path.display()
+            ))
+        })?;
+    }
+    if let Some(st) = &start {
+        let path = o
+            .out
+            .as_deref()
+            .unwrap_or(Path::new("."))
+            .join(super::progress::PROGRESS_FILE);
+        if st.residuals.len() != obs.rows.len() {
+            return Err(Error::input(format!(
+                "{}: {} residuals for {} observations; run the fit without --restart",
+                path.display(),
+                st.residuals.len(),
+                obs.rows.len()
+            )));
+        }
+        for (p, x) in fit.parameters.iter().zip(&st.x) {
+            let s = &p.spec;
+            let (lo, hi) = if s.log {
+                (s.min.ln(), s.max.ln())
+            } else {
+                (s.min, s.max)
+            };
+            if !(lo..=hi).contains(x) {
+                return Err(Error::input(format!(
+                    "{}: x = {x} of {} lies outside its bounds [{lo}, {hi}]{}; run the fit without --restart",
+                    path.display(),
+                    p.key,
+                    if s.log { " (in ln)" } else { "" }
+                )));
+            }
+        }
+    }
     let specs: Vec<ParamSpec> = fit.parameters.iter().map(|p| p.spec.clone()).collect();
     // A model run is a smooth function of its parameters only up to the noise of the
     // adaptive time stepping (the step sequence changes with them; ~1e-7 relative in the
@@ -332,8 +425,55 @@ pub fn fit(fit: &FitFile, workers: usize) -> Result<FitReport> {
         fd_step: 1e-3,
         ..Default::default()
     };
-    let result = minimize(&specs, &mut res, &opts)
-        .map_err(|e| Error::Numerical(format!("{}: fit failed: {e}", fit.path.display())))?;
+    let bar = progress_bar(o.progress, fit.max_iterations);
+    let mut write_error: Option<Error> = None;
+    let mut on = |ev: &LmEvent| -> std::result::Result<(), String> {
+        match ev {
+            LmEvent::Trial {
+                iteration,
+                lambda,
+                objective,
+                trial_objective,
+                evaluations,
+            } => bar.set_message(format!(
+                "iteration {iteration}/{}: objective {objective:.6e}, trial {trial_objective:.6e}, λ {lambda:.1e}, {} runs",
+                fit.max_iterations,
+                evaluations + 1
+            )),
+            LmEvent::Accepted(st) => {
+                bar.set_message(format!(
+                    "iteration {}/{}: objective {:.6e} accepted, λ {:.1e}, {} runs",
+                    st.iterations,
+                    fit.max_iterations,
+                    st.objective,
+                    st.lambda,
+                    st.evaluations + 1
+                ));
+                if let Some(dir) = &o.out {
+                    let p: Vec<f64> = st
+                        .x
+                        .iter()
+                        .zip(&specs)
+                        .map(|(x, s)| if s.log { x.exp() } else { *x })
+                        .collect();
+                    let text = super::progress::to_json(fit, &identity, st, &p);
+                    if let Err(e) = super::progress::write(dir, &text) {
+                        let msg = e.to_string();
+                        write_error = Some(e);
+                        return Err(msg);
+                    }
+                }
+            }
+        }
+        Ok(())
+    };
+    let result = minimize_from(&specs, &mut res, &opts, start, &mut on);
+    bar.finish_and_clear();
+    if let Some(e) = write_error {
+        return Err(e);
+    }
+    let result =
+        result.map_err(|e| Error::Numerical(format!("{}: fit failed: {e}", fit.path.display())))?;
     let mut warnings = Vec::new();
     for &(a, b) in &result.unidentifiable {
         warnings.push(format!(
@@ -358,7 +498,9 @@ pub fn fit(fit: &FitFile, workers: usize) -> Result<FitReport> {
     }
     Ok(FitReport {
         fit: fit.clone(),
-        runs: res.runs + 1,
+        // The first run (the check of the initial values) and the optimiser's runs, the
+        // ones before a restart included.
+        runs: result.evaluations + 1,
         observations: obs.rows.len(),
         result,
         warnings,

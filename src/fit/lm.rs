@@ -14,6 +14,10 @@
 //! (then 4, 8, …) after a rejected one (common practice). The covariance of the estimate
 //! is `(JᵀJ)⁻¹` in `x` (σ are taken as known), mapped to the parameters by the chain rule
 //! (`∂p/∂x = p` for log parameters); the reduced χ² `S/(m − n)` is reported beside it.
+//!
+//! [`minimize_from`] reports each trial and each accepted point ([`LmState`]: everything
+//! the iteration carries from one iteration to the next) and starts from such a state,
+//! so an interrupted fit continues exactly as it would have gone on.
 
 /// One parameter: start, bounds, and whether it is fitted in its logarithm.
 #[derive(Debug, Clone, PartialEq)]
@@ -100,6 +104,50 @@ pub struct LmResult {
     pub near_singular: bool,
     /// Why the iteration stopped.
     pub stop: &'static str,
+}
+
+/// The iteration after an accepted step (or at its start): everything the iteration
+/// reads from its past, so that [`minimize_from`] continues from it exactly as the
+/// uninterrupted iteration would have.
+#[derive(Debug, Clone, PartialEq)]
+pub struct LmState {
+    /// The parameters in the transformed space (ln p for log parameters).
+    pub x: Vec<f64>,
+    /// The weighted residuals at `x`.
+    pub residuals: Vec<f64>,
+    /// S = Σ r² at `x`.
+    pub objective: f64,
+    /// The damping for the next iteration.
+    pub lambda: f64,
+    /// Iterations done.
+    pub iterations: usize,
+    /// Evaluations of the residual vector so far.
+    pub evaluations: usize,
+    /// Set when the iteration has stopped (the reason).
+    pub stop: Option<&'static str>,
+}
+
+/// The reasons the iteration stops (the `stop` of [`LmResult`] and [`LmState`]).
+pub const STOP_REASONS: &[&str] = &[
+    "iteration limit",
+    "objective converged",
+    "step converged",
+    "damping limit",
+];
+
+/// What the iteration reports as it goes.
+#[derive(Debug)]
+pub enum LmEvent<'a> {
+    /// A trial step was evaluated (accepted or not).
+    Trial {
+        iteration: usize,
+        lambda: f64,
+        objective: f64,
+        trial_objective: f64,
+        evaluations: usize,
+    },
+    /// A step was accepted (or the iteration stopped at an accepted point).
+    Accepted(&'a LmState),
 }
 
 /// Evaluates residual vectors for a batch of parameter vectors; an Err marks a failed
@@ -296,6 +344,19 @@ pub fn minimize(
     residuals: &mut dyn Residuals,
     opts: &LmOptions,
 ) -> Result<LmResult, String> {
+    minimize_from(specs, residuals, opts, None, &mut |_| Ok(()))
+}
+
+/// [`minimize`] from a saved state (`start`, as reported by an earlier iteration's
+/// [`LmEvent::Accepted`]) or from the initial values, reporting its progress to `on`
+/// (an Err from `on` ends the iteration with that error).
+pub fn minimize_from(
+    specs: &[ParamSpec],
+    residuals: &mut dyn Residuals,
+    opts: &LmOptions,
+    start: Option<LmState>,
+    on: &mut dyn FnMut(&LmEvent) -> Result<(), String>,
+) -> Result<LmResult, String> {
     let n = specs.len();
     if n == 0 {
         return Err("no parameters to fit".into());
@@ -323,22 +384,57 @@ pub fn minimize(
         }
     }
     let to_p = |x: &[f64]| -> Vec<f64> { x.iter().zip(specs).map(|(v, s)| s.to_p(*v)).collect() };
-    let mut x: Vec<f64> = specs.iter().map(|s| s.to_x(s.initial)).collect();
     let bounds: Vec<(f64, f64)> = specs.iter().map(|s| s.x_bounds()).collect();
-    let mut evaluations = 0;
-    let mut r = residuals
-        .eval_batch(&[to_p(&x)])
-        .pop()
-        .ok_or("no evaluation")?
-        .map_err(|e| format!("the model failed at the initial parameters: {e}"))?;
-    evaluations += 1;
+    let state = match start {
+        Some(st) => {
+            if st.x.len() != n
+                || st
+                    .x
+                    .iter()
+                    .zip(&bounds)
+                    .any(|(v, b)| !(b.0..=b.1).contains(v))
+                || st.residuals.is_empty()
+                || !st.objective.is_finite()
+                || !(st.lambda > 0.0 && st.lambda.is_finite())
+            {
+                return Err(
+                    "the saved state does not fit these parameters (count or bounds)".into(),
+                );
+            }
+            st
+        }
+        None => {
+            let x: Vec<f64> = specs.iter().map(|s| s.to_x(s.initial)).collect();
+            let r = residuals
+                .eval_batch(&[to_p(&x)])
+                .pop()
+                .ok_or("no evaluation")?
+                .map_err(|e| format!("the model failed at the initial parameters: {e}"))?;
+            LmState {
+                x,
+                objective: sum_sq(&r),
+                residuals: r,
+                lambda: opts.lambda0,
+                iterations: 0,
+                evaluations: 1,
+                stop: None,
+            }
+        }
+    };
+    let LmState {
+        mut x,
+        residuals: mut r,
+        objective: mut s_cur,
+        mut lambda,
+        mut iterations,
+        mut evaluations,
+        stop: stopped,
+    } = state;
     let m = r.len();
-    let mut s_cur = sum_sq(&r);
-    let mut lambda = opts.lambda0;
-    let mut iterations = 0;
-    let mut stop = "iteration limit";
+    let mut stop = stopped.unwrap_or("iteration limit");
     let mut jac = vec![0.0; m * n];
-    'outer: while iterations < opts.max_iterations {
+    let mut final_reported = false;
+    'outer: while stopped.is_none() && iterations < opts.max_iterations {
         iterations += 1;
         fd_jacobian(residuals, &to_p, &x, &bounds, &r, opts.fd_step, &mut jac)?;
         evaluations += n;
@@ -386,18 +482,38 @@ pub fn minimize(
             log::debug!(
                 "fit iteration {iterations}: lambda {lambda:.2e}, objective {s_cur:.6e} -> {s_new:.6e}"
             );
+            on(&LmEvent::Trial {
+                iteration: iterations,
+                lambda,
+                objective: s_cur,
+                trial_objective: s_new,
+                evaluations,
+            })?;
             if s_new < s_cur {
                 let gain = (s_cur - s_new) / s_cur.max(f64::MIN_POSITIVE);
                 x = x_new;
                 r = trial.unwrap_or_default();
                 s_cur = s_new;
                 lambda = (lambda / 3.0).max(1e-12);
-                if gain < opts.f_tol {
-                    stop = "objective converged";
-                    break 'outer;
-                }
-                if small {
-                    stop = "step converged";
+                let done = if gain < opts.f_tol {
+                    Some("objective converged")
+                } else if small {
+                    Some("step converged")
+                } else {
+                    None
+                };
+                on(&LmEvent::Accepted(&LmState {
+                    x: x.clone(),
+                    residuals: r.clone(),
+                    objective: s_cur,
+                    lambda,
+                    iterations,
+                    evaluations,
+                    stop: done,
+                }))?;
+                if let Some(d) = done {
+                    stop = d;
+                    final_reported = true;
                     break 'outer;
                 }
                 break;
@@ -412,6 +528,18 @@ pub fn minimize(
                 break 'outer;
             }
         }
+    }
+    if stopped.is_none() && !final_reported && stop != "iteration limit" {
+        // Stopped without an accepted step: the last accepted point, marked as final.
+        on(&LmEvent::Accepted(&LmState {
+            x: x.clone(),
+            residuals: r.clone(),
+            objective: s_cur,
+            lambda,
+            iterations,
+            evaluations,
+            stop: Some(stop),
+        }))?;
     }
     // Covariance from a Jacobian at the estimate itself (the last one was taken before
     // the final accepted step).

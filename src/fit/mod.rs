@@ -7,8 +7,11 @@
 //!   quantity (`deepdry compare`)
 //! - [`fitting`]       `deepdry fit`: the fit file, model runs in memory in parallel, the
 //!   summary (JSON) and the fitted case
+//! - [`progress`]      `fit-progress.json`: the state after each accepted iteration, for
+//!   `deepdry fit --restart`
 
 pub mod compare;
 pub mod fitting;
 pub mod lm;
 pub mod observations;
+pub mod progress;

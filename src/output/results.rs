@@ -196,7 +196,7 @@ pub struct ResultsFile {
 }
 
 /// How to go on when a results file cannot be continued.
-const CONTINUE_ADVICE: &str =
+pub const CONTINUE_ADVICE: &str =
     "run again from the start with --overwrite (deterministic: the same results), \
      or branch from the checkpoint into a new folder with --start-from CHECKPOINT --out FOLDER";
 
@@ -810,6 +810,95 @@ impl ResultsFile {
         self.file.flush().map_err(&e)?;
         self.continued = false;
         Ok(())
+    }
+
+    /// Closes the file and reads it back as a reader would (a fresh open, so nothing comes
+    /// from this writer's caches): the `kind` attribute, every profile and series dataset
+    /// with the rows this writer wrote, and `/profiles/time` and `/series/time` whole,
+    /// finite, not decreasing and ending at the last times written. A foreign writer that
+    /// damaged the file during the run shows here; the error says what is wrong (for
+    /// [`crate::sim::observers::ResultsWriter`] to report).
+    pub fn close_and_verify(self) -> std::result::Result<(), String> {
+        let path = self.path.clone();
+        let rows: Vec<(String, usize)> = std::iter::once((&self.sets.profile_time, self.snapshots))
+            .chain(self.sets.profiles().map(|d| (d, self.snapshots)))
+            .chain(std::iter::once((&self.sets.series_time, self.records)))
+            .chain(std::iter::once((&self.sets.layer_storage, self.records)))
+            .chain(self.sets.all_series().map(|d| (d, self.records)))
+            .map(|(d, n)| (d.name(), n))
+            .collect();
+        let last = [
+            ("/profiles/time", self.last_snapshot_year),
+            ("/series/time", self.last_series_year),
+        ];
+        drop(self);
+        let short = |e: &hdf5::Error| super::h5util::short_error(e);
+        let file = File::open(&path).map_err(|e| format!("it no longer opens ({})", short(&e)))?;
+        let root = file
+            .as_group()
+            .map_err(|e| format!("its root group cannot be read ({})", short(&e)))?;
+        match super::h5util::read_attr_str(&root, "kind") {
+            Ok(k) if k == RESULTS_KIND => {}
+            Ok(k) => {
+                return Err(format!(
+                    "its `kind` attribute is {k:?}, not {RESULTS_KIND:?}"
+                ))
+            }
+            Err(e) => {
+                return Err(format!(
+                    "its `kind` attribute cannot be read ({})",
+                    short(&e)
+                ))
+            }
+        }
+        for (name, n) in &rows {
+            let ds = file
+                .dataset(name)
+                .map_err(|e| format!("{name} cannot be opened ({})", short(&e)))?;
+            let have = ds.shape().first().copied().unwrap_or(0);
+            if have != *n {
+                return Err(format!("{name} has {have} rows, the run wrote {n}"));
+            }
+        }
+        for (name, want) in last {
+            let v = file
+                .dataset(name)
+                .and_then(|d| d.read_raw::<f64>())
+                .map_err(|e| format!("{name} cannot be read ({})", short(&e)))?;
+            if v.iter().any(|t| !t.is_finite()) || v.windows(2).any(|w| w[1] < w[0]) {
+                return Err(format!(
+                    "{name} holds times that are not finite or decrease"
+                ));
+            }
+            if v.last().map(|t| t.to_bits()) != want.map(f64::to_bits) {
+                return Err(format!(
+                    "{name} ends at {:?} yr, the run wrote {:?} yr last",
+                    v.last(),
+                    want
+                ));
+            }
+        }
+        Ok(())
+    }
+
+    /// [`ResultsFile::close_and_verify`], then opens the file again to go on writing (at a
+    /// checkpoint: the rows it counts are then known to read back).
+    pub fn reopen_verified(
+        self,
+        faces: &[f64],
+        solutes: &[crate::model::Solute],
+        vegetation: bool,
+    ) -> std::result::Result<ResultsFile, String> {
+        let path = self.path.clone();
+        let (snapshots, records) = (self.snapshots, self.records);
+        let (last_row, last_snap) = (self.last_series_year, self.last_snapshot_year);
+        self.close_and_verify()?;
+        let mut f = ResultsFile::open_append(
+            &path, faces, solutes, vegetation, snapshots, records, last_row, last_snap,
+        )
+        .map_err(|e| format!("it cannot be opened again for writing ({e})"))?;
+        f.continued = false;
+        Ok(f)
     }
 
     /// How a failed write is reported: as an I/O error of the file, or, at the first write

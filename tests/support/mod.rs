@@ -2,6 +2,8 @@
 //! the binary, and a bitwise comparison of every dataset in two HDF5 files.
 #![allow(dead_code)]
 
+pub mod fit;
+
 use hdf5::types::{FloatSize, IntSize, TypeDescriptor, VarLenUnicode};
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};

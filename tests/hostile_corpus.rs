@@ -547,8 +547,8 @@ fn a_results_file_replaced_during_the_run_ends_it_with_exit_4() {
 /// A foreign writer that overwrites the results file while the run holds it open (here
 /// everything after its first 4 KiB, with the run paused by SIGSTOP just after its first
 /// checkpoint, so the damage always lands between that checkpoint and the end): the run
-/// reads the file back at its next checkpoint (or its end), finds it damaged and ends with
-/// exit 4, naming the file and saying that the checkpoints are intact, and they are.
+/// reads the file back at its end, finds it damaged and ends with exit 4, naming the file
+/// and saying that the checkpoints are intact, and they are.
 #[test]
 fn a_results_file_damaged_by_another_writer_during_the_run_ends_it_with_exit_4() {
     let dir = Scratch::new("results-damaged");

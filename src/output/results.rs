@@ -881,26 +881,6 @@ impl ResultsFile {
         Ok(())
     }
 
-    /// [`ResultsFile::close_and_verify`], then opens the file again to go on writing (at a
-    /// checkpoint: the rows it counts are then known to read back).
-    pub fn reopen_verified(
-        self,
-        faces: &[f64],
-        solutes: &[crate::model::Solute],
-        vegetation: bool,
-    ) -> std::result::Result<ResultsFile, String> {
-        let path = self.path.clone();
-        let (snapshots, records) = (self.snapshots, self.records);
-        let (last_row, last_snap) = (self.last_series_year, self.last_snapshot_year);
-        self.close_and_verify()?;
-        let mut f = ResultsFile::open_append(
-            &path, faces, solutes, vegetation, snapshots, records, last_row, last_snap,
-        )
-        .map_err(|e| format!("it cannot be opened again for writing ({e})"))?;
-        f.continued = false;
-        Ok(f)
-    }
-
     /// How a failed write is reported: as an I/O error of the file, or, at the first write
     /// to a continued file, as a file that cannot be continued.
     fn write_error(&self) -> impl Fn(hdf5::Error) -> Error {

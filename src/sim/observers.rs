@@ -15,12 +15,9 @@ use std::time::Instant;
 /// checkpoint or the end; every snapshot flushes the file to disk. Before each write it
 /// checks that the file at `path` is still the one it opened (same device and inode): a
 /// results file deleted or replaced during the run ends it with an I/O error (exit 4)
-/// instead of writing into a file nobody can see. At each checkpoint and at the end it
-/// closes the file and reads it back as a reader would ([`ResultsFile::close_and_verify`]):
-/// a file damaged by another program writing into it ends the run the same way.
+/// instead of writing into a file nobody can see.
 pub struct ResultsWriter {
-    /// The open file (None only after a failed reopening).
-    file: Option<ResultsFile>,
+    pub file: ResultsFile,
     pub path: PathBuf,
     /// (device, inode) of the results file when the run opened it.
     pub identity: Option<(u64, u64)>,
@@ -36,7 +33,7 @@ impl ResultsWriter {
     /// A writer of `file`, opened at `path`.
     pub fn new(file: ResultsFile, path: &Path) -> ResultsWriter {
         ResultsWriter {
-            file: Some(file),
+            file,
             identity: file_identity(path),
             path: path.to_path_buf(),
         }
@@ -45,36 +42,24 @@ impl ResultsWriter {
     fn still_there(&self, sim: &Simulation) -> Result<()> {
         self.still_there_at(sim.model().time.year(sim.state().t))
     }
-
-    fn file(&mut self) -> Result<&mut ResultsFile> {
-        self.file
-            .as_mut()
-            .ok_or_else(|| crate::error::Error::Internal("the results file is closed".into()))
-    }
-
-    /// The error for a results file found damaged at `year`.
-    fn damaged(&self, year: f64, what: &str) -> crate::error::Error {
-        let folder = self.path.parent().unwrap_or(Path::new("."));
-        crate::error::Error::Io(format!(
-            "{}: the results file was damaged during the run (read back at year {year:.6e}: {what}), as if another program wrote into it; the checkpoints in {} are intact: {}",
-            self.path.display(),
-            folder.display(),
-            crate::output::results::CONTINUE_ADVICE
-        ))
-    }
 }
 
 impl ResultsWriter {
     /// At the end of a run: closes the results file and reads it back
     /// ([`ResultsFile::close_and_verify`]); a file damaged during the run (by another
     /// program writing into it) ends the run with an I/O error (exit 4) naming the file.
-    pub fn close_and_verify(mut self, end_year: f64) -> Result<()> {
+    pub fn close_and_verify(self, end_year: f64) -> Result<()> {
         self.still_there_at(end_year)?;
-        let Some(file) = self.file.take() else {
-            return Ok(());
-        };
-        file.close_and_verify()
-            .map_err(|what| self.damaged(end_year, &what))
+        let path = self.path.clone();
+        self.file.close_and_verify().map_err(|what| {
+            let folder = path.parent().unwrap_or(Path::new("."));
+            crate::error::Error::Io(format!(
+                "{}: the results file was damaged during the run (read back at year {end_year:.6e}: {what}), as if another program wrote into it; the checkpoints in {} are intact: {}",
+                path.display(),
+                folder.display(),
+                crate::output::results::CONTINUE_ADVICE
+            ))
+        })
     }
 
     fn still_there_at(&self, year: f64) -> Result<()> {
@@ -98,48 +83,30 @@ impl ResultsWriter {
 
 impl Observer for ResultsWriter {
     fn series(&mut self, sim: &Simulation, record: &SeriesRecord) -> Result<()> {
-        let file = self.file()?;
         let layers = crate::output::diagnostics::layer_water_storage(
             sim.system(),
-            &file.cell_layer,
-            file.layers,
+            &self.file.cell_layer,
+            self.file.layers,
         );
-        file.push_series_layers(*record, &layers, &sim.extra_series());
+        self.file
+            .push_series_layers(*record, &layers, &sim.extra_series());
         Ok(())
     }
     fn snapshot(&mut self, sim: &Simulation, time_year: f64, profile: &Profile) -> Result<()> {
         self.still_there(sim)?;
-        self.file()?.write_snapshot(time_year, profile)
+        self.file.write_snapshot(time_year, profile)
     }
-    /// The rows a checkpoint counts must be on disk, and read back, before it is written.
+    /// The rows a checkpoint counts must be on disk before it is written.
     fn checkpoint(&mut self, sim: &Simulation, _data: &CheckpointData) -> Result<()> {
         self.still_there(sim)?;
-        self.file()?.flush()?;
-        let Some(file) = self.file.take() else {
-            return Ok(());
-        };
-        let model = sim.model();
-        match file.reopen_verified(
-            &model.mesh.faces,
-            &model.solutes,
-            crate::output::results::has_plants(model),
-        ) {
-            Ok(f) => {
-                self.file = Some(f);
-                Ok(())
-            }
-            Err(what) => Err(self.damaged(model.time.year(sim.state().t), &what)),
-        }
+        self.file.flush()
     }
     fn finished(&mut self, sim: &Simulation, _ending: Ending) -> Result<()> {
         self.still_there(sim)?;
-        self.file()?.flush()
+        self.file.flush()
     }
     fn failed(&mut self, _sim: &Simulation, _data: &CheckpointData) -> Result<Option<String>> {
-        match self.file.as_mut() {
-            Some(f) => f.flush().map(|()| None),
-            None => Ok(None),
-        }
+        self.file.flush().map(|()| None)
     }
 }
 

@@ -507,7 +507,8 @@ pub fn fit_with(fit: &FitFile, o: &FitOptions) -> Result<FitReport> {
     })
 }
 
-fn json_str(s: &str) -> String {
+/// A JSON string literal of `s`.
+pub(super) fn json_str(s: &str) -> String {
     let mut o = String::from("\"");
     for c in s.chars() {
         match c {
@@ -523,7 +524,8 @@ fn json_str(s: &str) -> String {
     o
 }
 
-fn json_num(x: f64) -> String {
+/// A JSON number (shortest round-trip form), `null` when not finite.
+pub(super) fn json_num(x: f64) -> String {
     if x.is_finite() {
         format!("{x:?}")
     } else {

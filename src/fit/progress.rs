@@ -11,7 +11,7 @@
 //! Numbers are written in Rust's shortest round-trip form, so the state read back is
 //! bitwise the state written.
 
-use super::fitting::FitFile;
+use super::fitting::{json_num, json_str, FitFile};
 use super::lm::{LmState, STOP_REASONS};
 use crate::error::{Error, Result};
 use std::fmt::Write as _;
@@ -60,57 +60,34 @@ impl FitIdentity {
     }
 }
 
-fn num(x: f64) -> String {
-    if x.is_finite() {
-        format!("{x:?}")
-    } else {
-        "null".into()
-    }
-}
-
 fn nums(v: &[f64]) -> String {
-    v.iter().map(|x| num(*x)).collect::<Vec<_>>().join(", ")
+    v.iter().map(|x| json_num(*x)).collect::<Vec<_>>().join(", ")
 }
 
-fn string(s: &str) -> String {
-    let mut o = String::from("\"");
-    for c in s.chars() {
-        match c {
-            '"' => o.push_str("\\\""),
-            '\\' => o.push_str("\\\\"),
-            c if (c as u32) < 0x20 => {
-                let _ = write!(o, "\\u{:04x}", c as u32);
-            }
-            c => o.push(c),
-        }
-    }
-    o.push('"');
-    o
-}
 
 /// The progress file's text.
 pub fn to_json(fit: &FitFile, id: &FitIdentity, st: &LmState, parameters: &[f64]) -> String {
-    let keys: Vec<String> = fit.parameters.iter().map(|p| string(&p.key)).collect();
+    let keys: Vec<String> = fit.parameters.iter().map(|p| json_str(&p.key)).collect();
     let mut s = String::from("{\n");
-    let _ = writeln!(s, "  \"format\": {},", string(FORMAT));
-    let _ = writeln!(s, "  \"fit_hash\": {},", string(&id.fit_hash));
-    let _ = writeln!(s, "  \"case_hash\": {},", string(&id.case_hash));
+    let _ = writeln!(s, "  \"format\": {},", json_str(FORMAT));
+    let _ = writeln!(s, "  \"fit_hash\": {},", json_str(&id.fit_hash));
+    let _ = writeln!(s, "  \"case_hash\": {},", json_str(&id.case_hash));
     let _ = writeln!(
         s,
         "  \"observations_hash\": {},",
-        string(&id.observations_hash)
+        json_str(&id.observations_hash)
     );
     let _ = writeln!(s, "  \"keys\": [{}],", keys.join(", "));
     let _ = writeln!(s, "  \"parameters\": [{}],", nums(parameters));
     let _ = writeln!(s, "  \"x\": [{}],", nums(&st.x));
-    let _ = writeln!(s, "  \"objective\": {},", num(st.objective));
-    let _ = writeln!(s, "  \"lambda\": {},", num(st.lambda));
+    let _ = writeln!(s, "  \"objective\": {},", json_num(st.objective));
+    let _ = writeln!(s, "  \"lambda\": {},", json_num(st.lambda));
     let _ = writeln!(s, "  \"iterations\": {},", st.iterations);
     let _ = writeln!(s, "  \"evaluations\": {},", st.evaluations);
     let _ = writeln!(
         s,
         "  \"stop\": {},",
-        st.stop.map_or("null".to_string(), string)
+        st.stop.map_or("null".to_string(), json_str)
     );
     let _ = writeln!(s, "  \"residuals\": [{}]", nums(&st.residuals));
     s.push_str("}\n");

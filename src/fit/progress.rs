@@ -61,9 +61,11 @@ impl FitIdentity {
 }
 
 fn nums(v: &[f64]) -> String {
-    v.iter().map(|x| json_num(*x)).collect::<Vec<_>>().join(", ")
+    v.iter()
+        .map(|x| json_num(*x))
+        .collect::<Vec<_>>()
+        .join(", ")
 }
-
 
 /// The progress file's text.
 pub fn to_json(fit: &FitFile, id: &FitIdentity, st: &LmState, parameters: &[f64]) -> String {

@@ -280,20 +280,48 @@ struct Results {
     series_energy_err: Vec<f64>,
 }
 
-fn read_results(path: &std::path::Path) -> Result<Results> {
-    let e = |err: hdf5::Error| Error::io(path, err);
-    let f = hdf5::File::open(path).map_err(e)?;
-    let d1 = |n: &str| -> Result<Vec<f64>> {
-        Ok(f.dataset(n)
+/// A results file opened for reading its datasets (errors name the file).
+struct H5Reader<'a> {
+    path: &'a std::path::Path,
+    file: hdf5::File,
+}
+
+impl<'a> H5Reader<'a> {
+    fn open(path: &'a std::path::Path) -> Result<Self> {
+        let file = hdf5::File::open(path).map_err(|err| Error::io(path, err))?;
+        Ok(H5Reader { path, file })
+    }
+    /// A 1-D dataset.
+    fn d1(&self, name: &str) -> Result<Vec<f64>> {
+        let e = |err: hdf5::Error| Error::io(self.path, err);
+        Ok(self
+            .file
+            .dataset(name)
             .map_err(e)?
             .read_1d::<f64>()
             .map_err(e)?
             .to_vec())
-    };
-    let d2 = |n: &str| -> Result<Vec<Vec<f64>>> {
-        let a = f.dataset(n).map_err(e)?.read_2d::<f64>().map_err(e)?;
+    }
+    /// A 2-D dataset, row by row.
+    fn d2(&self, name: &str) -> Result<Vec<Vec<f64>>> {
+        let e = |err: hdf5::Error| Error::io(self.path, err);
+        let a = self
+            .file
+            .dataset(name)
+            .map_err(e)?
+            .read_2d::<f64>()
+            .map_err(e)?;
         Ok(a.outer_iter().map(|row| row.to_vec()).collect())
-    };
+    }
+    fn has(&self, name: &str) -> bool {
+        self.file.link_exists(name)
+    }
+}
+
+fn read_results(path: &std::path::Path) -> Result<Results> {
+    let r = H5Reader::open(path)?;
+    let d1 = |n: &str| r.d1(n);
+    let d2 = |n: &str| r.d2(n);
     Ok(Results {
         times: d1("profiles/time")?,
         depth: d1("mesh/depth")?,
@@ -333,23 +361,13 @@ struct SoluteResults {
 }
 
 fn read_solute_results(path: &std::path::Path, name: &str) -> Result<SoluteResults> {
-    let e = |err: hdf5::Error| Error::io(path, err);
-    let f = hdf5::File::open(path).map_err(e)?;
-    let d1 = |n: &str| -> Result<Vec<f64>> {
-        Ok(f.dataset(n)
-            .map_err(e)?
-            .read_1d::<f64>()
-            .map_err(e)?
-            .to_vec())
-    };
-    let d2 = |n: &str| -> Result<Vec<Vec<f64>>> {
-        let a = f.dataset(n).map_err(e)?.read_2d::<f64>().map_err(e)?;
-        Ok(a.outer_iter().map(|row| row.to_vec()).collect())
-    };
+    let r = H5Reader::open(path)?;
+    let d1 = |n: &str| r.d1(n);
+    let d2 = |n: &str| r.d2(n);
     let precipitate = format!("profiles/precipitate_{name}");
     Ok(SoluteResults {
         concentration: d2(&format!("profiles/concentration_{name}"))?,
-        precipitate: if f.link_exists(&precipitate) {
+        precipitate: if r.has(&precipitate) {
             d2(&precipitate)?
         } else {
             Vec::new()

@@ -40,15 +40,8 @@ pub(super) fn root_uptake(v: Variant) -> Result<CaseResult> {
     // 2. Unstressed uptake against the potential, from the run.
     let (summary, res) = simulate(&model, &scratch)?;
     let path = scratch.dir.join("out/results.h5");
-    let e = |err: hdf5::Error| Error::io(&path, err);
-    let f = hdf5::File::open(&path).map_err(e)?;
-    let d1 = |n: &str| -> Result<Vec<f64>> {
-        Ok(f.dataset(n)
-            .map_err(e)?
-            .read_1d::<f64>()
-            .map_err(e)?
-            .to_vec())
-    };
+    let r = H5Reader::open(&path)?;
+    let d1 = |n: &str| r.d1(n);
     let uptake = d1("series/root_water_uptake")?;
     let potential = d1("series/potential_transpiration")?;
     let uptake_cum = d1("series/root_water_uptake_cumulative")?;

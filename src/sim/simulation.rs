@@ -345,7 +345,7 @@ impl<'m> Simulation<'m> {
             sys.evaluate_direct(t, &u);
             match solutes {
                 Some(state) => column.set_state(state, &mut sys, t, &u, fresh)?,
-                None if fresh => column.start(model, &mut sys, t, &u)?,
+                None if fresh => column.start(&mut sys, t, &u)?,
                 None => {
                     return Err(Error::input(
                         "the checkpoint carries no solute state, but the case has [[solutes]]; branch from it with --start-from instead".to_string(),

@@ -306,38 +306,6 @@ fn clip_negative(m: &mut [f64], widths: &[f64]) -> f64 {
     moved
 }
 
-/// Mean of a schedule over [a, b] [same unit as the schedule], by the trapezoid rule on
-/// a grid that includes every breakpoint (exact for piecewise-linear and stepped
-/// schedules, to the grid for sinusoids).
-fn schedule_mean(s: &crate::schedule::Schedule, a: f64, b: f64) -> f64 {
-    if b <= a {
-        return s.value(a);
-    }
-    let mut knots: Vec<f64> = vec![a, b];
-    knots.extend(s.breakpoints().into_iter().filter(|&t| t > a && t < b));
-    knots.sort_by(f64::total_cmp);
-    let mut sum = 0.0;
-    for w in knots.windows(2) {
-        let (t0, t1) = (w[0], w[1]);
-        // 64 sub-intervals per piece: exact for linear pieces; steps are constant inside.
-        let k = 64;
-        let h = (t1 - t0) / k as f64;
-        // Values just inside the piece (a step's value at its own start time applies).
-        for j in 0..k {
-            let x0 = t0 + j as f64 * h;
-            let x1 = if j + 1 == k { t1 } else { x0 + h };
-            let v0 = s.value(x0);
-            let v1 = if j + 1 == k {
-                s.value(t1 - 1e-9 * h)
-            } else {
-                s.value(x1)
-            };
-            sum += 0.5 * (v0 + v1) * (x1 - x0);
-        }
-    }
-    sum / (b - a)
-}
-
 impl SoluteColumn {
     /// The transport of `model`'s solutes on its mesh, with a zero state (set it with
     /// [`SoluteColumn::start`] or [`SoluteColumn::set_state`]).
@@ -352,7 +320,11 @@ impl SoluteColumn {
             .solutes
             .iter()
             .map(|s| match &s.surface {
-                SoluteSurface::Deposition(d) => schedule_mean(d, model.time.start, model.time.end),
+                SoluteSurface::Deposition(d) => {
+                    // The exact mean over the run.
+                    let (a, b) = (model.time.start, model.time.end);
+                    d.integral(a, b) / (b - a)
+                }
                 SoluteSurface::Inflow(_) => f64::NAN,
             })
             .collect();
@@ -604,18 +576,27 @@ impl SoluteColumn {
                 .zip(&self.c)
                 .map(|(w, c)| w * c)
                 .sum::<f64>();
-        for j in 0..=n {
+        let mut flux = std::mem::take(&mut self.flux);
+        self.face_fluxes_into(s, t, &mut flux[k * (n + 1)..(k + 1) * (n + 1)]);
+        self.flux = flux;
+        self.solutes = solutes;
+    }
+
+    /// The face fluxes [g m⁻² s⁻¹] of solute `s` at time `t` from the concentrations in
+    /// `self.c` into `out` (n + 1 faces).
+    fn face_fluxes_into(&self, s: &Solute, t: f64, out: &mut [f64]) {
+        let n = self.n;
+        for (j, o) in out.iter_mut().enumerate() {
             let (a, b, f) = self.face_coefficients(s, j, t);
             let c_up = if j > 0 { self.c[j - 1] } else { 0.0 };
             let c_dn = if j < n { self.c[j] } else { 0.0 };
-            self.flux[k * (n + 1) + j] = a * c_up + b * c_dn + f;
+            *o = a * c_up + b * c_dn + f;
         }
-        self.solutes = solutes;
     }
 
     /// Sets the initial state at time `t` from the case's initial solute profiles, with
     /// the flow evaluated at `u` in `sys`.
-    pub fn start(&mut self, model: &Model, sys: &mut System, t: f64, u: &[f64]) -> Result<()> {
+    pub fn start(&mut self, sys: &mut System, t: f64, u: &[f64]) -> Result<()> {
         self.load_flow(sys, u);
         let n = self.n;
         for k in 0..self.count() {
@@ -663,7 +644,6 @@ impl SoluteColumn {
         self.state.now.cumulative.iter_mut().for_each(|c| *c = 0.0);
         self.state.initial_mass.clone_from(&self.state.now.mass);
         self.state.history.clear();
-        let _ = model;
         let mut heads = Vec::new();
         self.osmotic_heads_into(sys, &mut heads);
         self.state.osmotic_head = heads;
@@ -910,12 +890,7 @@ impl SoluteColumn {
             let p = &mut out[k];
             p.concentration.clone_from(&self.c);
             p.flux.resize(n + 1, 0.0);
-            for j in 0..=n {
-                let (a, b, f) = self.face_coefficients(&s, j, t);
-                let c_up = if j > 0 { self.c[j - 1] } else { 0.0 };
-                let c_dn = if j < n { self.c[j] } else { 0.0 };
-                p.flux[j] = a * c_up + b * c_dn + f;
-            }
+            self.face_fluxes_into(&s, t, &mut p.flux);
             p.precipitate.resize(n, 0.0);
             for i in 0..n {
                 p.precipitate[i] = (self.m[i] - self.theta[i] * self.c[i]).max(0.0);
@@ -933,10 +908,5 @@ impl SoluteColumn {
                 above += 2.0 * half;
             }
         }
-    }
-
-    /// Whether solute `k` has a deposition (its accumulation ages are defined).
-    pub fn has_deposition(&self, k: usize) -> bool {
-        self.mean_deposition[k] > 0.0
     }
 }

@@ -502,8 +502,9 @@ impl System {
 
     /// The plants in force for a step ending at `t` (the period of its left limit, so a
     /// step ending on a change of period belongs to the period before).
+    /// With the plants, their potential transpiration at that left limit [m s⁻¹].
     #[inline]
-    fn plants(&self, t: f64) -> Option<(&Vegetation, f64)> {
+    pub fn plants(&self, t: f64) -> Option<(&Vegetation, f64)> {
         let before = t.next_down();
         self.vegetation
             .at(before)

@@ -53,16 +53,9 @@ pub const VEGETATION_SERIES: [(&str, &str, &str); 4] = [
     ),
 ];
 
-/// Potential transpiration [kg m⁻² s⁻¹] at `t` (the value of the step ending at `t`: the
-/// left limit) and its exact integral since the case's start time [kg m⁻²].
-pub fn potential_transpiration(model: &Model, t: f64) -> (f64, f64) {
-    use crate::props::constants::WATER_DENSITY;
-    let before = t.next_down();
-    let rate = model
-        .vegetation
-        .at(before)
-        .as_ref()
-        .map_or(0.0, |v| v.transpiration.value(before).max(0.0));
+/// Potential transpiration since the case's start time up to `t` [kg m⁻²]: the exact
+/// integral of the schedule over the periods with plants.
+pub fn potential_transpiration_cumulative(model: &Model, t: f64) -> f64 {
     let periods = &model.vegetation.periods;
     let mut total = 0.0;
     for (k, (start, veg)) in periods.iter().enumerate() {
@@ -71,7 +64,21 @@ pub fn potential_transpiration(model: &Model, t: f64) -> (f64, f64) {
         let b = periods.get(k + 1).map_or(t, |p| p.0.min(t));
         total += v.transpiration.integral(a, b);
     }
-    (WATER_DENSITY * rate, WATER_DENSITY * total)
+    crate::props::constants::WATER_DENSITY * total
+}
+
+/// One accepted flow step, then the solutes over it with the step's formula.
+fn flow_then_solutes(
+    st: &mut Stepper,
+    sys: &mut System,
+    column: &mut SoluteColumn,
+    t_sync: f64,
+) -> std::result::Result<StepInfo, StepError> {
+    let info = st.step(sys, t_sync).map_err(StepError::Flow)?;
+    column
+        .advance(sys, &st.state, &info)
+        .map_err(StepError::Other)?;
+    Ok(info)
 }
 
 /// Why a step could not be taken.
@@ -386,12 +393,12 @@ impl<'m> Simulation<'m> {
             .unwrap_or_default();
         if self.sys.has_vegetation {
             let t = self.st.state.t;
-            let potential = potential_transpiration(self.model, t);
+            let rate = self.sys.plants(t).map_or(0.0, |(_, tp)| tp);
             out.extend_from_slice(&[
                 self.sys.uptake_totals[1],
                 self.st.state.sink.get(1).copied().unwrap_or(f64::NAN),
-                potential.0,
-                potential.1,
+                crate::props::constants::WATER_DENSITY * rate,
+                potential_transpiration_cumulative(self.model, t),
             ]);
         }
         out
@@ -512,14 +519,7 @@ impl<'m> Simulation<'m> {
             return self.st.step(&mut self.sys, t_sync).map_err(StepError::Flow);
         };
         if !column.osmotic() {
-            let info = self
-                .st
-                .step(&mut self.sys, t_sync)
-                .map_err(StepError::Flow)?;
-            column
-                .advance(&mut self.sys, &self.st.state, &info)
-                .map_err(StepError::Other)?;
-            return Ok(info);
+            return flow_then_solutes(&mut self.st, &mut self.sys, column, t_sync);
         }
         let mut start_flow = self.st.state.clone();
         let start_solutes = column.state.clone();
@@ -529,13 +529,7 @@ impl<'m> Simulation<'m> {
         loop {
             iteration += 1;
             self.sys.set_osmotic_heads(&guess);
-            let info = self
-                .st
-                .step(&mut self.sys, t_sync)
-                .map_err(StepError::Flow)?;
-            column
-                .advance(&mut self.sys, &self.st.state, &info)
-                .map_err(StepError::Other)?;
+            let info = flow_then_solutes(&mut self.st, &mut self.sys, column, t_sync)?;
             column.osmotic_heads_into(&self.sys, &mut heads);
             let moved = heads
                 .iter()

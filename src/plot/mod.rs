@@ -264,19 +264,24 @@ pub(crate) fn values<'a>(lines: &'a [Line]) -> impl Iterator<Item = f64> + 'a {
     lines.iter().flat_map(|l| l.points.iter().map(|p| p.0))
 }
 
-/// The profile figures (name, figure).
-pub fn profile_figures(res: &Results, snaps: &[usize]) -> Vec<(String, Figure)> {
-    let title = title_of(res);
-    let when = times_text(res, snaps);
-    let depth = depth_axis(res);
-    let p = &res.profiles;
-    let single = |what: &str, x: Axis, x_label: String, lines: Vec<Line>, x_zero: bool| Figure {
-        title: title.clone(),
-        subtitle: format!("{what} {when}"),
+/// One panel of profiles against depth (surface at the top), one line per snapshot of
+/// `snaps`, titled with the run and `what` at those times.
+pub(crate) fn depth_figure(
+    res: &Results,
+    snaps: &[usize],
+    what: &str,
+    x: Axis,
+    x_label: String,
+    lines: Vec<Line>,
+    x_zero: bool,
+) -> Figure {
+    Figure {
+        title: title_of(res),
+        subtitle: format!("{what} {}", times_text(res, snaps)),
         panels: vec![Panel {
             heading: String::new(),
             x,
-            y: depth,
+            y: depth_axis(res),
             x_label,
             y_label: "depth [m]".into(),
             lines,
@@ -286,6 +291,14 @@ pub fn profile_figures(res: &Results, snaps: &[usize]) -> Vec<(String, Figure)> 
         columns: 1,
         size: (1000, 760),
         legend_heading: "snapshot".into(),
+    }
+}
+
+/// The profile figures (name, figure).
+pub fn profile_figures(res: &Results, snaps: &[usize]) -> Vec<(String, Figure)> {
+    let p = &res.profiles;
+    let single = |what: &str, x: Axis, x_label: String, lines: Vec<Line>, x_zero: bool| {
+        depth_figure(res, snaps, what, x, x_label, lines, x_zero)
     };
     let mut figs = Vec::new();
 
@@ -397,7 +410,7 @@ pub fn profile_figures(res: &Results, snaps: &[usize]) -> Vec<(String, Figure)> 
         .map(|((name, _), lines)| Panel {
             heading: name.to_string(),
             x,
-            y: depth,
+            y: depth_axis(res),
             x_label: x_label.clone(),
             y_label: "depth [m]".into(),
             lines,
@@ -408,8 +421,8 @@ pub fn profile_figures(res: &Results, snaps: &[usize]) -> Vec<(String, Figure)> 
     figs.push((
         "profiles-water-fluxes".to_string(),
         Figure {
-            title: title.clone(),
-            subtitle: format!("water flux parts {when}"),
+            title: title_of(res),
+            subtitle: format!("water flux parts {}", times_text(res, snaps)),
             panels,
             columns: 2,
             size: (1500, 1150),

@@ -2,10 +2,10 @@
 //! decades), for solutes with a deposition the accumulation age, and the root water
 //! uptake, one line per snapshot.
 
-use super::chart::{Figure, Panel};
+use super::chart::Figure;
 use super::data::Results;
 use super::scale::{self, Scale};
-use super::{axis_for, depth_axis, time_lines, times_text, title_of, values};
+use super::{axis_for, depth_figure, time_lines, values};
 
 /// Smallest concentration drawn on the log axis [g m-3]; lower values (and 0) are drawn
 /// at it.
@@ -14,25 +14,8 @@ pub const CONCENTRATION_FLOOR: f64 = 1e-3;
 /// The solute figures (name, figure): `profiles-concentration-<name>` and, with a
 /// deposition, `profiles-accumulation-age-<name>`.
 pub fn solute_figures(res: &Results, snaps: &[usize]) -> Vec<(String, Figure)> {
-    let title = title_of(res);
-    let when = times_text(res, snaps);
-    let depth = depth_axis(res);
-    let single = |what: String, x, x_label: String, lines| Figure {
-        title: title.clone(),
-        subtitle: format!("{what} {when}"),
-        panels: vec![Panel {
-            heading: String::new(),
-            x,
-            y: depth,
-            x_label,
-            y_label: "depth [m]".into(),
-            lines,
-            x_zero: false,
-            y_zero: false,
-        }],
-        columns: 1,
-        size: (1000, 760),
-        legend_heading: "snapshot".into(),
+    let single = |what: String, x, x_label: String, lines| {
+        depth_figure(res, snaps, &what, x, x_label, lines, false)
     };
     let mut figs = Vec::new();
     if let Some(rows) = &res.root_water_uptake {

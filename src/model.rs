@@ -309,6 +309,14 @@ pub struct Model {
     pub vegetation: Periods<Option<Vegetation>>,
 }
 
+impl Model {
+    /// Whether any vegetation period has plants (the run then has root water uptake and
+    /// its results datasets).
+    pub fn has_plants(&self) -> bool {
+        self.vegetation.periods.iter().any(|p| p.1.is_some())
+    }
+}
+
 /// Plants over one period: potential transpiration, where the roots are, and how water
 /// stress reduces the uptake.
 #[derive(Debug, Clone)]

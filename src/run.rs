@@ -328,7 +328,7 @@ fn start_resume(
         results,
         &ck.faces,
         &model.solutes,
-        crate::output::results::has_plants(model),
+        model.has_plants(),
         ck.position.snapshots as usize,
         ck.position.series_rows as usize,
         ck.info.last_series_year,

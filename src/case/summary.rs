@@ -329,7 +329,7 @@ pub fn summary(m: &Model) -> String {
 fn vegetation(o: &mut String, m: &Model) {
     use crate::case::vegetation::TRANSPIRATION;
     use crate::model::RootShape;
-    if m.vegetation.periods.iter().all(|p| p.1.is_none()) {
+    if !m.has_plants() {
         return;
     }
     let _ = writeln!(o, "Vegetation:");

@@ -251,12 +251,6 @@ fn var_len(v: &[String]) -> Vec<VarLenUnicode> {
     v.iter().map(|s| s.parse().unwrap_or_default()).collect()
 }
 
-/// Whether any vegetation period of `model` has plants (the results then carry the root
-/// water uptake datasets).
-pub fn has_plants(model: &Model) -> bool {
-    model.vegetation.periods.iter().any(|p| p.1.is_some())
-}
-
 /// The layer index of every cell of `model` (into `model.layers`).
 pub fn layer_of_cell(model: &Model) -> Vec<usize> {
     model
@@ -546,7 +540,7 @@ impl ResultsFile {
             &file,
             Some((&model.mesh.centers, &model.mesh.faces, &layer_names)),
             &model.solutes,
-            has_plants(model),
+            model.has_plants(),
         )
         .map_err(&e)?;
         Ok(Self::writer(path, file, sets, cell_layer))

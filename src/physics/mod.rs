@@ -175,7 +175,7 @@ impl System {
             d_reduced: Derivs::default(),
             parts_left_out: false,
             osmotic_head: Vec::new(),
-            has_vegetation: model.vegetation.periods.iter().any(|p| p.1.is_some()),
+            has_vegetation: model.has_plants(),
             vegetation: model.vegetation.clone(),
             uptake: vec![0.0; n],
             uptake_totals: [0.0; 2],

@@ -133,13 +133,13 @@ fn solute_balance_closes_to_round_off() {
             deepdry::case::parse_with_overrides(&text, "case.toml", std::path::Path::new("."), &[])
                 .unwrap();
         let (rec, _) = deepdry::sim::run_in_memory(&model, SolverKind::BlockThomas).unwrap();
-        let last = rec.solute_series.last().unwrap();
+        let last = rec.extra_series.last().unwrap();
         assert!(
             last[4] <= 1e-12,
             "{method}: relative solute balance {:e}",
             last[4]
         );
-        for v in &rec.solute_series {
+        for v in &rec.extra_series {
             let bound = 1e-12 * v[0].abs().max(v[1].abs() + v[2].abs());
             assert!(
                 v[3].abs() <= bound,
@@ -148,7 +148,7 @@ fn solute_balance_closes_to_round_off() {
             );
         }
         // Storage change equals surface inflow minus bottom outflow.
-        let first = &rec.solute_series[0];
+        let first = &rec.extra_series[0];
         let change = last[0] - first[0];
         let net = last[1] - last[2];
         assert!(
@@ -199,15 +199,15 @@ initial_concentration_g_per_m3 = 100.0
         .iter()
         .position(|r| r.time_year >= 0.001)
         .unwrap();
-    let s0 = rec.solute_series[k][0];
-    let s1 = rec.solute_series.last().unwrap()[0];
+    let s0 = rec.extra_series[k][0];
+    let s1 = rec.extra_series.last().unwrap()[0];
     assert!(
         (s1 - s0).abs() <= 1e-12 * s0,
         "solute total {s0} -> {s1} g/m2"
     );
     // And what came in before is what the bottom boundary counted.
-    let v = &rec.solute_series[k];
-    assert!((v[0] - rec.solute_series[0][0] + v[2]).abs() <= 1e-12 * v[0]);
+    let v = &rec.extra_series[k];
+    assert!((v[0] - rec.extra_series[0][0] + v[2]).abs() <= 1e-12 * v[0]);
     let first = &rec.snapshots[0].profile.solutes[0].concentration;
     let last = &rec.snapshots.last().unwrap().profile.solutes[0].concentration;
     assert!((first[0] - 100.0).abs() < 1e-9, "{}", first[0]);

@@ -140,7 +140,7 @@ initial_concentration_g_per_m3 = 5.0
     // Extra series: 9 of the solute, then uptake, its cumulative, potential, cumulative.
     let per = deepdry::solute::SERIES_PER_SOLUTE;
     let potential = 1000.0 * 0.2 / YEAR;
-    for (r, v) in rec.series.iter().zip(&rec.solute_series) {
+    for (r, v) in rec.series.iter().zip(&rec.extra_series) {
         let (uptake, potential_rate) = (v[per], v[per + 2]);
         assert_eq!(potential_rate, potential, "at {}", r.time_year);
         assert!(
@@ -149,7 +149,7 @@ initial_concentration_g_per_m3 = 5.0
             r.time_year
         );
     }
-    let last = rec.solute_series.last().unwrap();
+    let last = rec.extra_series.last().unwrap();
     let (cum, cum_potential) = (last[per + 1], last[per + 3]);
     assert!(
         (cum - cum_potential).abs() <= 1e-12 * cum_potential,

@@ -143,9 +143,9 @@ fn solute_profile_sets(
     out
 }
 
-/// The solute series datasets: (name, units, long name), solute after solute in the
-/// order of [`crate::solute::SERIES_FIELDS`].
-fn solute_series_sets(
+/// The series datasets beyond [`SeriesRecord`]: (name, units, long name), solute after
+/// solute in the order of [`crate::solute::SERIES_FIELDS`], then the vegetation's.
+fn extra_series_sets(
     solutes: &[crate::model::Solute],
     vegetation: bool,
 ) -> Vec<(String, &'static str, String)> {
@@ -243,7 +243,7 @@ struct Sets {
     layer_storage: Dataset,
     /// Solute profiles (with what each holds) and solute series.
     solute_profiles: Vec<(Dataset, SoluteProfileKind, usize)>,
-    solute_series: Vec<Dataset>,
+    extra_series: Vec<Dataset>,
 }
 
 /// Strings as HDF5 variable-length UTF-8.
@@ -383,7 +383,7 @@ impl Sets {
                     Ok((ds, kind, k))
                 })
                 .collect::<hdf5::Result<_>>()?,
-            solute_series: solute_series_sets(solutes, vegetation)
+            extra_series: extra_series_sets(solutes, vegetation)
                 .iter()
                 .map(|(name, units, long)| one(&ser, name, units, long))
                 .collect::<hdf5::Result<_>>()?,
@@ -407,7 +407,7 @@ impl Sets {
                 attach_scale(ds, &sets.profile_time, 0)?;
                 attach_scale(ds, &face_depth, 1)?;
             }
-            for ds in sets.series.iter().chain(&sets.solute_series) {
+            for ds in sets.series.iter().chain(&sets.extra_series) {
                 attach_scale(ds, &sets.series_time, 0)?;
             }
             for (ds, kind, _) in &sets.solute_profiles {
@@ -446,7 +446,7 @@ impl Sets {
 
     /// Every series dataset besides `/series/time` (one value per row).
     fn all_series(&self) -> impl Iterator<Item = &Dataset> {
-        self.series.iter().chain(self.solute_series.iter())
+        self.series.iter().chain(self.extra_series.iter())
     }
 
     /// Drops the rows after `snapshots` snapshots and `series_rows` series rows.
@@ -632,7 +632,7 @@ impl ResultsFile {
                     .map(|d| format!("profiles/{}", d.0)),
             )
             .chain(
-                solute_series_sets(solutes, vegetation)
+                extra_series_sets(solutes, vegetation)
                     .into_iter()
                     .map(|d| format!("series/{}", d.0)),
             )
@@ -729,7 +729,7 @@ impl ResultsFile {
         self.pending.push(rec);
         self.pending_layers
             .extend((0..self.layers).map(|k| layer_water.get(k).copied().unwrap_or(f64::NAN)));
-        let ns = self.sets.solute_series.len();
+        let ns = self.sets.extra_series.len();
         self.pending_solutes
             .extend((0..ns).map(|k| solutes.get(k).copied().unwrap_or(f64::NAN)));
     }
@@ -791,9 +791,9 @@ impl ResultsFile {
             )
             .map_err(|x| Error::Internal(x.to_string()))?;
             super::h5util::append_rows(&self.sets.layer_storage, &rows).map_err(&e)?;
-            let ns = self.sets.solute_series.len();
+            let ns = self.sets.extra_series.len();
             let values = std::mem::take(&mut self.pending_solutes);
-            for (k, ds) in self.sets.solute_series.iter().enumerate() {
+            for (k, ds) in self.sets.extra_series.iter().enumerate() {
                 let col: Vec<f64> = values.iter().skip(k).step_by(ns).copied().collect();
                 append_1d(ds, &col).map_err(&e)?;
             }

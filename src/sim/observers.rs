@@ -279,13 +279,13 @@ pub struct Recorder {
     /// Per series record, the series values beyond the record: the solutes' (see
     /// [`crate::solute::SERIES_FIELDS`]), then the vegetation's (see
     /// [`crate::sim::simulation::VEGETATION_SERIES`]); empty without either.
-    pub solute_series: Vec<Vec<f64>>,
+    pub extra_series: Vec<Vec<f64>>,
 }
 
 impl Observer for Recorder {
     fn series(&mut self, sim: &Simulation, record: &SeriesRecord) -> Result<()> {
         self.series.push(*record);
-        self.solute_series.push(sim.extra_series());
+        self.extra_series.push(sim.extra_series());
         Ok(())
     }
     fn snapshot(&mut self, _sim: &Simulation, time_year: f64, profile: &Profile) -> Result<()> {

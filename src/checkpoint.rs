@@ -509,6 +509,26 @@ fn write_via(
             "cumulative outflow through internal sinks (root water uptake) since the start: energy, water",
         )
         .map_err(&er)?;
+        let hr: Vec<f64> = state
+            .history
+            .iter()
+            .flat_map(|hp| hp.runoff.clone())
+            .collect();
+        table(
+            "history_runoff",
+            hlen,
+            state.runoff.len(),
+            hr,
+            "J m-2, kg m-2",
+            "per history point: cumulative runoff from the surface store: energy, water",
+        )?;
+        f64s(
+            "runoff",
+            &state.runoff,
+            "J m-2, kg m-2",
+            "cumulative runoff from the surface store since the start: energy, water",
+        )
+        .map_err(&er)?;
         let c = &state.counters;
         let ints: Vec<u64> = vec![
             c.steps,
@@ -821,6 +841,12 @@ pub fn read(path: &Path) -> Result<Checkpoint> {
             .and_then(|d| d.read_2d::<f64>())
             .ok()
             .filter(|a| a.dim() == (hu.nrows(), nq));
+        // Runoff (absent in checkpoints written before the surface store: none, 0).
+        let hr = file
+            .dataset("history_runoff")
+            .and_then(|d| d.read_2d::<f64>())
+            .ok()
+            .filter(|a| a.dim() == (hu.nrows(), nq));
         let history = (0..hu.nrows())
             .map(|k| crate::solve::stepper::HistoryPoint {
                 t: hm[[k, 0]],
@@ -832,6 +858,9 @@ pub fn read(path: &Path) -> Result<Checkpoint> {
                     .as_ref()
                     .map_or_else(|| vec![f64::NAN; nq], |a| a.row(k).to_vec()),
                 sink: hk
+                    .as_ref()
+                    .map_or_else(|| vec![0.0; nq], |a| a.row(k).to_vec()),
+                runoff: hr
                     .as_ref()
                     .map_or_else(|| vec![0.0; nq], |a| a.row(k).to_vec()),
             })
@@ -855,6 +884,10 @@ pub fn read(path: &Path) -> Result<Checkpoint> {
                 .filter(|w| w.len() == nq)
                 .unwrap_or_else(|| vec![f64::NAN; nq]),
             sink: v("sink")
+                .ok()
+                .filter(|w| w.len() == nq)
+                .unwrap_or_else(|| vec![0.0; nq]),
+            runoff: v("runoff")
                 .ok()
                 .filter(|w| w.len() == nq)
                 .unwrap_or_else(|| vec![0.0; nq]),

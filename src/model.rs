@@ -68,6 +68,10 @@ pub struct Physics {
     pub reference_temperature: f64,
     /// Face averaging of the hydraulic conductivity.
     pub face_conductivity: FaceAveraging,
+    /// Liquid content of a cell as the average over a hydrostatic head profile within
+    /// it (`[mesh] cell_average_retention`), for water tables and capillary fringes
+    /// that move through cells; false: θ at the centre head.
+    pub cell_average_retention: bool,
 }
 
 /// Surface heat condition.
@@ -87,6 +91,17 @@ pub enum SurfaceWater {
     /// Prescribed liquid flux into the soil q(t), positive downward [m s⁻¹]; infiltration
     /// is limited so that the surface head never exceeds `ponding_head` [m].
     Flux { flux: Schedule, ponding_head: f64 },
+    /// Liquid water applied to the surface q(t) ≥ 0 [m s⁻¹] (rain, flood water), all of it
+    /// entering the surface store: what the soil does not take ponds on the surface (the
+    /// ponding depth is the head above the top cell's hydrostatic surface value, see
+    /// [`SURFACE_STORE`] in `physics`), infiltrates later, and runs off above
+    /// `max_depth` [m] (None: no limit). With `air`, vapour is exchanged with the air as
+    /// under [`SurfaceWater::Atmosphere`] (relative humidity, optional resistance).
+    Pond {
+        inflow: Schedule,
+        max_depth: Option<f64>,
+        air: Option<(Schedule, Option<Schedule>)>,
+    },
     /// No liquid flux; vapour exchange with air of relative humidity `relative_humidity(t)`
     /// [-] at the surface temperature, either fixed at the surface (`resistance` None) or
     /// through a boundary-layer resistance [s m⁻¹].
@@ -314,6 +329,45 @@ impl Model {
     /// its results datasets).
     pub fn has_plants(&self) -> bool {
         self.vegetation.periods.iter().any(|p| p.1.is_some())
+    }
+
+    /// A note when a water table moves through the column's cells while the liquid
+    /// content is taken at the cell centres (`[mesh] cell_average_retention` off): each
+    /// cell then drains or fills at once when the table passes its centre, and the
+    /// bottom flux pulses once per cell crossed. None otherwise.
+    pub fn moving_table_note(&self) -> Option<String> {
+        if self.physics.cell_average_retention {
+            return None;
+        }
+        let widest = self.mesh.width_range().1;
+        self.bottom
+            .periods
+            .iter()
+            .find_map(|(_, bc)| match &bc.water {
+                BottomWater::WaterTable(s) => {
+                    let (lo, hi) = s.bounds();
+                    (hi > lo && hi > 0.0).then(|| {
+                        format!(
+                        "the water table moves inside the column (bottom head from {lo} to {hi} m) \
+                         through cells up to {widest} m wide with the liquid content taken at the \
+                         cell centres: the bottom flux will pulse once per cell crossed; set \
+                         [mesh] cell_average_retention = true (see docs/case-file.md)"
+                    )
+                    })
+                }
+                _ => None,
+            })
+    }
+
+    /// Whether any surface period stores ponded water ([`SurfaceWater::Pond`]): the top
+    /// cell then holds the pond in its storage in every period (so the water balance
+    /// keeps it whatever the surface condition), and the run reports the ponding depth
+    /// and the runoff.
+    pub fn has_surface_store(&self) -> bool {
+        self.surface
+            .periods
+            .iter()
+            .any(|p| matches!(p.1.water, SurfaceWater::Pond { .. }))
     }
 }
 

@@ -328,7 +328,7 @@ fn start_resume(
         results,
         &ck.faces,
         &model.solutes,
-        model.has_plants(),
+        crate::output::results::Extras::of(model),
         ck.position.snapshots as usize,
         ck.position.series_rows as usize,
         ck.info.last_series_year,
@@ -524,6 +524,9 @@ pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
     }
     // Refused before any file is touched.
     let plan = SyncPlan::new(model)?;
+    if let Some(note) = model.moving_table_note() {
+        log::warn!("{note}");
+    }
     let folder = opts
         .out
         .clone()

@@ -70,6 +70,31 @@ impl Schedule {
         out
     }
 
+    /// Times where the schedule jumps in value (sorted, deduplicated): the steps of a
+    /// stepped schedule where the value changes, and those of the parts of a sum.
+    pub fn jumps(&self) -> Vec<f64> {
+        let mut out = Vec::new();
+        self.collect_jumps(&mut out);
+        out.sort_by(f64::total_cmp);
+        out.dedup();
+        out
+    }
+
+    fn collect_jumps(&self, out: &mut Vec<f64>) {
+        match self {
+            Schedule::Constant(_) | Schedule::Sine { .. } | Schedule::Table { .. } => {}
+            Schedule::Steps { times, values } => out.extend(
+                times
+                    .iter()
+                    .skip(1)
+                    .zip(values.windows(2))
+                    .filter(|(_, v)| v[0] != v[1])
+                    .map(|(t, _)| *t),
+            ),
+            Schedule::Sum(parts) => parts.iter().for_each(|p| p.collect_jumps(out)),
+        }
+    }
+
     fn collect_breakpoints(&self, out: &mut Vec<f64>) {
         match self {
             Schedule::Constant(_) | Schedule::Sine { .. } => {}

@@ -148,6 +148,7 @@ fn model() -> Model {
             viscosity_correction: true,
             reference_temperature: 293.15,
             face_conductivity: FaceAveraging::Arithmetic,
+            cell_average_retention: false,
         },
         surface: Periods::single(SurfaceBc {
             heat: SurfaceHeat::Temperature(Schedule::Constant(293.15)),

@@ -192,6 +192,7 @@ fn decay_error(k: usize, m: i32) -> f64 {
                 throughput: vec![],
                 top_inflow: vec![],
                 sink: vec![],
+                runoff: vec![],
             }
         })
         .collect();

@@ -156,6 +156,20 @@ fn root_uptake_matches_its_integral_and_the_potential() {
     check("root-uptake");
 }
 
+/// A water table falling and rising through 0.5 m cells with cell-averaged retention:
+/// the bottom flux within ±10 % of its mean, balance ≤ 1e-8.
+#[test]
+fn moving_water_table_gives_a_smooth_flux() {
+    check("moving-water-table");
+}
+
+/// Ponding surface store through two floods: balance ≤ 1e-10 with pond and runoff, the
+/// applied water exact, the pond within the runoff law's bound.
+#[test]
+fn ponding_cycle_closes_its_balance() {
+    check("ponding-cycle");
+}
+
 /// Bad input to the runner: an unknown case name is refused in one line.
 #[test]
 fn unknown_case_name_is_refused() {

@@ -175,7 +175,14 @@ pub fn build(src: &Source) -> R<Model> {
                 .map_or(0, |l| l.soil)
         })
         .collect();
-    let physics = read_physics(&root)?;
+    let mut physics = read_physics(&root)?;
+    physics.cell_average_retention = match root.get("mesh") {
+        Some(m) => match m.table(MESH_KEYS)?.get("cell_average_retention") {
+            Some(v) => v.bool()?,
+            None => false,
+        },
+        None => false,
+    };
     let surface = read_periods(&root, "surface", &time, SURFACE_KEYS, read_surface)?;
     let bottom = read_periods(&root, "bottom", &time, BOTTOM_KEYS, read_bottom)?;
     let initial = read_initial(&root, &time, depth, &surface, &bottom, &soils, &layers)?;
@@ -184,6 +191,22 @@ pub fn build(src: &Source) -> R<Model> {
     below_boiling(&root, &physics, &surface, &bottom)?;
     let solutes = super::solutes::read_solutes(&root, depth)?;
     let vegetation = super::vegetation::read_vegetation(&root, &time, &mesh)?;
+    let mut time = time;
+    let newton_given = match root.get("time") {
+        Some(t) => t.table(TIME_KEYS)?.get("max_newton_iterations").is_some(),
+        None => false,
+    };
+    if !newton_given
+        && surface
+            .periods
+            .iter()
+            .any(|p| matches!(p.1.water, SurfaceWater::Pond { .. }))
+    {
+        // Where a pond empties over a saturated column the top cells desaturate one
+        // after another within a step, an iteration each (see `apply_update` in
+        // `physics::rules`): a ponding case gets a larger default limit.
+        time.max_newton = PONDING_MAX_NEWTON;
+    }
     Ok(Model {
         title,
         case_text: src.text.to_string(),
@@ -289,6 +312,7 @@ const MESH_KEYS: &[&str] = &[
     "surface_cell_m",
     "bottom_cell_m",
     "interface_cell_m",
+    "cell_average_retention",
 ];
 
 fn read_mesh(root: &Table, depth: f64, layers: &[Layer]) -> R<Mesh> {
@@ -901,6 +925,7 @@ fn read_physics(root: &Table) -> R<Physics> {
         },
     };
     Ok(Physics {
+        cell_average_retention: false,
         vapor_mode,
         diffusivity,
         air_pressure,
@@ -920,6 +945,8 @@ const SURFACE_KEYS: &[&str] = &[
     "head_m",
     "flux_mm_per_year",
     "ponding_head_m",
+    "pond",
+    "max_ponding_depth_m",
     "relative_humidity",
     "resistance_s_per_m",
     "no_flow",
@@ -943,6 +970,49 @@ fn flag(v: &Value) -> R<()> {
     }
 }
 
+/// A surface that stores ponded water (`pond = true`): `flux_mm_per_year` of water
+/// applied (≥ 0), an optional `max_ponding_depth_m` above which it runs off, and an
+/// optional `relative_humidity` (with `resistance_s_per_m`) for vapour exchange.
+fn read_pond(t: &Table) -> R<SurfaceWater> {
+    for k in ["head_m", "no_flow", "ponding_head_m"] {
+        t.only_with(k, "a surface without `pond = true`")?;
+    }
+    let v = t.req("flux_mm_per_year", "water applied to a ponding surface")?;
+    let inflow = schedules::read(&v, "flux_mm_per_year", &WATER_FLUX)?;
+    if inflow.bounds().0 < 0.0 {
+        return Err(v.err(format!(
+            "{} mm/yr: the water applied to a ponding surface must be ≥ 0 (it leaves by \
+             infiltration, runoff or, with `relative_humidity`, evaporation)",
+            inflow.bounds().0 / WATER_FLUX.scale
+        )));
+    }
+    let max_depth = opt_num(
+        t,
+        "max_ponding_depth_m",
+        |h| (0.0..=100.0).contains(&h),
+        "must be in [0, 100] m",
+    )?;
+    if t.get("relative_humidity").is_none() {
+        t.only_with("resistance_s_per_m", "relative_humidity (open to the air)")?;
+    }
+    let air = t
+        .get("relative_humidity")
+        .map(|v| -> R<_> {
+            Ok((
+                schedules::read(&v, "relative_humidity", &RELATIVE_HUMIDITY)?,
+                t.get("resistance_s_per_m")
+                    .map(|r| schedules::read(&r, "resistance_s_per_m", &RESISTANCE))
+                    .transpose()?,
+            ))
+        })
+        .transpose()?;
+    Ok(SurfaceWater::Pond {
+        inflow,
+        max_depth,
+        air,
+    })
+}
+
 fn read_surface(t: &Table) -> R<SurfaceBc> {
     let (key, v) = t.one_of(
         &["temperature_C", "heat_flux_W_per_m2"],
@@ -953,6 +1023,17 @@ fn read_surface(t: &Table) -> R<SurfaceBc> {
     } else {
         SurfaceHeat::Flux(schedules::read(&v, key, &HEAT_FLUX)?)
     };
+    let pond = match t.get("pond") {
+        Some(v) => v.bool()?,
+        None => false,
+    };
+    if pond {
+        return Ok(SurfaceBc {
+            heat,
+            water: read_pond(t)?,
+        });
+    }
+    t.only_with("max_ponding_depth_m", "`pond = true`")?;
     let (key, v) = t.one_of(
         &["head_m", "flux_mm_per_year", "relative_humidity", "no_flow"],
         "surface moisture condition",
@@ -1288,6 +1369,9 @@ pub const MAX_ABS_YEAR: f64 = 1.0e12;
 /// Steps must be at least this many units in the last place of the run's largest time
 /// (from the time origin), so that every step moves the time by its own size to 1/8.
 pub const TIME_RESOLUTION_ULPS: f64 = 4.0;
+
+/// Default Newton iteration limit of a case with a ponding surface (15 otherwise).
+pub const PONDING_MAX_NEWTON: usize = 60;
 
 fn read_time(root: &Table) -> R<TimeControl> {
     let t = section(root, "time", TIME_KEYS, "the time span: end_year")?;

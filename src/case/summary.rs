@@ -78,6 +78,29 @@ fn surface_bc(bc: &SurfaceBc) -> String {
                 Some(r) => format!("boundary-layer resistance {}", sched(r, &RESISTANCE)),
             }
         ),
+        SurfaceWater::Pond {
+            inflow,
+            max_depth,
+            air,
+        } => format!(
+            "water applied (ponds on the surface when the soil cannot take it) {}, {}{}",
+            sched(inflow, &WATER_FLUX),
+            match max_depth {
+                None => "no runoff".to_string(),
+                Some(d) => format!("runoff above {} m of ponding", fmt_g(*d)),
+            },
+            match air {
+                None => String::new(),
+                Some((rh, r)) => format!(
+                    "; vapour exchange with air of relative humidity {}{}",
+                    sched(rh, &RELATIVE_HUMIDITY),
+                    match r {
+                        None => String::new(),
+                        Some(r) => format!(", boundary-layer resistance {}", sched(r, &RESISTANCE)),
+                    }
+                ),
+            }
+        ),
         SurfaceWater::NoFlow => "no flow".to_string(),
     };
     format!("{heat}; {water}")
@@ -176,6 +199,15 @@ pub fn summary(m: &Model) -> String {
         fmt_g(lo),
         fmt_g(hi)
     );
+    if m.physics.cell_average_retention {
+        let _ = writeln!(
+            o,
+            "  liquid content of each cell averaged over a hydrostatic head profile within it (cell_average_retention)"
+        );
+    }
+    if let Some(note) = m.moving_table_note() {
+        let _ = writeln!(o, "  note: {note}");
+    }
     let _ = writeln!(o, "Layers:");
     for (i, l) in m.layers.iter().enumerate() {
         let cells = m

@@ -144,10 +144,11 @@ fn solute_profile_sets(
 }
 
 /// The series datasets beyond [`SeriesRecord`]: (name, units, long name), solute after
-/// solute in the order of [`crate::solute::SERIES_FIELDS`], then the vegetation's.
+/// solute in the order of [`crate::solute::SERIES_FIELDS`], then the vegetation's, then
+/// the surface store's.
 fn extra_series_sets(
     solutes: &[crate::model::Solute],
-    vegetation: bool,
+    extras: Extras,
 ) -> Vec<(String, &'static str, String)> {
     let mut out: Vec<(String, &'static str, String)> = solutes
         .iter()
@@ -163,14 +164,38 @@ fn extra_series_sets(
                 })
         })
         .collect();
-    if vegetation {
+    if extras.vegetation {
         out.extend(
             crate::sim::simulation::VEGETATION_SERIES
                 .iter()
                 .map(|(n, u, l)| (n.to_string(), *u, l.to_string())),
         );
     }
+    if extras.surface_store {
+        out.extend(
+            crate::sim::simulation::SURFACE_STORE_SERIES
+                .iter()
+                .map(|(n, u, l)| (n.to_string(), *u, l.to_string())),
+        );
+    }
     out
+}
+
+/// Which optional parts of the model have results datasets of their own besides the
+/// solutes: plants (root water uptake) and a surface store (ponding and runoff).
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub struct Extras {
+    pub vegetation: bool,
+    pub surface_store: bool,
+}
+
+impl Extras {
+    pub fn of(model: &crate::model::Model) -> Self {
+        Extras {
+            vegetation: model.has_plants(),
+            surface_store: model.has_surface_store(),
+        }
+    }
 }
 pub struct ResultsFile {
     pub path: PathBuf,
@@ -313,7 +338,7 @@ impl Sets {
         file: &File,
         mesh: Option<(&[f64], &[f64], &[String])>,
         solutes: &[crate::model::Solute],
-        vegetation: bool,
+        extras: Extras,
     ) -> hdf5::Result<Sets> {
         let create = mesh.is_some();
         let group = |name: &str| {
@@ -367,7 +392,7 @@ impl Sets {
                 .map(|(name, units, long)| one(&ser, name, units, long))
                 .collect::<hdf5::Result<_>>()?,
             layer_storage,
-            solute_profiles: solute_profile_sets(solutes, vegetation)
+            solute_profiles: solute_profile_sets(solutes, extras.vegetation)
                 .into_iter()
                 .map(|(name, units, long, kind, k)| {
                     let width = if kind == SoluteProfileKind::Flux {
@@ -383,7 +408,7 @@ impl Sets {
                     Ok((ds, kind, k))
                 })
                 .collect::<hdf5::Result<_>>()?,
-            extra_series: extra_series_sets(solutes, vegetation)
+            extra_series: extra_series_sets(solutes, extras)
                 .iter()
                 .map(|(name, units, long)| one(&ser, name, units, long))
                 .collect::<hdf5::Result<_>>()?,
@@ -540,7 +565,7 @@ impl ResultsFile {
             &file,
             Some((&model.mesh.centers, &model.mesh.faces, &layer_names)),
             &model.solutes,
-            model.has_plants(),
+            Extras::of(model),
         )
         .map_err(&e)?;
         Ok(Self::writer(path, file, sets, cell_layer))
@@ -579,7 +604,7 @@ impl ResultsFile {
         path: &Path,
         faces: &[f64],
         solutes: &[crate::model::Solute],
-        vegetation: bool,
+        extras: Extras,
         snapshots: usize,
         series_rows: usize,
         last_series_year: Option<f64>,
@@ -627,12 +652,12 @@ impl ResultsFile {
             .map(|f| format!("series/{}", f.0))
             .chain(["profiles/depth", "series/layer_water_storage"].map(String::from))
             .chain(
-                solute_profile_sets(solutes, vegetation)
+                solute_profile_sets(solutes, extras.vegetation)
                     .into_iter()
                     .map(|d| format!("profiles/{}", d.0)),
             )
             .chain(
-                extra_series_sets(solutes, vegetation)
+                extra_series_sets(solutes, extras)
                     .into_iter()
                     .map(|d| format!("series/{}", d.0)),
             )
@@ -642,7 +667,7 @@ impl ResultsFile {
                 "it was written by an earlier deepdry version and has no {n}"
             )));
         }
-        let sets = Sets::get(&file, None, solutes, vegetation).map_err(h5err)?;
+        let sets = Sets::get(&file, None, solutes, extras).map_err(h5err)?;
         let cell_layer: Vec<usize> = ds("mesh/layer")?
             .read_raw::<i32>()
             .map_err(h5err)?

@@ -8,6 +8,7 @@ use super::dual::Dual;
 use super::flux::{face_flux, FaceFlux};
 use super::System;
 use crate::model::{BottomHeat, BottomWater, SurfaceHeat, SurfaceWater};
+use crate::schedule::Schedule;
 
 impl System {
     fn ghost<const N: usize>(
@@ -19,16 +20,23 @@ impl System {
     ) -> CellProps<N> {
         let rv = rv.unwrap_or_else(|| equilibrium_vapor(t, h).3);
         // The boundary points hold pure water (no osmotic head).
-        cell_props(self.soil_of(cell), &self.physics, t, h, rv, 0.0)
+        cell_props(self.soil_of(cell), &self.physics, t, h, rv, 0.0, 0.0)
     }
 
     /// Fluxes through the land surface (face 0) given the top cell's properties `c0`,
-    /// positive downward (into the soil).
+    /// positive downward (into the soil), for a step ending at `t`.
+    ///
+    /// The forcing is taken at the left limit of `t` (the schedules' values and the
+    /// period in force just before it): the stepper lands on every jump of the forcing,
+    /// so a step ending on a jump belongs to the value before it, and the water a
+    /// stepped schedule applies is integrated exactly (a flood of a few days after a
+    /// step of years gets the days, not the years).
     pub fn top_face<const N: usize, const M: usize>(
         &self,
         t: f64,
         c0: &CellProps<N>,
     ) -> FaceFlux<M> {
+        let t = t.next_down();
         let bc = self.surface.at(t);
         let c0 = *c0;
         let d0 = self.d_above[0];
@@ -45,31 +53,22 @@ impl System {
             SurfaceWater::Atmosphere {
                 relative_humidity,
                 resistance,
-            } => {
-                let rh = relative_humidity.value(t);
-                let g = self.ghost(0, tg, head_from_rh(rh, tg), None);
-                let mut f = face_flux(&g, &c0, 0, N, 0.0, d0, avg);
-                f.liquid_iso = Dual::cst(0.0);
-                f.liquid_th = Dual::cst(0.0);
-                if let Some(r) = resistance {
-                    let ra = r.value(t).max(0.0);
-                    // jv = −(rv0 − rva)/(ra + d0/Dv0): air-side and soil-side resistances
-                    // in series; reported as isothermal.
-                    let rv0 = Dual::lift(c0.rv, N);
-                    let rva = Dual::lift(g.rv, 0);
-                    let dv0 = Dual::lift(c0.dv, N);
-                    let total = if dv0.v > 0.0 {
-                        (dv0.recip() * d0) + ra
-                    } else {
-                        Dual::cst(f64::INFINITY)
-                    };
-                    f.vapor_iso = if total.v.is_finite() {
-                        -((rv0 - rva) / total)
-                    } else {
-                        Dual::cst(0.0)
-                    };
-                    f.vapor_th = Dual::cst(0.0);
-                }
+            } => self.air_exchange(t, tg, &c0, relative_humidity, resistance.as_ref()),
+            SurfaceWater::Pond { inflow, air, .. } => {
+                let mut f = match air {
+                    Some((rh, resistance)) => {
+                        self.air_exchange(t, tg, &c0, rh, resistance.as_ref())
+                    }
+                    None => {
+                        let g = self.ghost(0, tg, c0.h, Some(c0.rv));
+                        let mut f = face_flux(&g, &c0, 0, N, 0.0, d0, avg);
+                        zero_water(&mut f);
+                        f
+                    }
+                };
+                // All the water applied enters the surface store (the top cell with its
+                // pond); what the soil does not take stays in the pond.
+                f.liquid_iso = Dual::cst(inflow.value(t).max(0.0));
                 f
             }
             SurfaceWater::Flux { flux, ponding_head } => {
@@ -101,13 +100,55 @@ impl System {
         f
     }
 
+    /// Vapour exchange between the top cell and air of relative humidity `rh(t)` at the
+    /// surface temperature `tg` (no liquid flux), either with the air's vapour density
+    /// fixed at the surface or through a boundary-layer resistance [s m⁻¹].
+    fn air_exchange<const N: usize, const M: usize>(
+        &self,
+        t: f64,
+        tg: Dual<N>,
+        c0: &CellProps<N>,
+        rh: &Schedule,
+        resistance: Option<&Schedule>,
+    ) -> FaceFlux<M> {
+        let c0 = *c0;
+        let d0 = self.d_above[0];
+        let rh = rh.value(t);
+        let g = self.ghost(0, tg, head_from_rh(rh, tg), None);
+        let mut f = face_flux(&g, &c0, 0, N, 0.0, d0, self.physics.face_conductivity);
+        f.liquid_iso = Dual::cst(0.0);
+        f.liquid_th = Dual::cst(0.0);
+        if let Some(r) = resistance {
+            let ra = r.value(t).max(0.0);
+            // jv = −(rv0 − rva)/(ra + d0/Dv0): air-side and soil-side resistances
+            // in series; reported as isothermal.
+            let rv0 = Dual::lift(c0.rv, N);
+            let rva = Dual::lift(g.rv, 0);
+            let dv0 = Dual::lift(c0.dv, N);
+            let total = if dv0.v > 0.0 {
+                (dv0.recip() * d0) + ra
+            } else {
+                Dual::cst(f64::INFINITY)
+            };
+            f.vapor_iso = if total.v.is_finite() {
+                -((rv0 - rva) / total)
+            } else {
+                Dual::cst(0.0)
+            };
+            f.vapor_th = Dual::cst(0.0);
+        }
+        f
+    }
+
     /// Fluxes through the bottom boundary (face n) given the bottom cell's properties
-    /// `cn`, positive downward (out of the column).
+    /// `cn`, positive downward (out of the column), for a step ending at `t` (forcing at
+    /// the left limit of `t`, as at the surface).
     pub fn bottom_face<const N: usize, const M: usize>(
         &self,
         t: f64,
         cn: &CellProps<N>,
     ) -> FaceFlux<M> {
+        let t = t.next_down();
         let n = self.n;
         let bc = self.bottom.at(t);
         let cn = *cn;

@@ -97,6 +97,12 @@ pub fn head_from_rh<const N: usize>(rh: f64, t: Dual<N>) -> Dual<N> {
 /// the Kelvin relative humidity, hr = exp(g Mw (h + osmotic)/(R T)), and nothing else
 /// (the liquid flow is driven by the matric head alone: no membrane effect, reflection
 /// coefficient 0). It is a constant within a flow step (see `crate::solute`).
+///
+/// `width` [m] > 0: the liquid content is the cell average over a hydrostatic head
+/// profile within a cell of that width ([`crate::props::retention::Retention::cell_average_theta`]),
+/// and everything that depends on θ (air content, vapour storage, λ, η) follows it; the
+/// conductivity and the humidity stay those of the centre head. 0: θ at the centre head.
+#[allow(clippy::too_many_arguments)]
 pub fn cell_props<const N: usize>(
     soil: &Soil,
     physics: &Physics,
@@ -104,9 +110,17 @@ pub fn cell_props<const N: usize>(
     h: Dual<N>,
     rv: Dual<N>,
     osmotic: f64,
+    width: f64,
 ) -> CellProps<N> {
     let phi = soil.retention.theta_s();
-    let ((th, dth), (kr, dkr)) = soil.retention.theta_and_relative_conductivity(h.v);
+    let ((th, dth), (kr, dkr)) = if width > 0.0 {
+        (
+            soil.retention.cell_average_theta(h.v, width),
+            soil.retention.relative_conductivity(h.v),
+        )
+    } else {
+        soil.retention.theta_and_relative_conductivity(h.v)
+    };
     let theta = h.chain(th, dth);
     let theta_a = (-theta + phi).max(Dual::cst(0.0));
     let (hr, rvs, drvs, rveq) = equilibrium_vapor(t, h + osmotic);

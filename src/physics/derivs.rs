@@ -115,6 +115,7 @@ impl<const N: usize, const M: usize> Derivs<N, M> {
             Dual::cst(-1.0),
             Dual::cst(0.01),
             0.0,
+            0.0,
         );
         self.cells = vec![any; n];
         self.cell_base = vec![f64::NAN; BLOCK * n];

@@ -17,7 +17,9 @@ pub mod dual;
 pub mod flux;
 mod rules;
 
-use crate::model::{BottomBc, Model, Periods, Physics, Soil, SurfaceBc, VaporMode, Vegetation};
+use crate::model::{
+    BottomBc, Model, Periods, Physics, Soil, SurfaceBc, SurfaceWater, VaporMode, Vegetation,
+};
 use crate::props::constants::{T_REF, WATER_DENSITY, WATER_HEAT_CAPACITY};
 use crate::solve::blocktri::{Block, BlockTri};
 pub use crate::solve::problem::NonFinite;
@@ -87,6 +89,54 @@ pub struct System {
     /// cell's sink times its width], and its total [energy W m⁻², water kg m⁻² s⁻¹].
     pub uptake: Vec<f64>,
     pub uptake_totals: [f64; 2],
+    /// Whether the top cell holds a surface store (ponded water; see
+    /// [`System::pond_depth`]).
+    pub surface_store: bool,
+    /// Runoff from the surface store from the last assembly [energy W m⁻², water
+    /// kg m⁻² s⁻¹].
+    pub runoff: [f64; 2],
+}
+
+/// Time constant of the runoff above the largest ponding depth [s]: the excess leaves
+/// at (P − Pmax)/τ, so the pond stands above its limit by about τ times the excess
+/// inflow (1 s: 0.01 mm under 1 cm/s of excess) while the rate stays a smooth
+/// function of the state that the implicit steps integrate exactly.
+pub const RUNOFF_TIME: f64 = 1.0;
+/// Width of the band above the largest ponding depth over which the runoff rate turns
+/// on smoothly (quadratically) [m], so that its derivative has no jump.
+pub const RUNOFF_BAND: f64 = 1.0e-3;
+
+/// Width of the band over which the pond's storage turns on [m]: the pond depth is
+/// x²/(2δ) for a surface head x in [0, δ] and x − δ/2 above, so that the top cell's
+/// storage has no kink where the pond appears or vanishes (Newton then crosses it).
+pub const POND_BAND: f64 = 1.0e-3;
+
+/// Ponding depth [m] and its derivative for a hydrostatic surface head `x` [m].
+#[inline]
+pub fn pond_of_excess(x: f64) -> (f64, f64) {
+    if x <= 0.0 {
+        (0.0, 0.0)
+    } else if x < POND_BAND {
+        (x * x / (2.0 * POND_BAND), x / POND_BAND)
+    } else {
+        (x - 0.5 * POND_BAND, 1.0)
+    }
+}
+
+/// Runoff rate per unit area [m s⁻¹] for a pond standing `x` [m] above its largest depth,
+/// and its derivative [s⁻¹]: 0 below, x²/(2δτ) within the band δ, (x − δ/2)/τ above.
+#[inline]
+pub fn runoff_rate(x: f64) -> (f64, f64) {
+    if x <= 0.0 {
+        (0.0, 0.0)
+    } else if x < RUNOFF_BAND {
+        (
+            x * x / (2.0 * RUNOFF_BAND * RUNOFF_TIME),
+            x / (RUNOFF_BAND * RUNOFF_TIME),
+        )
+    } else {
+        ((x - 0.5 * RUNOFF_BAND) / RUNOFF_TIME, 1.0 / RUNOFF_TIME)
+    }
 }
 
 /// Whether every value is finite, in one branch-free pass (x·0 is 0 for finite x and
@@ -154,6 +204,7 @@ impl System {
             D0::cst(-1.0),
             D0::cst(0.01),
             0.0,
+            0.0,
         );
         System {
             n,
@@ -179,6 +230,8 @@ impl System {
             vegetation: model.vegetation.clone(),
             uptake: vec![0.0; n],
             uptake_totals: [0.0; 2],
+            surface_store: model.has_surface_store(),
+            runoff: [0.0; 2],
         }
     }
 
@@ -198,14 +251,81 @@ impl System {
     /// slots (T, h and, for N = 3, rv).
     #[inline]
     fn props_at<const N: usize>(&self, i: usize, x: &[f64]) -> CellProps<N> {
-        cell_props(
+        let mut c = cell_props(
             self.soil_of(i),
             &self.physics,
             Dual::var(x[T], 0),
             Dual::var(x[H], 1),
             Dual::var(x[RV], 2),
             self.osmotic_head.get(i).copied().unwrap_or(0.0),
-        )
+            if self.physics.cell_average_retention {
+                self.widths[i]
+            } else {
+                0.0
+            },
+        );
+        if i == 0 && self.surface_store && x[H] > self.d_above[0] {
+            // The pond: water standing on the surface, in hydrostatic equilibrium with
+            // the top cell's centre, at the cell's temperature.
+            let (p, dp) = pond_of_excess(x[H] - self.d_above[0]);
+            let p = c.h.chain(p, dp);
+            let per_width = 1.0 / self.widths[0];
+            c.water = c.water + p * (WATER_DENSITY * per_width);
+            c.energy =
+                c.energy + p * (c.t - T_REF) * (WATER_DENSITY * WATER_HEAT_CAPACITY * per_width);
+        }
+        c
+    }
+
+    /// Depth of the water ponded on the surface [m] at top-cell head `h0` [m]: with a
+    /// surface store, the head the surface has when the top half-cell is hydrostatic,
+    /// h0 − (depth of the top cell's centre), where that is positive; 0 otherwise. The
+    /// pond is part of the top cell's storage (water and energy, at the cell's
+    /// temperature), so the balances and the time integration carry it like any stored
+    /// water: it fills when more water reaches the surface than the soil takes,
+    /// infiltrates later, and runs off above the largest ponding depth.
+    pub fn pond_depth(&self, h0: f64) -> f64 {
+        if self.surface_store {
+            pond_of_excess(h0 - self.d_above[0]).0
+        } else {
+            0.0
+        }
+    }
+
+    /// The largest ponding depth of the surface period in force at `t` [m] (None: no
+    /// runoff: a surface without store, a store without limit, or a period of another
+    /// kind, whose pond stays).
+    fn max_pond_depth(&self, t: f64) -> Option<f64> {
+        // The period in force just before `t`, as for the boundary fluxes.
+        match &self.surface.at(t.next_down()).water {
+            SurfaceWater::Pond { max_depth, .. } => *max_depth,
+            _ => None,
+        }
+    }
+
+    /// Runoff at `t` from the top cell's last evaluation into `self.runoff`, and added to
+    /// the top cell's water and energy rows; with `jac`, its derivatives too.
+    fn add_runoff(&mut self, t: f64, res: &mut [f64], jac: Option<&mut BlockTri<BLOCK>>) {
+        self.runoff = [0.0; 2];
+        let Some(pmax) = self.max_pond_depth(t) else {
+            return;
+        };
+        let c0 = &self.cells[0];
+        let (r, dr) = runoff_rate(self.pond_depth(c0.h.v) - pmax);
+        if r == 0.0 && dr == 0.0 {
+            return;
+        }
+        let enthalpy = WATER_HEAT_CAPACITY * (c0.t.v - T_REF);
+        let w = WATER_DENSITY * r;
+        self.runoff = [w * enthalpy, w];
+        res[WATER] += w;
+        res[ENERGY] += w * enthalpy;
+        if let Some(jac) = jac {
+            let d = &mut jac.diag[0];
+            d[WATER][H] += WATER_DENSITY * dr;
+            d[ENERGY][H] += WATER_DENSITY * dr * enthalpy;
+            d[ENERGY][T] += w * WATER_HEAT_CAPACITY;
+        }
     }
 
     /// Sets the osmotic head of every cell [m] (≤ 0; empty: none) and drops the kept
@@ -402,7 +522,8 @@ impl System {
         let cp = &self.cells[i];
         let store_e = w * ((c * cp.energy.v).abs() + hist[BLOCK * i + ENERGY].abs());
         let store_w = w * ((c * cp.water.v).abs() + hist[BLOCK * i + WATER].abs())
-            + self.uptake.get(i).map_or(0.0, |u| u.abs());
+            + self.uptake.get(i).map_or(0.0, |u| u.abs())
+            + if i == 0 { self.runoff[1].abs() } else { 0.0 };
         let vapor_algebraic = cp.rv.v.abs() + cp.rveq.v.abs();
         let vapor_scale = match rate {
             Some(b) => {
@@ -627,6 +748,10 @@ impl System {
         if self.has_vegetation {
             self.add_uptake(t, res);
         }
+        if self.surface_store {
+            // (Its Jacobian entries are added below, after the flux blocks.)
+            self.add_runoff(t, res, None);
+        }
         if !all_finite(&res[..BLOCK * n]) {
             let k = res.iter().position(|r| !r.is_finite()).unwrap_or(0);
             return Err(NonFinite {
@@ -638,6 +763,10 @@ impl System {
             self.kept().jacobian_into(self, c, jac);
             if self.has_vegetation {
                 self.add_uptake_jacobian(t, jac);
+            }
+            if self.surface_store {
+                let mut scratch = [0.0; BLOCK];
+                self.add_runoff(t, &mut scratch, Some(jac));
             }
             for blocks in [&jac.lower, &jac.diag, &jac.upper] {
                 if blocks.iter().all(|b| b.iter().all(|r| all_finite(r))) {

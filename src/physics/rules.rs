@@ -13,6 +13,10 @@ use crate::solve::problem::{BalanceScales, Conserved, ErrorTest, NonFinite, Prob
 /// Unknowns per cell: T [K], h [m], rv [kg m⁻³].
 pub const BLOCK: usize = 3;
 
+/// How far below its saturation head a saturated cell may go in one Newton iteration
+/// [m] (see `apply_update`).
+const DESATURATION_STEP: f64 = 1.0e-3;
+
 /// The per-variable rules of the solvers for the soil column.
 #[derive(Debug, Clone, PartialEq)]
 pub struct VariableRules {
@@ -100,6 +104,10 @@ impl Problem<BLOCK> for System {
         [u[0], u[1], 0.0, 0.0]
     }
 
+    fn runoff_flows(&self) -> Conserved {
+        [self.runoff[0], self.runoff[1], 0.0, 0.0]
+    }
+
     fn assemble(
         &mut self,
         t: f64,
@@ -142,21 +150,40 @@ impl Problem<BLOCK> for System {
         let r = &self.rules;
         let mut small = true;
         let shrink = 1.0 / r.max_head_factor;
-        for (((x, d), c), s) in u
-            .chunks_exact_mut(BLOCK)
-            .zip(dx.chunks_exact(BLOCK))
-            .zip(col.chunks_exact(BLOCK))
-            .zip(step.chunks_exact_mut(BLOCK))
-        {
+        let n = u.len() / BLOCK;
+        let unsaturated = |j: usize, hj: f64| hj < self.soil_of(j).retention.saturation_head();
+        // Head of the cell above before this iteration (the loop goes downward).
+        let mut old_above = f64::NAN;
+        for i in 0..n {
+            let k = BLOCK * i;
+            let (d, c) = (&dx[k..k + BLOCK], &col[k..k + BLOCK]);
             let dt = (d[T] * c[T]).clamp(-r.max_temperature_update, r.max_temperature_update);
             // Heads move at most by the factor `max_head_factor` per iteration in |h|
             // (dry soil spans decades), plus `max_head_update` near saturation.
-            let h = x[H];
+            let h = u[k + H];
             let lo = h.min(0.0) * r.max_head_factor - r.max_head_update;
             let hi = if h < 0.0 { h * shrink } else { h } + r.max_head_update;
-            let dh = (d[H] * c[H]).clamp(lo - h, hi - h);
+            let mut dh = (d[H] * c[H]).clamp(lo - h, hi - h);
+            // A saturated cell (flat storage: its head is set by the fluxes alone) that
+            // Newton sends into the unsaturated range stops just below its saturation
+            // head, where its storage has a slope again: the linearisation of a
+            // saturated column knows nothing of the water its cells would release, and
+            // the full update would drain them at once (seen where a pond vanishes over
+            // a saturated column: the update asks for the hydrostatic profile). Only a
+            // cell open to the air (the top cell, or one next to an unsaturated cell)
+            // may desaturate in an iteration; one inside a saturated zone stops at its
+            // saturation head, so that the drainage starts where air can enter.
+            let hs = self.soil_of(i).retention.saturation_head();
+            if h >= hs && h + dh < hs {
+                let open = i == 0
+                    || unsaturated(i - 1, old_above)
+                    || (i + 1 < n && unsaturated(i + 1, u[k + BLOCK + H]));
+                let floor = if open { hs - DESATURATION_STEP } else { hs };
+                dh = dh.max(floor - h);
+            }
+            old_above = h;
             // Vapour density stays positive.
-            let rv = x[RV];
+            let rv = u[k + RV];
             let mut drv = d[RV] * c[RV];
             if rv + drv < 0.1 * rv {
                 drv = -0.9 * rv;
@@ -167,12 +194,12 @@ impl Problem<BLOCK> for System {
             {
                 small = false;
             }
-            s[T] = dt;
-            s[H] = dh;
-            s[RV] = drv;
-            x[T] += dt;
-            x[H] += dh;
-            x[RV] += drv;
+            step[k + T] = dt;
+            step[k + H] = dh;
+            step[k + RV] = drv;
+            u[k + T] += dt;
+            u[k + H] += dh;
+            u[k + RV] += drv;
         }
         small
     }

@@ -15,6 +15,23 @@
 /// (≈ 10⁷ cm of suction, common practice).
 pub const OVEN_DRY_HEAD: f64 = -1.0e5;
 
+/// Number of panels of the 8-point rule in [`Retention::cell_average_theta`].
+const AVERAGE_PANELS: usize = 3;
+
+/// Offset σ0 [m] of the logarithmic variable of [`Retention::cell_average_theta`].
+const AVERAGE_OFFSET: f64 = 1.0e-3;
+
+/// Gauss–Legendre rule with 8 points on [−1, 1]: the positive nodes and their weights
+/// (each node ±x; Abramowitz & Stegun 1964, Table 25.4, from memory; the test
+/// `gauss_legendre_8_is_exact_to_degree_15` checks them against exact integrals).
+#[allow(clippy::excessive_precision)]
+pub const GAUSS_LEGENDRE_8: [(f64, f64); 4] = [
+    (0.183_434_642_495_649_8, 0.362_683_783_378_362_0),
+    (0.525_532_409_916_329_0, 0.313_706_645_877_887_3),
+    (0.796_666_477_413_626_7, 0.222_381_034_453_374_5),
+    (0.960_289_856_497_536_3, 0.101_228_536_290_376_3),
+];
+
 /// The base retention law. Heads in metres (negative when unsaturated).
 #[derive(Debug, Clone, PartialEq)]
 pub enum RetentionLaw {
@@ -213,6 +230,16 @@ impl RetentionLaw {
             | RetentionLaw::Exponential { theta_r, .. } => theta_r,
         }
     }
+    /// The highest head at which the soil is not saturated [m]: −|air-entry head| of
+    /// van Genuchten with the Vogel et al. (2001) modification and of Brooks–Corey, 0
+    /// otherwise. Above it θ = θs and dθ/dh = 0.
+    pub fn saturation_head(&self) -> f64 {
+        match *self {
+            RetentionLaw::VanGenuchten { air_entry, .. }
+            | RetentionLaw::BrooksCorey { air_entry, .. } => -air_entry,
+            RetentionLaw::Exponential { .. } => 0.0,
+        }
+    }
     /// Saturated liquid content θs [m³ m⁻³].
     pub fn theta_s(&self) -> f64 {
         match *self {
@@ -341,6 +368,12 @@ impl DryEnd {
 }
 
 impl Retention {
+    /// The highest head at which the soil is not saturated [m] (see
+    /// [`RetentionLaw::saturation_head`]).
+    pub fn saturation_head(&self) -> f64 {
+        self.law.saturation_head()
+    }
+
     /// Saturated liquid content θs = porosity used by the balance laws [m³ m⁻³].
     pub fn theta_s(&self) -> f64 {
         self.law.theta_s()
@@ -428,6 +461,74 @@ impl Retention {
         }
         let b = self.law.base(h);
         (b.kr, b.kr * b.dln_kr)
+    }
+
+    /// The liquid content averaged over a cell of width `w` [m] whose head `h` [m] at its
+    /// centre varies hydrostatically within it (from h − w/2 at its top to h + w/2 at
+    /// its bottom), and its derivative with respect to `h` [m⁻¹]:
+    ///
+    /// θ̄(h) = (1/w) ∫ θ(h') dh' over [h − w/2, h + w/2],   dθ̄/dh = (θ(h + w/2) − θ(h − w/2))/w
+    ///
+    /// (the second form for the exact integral; here the derivative of the quadrature
+    /// below, so that Newton's Jacobian matches the value). A cell that a water table
+    /// or a capillary fringe crosses then releases its water in proportion to the part
+    /// of the cell the fringe has passed, instead of all at once when its centre does:
+    /// the storage of a column of such cells under a moving table is smooth in time.
+    ///
+    /// The saturated part (heads above the saturation head hs) is exact; the rest is
+    /// 3 panels of the 8-point Gauss–Legendre rule in y = ln(hs − h' + σ0), σ0 = 1 mm, which puts the
+    /// nodes near the saturation head where the curve turns and is smooth in y for the
+    /// laws here. Nodes move continuously with `h`, so θ̄ is a smooth function of the
+    /// state and the balance stays exact (the stored water is this function).
+    pub fn cell_average_theta(&self, h: f64, w: f64) -> (f64, f64) {
+        let hs = self.saturation_head();
+        let ts = self.theta_s();
+        let lo = h - 0.5 * w;
+        let hi = h + 0.5 * w;
+        if lo >= hs || h.is_nan() {
+            return (ts, 0.0);
+        }
+        // Saturated part [hs, hi], when the cell reaches above hs.
+        let (sat_len, dsat) = if hi > hs { (hi - hs, 1.0) } else { (0.0, 0.0) };
+        // Unsaturated part, in σ = hs − h' from σb (at the cell's highest head) to σa.
+        let sa = hs - lo;
+        let (sb, dsb) = if hi < hs { (hs - hi, -1.0) } else { (0.0, 0.0) };
+        let (ca, cb) = (sa + AVERAGE_OFFSET, sb + AVERAGE_OFFSET);
+        let yb = cb.ln();
+        let dyb = dsb / cb;
+        // ya − yb and its derivative without cancellation (a dry cell spans a tiny
+        // interval in y): ln(ca/cb) = ln(1 + (sa − sb)/cb); sa − sb is w, or sa when the
+        // cell reaches the saturation head.
+        let span = if hi < hs { w } else { sa };
+        let ylen = (span / cb).ln_1p();
+        // d(ya − yb)/dh = dya − dyb = −1/ca − dsb/cb = (−cb − dsb·ca)/(ca·cb); for a cell
+        // wholly below hs (dsb = −1) that is (ca − cb)/(ca·cb) = w/(ca·cb).
+        let dylen = if hi < hs { w / (ca * cb) } else { -1.0 / ca };
+        // AVERAGE_PANELS equal panels in y between yb and ya, each with the 8-point rule.
+        let np = AVERAGE_PANELS as f64;
+        let (half, dhalf) = (0.5 * ylen / np, 0.5 * dylen / np);
+        let mut sum = 0.0;
+        let mut dsum = 0.0;
+        for p in 0..AVERAGE_PANELS {
+            // Panel centre yb + (2p + 1)·half and its derivative.
+            let k = (2 * p + 1) as f64;
+            let mid = yb + k * half;
+            let dmid = dyb + k * dhalf;
+            for (x, wk) in GAUSS_LEGENDRE_8 {
+                for xk in [-x, x] {
+                    let e = (mid + half * xk).exp();
+                    let (th, dth) = self.theta(hs - (e - AVERAGE_OFFSET));
+                    // g(y) = θ(hs − σ(y)) dσ/dy with σ = e^y − σ0; dh'/dy = −e^y.
+                    let g = th * e;
+                    let dg = e * th - e * e * dth;
+                    sum += wk * g;
+                    dsum += wk * dg * (dmid + dhalf * xk);
+                }
+            }
+        }
+        let q = half * sum;
+        let dq = dhalf * sum + half * dsum;
+        ((ts * sat_len + q) / w, (ts * dsat + dq) / w)
     }
 
     /// Head [m] at which θ(h) = `theta`; `None` when `theta` is outside the curve's range.

@@ -39,6 +39,17 @@ pub fn freeze_surface(bc: &SurfaceBc, t: f64) -> SurfaceBc {
                 relative_humidity: frozen(relative_humidity, t),
                 resistance: resistance.as_ref().map(|r| frozen(r, t)),
             },
+            SurfaceWater::Pond {
+                inflow,
+                max_depth,
+                air,
+            } => SurfaceWater::Pond {
+                inflow: frozen(inflow, t),
+                max_depth: *max_depth,
+                air: air
+                    .as_ref()
+                    .map(|(rh, r)| (frozen(rh, t), r.as_ref().map(|r| frozen(r, t)))),
+            },
             SurfaceWater::NoFlow => SurfaceWater::NoFlow,
         },
     }

@@ -53,6 +53,31 @@ pub const VEGETATION_SERIES: [(&str, &str, &str); 4] = [
     ),
 ];
 
+/// The surface store's series (name, units, long name), in the order of
+/// [`Simulation::extra_series`] (after the vegetation's).
+pub const SURFACE_STORE_SERIES: [(&str, &str, &str); 4] = [
+    (
+        "ponding_depth",
+        "m",
+        "depth of the water ponded on the surface",
+    ),
+    (
+        "runoff",
+        "kg m-2 s-1",
+        "runoff from the surface store (water above the largest ponding depth)",
+    ),
+    (
+        "runoff_cumulative",
+        "kg m-2",
+        "runoff since the start, integrated with the stepper's weights (closes the water balance with the surface and bottom cumulative series and the storage)",
+    ),
+    (
+        "pond_water_storage",
+        "kg m-2",
+        "water held in the pond (part of water_storage)",
+    ),
+];
+
 /// Potential transpiration since the case's start time up to `t` [kg m⁻²]: the exact
 /// integral of the schedule over the periods with plants.
 pub fn potential_transpiration_cumulative(model: &Model, t: f64) -> f64 {
@@ -178,6 +203,7 @@ pub fn series_record(sys: &System, st: &Stepper, dt: f64, iters: usize) -> Serie
     // Conserved quantities in the stepper's order [energy, water]; the bottom's outflow is
     // the top's inflow minus the net inflow minus what the sinks (roots) took.
     let (w_top, w_net, w_sink) = (&st.state.top_inflow, &st.state.inflow, &st.state.sink);
+    let w_runoff = &st.state.runoff;
     SeriesRecord {
         time_year: st.state.t / SECONDS_PER_YEAR,
         surface_water_flux: top[1],
@@ -193,9 +219,9 @@ pub fn series_record(sys: &System, st: &Stepper, dt: f64, iters: usize) -> Serie
         dt,
         newton_iterations: iters as f64,
         surface_water_cumulative: w_top[1],
-        bottom_water_cumulative: w_top[1] - w_net[1] - w_sink[1],
+        bottom_water_cumulative: w_top[1] - w_net[1] - w_sink[1] - w_runoff[1],
         surface_energy_cumulative: w_top[0],
-        bottom_energy_cumulative: w_top[0] - w_net[0] - w_sink[0],
+        bottom_energy_cumulative: w_top[0] - w_net[0] - w_sink[0] - w_runoff[0],
     }
 }
 
@@ -401,6 +427,15 @@ impl<'m> Simulation<'m> {
                 potential_transpiration_cumulative(self.model, t),
             ]);
         }
+        if self.sys.surface_store {
+            let pond = self.sys.pond_depth(self.st.state.u[crate::physics::H]);
+            out.extend_from_slice(&[
+                pond,
+                self.sys.runoff[1],
+                self.st.state.runoff.get(1).copied().unwrap_or(f64::NAN),
+                crate::props::constants::WATER_DENSITY * pond,
+            ]);
+        }
         out
     }
 
@@ -471,6 +506,13 @@ impl<'m> Simulation<'m> {
             let landed = self.st.state.t == t_sync;
             if landed && is_member(&self.plan.jumps, t_sync) {
                 self.st.restart_history();
+                // After a jump in value the first step has no error estimate (no
+                // history): start it from the first step size, as at the start of a run,
+                // so that the response to the jump is resolved (a shift of climate or the
+                // start of a flood) and not taken in one unchecked step.
+                if is_member(&self.plan.value_jumps, t_sync) {
+                    self.st.state.dt = self.st.state.dt.min(model.time.dt_initial);
+                }
             }
             let at_snapshot = landed && is_member(&model.output.snapshot_times, t_sync);
             if self.output.since_series >= model.output.series_every as u64

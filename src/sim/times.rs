@@ -25,8 +25,20 @@ fn clean_times(model: &Model, mut ts: Vec<f64>) -> Vec<f64> {
 /// Times where the forcing jumps or changes slope (schedule breakpoints, changes of
 /// boundary-condition kind) inside (start, end]: the multistep history restarts there.
 pub fn forcing_times(model: &Model) -> Vec<f64> {
+    schedule_times(model, Schedule::breakpoints)
+}
+
+/// Times where the forcing jumps in value (steps of stepped schedules, changes of
+/// boundary-condition kind) inside (start, end]: the step restarts small there.
+pub fn forcing_jumps(model: &Model) -> Vec<f64> {
+    schedule_times(model, Schedule::jumps)
+}
+
+/// The start of every period and the times `pick` gives for every schedule of the
+/// forcing, inside (start, end].
+fn schedule_times(model: &Model, pick: fn(&Schedule) -> Vec<f64>) -> Vec<f64> {
     let mut ts: Vec<f64> = Vec::new();
-    let add_schedule = |s: &Schedule, ts: &mut Vec<f64>| ts.extend(s.breakpoints());
+    let add_schedule = |s: &Schedule, ts: &mut Vec<f64>| ts.extend(pick(s));
     for (start, bc) in &model.surface.periods {
         ts.push(*start);
         match &bc.heat {
@@ -42,6 +54,15 @@ pub fn forcing_times(model: &Model) -> Vec<f64> {
                 add_schedule(relative_humidity, &mut ts);
                 if let Some(r) = resistance {
                     add_schedule(r, &mut ts);
+                }
+            }
+            SurfaceWater::Pond { inflow, air, .. } => {
+                add_schedule(inflow, &mut ts);
+                if let Some((rh, r)) = air {
+                    add_schedule(rh, &mut ts);
+                    if let Some(r) = r {
+                        add_schedule(r, &mut ts);
+                    }
                 }
             }
             SurfaceWater::NoFlow => {}
@@ -129,6 +150,9 @@ pub struct SyncPlan {
     pub syncs: Vec<f64>,
     /// Forcing jumps and changes of slope: the history restarts there.
     pub jumps: Vec<f64>,
+    /// Forcing jumps in value (a subset of `jumps`): the step also restarts from the
+    /// first step size there.
+    pub value_jumps: Vec<f64>,
     /// Checkpoint times from `[checkpoint] every_year`.
     pub checkpoints: Vec<f64>,
 }
@@ -139,6 +163,7 @@ impl SyncPlan {
     pub fn new(model: &Model) -> Result<SyncPlan> {
         let checkpoints = checkpoint_times(model)?;
         let jumps = forcing_times(model);
+        let value_jumps = forcing_jumps(model);
         let mut syncs = sync_times(model);
         syncs.extend(checkpoints.iter().cloned());
         syncs.sort_by(|a, b| a.total_cmp(b));
@@ -146,6 +171,7 @@ impl SyncPlan {
         Ok(SyncPlan {
             syncs,
             jumps,
+            value_jumps,
             checkpoints,
         })
     }

@@ -94,6 +94,13 @@ pub trait Problem<const B: usize> {
         [0.0; MAX_CONSERVED]
     }
 
+    /// Flows of the conserved quantities out of the domain as runoff from a surface
+    /// store (water that ponds above its largest depth), from the last evaluation (per
+    /// unit of the weights' measure and time). Default: none.
+    fn runoff_flows(&self) -> Conserved {
+        [0.0; MAX_CONSERVED]
+    }
+
     /// Fills the residual (and, when given, the Jacobian) at state `u`, time `t`, with
     /// integrator coefficient `c` and history `hist` (B per block); refuses NaN and Inf.
     #[allow(clippy::too_many_arguments)]

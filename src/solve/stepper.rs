@@ -106,6 +106,8 @@ pub struct HistoryPoint {
     pub top_inflow: Vec<f64>,
     /// Cumulative outflow through internal sinks at `t` (as [`StepState::sink`]).
     pub sink: Vec<f64>,
+    /// Cumulative runoff at `t` (as [`StepState::runoff`]).
+    pub runoff: Vec<f64>,
 }
 
 impl HistoryPoint {
@@ -118,6 +120,7 @@ impl HistoryPoint {
             throughput: vec![0.0; conserved],
             top_inflow: vec![0.0; conserved],
             sink: vec![0.0; conserved],
+            runoff: vec![0.0; conserved],
         }
     }
 }
@@ -149,8 +152,12 @@ pub struct StepState {
     /// NaN when unknown (a run continued from a checkpoint written before it was kept).
     pub top_inflow: Vec<f64>,
     /// Cumulative outflow through internal sinks ([`Problem::sink_flows`]) of each
-    /// conserved quantity, by the same formula; the net inflow is top − bottom − sink.
+    /// conserved quantity, by the same formula; the net inflow is top − bottom − sink −
+    /// runoff.
     pub sink: Vec<f64>,
+    /// Cumulative runoff from a surface store ([`Problem::runoff_flows`]) of each
+    /// conserved quantity, by the same formula.
+    pub runoff: Vec<f64>,
     /// Content of each conserved quantity at the start (Σ V M).
     pub initial_totals: Vec<f64>,
     /// Storages of every block at the start: the storage change is summed block by
@@ -312,6 +319,7 @@ impl<const B: usize> Stepper<B> {
             throughput: vec![0.0; nq],
             top_inflow: vec![0.0; nq],
             sink: vec![0.0; nq],
+            runoff: vec![0.0; nq],
             counters: Counters::default(),
             history: Vec::new(),
             order: 1,
@@ -691,15 +699,17 @@ impl<const B: usize> Stepper<B> {
         // α0 W_new + α1 W_old + Σ αj W_j = F_in(new).
         let (top, bot) = sys.boundary_flows();
         let sink = sys.sink_flows();
+        let runoff = sys.runoff_flows();
         let nq = s.inflow.len();
         let mut new_inflow = [0.0; MAX_CONSERVED];
         let mut new_throughput = [0.0; MAX_CONSERVED];
         let mut new_top = [0.0; MAX_CONSERVED];
         let mut new_sink = [0.0; MAX_CONSERVED];
+        let mut new_runoff = [0.0; MAX_CONSERVED];
         for q in 0..nq {
-            // (x − 0.0 is x: without sinks the sums are those of before.)
-            let fin = top[q] - bot[q] - sink[q];
-            let fabs = top[q].abs() + bot[q].abs() + sink[q].abs();
+            // (x − 0.0 is x: without sinks and runoff the sums are those of before.)
+            let fin = top[q] - bot[q] - sink[q] - runoff[q];
+            let fabs = top[q].abs() + bot[q].abs() + sink[q].abs() + runoff[q].abs();
             let mut a = alpha[1] * s.inflow[q];
             let mut b = alpha[1] * s.throughput[q];
             for j in 2..=k {
@@ -720,6 +730,11 @@ impl<const B: usize> Stepper<B> {
                 w += alpha[j] * s.history[j - 2].sink[q];
             }
             new_sink[q] = (sink[q] - w) / c;
+            let mut w = alpha[1] * s.runoff[q];
+            for j in 2..=k {
+                w += alpha[j] * s.history[j - 2].runoff[q];
+            }
+            new_runoff[q] = (runoff[q] - w) / c;
         }
         {
             // Shift the history: the old current point becomes the newest history point,
@@ -737,6 +752,7 @@ impl<const B: usize> Stepper<B> {
             point.throughput.clone_from(&s.throughput);
             point.top_inflow.clone_from(&s.top_inflow);
             point.sink.clone_from(&s.sink);
+            point.runoff.clone_from(&s.runoff);
             // The old storages go with the point; the new ones are filled below.
             std::mem::swap(&mut point.storage, &mut s.storage);
             s.history.insert(0, point);
@@ -746,6 +762,7 @@ impl<const B: usize> Stepper<B> {
         s.throughput.copy_from_slice(&new_throughput[..nq]);
         s.top_inflow.copy_from_slice(&new_top[..nq]);
         s.sink.copy_from_slice(&new_sink[..nq]);
+        s.runoff.copy_from_slice(&new_runoff[..nq]);
         let base = if dt < dt_try { dt_try } else { dt };
         s.dt = (base * factor).clamp(self.opts.dt_min, self.opts.dt_max);
         s.t = a.t_new;

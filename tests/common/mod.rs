@@ -58,6 +58,7 @@ pub fn physics() -> Physics {
         viscosity_correction: false,
         reference_temperature: 293.15,
         face_conductivity: FaceAveraging::Arithmetic,
+        cell_average_retention: false,
     }
 }
 

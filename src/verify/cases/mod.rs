@@ -51,7 +51,9 @@ mod fick_vapour_diffusion;
 mod gardner_evaporation;
 mod kinetic_to_equilibrium;
 mod mesh_order;
+mod moving_water_table;
 mod periodic_surface;
+mod ponding_cycle;
 mod root_uptake;
 mod solute_advection_dispersion;
 mod solute_balance_closure;
@@ -71,7 +73,9 @@ use fick_vapour_diffusion::fick_vapour_diffusion;
 use gardner_evaporation::gardner_evaporation;
 use kinetic_to_equilibrium::kinetic_to_equilibrium;
 use mesh_order::mesh_order;
+use moving_water_table::moving_water_table;
 use periodic_surface::periodic_surface;
+use ponding_cycle::ponding_cycle;
 use root_uptake::root_uptake;
 use solute_advection_dispersion::solute_advection_dispersion;
 use solute_balance_closure::solute_balance_closure;
@@ -181,6 +185,16 @@ pub fn all() -> Vec<Case> {
             "root-uptake",
             "root water uptake: steady flux = infiltration minus uptake above, unstressed uptake = potential, Feddes shape",
             root_uptake
+        ),
+        case!(
+            "moving-water-table",
+            "water table falling and rising 25 m through 0.5 m cells: smooth bottom flux with cell-averaged retention",
+            moving_water_table
+        ),
+        case!(
+            "ponding-cycle",
+            "two floods over a ponding surface: pond, runoff and drainage; balance, applied water, runoff bound",
+            ponding_cycle
         ),
     ]
 }

@@ -50,6 +50,7 @@ mod drying_front;
 mod fick_vapour_diffusion;
 mod gardner_evaporation;
 mod kinetic_to_equilibrium;
+mod linearised_infiltration;
 mod mesh_order;
 mod periodic_surface;
 mod root_uptake;
@@ -70,6 +71,7 @@ use drying_front::drying_front;
 use fick_vapour_diffusion::fick_vapour_diffusion;
 use gardner_evaporation::gardner_evaporation;
 use kinetic_to_equilibrium::kinetic_to_equilibrium;
+use linearised_infiltration::linearised_infiltration;
 use mesh_order::mesh_order;
 use periodic_surface::periodic_surface;
 use root_uptake::root_uptake;
@@ -111,6 +113,11 @@ pub fn all() -> Vec<Case> {
             "srivastava-yeh-infiltration",
             "transient infiltration toward a water table (Srivastava & Yeh 1991)",
             srivastava_yeh_infiltration
+        ),
+        case!(
+            "linearised-infiltration",
+            "infiltration from a saturated surface, exponential soil: linear in K (Philip 1969; Warrick 1975)",
+            linearised_infiltration
         ),
         case!(
             "fick-vapour-diffusion",

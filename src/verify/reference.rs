@@ -299,6 +299,29 @@ impl LinearisedInfiltration {
     }
 }
 
+/// Cumulative infiltration I [m] of Green & Ampt (1911) at time t [s]: a sharp wetting
+/// front at depth Zf behind which the soil is saturated (K = Ks), the pressure head −ψ at
+/// the front and h0 at the surface, so by Darcy q = dI/dt = Ks (ψ + h0 + Zf)/Zf with
+/// I = Δθ Zf; integrating from I(0) = 0 gives `Ks t = I − S ln(1 + I/S)`,
+/// S = (ψ + h0) Δθ [m] (derived in `validation/green-ampt/README.md`). Solved for I by
+/// bisection (the left side minus Ks t grows monotonically in I).
+pub fn green_ampt_infiltration(ks: f64, s: f64, t: f64) -> f64 {
+    let f = |i: f64| i - s * (i / s).ln_1p() - ks * t;
+    let (mut lo, mut hi) = (0.0, ks * t + (2.0 * s * ks * t).sqrt() + s);
+    while f(hi) < 0.0 {
+        hi *= 2.0;
+    }
+    for _ in 0..200 {
+        let mid = 0.5 * (lo + hi);
+        if f(mid) < 0.0 {
+            lo = mid;
+        } else {
+            hi = mid;
+        }
+    }
+    0.5 * (lo + hi)
+}
+
 /// Relative concentration c/cb of diffusion ∂c/∂t = D ∂²c/∂x² into a layer 0 < x < L,
 /// initially free of solute, with c = cb held at x = 0 and no flux at x = L, at distance
 /// `x` from the fixed face: the erfc solution of a semi-infinite medium (Crank 1975,
@@ -473,6 +496,23 @@ mod tests {
                 );
             }
         }
+    }
+
+    /// Green & Ampt: the root solves its equation; early I ≈ √(2 S Ks t) (the ψ-dominated
+    /// limit of dI/dt = Ks S/I), late dI/dt → Ks (derived from the same equation).
+    #[test]
+    fn green_ampt_limits() {
+        let (ks, s) = (1e-5, 0.05);
+        for t in [1.0, 1e3, 1e5, 1e7] {
+            let i = green_ampt_infiltration(ks, s, t);
+            assert!((i - s * (i / s).ln_1p() - ks * t).abs() < 1e-12 * (ks * t).max(i));
+        }
+        let t = 1e-3;
+        let i = green_ampt_infiltration(ks, s, t);
+        assert!((i / (2.0 * s * ks * t).sqrt() - 1.0).abs() < 1e-3);
+        let rate =
+            (green_ampt_infiltration(ks, s, 1e9 + 1e3) - green_ampt_infiltration(ks, s, 1e9)) / 1e3;
+        assert!((rate / ks - 1.0).abs() < 1e-3, "{rate}");
     }
 
     /// The image series: c = cb at the fixed face, no flux at x = L, 0 initially.

@@ -49,10 +49,12 @@ mod closed_column_loop;
 mod drying_front;
 mod fick_vapour_diffusion;
 mod gardner_evaporation;
+mod green_ampt;
 mod kinetic_to_equilibrium;
 mod linearised_infiltration;
 mod mesh_order;
 mod periodic_surface;
+mod ponded_darcy_column;
 mod root_uptake;
 mod solute_advection_dispersion;
 mod solute_balance_closure;
@@ -70,10 +72,12 @@ use closed_column_loop::closed_column_loop;
 use drying_front::drying_front;
 use fick_vapour_diffusion::fick_vapour_diffusion;
 use gardner_evaporation::gardner_evaporation;
+use green_ampt::green_ampt;
 use kinetic_to_equilibrium::kinetic_to_equilibrium;
 use linearised_infiltration::linearised_infiltration;
 use mesh_order::mesh_order;
 use periodic_surface::periodic_surface;
+use ponded_darcy_column::ponded_darcy_column;
 use root_uptake::root_uptake;
 use solute_advection_dispersion::solute_advection_dispersion;
 use solute_balance_closure::solute_balance_closure;
@@ -118,6 +122,16 @@ pub fn all() -> Vec<Case> {
             "linearised-infiltration",
             "infiltration from a saturated surface, exponential soil: linear in K (Philip 1969; Warrick 1975)",
             linearised_infiltration
+        ),
+        case!(
+            "ponded-darcy-column",
+            "a column filled by ponding to its saturated steady state: Darcy flux Ks (Δh/L + 1)",
+            ponded_darcy_column
+        ),
+        case!(
+            "green-ampt",
+            "ponded infiltration into a dry column: late-time consistency with Green & Ampt (1911)",
+            green_ampt
         ),
         case!(
             "fick-vapour-diffusion",

@@ -50,14 +50,10 @@ pub(super) fn green_ampt(v: Variant) -> Result<CaseResult> {
         .filter(|t| *t > 0.0)
         .collect();
     for &ty in &check_years {
-        let r = rec
-            .series
-            .iter()
-            .find(|r| (r.time_year - ty).abs() <= 1e-9 * ty)
-            .ok_or_else(|| Error::Internal(format!("no series record at {ty} yr")))?;
+        let r = record_at(&rec, ty)?;
         let t = ty * SECONDS_PER_YEAR;
         // The model's inflow less the gravity drainage Ki t of the initial state (which
-        // Green & Ampt's dry soil at rest does not have; Ki/Ks is ~1e-5 here).
+        // Green & Ampt's dry soil at rest does not have; Ki/Ks is ~4e-7 here).
         let m = r.surface_water_cumulative / WATER_DENSITY - ki * t;
         let ga = r::green_ampt_infiltration(ks, big_s, t);
         errs.push((m - ga) / ga);

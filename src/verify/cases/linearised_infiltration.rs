@@ -55,11 +55,7 @@ fn run_level(cells: usize, averaging: &str) -> Result<(Level, r::LinearisedInfil
     let mut theta_err: f64 = 0.0;
     let mut theta = Vec::new();
     for ty in CHECK_YEARS {
-        let snap = rec
-            .snapshots
-            .iter()
-            .find(|s| (s.time_year - ty).abs() <= 1e-9 * ty)
-            .ok_or_else(|| Error::Internal(format!("no snapshot at {ty} yr")))?;
+        let snap = snapshot_at(&rec, ty)?;
         let t = ty * SECONDS_PER_YEAR;
         for (z, th) in centers.iter().zip(&snap.profile.liquid_content) {
             let ex = theta_i + p.theta_gain(*z, t);
@@ -70,11 +66,7 @@ fn run_level(cells: usize, averaging: &str) -> Result<(Level, r::LinearisedInfil
     let mut infiltration_err: f64 = 0.0;
     let mut infiltration_end = 0.0;
     for ty in CHECK_YEARS {
-        let r = rec
-            .series
-            .iter()
-            .find(|r| (r.time_year - ty).abs() <= 1e-9 * ty)
-            .ok_or_else(|| Error::Internal(format!("no series record at {ty} yr")))?;
+        let r = record_at(&rec, ty)?;
         let ex = p.infiltration(ty * SECONDS_PER_YEAR);
         let m = r.surface_water_cumulative / WATER_DENSITY;
         infiltration_err = infiltration_err.max((m - ex).abs() / ex);

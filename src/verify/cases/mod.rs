@@ -447,6 +447,25 @@ impl Results {
     }
 }
 
+/// The series record of an in-memory run at `year` (output times are landed on exactly).
+fn record_at(
+    rec: &crate::sim::Recorder,
+    year: f64,
+) -> Result<&crate::output::diagnostics::SeriesRecord> {
+    rec.series
+        .iter()
+        .find(|r| (r.time_year - year).abs() <= 1e-9 * year.abs())
+        .ok_or_else(|| Error::Internal(format!("no series record at {year} yr")))
+}
+
+/// The snapshot of an in-memory run at `year`.
+fn snapshot_at(rec: &crate::sim::Recorder, year: f64) -> Result<&crate::sim::Snapshot> {
+    rec.snapshots
+        .iter()
+        .find(|s| (s.time_year - year).abs() <= 1e-9 * year.abs())
+        .ok_or_else(|| Error::Internal(format!("no snapshot at {year} yr")))
+}
+
 /// Runs `model` through `run::run` into the scratch folder; returns the summary and the
 /// results read back.
 fn simulate(model: &Model, scratch: &Scratch) -> Result<(RunSummary, Results)> {

@@ -196,3 +196,25 @@ fn unusable_report_folder_is_refused() {
     }
     let _ = std::fs::remove_file(&file);
 }
+
+/// Linearised infiltration (exponential soil, surface at K = Ks): θ profiles and cumulative
+/// infiltration against the advection–diffusion solution in K (derived; Philip 1969,
+/// Warrick 1975 from memory); geometric face averaging at observed order 2 ± 0.2.
+#[test]
+fn linearised_infiltration_matches_advection_diffusion_in_k() {
+    check("linearised-infiltration");
+}
+
+/// Darcy through a column filled by ponding: steady flux Ks (Δh/L + 1), linear head and
+/// saturated storage within 1e-9 (exact on any mesh); filling-run water balance ≤ 1e-8.
+#[test]
+fn ponded_column_fills_to_the_darcy_steady_state() {
+    check("ponded-darcy-column");
+}
+
+/// Green & Ampt (1911), derived, with Neuman's (1976) front suction: cumulative ponded
+/// infiltration within 3 % at late time, the difference shrinking with time.
+#[test]
+fn ponded_infiltration_approaches_green_ampt() {
+    check("green-ampt");
+}

@@ -217,6 +217,111 @@ pub fn ogata_banks(x: f64, t: f64, v: f64, d: f64) -> f64 {
     0.5 * (erfc(um) + exp_erfc(v * x / d, up))
 }
 
+/// Infiltration from a surface held saturated (h = 0, K = Ks) into a semi-infinite column
+/// of an exponential (Gardner) soil, K = Ks e^(αh), θ = θr + (θs − θr) K/Ks, initially at a
+/// uniform head (K = Ki). In terms of K Richards' equation is linear (derived in
+/// `validation/linearised-infiltration/README.md`):
+/// `∂K/∂t = D ∂²K/∂z² − c ∂K/∂z`, `D = Ks/(α (θs − θr))` [m² s⁻¹], `c = Ks/(θs − θr)`
+/// [m s⁻¹], so `K = Ki + (Ks − Ki) u` with u the first-type advection–dispersion solution
+/// [`ogata_banks`] (the linearised problem of Philip 1969 and Warrick 1975, from memory;
+/// the solution is re-derived by Laplace transform in the README).
+#[derive(Debug, Clone, Copy)]
+pub struct LinearisedInfiltration {
+    /// Saturated conductivity Ks [m s⁻¹].
+    pub ks: f64,
+    /// Exponential coefficient α [m⁻¹].
+    pub alpha: f64,
+    /// θs − θr [m³ m⁻³].
+    pub dtheta: f64,
+    /// Initial head hi [m] (< 0).
+    pub h_initial: f64,
+}
+
+impl LinearisedInfiltration {
+    /// Drift c = Ks/(θs − θr) [m s⁻¹].
+    pub fn drift(&self) -> f64 {
+        self.ks / self.dtheta
+    }
+    /// Diffusivity D = Ks/(α (θs − θr)) [m² s⁻¹].
+    pub fn diffusivity(&self) -> f64 {
+        self.ks / (self.alpha * self.dtheta)
+    }
+    /// Initial conductivity Ki = Ks e^(α hi) [m s⁻¹].
+    pub fn k_initial(&self) -> f64 {
+        self.ks * (self.alpha * self.h_initial).exp()
+    }
+    /// u = (K − Ki)/(Ks − Ki) at depth z [m], time t > 0 [s].
+    pub fn u(&self, z: f64, t: f64) -> f64 {
+        ogata_banks(z, t, self.drift(), self.diffusivity())
+    }
+    /// Conductivity K [m s⁻¹].
+    pub fn conductivity(&self, z: f64, t: f64) -> f64 {
+        let ki = self.k_initial();
+        ki + (self.ks - ki) * self.u(z, t)
+    }
+    /// Liquid content above the initial one, θ − θi = (θs − θr)(K − Ki)/Ks [m³ m⁻³].
+    pub fn theta_gain(&self, z: f64, t: f64) -> f64 {
+        self.dtheta * (self.conductivity(z, t) - self.k_initial()) / self.ks
+    }
+    /// Head h = ln(K/Ks)/α [m].
+    pub fn head(&self, z: f64, t: f64) -> f64 {
+        (self.conductivity(z, t) / self.ks).ln() / self.alpha
+    }
+    /// ∫₀^∞ u dz [m], by composite Simpson quadrature of the exact profile over
+    /// [0, ct + 80√(Dt)] (u < 1e-300 beyond; 4000 intervals, the integrand is smooth on the
+    /// scale √(Dt)).
+    pub fn u_integral(&self, t: f64) -> f64 {
+        let (c, d) = (self.drift(), self.diffusivity());
+        let top = c * t + 80.0 * (d * t).sqrt();
+        let n = 4000;
+        let h = top / n as f64;
+        let mut s = self.u(0.0, t) + self.u(top, t);
+        for k in 1..n {
+            let w = if k % 2 == 1 { 4.0 } else { 2.0 };
+            s += w * self.u(k as f64 * h, t);
+        }
+        s * h / 3.0
+    }
+    /// Cumulative infiltration through the surface [m of water]: the water gained,
+    /// (θs − θr)(1 − Ki/Ks) ∫u dz, plus what drained below by gravity at Ki (the initial
+    /// state carries the unit-gradient flux Ki everywhere), Ki t.
+    pub fn infiltration(&self, t: f64) -> f64 {
+        self.dtheta * (1.0 - self.k_initial() / self.ks) * self.u_integral(t) + self.k_initial() * t
+    }
+    /// Infiltration rate at the surface [m s⁻¹]: q = K − (1/α) ∂K/∂z at z = 0 with
+    /// ∂u/∂z(0, t) = −e^(−b²)/√(π D t) + (c/2D) erfc(b), b = c√t/(2√D) (differentiating
+    /// [`ogata_banks`]).
+    pub fn rate(&self, t: f64) -> f64 {
+        let (c, d) = (self.drift(), self.diffusivity());
+        let b = c * t.sqrt() / (2.0 * d.sqrt());
+        let uz = -(-b * b).exp() / (PI * d * t).sqrt() + c / (2.0 * d) * erfc(b);
+        self.ks - (self.ks - self.k_initial()) * uz / self.alpha
+    }
+}
+
+/// Cumulative infiltration I [m] of Green & Ampt (1911) at time t [s]: a sharp wetting
+/// front at depth Zf behind which the soil is saturated (K = Ks), the pressure head −ψ at
+/// the front and h0 at the surface, so by Darcy q = dI/dt = Ks (ψ + h0 + Zf)/Zf with
+/// I = Δθ Zf; integrating from I(0) = 0 gives `Ks t = I − S ln(1 + I/S)`,
+/// S = (ψ + h0) Δθ [m] (derived in `validation/green-ampt/README.md`). Solved for I by
+/// bisection (the left side minus Ks t grows monotonically in I).
+pub fn green_ampt_infiltration(ks: f64, s: f64, t: f64) -> f64 {
+    let f = |i: f64| i - s * (i / s).ln_1p() - ks * t;
+    let (mut lo, mut hi) = (0.0, ks * t + (2.0 * s * ks * t).sqrt() + s);
+    while f(hi) < 0.0 {
+        hi *= 2.0;
+    }
+    for _ in 0..200 {
+        let mid = 0.5 * (lo + hi);
+        if f(mid) < 0.0 {
+            lo = mid;
+        } else {
+            hi = mid;
+        }
+    }
+    0.5 * (lo + hi)
+}
+
 /// Relative concentration c/cb of diffusion ∂c/∂t = D ∂²c/∂x² into a layer 0 < x < L,
 /// initially free of solute, with c = cb held at x = 0 and no flux at x = L, at distance
 /// `x` from the fixed face: the erfc solution of a semi-infinite medium (Crank 1975,
@@ -351,6 +456,63 @@ mod tests {
         assert!(((erfcx(1.5 - 1e-12) - erfcx(1.5)) / erfcx(1.5)).abs() < 1e-10);
         // erfcx(x) → 1/(x√π) for large x.
         assert!((erfcx(1e6) * 1e6 * PI.sqrt() - 1.0).abs() < 1e-9);
+    }
+
+    /// The linearised infiltration solution: K = Ks at the surface, Ki far below; the
+    /// cumulative infiltration's time derivative equals the surface rate (the K-equation
+    /// integrated over depth), which checks the quadrature and the rate formula together;
+    /// and Richards' equation in h itself, ∂θ/∂t = −∂/∂z[−K(∂h/∂z − 1)], by differences.
+    #[test]
+    fn linearised_infiltration_satisfies_richards_equation() {
+        let p = LinearisedInfiltration {
+            ks: 1e-6,
+            alpha: 1.0,
+            dtheta: 0.34,
+            h_initial: -10.0,
+        };
+        for t in [3.0e4, 1.0e5, 2.5e5] {
+            assert!((p.conductivity(0.0, t) - p.ks).abs() < 1e-12 * p.ks);
+            assert!((p.conductivity(9.0, t) - p.k_initial()).abs() < 1e-9 * p.ks);
+            let ht = 1.0;
+            let di = (p.infiltration(t + ht) - p.infiltration(t - ht)) / (2.0 * ht);
+            assert!(
+                (di - p.rate(t)).abs() < 1e-7 * p.rate(t),
+                "t {t}: {di} {}",
+                p.rate(t)
+            );
+            for z in [0.1, 0.5, 1.0, 2.0] {
+                let (hz, ht) = (1e-3, 10.0);
+                let dth = (p.theta_gain(z, t + ht) - p.theta_gain(z, t - ht)) / (2.0 * ht);
+                // Downward Darcy flux at depth zf, by differences of the exact K and h.
+                let q = |zf: f64| {
+                    let (a, b) = (zf - hz / 2.0, zf + hz / 2.0);
+                    let k = 0.5 * (p.conductivity(a, t) + p.conductivity(b, t));
+                    -k * ((p.head(b, t) - p.head(a, t)) / hz - 1.0)
+                };
+                let div = (q(z + hz / 2.0) - q(z - hz / 2.0)) / hz;
+                assert!(
+                    (dth + div).abs() < 1e-4 * dth.abs().max(1e-12),
+                    "z {z} t {t}: {dth} {div}"
+                );
+            }
+        }
+    }
+
+    /// Green & Ampt: the root solves its equation; early I ≈ √(2 S Ks t) (the ψ-dominated
+    /// limit of dI/dt = Ks S/I), late dI/dt → Ks (derived from the same equation).
+    #[test]
+    fn green_ampt_limits() {
+        let (ks, s) = (1e-5, 0.05);
+        for t in [1.0, 1e3, 1e5, 1e7] {
+            let i = green_ampt_infiltration(ks, s, t);
+            assert!((i - s * (i / s).ln_1p() - ks * t).abs() < 1e-12 * (ks * t).max(i));
+        }
+        let t = 1e-3;
+        let i = green_ampt_infiltration(ks, s, t);
+        assert!((i / (2.0 * s * ks * t).sqrt() - 1.0).abs() < 1e-3);
+        let rate =
+            (green_ampt_infiltration(ks, s, 1e9 + 1e3) - green_ampt_infiltration(ks, s, 1e9)) / 1e3;
+        assert!((rate / ks - 1.0).abs() < 1e-3, "{rate}");
     }
 
     /// The image series: c = cb at the fixed face, no flux at x = L, 0 initially.

@@ -49,10 +49,13 @@ mod closed_column_loop;
 mod drying_front;
 mod fick_vapour_diffusion;
 mod gardner_evaporation;
+mod green_ampt;
 mod kinetic_to_equilibrium;
+mod linearised_infiltration;
 mod mesh_order;
 mod moving_water_table;
 mod periodic_surface;
+mod ponded_darcy_column;
 mod ponding_cycle;
 mod root_uptake;
 mod solute_advection_dispersion;
@@ -71,10 +74,13 @@ use closed_column_loop::closed_column_loop;
 use drying_front::drying_front;
 use fick_vapour_diffusion::fick_vapour_diffusion;
 use gardner_evaporation::gardner_evaporation;
+use green_ampt::green_ampt;
 use kinetic_to_equilibrium::kinetic_to_equilibrium;
+use linearised_infiltration::linearised_infiltration;
 use mesh_order::mesh_order;
 use moving_water_table::moving_water_table;
 use periodic_surface::periodic_surface;
+use ponded_darcy_column::ponded_darcy_column;
 use ponding_cycle::ponding_cycle;
 use root_uptake::root_uptake;
 use solute_advection_dispersion::solute_advection_dispersion;
@@ -115,6 +121,21 @@ pub fn all() -> Vec<Case> {
             "srivastava-yeh-infiltration",
             "transient infiltration toward a water table (Srivastava & Yeh 1991)",
             srivastava_yeh_infiltration
+        ),
+        case!(
+            "linearised-infiltration",
+            "infiltration from a saturated surface, exponential soil: linear in K (Philip 1969; Warrick 1975)",
+            linearised_infiltration
+        ),
+        case!(
+            "ponded-darcy-column",
+            "a column filled by ponding to its saturated steady state: Darcy flux Ks (Δh/L + 1)",
+            ponded_darcy_column
+        ),
+        case!(
+            "green-ampt",
+            "ponded infiltration into a dry column: late-time consistency with Green & Ampt (1911)",
+            green_ampt
         ),
         case!(
             "fick-vapour-diffusion",
@@ -438,6 +459,25 @@ impl Results {
             .position(|t| (t - year).abs() <= 1e-9 * year.abs().max(1e-12))
             .unwrap_or_else(|| panic!("no snapshot at {year} yr"))
     }
+}
+
+/// The series record of an in-memory run at `year` (output times are landed on exactly).
+fn record_at(
+    rec: &crate::sim::Recorder,
+    year: f64,
+) -> Result<&crate::output::diagnostics::SeriesRecord> {
+    rec.series
+        .iter()
+        .find(|r| (r.time_year - year).abs() <= 1e-9 * year.abs())
+        .ok_or_else(|| Error::Internal(format!("no series record at {year} yr")))
+}
+
+/// The snapshot of an in-memory run at `year`.
+fn snapshot_at(rec: &crate::sim::Recorder, year: f64) -> Result<&crate::sim::Snapshot> {
+    rec.snapshots
+        .iter()
+        .find(|s| (s.time_year - year).abs() <= 1e-9 * year.abs())
+        .ok_or_else(|| Error::Internal(format!("no snapshot at {year} yr")))
 }
 
 /// Runs `model` through `run::run` into the scratch folder; returns the summary and the

@@ -276,7 +276,9 @@ impl System {
     /// with the state they were made at (see `derivs::Derivs`): a cell whose unknowns
     /// lie within 1e-7 relative of its kept state (head: relative to max(|h|, 0.01 m))
     /// takes its properties by linearisation, value + derivatives · change, and a face
-    /// whose two cells lie that near its kept state its fluxes likewise. The error is of
+    /// whose two cells lie that near its kept state its total fluxes likewise (its flux
+    /// parts, which only the results and the solutes read, are evaluated from the cell
+    /// values: the kept face records hold no derivatives of them). The error is of
     /// second order in the change, ~1e-16 relative times the square of the laws' slopes
     /// in log–log terms (about 18 for the saturation pressure in T, a few for the Mualem
     /// conductivity in h): at most ~2e-12 of the terms, 500 times below the Newton
@@ -329,10 +331,10 @@ impl System {
     }
 
     /// As [`System::evaluate`], with the derivatives the Jacobian needs; the values are
-    /// copied to the value workspace, so both agree bitwise.
+    /// copied to the value workspace, so both agree bitwise (a face that keeps its base
+    /// gets its flux parts at the base until [`System::complete_face_parts`]).
     pub fn evaluate_with_derivatives(&mut self, t: f64, u: &[f64]) {
-        self.with_kept_mut(|d, sys| d.evaluate(sys, t, u));
-        self.parts_left_out = false;
+        self.parts_left_out = self.with_kept_mut(|d, sys| d.evaluate(sys, t, u));
     }
 
     /// Storage per bulk volume of cell i: [energy J m⁻³, water kg m⁻³, vapour kg m⁻³],

@@ -18,7 +18,7 @@
 //! when the residual contracts by less than `refresh_rate` per iteration, when the linear
 //! solve fails, and when the caller invalidates it (the stepper does at every step).
 
-use super::blocktri::{zero_block, Block, BlockTri};
+use super::blocktri::{zero_block, Block, BlockTri, Scaled};
 use super::linear::{LinearError, LinearSolver};
 use super::problem::{BalanceScales, NonFinite, Problem, MAX_CONSERVED};
 
@@ -103,8 +103,6 @@ pub struct NewtonWork<const B: usize> {
     pub dx: Vec<f64>,
     pub row: Vec<f64>,
     pub col: Vec<f64>,
-    /// The scaled matrix handed to the linear solver.
-    pub jac: BlockTri<B>,
     /// The last (limited) update.
     pub step: Vec<f64>,
     /// The kept Jacobian, unscaled, evaluated with coefficient `jac_c`, and the storage
@@ -129,7 +127,6 @@ impl<const B: usize> NewtonWork<B> {
             dx: vec![0.0; B * n],
             row: vec![0.0; B * n],
             col: vec![0.0; B * n],
-            jac: BlockTri::new(n),
             step: vec![0.0; B * n],
             jac_raw: BlockTri::new(n),
             storage: vec![zero_block(); n],
@@ -269,8 +266,14 @@ pub fn solve<const B: usize, P: Problem<B> + ?Sized>(
             // by typical variable sizes; then factorise.
             let jc = w.jac_c.unwrap_or(c);
             sys.column_scales_into(u, &mut w.col);
-            scaled_copy(&w.jac_raw, &w.storage, c - jc, &w.row, &w.col, &mut w.jac);
-            if let Err(e) = lin.factor(&w.jac) {
+            let scaled = Scaled {
+                a: &w.jac_raw,
+                s: &w.storage,
+                dc: c - jc,
+                row: &w.row,
+                col: &w.col,
+            };
+            if let Err(e) = lin.factor_scaled(&scaled) {
                 w.invalidate();
                 if fresh {
                     return Err(NewtonFailure::Linear(e));
@@ -318,51 +321,4 @@ fn balance_closed<const B: usize, P: Problem<B> + ?Sized>(
     (0..nq).all(|k| {
         sum[k].abs() <= tol * (scales.moved[k] + top[k].abs() + bot[k].abs()) + scales.floor[k]
     })
-}
-
-/// `b = diag(row) (a + dc·S) diag(col)` in one pass, with `S` the diagonal storage blocks
-/// (same size; no allocation).
-fn scaled_copy<const B: usize>(
-    a: &BlockTri<B>,
-    s: &[Block<B>],
-    dc: f64,
-    row: &[f64],
-    col: &[f64],
-    b: &mut BlockTri<B>,
-) {
-    let n = a.n;
-    // One block: out = diag(rs) blk diag(cs).
-    let scaled = |blk: &Block<B>, rs: &[f64], cs: &[f64], out: &mut Block<B>| {
-        for r in 0..B {
-            for q in 0..B {
-                out[r][q] = blk[r][q] * (rs[r] * cs[q]);
-            }
-        }
-    };
-    for i in 0..n {
-        let rs = &row[B * i..B * i + B];
-        let cs = &col[B * i..B * i + B];
-        if dc != 0.0 {
-            let mut d = a.diag[i];
-            for (x, y) in d.iter_mut().zip(s[i].iter()) {
-                for (x, y) in x.iter_mut().zip(y.iter()) {
-                    *x += dc * y;
-                }
-            }
-            scaled(&d, rs, cs, &mut b.diag[i]);
-        } else {
-            scaled(&a.diag[i], rs, cs, &mut b.diag[i]);
-        }
-        if i > 0 {
-            scaled(&a.lower[i], rs, &col[B * (i - 1)..B * i], &mut b.lower[i]);
-        }
-        if i + 1 < n {
-            scaled(
-                &a.upper[i],
-                rs,
-                &col[B * (i + 1)..B * i + 2 * B],
-                &mut b.upper[i],
-            );
-        }
-    }
 }

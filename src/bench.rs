@@ -146,6 +146,35 @@ impl Row {
     }
 }
 
+/// The arrays a run of the reference case holds at its end (the multistep history full),
+/// in bytes per cell (see [`crate::memory`]).
+fn memory_per_cell(text: &str, origin: &str, base: &Path) -> Result<String> {
+    use crate::sim::{Begin, OutputPosition, Simulation, SyncPlan};
+    let model = crate::case::parse_with_overrides(text, origin, base, &[])?;
+    let u = initial_unknowns(&model, SolverKind::BlockThomas)?;
+    let begin = Begin::Unknowns {
+        t: model.time.start,
+        dt: model.time.dt_initial,
+        u,
+    };
+    let mut sim = Simulation::new(
+        &model,
+        SyncPlan::new(&model)?,
+        begin,
+        OutputPosition::default(),
+        SolverKind::BlockThomas,
+        None,
+    )?;
+    sim.start(&mut [], true)?;
+    sim.run_to_end(&mut [])?;
+    let cells = sim.system().n;
+    Ok(format!(
+        "memory per cell of the reference run's arrays (at its end; {} history points):\n{}",
+        sim.state().history.len(),
+        crate::memory::table(&sim.arrays(), cells)
+    ))
+}
+
 /// The overrides of a scaling run: `cells` uniform cells (the other mesh keys removed)
 /// over `span_years`.
 fn scaling_overrides(cells: usize, span_years: f64) -> Result<Vec<Override>> {
@@ -280,6 +309,7 @@ fn bench_in(
     if let Some(m) = peak_memory_mib() {
         let _ = writeln!(out, "peak memory {m:.1} MiB");
     }
+    out.push_str(&memory_per_cell(text, origin, base)?);
     if accuracy {
         let own_results = crate::plot::data::read(&own.join("results.h5"))?;
         out.push_str(&crate::accuracy::accuracy(

@@ -103,6 +103,8 @@ pub(super) trait Kept {
     fn complete_parts(&self, sys: &System, u: &[f64], faces: &mut [FaceFlux<0>]);
     fn jacobian_into(&self, sys: &System, c: f64, jac: &mut BlockTri<BLOCK>);
     fn storage_blocks_into(&self, sys: &System, out: &mut [Block<BLOCK>]);
+    /// The heap arrays of the kept evaluations (see [`crate::memory`]).
+    fn arrays(&self, out: &mut Vec<crate::memory::ArrayCost>);
 }
 
 impl<const N: usize, const M: usize> Derivs<N, M> {
@@ -455,6 +457,17 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
                 }
             }
         }
+    }
+
+    fn arrays(&self, out: &mut Vec<crate::memory::ArrayCost>) {
+        use crate::memory::push;
+        const OWNER: &str = "kept evaluations";
+        push(out, OWNER, "cell records (Dual)", &self.cells);
+        push(out, OWNER, "cell base states", &self.cell_base);
+        push(out, OWNER, "face parts at base", &self.faces);
+        push(out, OWNER, "face totals (Dual)", &self.totals);
+        push(out, OWNER, "face base states", &self.face_base);
+        push(out, OWNER, "face kept flags", &self.face_kept);
     }
 
     /// The storage-derivative blocks (see [`System::storage_jacobian_into`]).

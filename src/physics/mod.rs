@@ -216,6 +216,25 @@ impl System {
         self.forget_linearization();
     }
 
+    /// The heap arrays of the system and of its kept evaluations (see [`crate::memory`]).
+    pub fn arrays(&self, out: &mut Vec<crate::memory::ArrayCost>) {
+        use crate::memory::push;
+        const OWNER: &str = "system";
+        push(out, OWNER, "cell values", &self.cells);
+        push(out, OWNER, "face values", &self.faces);
+        push(out, OWNER, "face totals", &self.face_totals);
+        push(out, OWNER, "widths", &self.widths);
+        push(out, OWNER, "centres", &self.centers);
+        push(out, OWNER, "face depths", &self.faces_z);
+        push(out, OWNER, "distances above", &self.d_above);
+        push(out, OWNER, "distances below", &self.d_below);
+        push(out, OWNER, "cell soils", &self.cell_soil);
+        push(out, OWNER, "osmotic heads", &self.osmotic_head);
+        push(out, OWNER, "root uptake", &self.uptake);
+        self.d_full.arrays(out);
+        self.d_reduced.arrays(out);
+    }
+
     /// Drops the evaluations with derivatives kept as bases of linearised evaluations:
     /// the next evaluations compute every cell and face directly.
     pub fn forget_linearization(&mut self) {

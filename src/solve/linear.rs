@@ -34,6 +34,8 @@ pub trait LinearSolver<const B: usize> {
     /// Solves A x = b in place (b becomes x) with the last factorisation.
     fn solve(&mut self, b: &mut [f64]) -> Result<(), LinearError>;
     fn name(&self) -> &'static str;
+    /// The heap arrays of the solver (see [`crate::memory`]).
+    fn arrays(&self, out: &mut Vec<crate::memory::ArrayCost>);
 }
 
 /// Which linear solver a run uses.
@@ -425,6 +427,15 @@ impl<const B: usize> LinearSolver<B> for BlockThomas<B> {
     fn name(&self) -> &'static str {
         "block-tridiagonal"
     }
+
+    fn arrays(&self, out: &mut Vec<crate::memory::ArrayCost>) {
+        use crate::memory::push;
+        const OWNER: &str = "block-tridiagonal LU";
+        push(out, OWNER, "pivot inverses", &self.inv);
+        push(out, OWNER, "upper factors", &self.e);
+        push(out, OWNER, "lower blocks", &self.lower);
+        push(out, OWNER, "algebraic rows", &self.last);
+    }
 }
 
 /// Where a stored value of the sparse matrix comes from in a block-tridiagonal matrix:
@@ -647,5 +658,15 @@ impl<const B: usize> LinearSolver<B> for SparseLu {
 
     fn name(&self) -> &'static str {
         "sparse-lu"
+    }
+
+    fn arrays(&self, out: &mut Vec<crate::memory::ArrayCost>) {
+        use crate::memory::push;
+        const OWNER: &str = "sparse LU";
+        push(out, OWNER, "pattern and values", &self.col_ptr);
+        push(out, OWNER, "pattern and values", &self.row_idx);
+        push(out, OWNER, "pattern and values", &self.values);
+        push(out, OWNER, "pattern and values", &self.source);
+        // (faer's numeric factors and work buffers are not counted here.)
     }
 }

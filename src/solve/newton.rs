@@ -99,8 +99,8 @@ pub enum NewtonFailure {
 /// Work arrays, allocated once per run.
 pub struct NewtonWork<const B: usize> {
     pub res: Vec<f64>,
-    pub scale: Vec<f64>,
     pub dx: Vec<f64>,
+    /// The reciprocal row scales of the convergence test (the row scaling of the matrix).
     pub row: Vec<f64>,
     pub col: Vec<f64>,
     /// The last (limited) update.
@@ -123,7 +123,6 @@ impl<const B: usize> NewtonWork<B> {
     pub fn new(n: usize) -> Self {
         NewtonWork {
             res: vec![0.0; B * n],
-            scale: vec![0.0; B * n],
             dx: vec![0.0; B * n],
             row: vec![0.0; B * n],
             col: vec![0.0; B * n],
@@ -134,6 +133,19 @@ impl<const B: usize> NewtonWork<B> {
             factor_c: None,
             scale_c: None,
             balance_scales: BalanceScales::default(),
+        }
+    }
+
+    /// The heap arrays of the work space (see [`crate::memory`]).
+    pub fn arrays(&self, out: &mut Vec<crate::memory::ArrayCost>) {
+        use crate::memory::push;
+        const OWNER: &str = "Newton";
+        push(out, OWNER, "Jacobian, lower blocks", &self.jac_raw.lower);
+        push(out, OWNER, "Jacobian, diagonal blocks", &self.jac_raw.diag);
+        push(out, OWNER, "Jacobian, upper blocks", &self.jac_raw.upper);
+        push(out, OWNER, "storage blocks", &self.storage);
+        for v in [&self.res, &self.dx, &self.row, &self.col, &self.step] {
+            push(out, OWNER, "vectors (5)", v);
         }
     }
 
@@ -212,11 +224,11 @@ pub fn solve<const B: usize, P: Problem<B> + ?Sized>(
         // where the Jacobian was evaluated and kept over the iterations that reuse it
         // (for the same coefficient), as an error weight is kept over a step.
         if fresh || w.scale_c != Some(c) {
-            w.balance_scales =
-                sys.convergence_scales_into(c, hist, opts.residual_tol, &mut w.scale);
+            w.balance_scales = sys.convergence_scales_into(c, hist, opts.residual_tol, &mut w.row);
             w.scale_c = Some(c);
-            for (r, s) in w.row.iter_mut().zip(w.scale.iter()) {
-                *r = 1.0 / s;
+            // The reciprocal scales, in place.
+            for r in w.row.iter_mut() {
+                *r = 1.0 / *r;
             }
         }
         let (r, cell, row) = worst::<B>(&w.res, &w.row);

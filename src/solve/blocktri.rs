@@ -101,6 +101,19 @@ pub trait BlockSource<const B: usize> {
     /// One entry: of the lower (`kind` 0), diagonal (1) or upper (2) block `i`, at row
     /// `r` and column `c`.
     fn entry(&self, kind: u8, i: usize, r: usize, c: usize) -> f64;
+    /// Whether the last unknown of every block is decoupled: it appears in no other row
+    /// than its own, and its own row couples only within the block.
+    fn last_decoupled(&self) -> bool {
+        if B < 2 {
+            return false;
+        }
+        let m = B - 1;
+        let off = |b: &Block<B>| b[m].iter().all(|&x| x == 0.0) && b.iter().all(|r| r[m] == 0.0);
+        let n = self.blocks();
+        (0..n).all(|i| self.diag(i)[..m].iter().all(|r| r[m] == 0.0))
+            && (0..n).all(|i| off(&self.lower(i)))
+            && (0..n).all(|i| off(&self.upper(i)))
+    }
 }
 
 impl<const B: usize> BlockSource<B> for BlockTri<B> {
@@ -144,7 +157,7 @@ pub struct Scaled<'a, const B: usize> {
 
 impl<const B: usize> Scaled<'_, B> {
     /// out = diag(rs) blk diag(cs).
-    #[inline]
+    #[inline(always)]
     fn scaled(blk: &Block<B>, rs: &[f64], cs: &[f64]) -> Block<B> {
         let mut out = zero_block();
         for r in 0..B {
@@ -155,7 +168,7 @@ impl<const B: usize> Scaled<'_, B> {
         out
     }
     /// The unscaled diagonal block A_ii + dc·S_i.
-    #[inline]
+    #[inline(always)]
     fn shifted_diag(&self, i: usize) -> Block<B> {
         let mut d = self.a.diag[i];
         if self.dc != 0.0 {
@@ -182,12 +195,12 @@ impl<const B: usize> BlockSource<B> for Scaled<'_, B> {
     fn blocks(&self) -> usize {
         self.a.n
     }
-    #[inline]
+    #[inline(always)]
     fn diag(&self, i: usize) -> Block<B> {
         let rs = &self.row[B * i..B * i + B];
         Self::scaled(&self.shifted_diag(i), rs, &self.col[B * i..B * i + B])
     }
-    #[inline]
+    #[inline(always)]
     fn lower(&self, i: usize) -> Block<B> {
         if i == 0 {
             return zero_block();
@@ -195,13 +208,26 @@ impl<const B: usize> BlockSource<B> for Scaled<'_, B> {
         let rs = &self.row[B * i..B * i + B];
         Self::scaled(&self.a.lower[i], rs, &self.col[B * (i - 1)..B * i])
     }
-    #[inline]
+    #[inline(always)]
     fn upper(&self, i: usize) -> Block<B> {
         if i + 1 >= self.a.n {
             return zero_block();
         }
         let rs = &self.row[B * i..B * i + B];
         Self::scaled(&self.a.upper[i], rs, &self.col[B * (i + 1)..B * i + 2 * B])
+    }
+    /// From the unscaled blocks (the row and column scales are nonzero): a zero of
+    /// A + dc·S is a zero of the scaled matrix.
+    fn last_decoupled(&self) -> bool {
+        if B < 2 {
+            return false;
+        }
+        let m = B - 1;
+        let off = |b: &Block<B>| b[m].iter().all(|&x| x == 0.0) && b.iter().all(|r| r[m] == 0.0);
+        let a = self.a;
+        (0..a.n).all(|i| self.shifted_diag(i)[..m].iter().all(|r| r[m] == 0.0))
+            && a.lower[1..].iter().all(off)
+            && a.upper[..a.n.saturating_sub(1)].iter().all(off)
     }
     fn entry(&self, kind: u8, i: usize, r: usize, c: usize) -> f64 {
         let (v, cb) = match kind {

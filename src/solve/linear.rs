@@ -214,19 +214,6 @@ impl<const B: usize> BlockThomas<B> {
         }
     }
 
-    /// Whether the last unknown of every block is decoupled (see the type's doc).
-    fn decoupled<S: BlockSource<B>>(a: &S) -> bool {
-        if B < 2 {
-            return false;
-        }
-        let m = B - 1;
-        let off = |b: &Block<B>| b[m].iter().all(|&x| x == 0.0) && b.iter().all(|r| r[m] == 0.0);
-        let n = a.blocks();
-        (0..n).all(|i| a.diag(i)[..m].iter().all(|r| r[m] == 0.0))
-            && (0..n).all(|i| off(&a.lower(i)))
-            && (0..n).all(|i| off(&a.upper(i)))
-    }
-
     /// Inverse of the leading (B−1)×(B−1) part of `bp` (the rest zero), or `None` when
     /// it is singular. For 2×2: by the adjugate, with the determinant's size judged
     /// against the entries; otherwise by pivoted LU of the block with a unit last pivot.
@@ -354,7 +341,7 @@ impl<const B: usize> BlockThomas<B> {
         if a.blocks() != self.n {
             return Err(LinearError::Pattern);
         }
-        self.reduced = Self::decoupled(a);
+        self.reduced = a.last_decoupled();
         if self.reduced {
             return self.factor_reduced(a);
         }

@@ -435,6 +435,11 @@ impl<'m> Simulation<'m> {
         out
     }
 
+    /// The stepper state, the simulation given up (see [`Simulation::state`]).
+    pub fn into_state(self) -> StepState {
+        self.st.state
+    }
+
     pub fn system(&self) -> &System {
         &self.sys
     }

@@ -136,6 +136,45 @@ fn measure(label: &str, w: &Workload, out: &Path, repeat: usize) -> Result<Row> 
     })
 }
 
+impl Row {
+    /// The run's wall time per Newton iteration (everything included: assembly, property
+    /// evaluation, the linear solve, the stepper, the output) over one bare
+    /// block-tridiagonal factorise + solve of the same size: how far an iteration is from
+    /// the floor set by the linear algebra.
+    fn per_iteration_ratio(&self) -> f64 {
+        self.wall / self.newton.max(1) as f64 / self.thomas
+    }
+}
+
+/// The arrays a run of the reference case holds at its end (the multistep history full),
+/// in bytes per cell (see [`crate::memory`]).
+fn memory_per_cell(text: &str, origin: &str, base: &Path) -> Result<String> {
+    use crate::sim::{Begin, OutputPosition, Simulation, SyncPlan};
+    let model = crate::case::parse_with_overrides(text, origin, base, &[])?;
+    let u = initial_unknowns(&model, SolverKind::BlockThomas)?;
+    let begin = Begin::Unknowns {
+        t: model.time.start,
+        dt: model.time.dt_initial,
+        u,
+    };
+    let mut sim = Simulation::new(
+        &model,
+        SyncPlan::new(&model)?,
+        begin,
+        OutputPosition::default(),
+        SolverKind::BlockThomas,
+        None,
+    )?;
+    sim.start(&mut [], true)?;
+    sim.run_to_end(&mut [])?;
+    let cells = sim.system().n;
+    Ok(format!(
+        "memory per cell of the reference run's arrays (at its end; {} history points):\n{}",
+        sim.state().history.len(),
+        crate::memory::table(&sim.arrays(), cells)
+    ))
+}
+
 /// The overrides of a scaling run: `cells` uniform cells (the other mesh keys removed)
 /// over `span_years`.
 fn scaling_overrides(cells: usize, span_years: f64) -> Result<Vec<Override>> {
@@ -226,7 +265,7 @@ fn bench_in(
     );
     let _ = writeln!(
         out,
-        "{:<16} {:>7} {:>9} {:>10} {:>7} {:>8} {:>9} {:>12} {:>12} {:>12} {:>12} {:>12} {:>12}",
+        "{:<16} {:>7} {:>9} {:>10} {:>7} {:>8} {:>9} {:>12} {:>12} {:>12} {:>12} {:>12} {:>12} {:>9}",
         "workload",
         "cells",
         "wall [s]",
@@ -239,13 +278,14 @@ fn bench_in(
         "assembly µs",
         "residual µs",
         "thomas µs",
-        "sparse-lu µs"
+        "sparse-lu µs",
+        "it/solve"
     );
     for r in &rows {
         let per_it_cell = r.wall / r.newton.max(1) as f64 / r.cells as f64 * 1e6;
         let _ = writeln!(
             out,
-            "{:<16} {:>7} {:>9.3} {:>10.3} {:>7} {:>8} {:>9} {:>12.3} {:>12.3} {:>12.1} {:>12.1} {:>12.1} {:>12.1}",
+            "{:<16} {:>7} {:>9.3} {:>10.3} {:>7} {:>8} {:>9} {:>12.3} {:>12.3} {:>12.1} {:>12.1} {:>12.1} {:>12.1} {:>9.1}",
             r.label,
             r.cells,
             r.wall,
@@ -258,16 +298,18 @@ fn bench_in(
             r.assembly * 1e6,
             r.residual * 1e6,
             r.thomas * 1e6,
-            r.sparse * 1e6
+            r.sparse * 1e6,
+            r.per_iteration_ratio()
         );
     }
     let _ = writeln!(
         out,
-        "(assembly: one residual + exact Jacobian, evaluated afresh; residual: the residual alone, afresh; thomas / sparse-lu: one bare factorise + solve of the same system)"
+        "(assembly: one residual + exact Jacobian, evaluated afresh; residual: the residual alone, afresh; thomas / sparse-lu: one bare factorise + solve of the same system; it/solve: the run's cost per Newton iteration, all included, over the bare block-tridiagonal factorise + solve)"
     );
     if let Some(m) = peak_memory_mib() {
         let _ = writeln!(out, "peak memory {m:.1} MiB");
     }
+    out.push_str(&memory_per_cell(text, origin, base)?);
     if accuracy {
         let own_results = crate::plot::data::read(&own.join("results.h5"))?;
         out.push_str(&crate::accuracy::accuracy(

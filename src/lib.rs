@@ -33,6 +33,7 @@ pub mod error;
 pub mod export;
 pub mod fit;
 pub mod inspect;
+pub mod memory;
 pub mod mesh;
 pub mod model;
 pub mod output;

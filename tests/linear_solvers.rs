@@ -3,7 +3,7 @@
 //! algebra; common practice). The sparse LU also takes a general pattern assembled with
 //! `sprs`, checked against the dense solution of the same system.
 
-use deepdry::solve::blocktri::BlockTri;
+use deepdry::solve::blocktri::{Block, BlockTri, Scaled};
 use deepdry::solve::linear::{BlockThomas, LinearError, LinearSolver, SparseLu};
 use sprs::TriMat;
 
@@ -129,6 +129,70 @@ fn block_thomas_and_sparse_lu_agree_for_block_sizes_1_to_4() {
     agree::<2>();
     agree::<3>();
     agree::<4>();
+}
+
+/// The scaled Newton matrix diag(row) (A + dc·S) diag(col), read block by block by
+/// `factor_scaled`, gives bitwise the solution of the same matrix stored and factorised
+/// with `factor`, for both solvers and both patterns (general and decoupled).
+fn scaled_agrees<const B: usize>(decoupled: bool) {
+    let n = 9;
+    let (a, b) = if decoupled {
+        decoupled_system::<B>(n, 17)
+    } else {
+        random_system::<B>(n, 17)
+    };
+    let mut rng = Rng(99);
+    // Storage blocks with the pattern of the diagonal (zero where it is zero).
+    let s: Vec<Block<B>> = a
+        .diag
+        .iter()
+        .map(|d| d.map(|r| r.map(|x| if x == 0.0 { 0.0 } else { rng.next() })))
+        .collect();
+    let row: Vec<f64> = (0..B * n).map(|_| 1.5 + rng.next()).collect();
+    let col: Vec<f64> = (0..B * n).map(|_| 1.5 + rng.next()).collect();
+    for dc in [0.0, 0.7] {
+        let m = Scaled {
+            a: &a,
+            s: &s,
+            dc,
+            row: &row,
+            col: &col,
+        };
+        let mut stored = BlockTri::<B>::new(n);
+        m.into_matrix(&mut stored);
+        // The stored copy is what its definition says, entry by entry.
+        for i in 0..n {
+            for r in 0..B {
+                for c in 0..B {
+                    let d = (a.diag[i][r][c] + dc * s[i][r][c]) * row[B * i + r] * col[B * i + c];
+                    assert!((stored.diag[i][r][c] - d).abs() <= 1e-14 * d.abs().max(1.0));
+                }
+            }
+        }
+        let solvers: Vec<Box<dyn Fn() -> Box<dyn LinearSolver<B>>>> = vec![
+            Box::new(move || Box::new(BlockThomas::<B>::new(n))),
+            Box::new(move || Box::new(SparseLu::block_tridiagonal(B, n))),
+        ];
+        for make in &solvers {
+            let (mut one, mut two) = (make(), make());
+            one.factor(&stored).unwrap();
+            two.factor_scaled(&m).unwrap();
+            let (mut x1, mut x2) = (b.clone(), b.clone());
+            one.solve(&mut x1).unwrap();
+            two.solve(&mut x2).unwrap();
+            assert_eq!(x1, x2, "{} B = {B} dc = {dc}", one.name());
+            assert!(residual(&stored, &x1, &b) < 1e-10);
+        }
+    }
+}
+
+#[test]
+fn factorising_the_scaled_matrix_block_by_block_equals_factorising_it_stored() {
+    scaled_agrees::<1>(false);
+    scaled_agrees::<2>(false);
+    scaled_agrees::<3>(false);
+    scaled_agrees::<3>(true);
+    scaled_agrees::<4>(true);
 }
 
 #[test]

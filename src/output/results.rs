@@ -500,10 +500,12 @@ impl ResultsFile {
             )));
         }
         let e = h5(path);
-        let file = File::create(path).map_err(|err| match in_use_message(path, &err) {
-            Some(m) => Error::Io(m),
-            None => e(err),
-        })?;
+        let file = super::h5util::with_small_chunk_cache()
+            .create(path)
+            .map_err(|err| match in_use_message(path, &err) {
+                Some(m) => Error::Io(m),
+                None => e(err),
+            })?;
         let root = file.as_group().map_err(&e)?;
         attr_str(&root, "kind", RESULTS_KIND).map_err(&e)?;
         attr_str(&root, "title", &model.title).map_err(&e)?;
@@ -623,10 +625,12 @@ impl ResultsFile {
                 super::h5util::short_error(&err)
             ))
         };
-        let file = File::open_rw(path).map_err(|err| match in_use_message(path, &err) {
-            Some(m) => Error::Io(m),
-            None => h5err(err),
-        })?;
+        let file = super::h5util::with_small_chunk_cache()
+            .open_rw(path)
+            .map_err(|err| match in_use_message(path, &err) {
+                Some(m) => Error::Io(m),
+                None => h5err(err),
+            })?;
         let root = file.as_group().map_err(h5err)?;
         let kind = super::h5util::read_attr_str(&root, "kind").unwrap_or_default();
         if kind != RESULTS_KIND {

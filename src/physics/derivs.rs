@@ -51,11 +51,16 @@ fn change<const N: usize>(x: &[f64], x0: &[f64]) -> [f64; N] {
 /// linearised to the current state). So every base entry is a direct evaluation at its
 /// base state, a pure function of the base states: restoring them restores it exactly
 /// ([`Derivs::restore`], for resuming a run).
+///
+/// Of a face, only its totals (the residual's terms) keep their derivatives; its flux
+/// parts are kept as values at the base (for the magnitudes of the convergence scales),
+/// and the parts of a linearised face are evaluated directly from its cells when asked
+/// for ([`Kept::complete_parts`]).
 #[derive(Debug, Clone)]
 pub(super) struct Derivs<const N: usize, const M: usize> {
     cells: Vec<CellProps<N>>,
     cell_base: Vec<f64>,
-    faces: Vec<FaceFlux<M>>,
+    faces: Vec<FaceFlux<0>>,
     totals: Vec<[Dual<M>; BLOCK]>,
     face_base: Vec<[f64; 6]>,
     /// Scratch: per face, whether it keeps its base.
@@ -81,7 +86,9 @@ pub(super) trait Kept {
     fn forget(&mut self);
     fn bases(&self) -> (Vec<f64>, Vec<f64>);
     fn restore(&mut self, sys: &System, cells: &[f64], faces: &[f64]);
-    fn evaluate(&mut self, sys: &mut System, t: f64, u: &[f64]);
+    /// Returns whether some face kept its base (its flux parts are then those of the
+    /// base, to be completed by [`Kept::complete_parts`]).
+    fn evaluate(&mut self, sys: &mut System, t: f64, u: &[f64]) -> bool;
     #[allow(clippy::too_many_arguments)]
     fn linearised(
         &self,
@@ -96,6 +103,8 @@ pub(super) trait Kept {
     fn complete_parts(&self, sys: &System, u: &[f64], faces: &mut [FaceFlux<0>]);
     fn jacobian_into(&self, sys: &System, c: f64, jac: &mut BlockTri<BLOCK>);
     fn storage_blocks_into(&self, sys: &System, out: &mut [Block<BLOCK>]);
+    /// The heap arrays of the kept evaluations (see [`crate::memory`]).
+    fn arrays(&self, out: &mut Vec<crate::memory::ArrayCost>);
 }
 
 impl<const N: usize, const M: usize> Derivs<N, M> {
@@ -131,6 +140,34 @@ impl<const N: usize, const M: usize> Derivs<N, M> {
         let b = &self.face_base[j];
         near(&u[BLOCK * (j - 1)..BLOCK * j], &b[..BLOCK], Self::WITH_RV)
             && near(&u[BLOCK * j..BLOCK * j + BLOCK], &b[BLOCK..], Self::WITH_RV)
+    }
+
+    /// The flux parts of interior face `j` evaluated directly from the values `up`, `lo`
+    /// of its cells, with the round-off scales of its base (which the convergence test
+    /// reads whether the parts are completed or not).
+    #[inline]
+    fn parts_at(
+        &self,
+        sys: &System,
+        j: usize,
+        up: &CellProps<0>,
+        lo: &CellProps<0>,
+    ) -> FaceFlux<0> {
+        let base = &self.faces[j];
+        let mut f: FaceFlux<0> = face_flux(
+            up,
+            lo,
+            0,
+            0,
+            sys.d_below[j - 1],
+            sys.d_above[j],
+            sys.physics.face_conductivity,
+        );
+        f.scale_water = base.scale_water;
+        f.scale_energy = base.scale_energy;
+        f.operands_water = base.operands_water;
+        f.operands_energy = base.operands_energy;
+        f
     }
 
     /// Face `j`'s totals linearised to the change `du` from its base.
@@ -204,7 +241,7 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
                     avg,
                 );
                 self.totals[j] = f.totals();
-                self.faces[j] = f;
+                self.faces[j] = f.values();
                 self.face_base[j].copy_from_slice(x);
             }
         }
@@ -212,9 +249,10 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
 
     /// Evaluates `sys` at (t, u) with derivatives (re-evaluating what moved, see the
     /// type's doc) and writes the values into its value workspace.
-    fn evaluate(&mut self, sys: &mut System, t: f64, u: &[f64]) {
+    fn evaluate(&mut self, sys: &mut System, t: f64, u: &[f64]) -> bool {
         let n = sys.n;
         self.allocate(sys);
+        let mut any_kept = false;
         // Faces that keep their base: both cells near the face's base. Boundary faces
         // depend on time and are always evaluated.
         self.face_kept[0] = false;
@@ -249,8 +287,11 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
         for j in 1..n {
             if self.face_kept[j] {
                 let du = self.face_change(j, u);
-                self.faces[j].taylor_into(&du, &mut sys.faces[j]);
+                // The parts at the base (their scales are what the convergence test
+                // reads), completed at `u` on demand.
+                sys.faces[j] = self.faces[j];
                 sys.face_totals[j] = self.totals_at(j, &du);
+                any_kept = true;
             } else {
                 let f = face_flux(
                     &self.cells[j - 1],
@@ -262,10 +303,10 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
                     avg,
                 );
                 self.totals[j] = f.totals();
-                self.faces[j] = f;
+                self.faces[j] = f.values();
                 self.face_base[j][..BLOCK].copy_from_slice(&u[BLOCK * (j - 1)..BLOCK * j]);
                 self.face_base[j][BLOCK..].copy_from_slice(&u[BLOCK * j..BLOCK * j + BLOCK]);
-                sys.faces[j] = f.values();
+                sys.faces[j] = self.faces[j];
                 sys.face_totals[j] = value_totals(&self.totals[j]);
             }
         }
@@ -274,10 +315,11 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
         let bottom = sys.bottom_face(t, &self.cells[n - 1]);
         for (j, f) in [(0, top), (n, bottom)] {
             self.totals[j] = f.totals();
-            self.faces[j] = f;
-            sys.faces[j] = f.values();
+            self.faces[j] = f.values();
+            sys.faces[j] = self.faces[j];
             sys.face_totals[j] = value_totals(&self.totals[j]);
         }
+        any_kept
     }
 
     /// The value evaluation at (t, u): cells and faces near their bases by
@@ -320,7 +362,7 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
             if self.face_near(j, u) {
                 let du = self.face_change(j, u);
                 if parts {
-                    self.faces[j].taylor_into(&du, &mut faces[j]);
+                    faces[j] = self.parts_at(sys, j, &cells[j - 1], &cells[j]);
                 }
                 totals[j] = self.totals_at(j, &du);
             } else {
@@ -356,7 +398,7 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
         }
         for j in 1..sys.n {
             if self.face_near(j, u) {
-                self.faces[j].taylor_into(&self.face_change(j, u), &mut faces[j]);
+                faces[j] = self.parts_at(sys, j, &sys.cells[j - 1], &sys.cells[j]);
             }
         }
     }
@@ -416,6 +458,17 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
                 }
             }
         }
+    }
+
+    fn arrays(&self, out: &mut Vec<crate::memory::ArrayCost>) {
+        use crate::memory::push;
+        const OWNER: &str = "kept evaluations";
+        push(out, OWNER, "cell records (Dual)", &self.cells);
+        push(out, OWNER, "cell base states", &self.cell_base);
+        push(out, OWNER, "face parts at base", &self.faces);
+        push(out, OWNER, "face totals (Dual)", &self.totals);
+        push(out, OWNER, "face base states", &self.face_base);
+        push(out, OWNER, "face kept flags", &self.face_kept);
     }
 
     /// The storage-derivative blocks (see [`System::storage_jacobian_into`]).

@@ -208,21 +208,6 @@ pub fn face_flux<const N: usize, const M: usize>(
 }
 
 impl<const M: usize> FaceFlux<M> {
-    /// The fluxes with the unknowns of the two points displaced by `du` (slots as the
-    /// derivatives), to first order, into `out`; the magnitudes are kept.
-    pub fn taylor_into(&self, du: &[f64; M], out: &mut FaceFlux<0>) {
-        out.liquid_iso = self.liquid_iso.taylor(du);
-        out.liquid_th = self.liquid_th.taylor(du);
-        out.vapor_iso = self.vapor_iso.taylor(du);
-        out.vapor_th = self.vapor_th.taylor(du);
-        out.conduction = self.conduction.taylor(du);
-        out.t_face = self.t_face.taylor(du);
-        out.scale_water = self.scale_water;
-        out.scale_energy = self.scale_energy;
-        out.operands_water = self.operands_water;
-        out.operands_energy = self.operands_energy;
-    }
-
     /// The values alone (what the residual-only path computes).
     pub fn values(&self) -> FaceFlux<0> {
         FaceFlux {

@@ -336,6 +336,25 @@ impl System {
         self.forget_linearization();
     }
 
+    /// The heap arrays of the system and of its kept evaluations (see [`crate::memory`]).
+    pub fn arrays(&self, out: &mut Vec<crate::memory::ArrayCost>) {
+        use crate::memory::push;
+        const OWNER: &str = "system";
+        push(out, OWNER, "cell values", &self.cells);
+        push(out, OWNER, "face values", &self.faces);
+        push(out, OWNER, "face totals", &self.face_totals);
+        push(out, OWNER, "widths", &self.widths);
+        push(out, OWNER, "centres", &self.centers);
+        push(out, OWNER, "face depths", &self.faces_z);
+        push(out, OWNER, "distances above", &self.d_above);
+        push(out, OWNER, "distances below", &self.d_below);
+        push(out, OWNER, "cell soils", &self.cell_soil);
+        push(out, OWNER, "osmotic heads", &self.osmotic_head);
+        push(out, OWNER, "root uptake", &self.uptake);
+        self.d_full.arrays(out);
+        self.d_reduced.arrays(out);
+    }
+
     /// Drops the evaluations with derivatives kept as bases of linearised evaluations:
     /// the next evaluations compute every cell and face directly.
     pub fn forget_linearization(&mut self) {
@@ -396,7 +415,9 @@ impl System {
     /// with the state they were made at (see `derivs::Derivs`): a cell whose unknowns
     /// lie within 1e-7 relative of its kept state (head: relative to max(|h|, 0.01 m))
     /// takes its properties by linearisation, value + derivatives · change, and a face
-    /// whose two cells lie that near its kept state its fluxes likewise. The error is of
+    /// whose two cells lie that near its kept state its total fluxes likewise (its flux
+    /// parts, which only the results and the solutes read, are evaluated from the cell
+    /// values: the kept face records hold no derivatives of them). The error is of
     /// second order in the change, ~1e-16 relative times the square of the laws' slopes
     /// in log–log terms (about 18 for the saturation pressure in T, a few for the Mualem
     /// conductivity in h): at most ~2e-12 of the terms, 500 times below the Newton
@@ -449,10 +470,10 @@ impl System {
     }
 
     /// As [`System::evaluate`], with the derivatives the Jacobian needs; the values are
-    /// copied to the value workspace, so both agree bitwise.
+    /// copied to the value workspace, so both agree bitwise (a face that keeps its base
+    /// gets its flux parts at the base until [`System::complete_face_parts`]).
     pub fn evaluate_with_derivatives(&mut self, t: f64, u: &[f64]) {
-        self.with_kept_mut(|d, sys| d.evaluate(sys, t, u));
-        self.parts_left_out = false;
+        self.parts_left_out = self.with_kept_mut(|d, sys| d.evaluate(sys, t, u));
     }
 
     /// Storage per bulk volume of cell i: [energy J m⁻³, water kg m⁻³, vapour kg m⁻³],

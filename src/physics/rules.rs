@@ -204,8 +204,10 @@ impl Problem<BLOCK> for System {
         small
     }
 
-    fn accept(&mut self, u: &[f64]) {
-        self.complete_face_parts(u);
+    fn accept(&mut self, _u: &[f64]) {
+        // The flux parts of linearised interior faces stay left out: no step needs them,
+        // and their readers complete them first (`System::complete_face_parts`: the
+        // solutes; the profiles come from a direct evaluation).
     }
 
     fn limit_prediction(&self, predicted: &mut [f64], old: &[f64]) {

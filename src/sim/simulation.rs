@@ -443,6 +443,38 @@ impl<'m> Simulation<'m> {
         self.model
     }
     /// The system, as last evaluated.
+    /// The heap arrays of the run's per-cell state: the system, the stepper (with Newton
+    /// and the linear solver) and the snapshot buffers; the solutes' are not listed (see
+    /// [`crate::memory`]).
+    pub fn arrays(&self) -> Vec<crate::memory::ArrayCost> {
+        use crate::memory::push;
+        let mut out = Vec::new();
+        self.sys.arrays(&mut out);
+        self.st.arrays(&mut out);
+        let p = &self.profile;
+        for v in [
+            &p.temperature_c,
+            &p.head,
+            &p.liquid_content,
+            &p.vapor_density,
+            &p.relative_humidity,
+            &p.liquid_iso,
+            &p.liquid_th,
+            &p.vapor_iso,
+            &p.vapor_th,
+            &p.heat,
+            &p.root_water_uptake,
+        ] {
+            push(&mut out, "snapshot buffers", "profiles", v);
+        }
+        out
+    }
+
+    /// The stepper state, the simulation given up (see [`Simulation::state`]).
+    pub fn into_state(self) -> StepState {
+        self.st.state
+    }
+
     pub fn system(&self) -> &System {
         &self.sys
     }

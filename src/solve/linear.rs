@@ -6,7 +6,7 @@
 //!   general path (any sparsity pattern, assembled with `sprs`) and the reference the
 //!   fast path is tested against.
 
-use super::blocktri::{zero_block, Block, BlockTri};
+use super::blocktri::{zero_block, Block, BlockSource, BlockTri, Scaled};
 use faer::dyn_stack::{MemBuffer, MemStack};
 use faer::sparse::linalg::lu::{factorize_symbolic_lu, NumericLu, SymbolicLu};
 use faer::sparse::{SparseColMatRef, SymbolicSparseColMatRef};
@@ -28,9 +28,14 @@ pub enum LinearError {
 pub trait LinearSolver<const B: usize> {
     /// Numeric factorisation of `a` (same pattern on every call).
     fn factor(&mut self, a: &BlockTri<B>) -> Result<(), LinearError>;
+    /// Numeric factorisation of the scaled Newton matrix `m`, read block by block (the
+    /// same result as factorising it stored, without storing it).
+    fn factor_scaled(&mut self, m: &Scaled<B>) -> Result<(), LinearError>;
     /// Solves A x = b in place (b becomes x) with the last factorisation.
     fn solve(&mut self, b: &mut [f64]) -> Result<(), LinearError>;
     fn name(&self) -> &'static str;
+    /// The heap arrays of the solver (see [`crate::memory`]).
+    fn arrays(&self, out: &mut Vec<crate::memory::ArrayCost>);
 }
 
 /// Which linear solver a run uses.
@@ -209,18 +214,6 @@ impl<const B: usize> BlockThomas<B> {
         }
     }
 
-    /// Whether the last unknown of every block is decoupled (see the type's doc).
-    fn decoupled(a: &BlockTri<B>) -> bool {
-        if B < 2 {
-            return false;
-        }
-        let m = B - 1;
-        let off = |b: &Block<B>| b[m].iter().all(|&x| x == 0.0) && b.iter().all(|r| r[m] == 0.0);
-        (0..a.n).all(|i| a.diag[i][..m].iter().all(|r| r[m] == 0.0))
-            && a.lower.iter().all(off)
-            && a.upper.iter().all(off)
-    }
-
     /// Inverse of the leading (B−1)×(B−1) part of `bp` (the rest zero), or `None` when
     /// it is singular. For 2×2: by the adjugate, with the determinant's size judged
     /// against the entries; otherwise by pivoted LU of the block with a unit last pivot.
@@ -254,7 +247,7 @@ impl<const B: usize> BlockThomas<B> {
         Some(inv)
     }
 
-    fn factor_reduced(&mut self, a: &BlockTri<B>) -> Result<(), LinearError> {
+    fn factor_reduced<S: BlockSource<B>>(&mut self, a: &S) -> Result<(), LinearError> {
         let n = self.n;
         let m = B - 1;
         // The leading (m×m) part of a block.
@@ -266,8 +259,9 @@ impl<const B: usize> BlockThomas<B> {
             s
         };
         for i in 0..n {
-            let mut bp = sub(&a.diag[i]);
-            let low = sub(&a.lower[i]);
+            let d = a.diag(i);
+            let mut bp = sub(&d);
+            let low = sub(&a.lower(i));
             if i > 0 {
                 let e = &self.e[i - 1];
                 for r in 0..m {
@@ -282,7 +276,7 @@ impl<const B: usize> BlockThomas<B> {
             }
             let inv = Self::reduced_inverse(&bp).ok_or(LinearError::Singular { index: B * i })?;
             if i + 1 < n {
-                let c = sub(&a.upper[i]);
+                let c = sub(&a.upper(i));
                 let e = &mut self.e[i];
                 for r in 0..m {
                     for q in 0..m {
@@ -296,7 +290,6 @@ impl<const B: usize> BlockThomas<B> {
             }
             self.inv[i] = inv;
             self.lower[i] = low;
-            let d = &a.diag[i];
             if d[m][m] == 0.0 || !d[m][m].is_finite() {
                 return Err(LinearError::Singular { index: B * i + m });
             }
@@ -342,20 +335,22 @@ impl<const B: usize> BlockThomas<B> {
     }
 }
 
-impl<const B: usize> LinearSolver<B> for BlockThomas<B> {
-    fn factor(&mut self, a: &BlockTri<B>) -> Result<(), LinearError> {
-        if a.n != self.n {
+impl<const B: usize> BlockThomas<B> {
+    /// The factorisation of the matrix whose blocks `a` gives.
+    fn factor_from<S: BlockSource<B>>(&mut self, a: &S) -> Result<(), LinearError> {
+        if a.blocks() != self.n {
             return Err(LinearError::Pattern);
         }
-        self.reduced = Self::decoupled(a);
+        self.reduced = a.last_decoupled();
         if self.reduced {
             return self.factor_reduced(a);
         }
         let n = self.n;
         for i in 0..n {
-            let mut bp = a.diag[i];
+            let mut bp = a.diag(i);
+            let low = a.lower(i);
             if i > 0 {
-                let ae = mat_mul(&a.lower[i], &self.e[i - 1]);
+                let ae = mat_mul(&low, &self.e[i - 1]);
                 for (row, ae_row) in bp.iter_mut().zip(ae.iter()) {
                     for (x, y) in row.iter_mut().zip(ae_row.iter()) {
                         *x -= y;
@@ -365,12 +360,22 @@ impl<const B: usize> LinearSolver<B> for BlockThomas<B> {
             let inv = LuBlock::factor(&bp, B * i)?.inverse();
             if i + 1 < n {
                 // E_i = B'_i⁻¹ C_i.
-                self.e[i] = mat_mul(&inv, &a.upper[i]);
+                self.e[i] = mat_mul(&inv, &a.upper(i));
             }
             self.inv[i] = inv;
-            self.lower[i] = a.lower[i];
+            self.lower[i] = low;
         }
         Ok(())
+    }
+}
+
+impl<const B: usize> LinearSolver<B> for BlockThomas<B> {
+    fn factor(&mut self, a: &BlockTri<B>) -> Result<(), LinearError> {
+        self.factor_from(a)
+    }
+
+    fn factor_scaled(&mut self, m: &Scaled<B>) -> Result<(), LinearError> {
+        self.factor_from(m)
     }
 
     fn solve(&mut self, b: &mut [f64]) -> Result<(), LinearError> {
@@ -408,6 +413,15 @@ impl<const B: usize> LinearSolver<B> for BlockThomas<B> {
 
     fn name(&self) -> &'static str {
         "block-tridiagonal"
+    }
+
+    fn arrays(&self, out: &mut Vec<crate::memory::ArrayCost>) {
+        use crate::memory::push;
+        const OWNER: &str = "block-tridiagonal LU";
+        push(out, OWNER, "pivot inverses", &self.inv);
+        push(out, OWNER, "upper factors", &self.e);
+        push(out, OWNER, "lower blocks", &self.lower);
+        push(out, OWNER, "algebraic rows", &self.last);
     }
 }
 
@@ -603,20 +617,26 @@ impl SparseLu {
     }
 }
 
-impl<const B: usize> LinearSolver<B> for SparseLu {
-    fn factor(&mut self, a: &BlockTri<B>) -> Result<(), LinearError> {
-        if self.block != B || self.blocks != a.n {
+impl SparseLu {
+    /// The factorisation of the block-tridiagonal matrix whose entries `a` gives.
+    fn factor_from<const B: usize, S: BlockSource<B>>(&mut self, a: &S) -> Result<(), LinearError> {
+        if self.block != B || self.blocks != a.blocks() {
             return Err(LinearError::Pattern);
         }
         for (v, s) in self.values.iter_mut().zip(self.source.iter()) {
-            let (r, c) = (s.row as usize, s.col as usize);
-            *v = match s.kind {
-                0 => a.lower[s.block][r][c],
-                1 => a.diag[s.block][r][c],
-                _ => a.upper[s.block][r][c],
-            };
+            *v = a.entry(s.kind, s.block, s.row as usize, s.col as usize);
         }
         self.factor_values()
+    }
+}
+
+impl<const B: usize> LinearSolver<B> for SparseLu {
+    fn factor(&mut self, a: &BlockTri<B>) -> Result<(), LinearError> {
+        self.factor_from(a)
+    }
+
+    fn factor_scaled(&mut self, m: &Scaled<B>) -> Result<(), LinearError> {
+        self.factor_from(m)
     }
 
     fn solve(&mut self, b: &mut [f64]) -> Result<(), LinearError> {
@@ -625,5 +645,15 @@ impl<const B: usize> LinearSolver<B> for SparseLu {
 
     fn name(&self) -> &'static str {
         "sparse-lu"
+    }
+
+    fn arrays(&self, out: &mut Vec<crate::memory::ArrayCost>) {
+        use crate::memory::push;
+        const OWNER: &str = "sparse LU";
+        push(out, OWNER, "pattern and values", &self.col_ptr);
+        push(out, OWNER, "pattern and values", &self.row_idx);
+        push(out, OWNER, "pattern and values", &self.values);
+        push(out, OWNER, "pattern and values", &self.source);
+        // (faer's numeric factors and work buffers are not counted here.)
     }
 }

@@ -18,7 +18,7 @@
 //! when the residual contracts by less than `refresh_rate` per iteration, when the linear
 //! solve fails, and when the caller invalidates it (the stepper does at every step).
 
-use super::blocktri::{zero_block, Block, BlockTri};
+use super::blocktri::{zero_block, Block, BlockTri, Scaled};
 use super::linear::{LinearError, LinearSolver};
 use super::problem::{BalanceScales, NonFinite, Problem, MAX_CONSERVED};
 
@@ -99,12 +99,10 @@ pub enum NewtonFailure {
 /// Work arrays, allocated once per run.
 pub struct NewtonWork<const B: usize> {
     pub res: Vec<f64>,
-    pub scale: Vec<f64>,
     pub dx: Vec<f64>,
+    /// The reciprocal row scales of the convergence test (the row scaling of the matrix).
     pub row: Vec<f64>,
     pub col: Vec<f64>,
-    /// The scaled matrix handed to the linear solver.
-    pub jac: BlockTri<B>,
     /// The last (limited) update.
     pub step: Vec<f64>,
     /// The kept Jacobian, unscaled, evaluated with coefficient `jac_c`, and the storage
@@ -125,11 +123,9 @@ impl<const B: usize> NewtonWork<B> {
     pub fn new(n: usize) -> Self {
         NewtonWork {
             res: vec![0.0; B * n],
-            scale: vec![0.0; B * n],
             dx: vec![0.0; B * n],
             row: vec![0.0; B * n],
             col: vec![0.0; B * n],
-            jac: BlockTri::new(n),
             step: vec![0.0; B * n],
             jac_raw: BlockTri::new(n),
             storage: vec![zero_block(); n],
@@ -137,6 +133,19 @@ impl<const B: usize> NewtonWork<B> {
             factor_c: None,
             scale_c: None,
             balance_scales: BalanceScales::default(),
+        }
+    }
+
+    /// The heap arrays of the work space (see [`crate::memory`]).
+    pub fn arrays(&self, out: &mut Vec<crate::memory::ArrayCost>) {
+        use crate::memory::push;
+        const OWNER: &str = "Newton";
+        push(out, OWNER, "Jacobian, lower blocks", &self.jac_raw.lower);
+        push(out, OWNER, "Jacobian, diagonal blocks", &self.jac_raw.diag);
+        push(out, OWNER, "Jacobian, upper blocks", &self.jac_raw.upper);
+        push(out, OWNER, "storage blocks", &self.storage);
+        for v in [&self.res, &self.dx, &self.row, &self.col, &self.step] {
+            push(out, OWNER, "vectors (5)", v);
         }
     }
 
@@ -215,11 +224,11 @@ pub fn solve<const B: usize, P: Problem<B> + ?Sized>(
         // where the Jacobian was evaluated and kept over the iterations that reuse it
         // (for the same coefficient), as an error weight is kept over a step.
         if fresh || w.scale_c != Some(c) {
-            w.balance_scales =
-                sys.convergence_scales_into(c, hist, opts.residual_tol, &mut w.scale);
+            w.balance_scales = sys.convergence_scales_into(c, hist, opts.residual_tol, &mut w.row);
             w.scale_c = Some(c);
-            for (r, s) in w.row.iter_mut().zip(w.scale.iter()) {
-                *r = 1.0 / s;
+            // The reciprocal scales, in place.
+            for r in w.row.iter_mut() {
+                *r = 1.0 / *r;
             }
         }
         let (r, cell, row) = worst::<B>(&w.res, &w.row);
@@ -269,8 +278,14 @@ pub fn solve<const B: usize, P: Problem<B> + ?Sized>(
             // by typical variable sizes; then factorise.
             let jc = w.jac_c.unwrap_or(c);
             sys.column_scales_into(u, &mut w.col);
-            scaled_copy(&w.jac_raw, &w.storage, c - jc, &w.row, &w.col, &mut w.jac);
-            if let Err(e) = lin.factor(&w.jac) {
+            let scaled = Scaled {
+                a: &w.jac_raw,
+                s: &w.storage,
+                dc: c - jc,
+                row: &w.row,
+                col: &w.col,
+            };
+            if let Err(e) = lin.factor_scaled(&scaled) {
                 w.invalidate();
                 if fresh {
                     return Err(NewtonFailure::Linear(e));
@@ -318,51 +333,4 @@ fn balance_closed<const B: usize, P: Problem<B> + ?Sized>(
     (0..nq).all(|k| {
         sum[k].abs() <= tol * (scales.moved[k] + top[k].abs() + bot[k].abs()) + scales.floor[k]
     })
-}
-
-/// `b = diag(row) (a + dc·S) diag(col)` in one pass, with `S` the diagonal storage blocks
-/// (same size; no allocation).
-fn scaled_copy<const B: usize>(
-    a: &BlockTri<B>,
-    s: &[Block<B>],
-    dc: f64,
-    row: &[f64],
-    col: &[f64],
-    b: &mut BlockTri<B>,
-) {
-    let n = a.n;
-    // One block: out = diag(rs) blk diag(cs).
-    let scaled = |blk: &Block<B>, rs: &[f64], cs: &[f64], out: &mut Block<B>| {
-        for r in 0..B {
-            for q in 0..B {
-                out[r][q] = blk[r][q] * (rs[r] * cs[q]);
-            }
-        }
-    };
-    for i in 0..n {
-        let rs = &row[B * i..B * i + B];
-        let cs = &col[B * i..B * i + B];
-        if dc != 0.0 {
-            let mut d = a.diag[i];
-            for (x, y) in d.iter_mut().zip(s[i].iter()) {
-                for (x, y) in x.iter_mut().zip(y.iter()) {
-                    *x += dc * y;
-                }
-            }
-            scaled(&d, rs, cs, &mut b.diag[i]);
-        } else {
-            scaled(&a.diag[i], rs, cs, &mut b.diag[i]);
-        }
-        if i > 0 {
-            scaled(&a.lower[i], rs, &col[B * (i - 1)..B * i], &mut b.lower[i]);
-        }
-        if i + 1 < n {
-            scaled(
-                &a.upper[i],
-                rs,
-                &col[B * (i + 1)..B * i + 2 * B],
-                &mut b.upper[i],
-            );
-        }
-    }
 }

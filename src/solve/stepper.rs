@@ -255,6 +255,27 @@ fn lagrange_values(tau: &[f64], x: f64, out: &mut [f64]) {
 }
 
 impl<const B: usize> Stepper<B> {
+    /// The heap arrays of the stepper: its state (with the multistep history), Newton's
+    /// work space and the linear solver (see [`crate::memory`]).
+    pub fn arrays(&self, out: &mut Vec<crate::memory::ArrayCost>) {
+        use crate::memory::push;
+        const OWNER: &str = "stepper";
+        let s = &self.state;
+        push(out, OWNER, "unknowns", &s.u);
+        push(out, OWNER, "storages", &s.storage);
+        push(out, OWNER, "initial storages", &s.initial_storage);
+        push(out, OWNER, "kept states (cells)", &s.linearization_cells);
+        push(out, OWNER, "kept states (faces)", &s.linearization_faces);
+        push(out, OWNER, "previous unknowns", &self.u_old);
+        push(out, OWNER, "history sum", &self.hist);
+        for hp in &s.history {
+            push(out, OWNER, "history unknowns", &hp.u);
+            push(out, OWNER, "history storages", &hp.storage);
+        }
+        self.work.arrays(out);
+        self.lin.arrays(out);
+    }
+
     /// A stepper at `state`; evaluates the problem once to make its workspace current.
     pub fn new<P: Problem<B> + ?Sized>(
         sys: &mut P,

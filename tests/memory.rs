@@ -1,0 +1,107 @@
+//! The memory accounting of a run (`Simulation::arrays`, printed by `deepdry bench` and
+//! tabulated in DEVELOPERS.md) covers what the run really holds, and the memory per cell
+//! stays within its budget. A counting allocator measures the live heap of this test
+//! binary before the simulation is built and after it has run (BDF, so the multistep
+//! history is full); the listed arrays must make up nearly all of the difference.
+
+mod support;
+
+use deepdry::memory::{table, total};
+use deepdry::physics::cell::CellProps;
+use deepdry::physics::flux::FaceFlux;
+use deepdry::sim::initial::initial_unknowns;
+use deepdry::sim::{Begin, OutputPosition, Simulation, SyncPlan};
+use deepdry::solve::linear::SolverKind;
+use std::alloc::{GlobalAlloc, Layout, System};
+use std::path::Path;
+use std::sync::atomic::{AtomicUsize, Ordering};
+use support::Small;
+
+/// The system allocator, counting the bytes live.
+struct Counting;
+static LIVE: AtomicUsize = AtomicUsize::new(0);
+
+unsafe impl GlobalAlloc for Counting {
+    unsafe fn alloc(&self, layout: Layout) -> *mut u8 {
+        LIVE.fetch_add(layout.size(), Ordering::Relaxed);
+        System.alloc(layout)
+    }
+    unsafe fn dealloc(&self, ptr: *mut u8, layout: Layout) {
+        LIVE.fetch_sub(layout.size(), Ordering::Relaxed);
+        System.dealloc(ptr, layout)
+    }
+    unsafe fn alloc_zeroed(&self, layout: Layout) -> *mut u8 {
+        LIVE.fetch_add(layout.size(), Ordering::Relaxed);
+        System.alloc_zeroed(layout)
+    }
+    unsafe fn realloc(&self, ptr: *mut u8, layout: Layout, new_size: usize) -> *mut u8 {
+        LIVE.fetch_add(new_size, Ordering::Relaxed);
+        LIVE.fetch_sub(layout.size(), Ordering::Relaxed);
+        System.realloc(ptr, layout, new_size)
+    }
+}
+
+#[global_allocator]
+static ALLOC: Counting = Counting;
+
+#[test]
+fn the_listed_arrays_are_what_a_run_holds_and_fit_the_budget() {
+    let cells = 4000;
+    let text = Small {
+        cells,
+        depth: 40.0,
+        end_year: 3.0,
+        method: "bdf",
+        ..Small::default()
+    }
+    .text();
+    let model = deepdry::case::parse(&text, "small.toml", Path::new(".")).unwrap();
+    let before = LIVE.load(Ordering::Relaxed);
+    let u = initial_unknowns(&model, SolverKind::BlockThomas).unwrap();
+    let plan = SyncPlan::new(&model).unwrap();
+    let begin = Begin::Unknowns {
+        t: model.time.start,
+        dt: model.time.dt_initial,
+        u,
+    };
+    let mut sim = Simulation::new(
+        &model,
+        plan,
+        begin,
+        OutputPosition::default(),
+        SolverKind::BlockThomas,
+        None,
+    )
+    .unwrap();
+    sim.start(&mut [], true).unwrap();
+    sim.run_to_end(&mut []).unwrap();
+    let held = LIVE.load(Ordering::Relaxed) - before;
+    let arrays = sim.arrays();
+    let listed = total(&arrays);
+    let shown = table(&arrays, cells);
+    assert!(
+        sim.state().history.len() >= 3,
+        "history of {} points",
+        sim.state().history.len()
+    );
+    // Everything the run holds per cell is listed: at most 3 % (small fixed structures)
+    // is not; and nothing is listed that is not held.
+    assert!(listed <= held, "listed {listed} B, held {held} B\n{shown}");
+    assert!(
+        listed as f64 >= 0.97 * held as f64,
+        "listed {listed} B of {held} B held\n{shown}"
+    );
+    // The budget of this round (DEVELOPERS.md, "Memory per cell"), with the history of
+    // this short run (its full six points add 96 B per cell).
+    let per_cell = held as f64 / cells as f64;
+    assert!(per_cell <= 2100.0, "{per_cell:.0} B per cell\n{shown}");
+    // The record sizes that the table in DEVELOPERS.md is built from.
+    assert_eq!(std::mem::size_of::<CellProps<2>>(), 17 * 24);
+    assert_eq!(std::mem::size_of::<CellProps<0>>(), 17 * 8);
+    assert_eq!(std::mem::size_of::<FaceFlux<0>>(), 10 * 8);
+    let kept_cells = arrays
+        .iter()
+        .find(|a| a.owner == "kept evaluations" && a.array == "cell records (Dual)" && a.bytes > 0)
+        .expect("kept cell records listed");
+    assert_eq!(kept_cells.bytes, cells * 17 * 24);
+}

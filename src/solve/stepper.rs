@@ -18,7 +18,7 @@
 //! tolerance whatever the order (the BDF weights sum to zero).
 
 use super::linear::LinearSolver;
-use super::newton::{self, NewtonFailure, NewtonOptions, NewtonStats, NewtonWork};
+use super::newton::{self, BalanceWindow, NewtonFailure, NewtonOptions, NewtonStats, NewtonWork};
 use super::problem::{ErrorTest, Problem, MAX_CONSERVED};
 
 /// Which integrator and its relative tolerance (the absolute ones are the problem's).
@@ -368,6 +368,47 @@ impl<const B: usize> Stepper<B> {
             };
         }
         (abs, rel)
+    }
+
+    /// The cumulative balance a try `a` is held to (see [`BalanceWindow`]): the balance
+    /// error E = storage change − net inflow and the throughput of the current and the
+    /// history points, weighted with the try's BDF weights; E at most `tol` of the
+    /// throughput.
+    fn balance_window<P: Problem<B> + ?Sized>(
+        &self,
+        sys: &P,
+        a: &Attempt,
+        tol: f64,
+    ) -> BalanceWindow {
+        let s = &self.state;
+        let rows = sys.conserved_rows();
+        let nq = rows.len().min(MAX_CONSERVED).min(s.inflow.len());
+        let mut w = BalanceWindow {
+            tol,
+            ..Default::default()
+        };
+        let m0 = &s.initial_storage;
+        for j in 1..=a.k {
+            let (storage, inflow, throughput) = if j == 1 {
+                (&s.storage, &s.inflow, &s.throughput)
+            } else {
+                let h = &s.history[j - 2];
+                (&h.storage, &h.inflow, &h.throughput)
+            };
+            // Storage change summed block by block (as `balance`).
+            let mut change = [0.0; MAX_CONSERVED];
+            for (i, (m, m0)) in storage.chunks_exact(B).zip(m0.chunks_exact(B)).enumerate() {
+                let v = sys.volumes()[i];
+                for (ch, &row) in change[..nq].iter_mut().zip(rows) {
+                    *ch += v * (m[row] - m0[row]);
+                }
+            }
+            for q in 0..nq {
+                w.past_error[q] += a.alpha[j] * (change[q] - inflow[q]);
+                w.past_throughput[q] += a.alpha[j] * throughput[q];
+            }
+        }
+        w
     }
 
     /// Weighted max norms of the local error estimates of the orders `orders` (at most
@@ -774,6 +815,11 @@ impl<const B: usize> Stepper<B> {
         let mut error_failures = 0usize;
         loop {
             let a = self.prepare(sys, t_stop, dt_try, bdf.is_some());
+            self.work.balance_window = self
+                .opts
+                .newton
+                .cumulative_balance_tol
+                .map(|tol| self.balance_window(sys, &a, tol));
             let dt = a.dt;
             let s = &mut self.state;
             let result = newton::solve(

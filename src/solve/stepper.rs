@@ -19,7 +19,7 @@
 
 use super::linear::LinearSolver;
 use super::newton::{self, BalanceWindow, NewtonFailure, NewtonOptions, NewtonStats, NewtonWork};
-use super::problem::{ErrorTest, Problem, MAX_CONSERVED};
+use super::problem::{Conserved, ErrorTest, Problem, MAX_CONSERVED};
 
 /// Which integrator and its relative tolerance (the absolute ones are the problem's).
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -193,6 +193,10 @@ pub struct Stepper<const B: usize> {
     work: NewtonWork<B>,
     u_old: Vec<f64>,
     hist: Vec<f64>,
+    /// Storage change since the start (Σ V (M − M0) per conserved quantity) of the
+    /// current point and the history points, newest first, for the balance window; when
+    /// its length is not that of the points it is recomputed (after a restart).
+    changes: Vec<Conserved>,
 }
 
 /// Largest step ratio Δt_{n+1}/Δt_n for the BDF order (index = order).
@@ -280,6 +284,7 @@ impl<const B: usize> Stepper<B> {
             work: NewtonWork::new(sys.blocks()),
             u_old: vec![0.0; len],
             hist: vec![0.0; len],
+            changes: Vec::new(),
         }
     }
 
@@ -370,39 +375,63 @@ impl<const B: usize> Stepper<B> {
         (abs, rel)
     }
 
+    /// Storage change since the start, Σ V (M − M0), of the storages `storage`, summed
+    /// block by block (as [`Stepper::balance`]).
+    fn storage_change<P: Problem<B> + ?Sized>(
+        sys: &P,
+        storage: &[f64],
+        initial: &[f64],
+    ) -> Conserved {
+        let rows = sys.conserved_rows();
+        let nq = rows.len().min(MAX_CONSERVED);
+        let mut change = [0.0; MAX_CONSERVED];
+        for (i, (m, m0)) in storage
+            .chunks_exact(B)
+            .zip(initial.chunks_exact(B))
+            .enumerate()
+        {
+            let v = sys.volumes()[i];
+            for (ch, &row) in change[..nq].iter_mut().zip(rows) {
+                *ch += v * (m[row] - m0[row]);
+            }
+        }
+        change
+    }
+
+    /// The storage changes of the current and the history points into `self.changes`,
+    /// where they are not known.
+    fn update_changes<P: Problem<B> + ?Sized>(&mut self, sys: &P) {
+        let s = &self.state;
+        if self.changes.len() != s.history.len() + 1 {
+            self.changes.clear();
+            self.changes
+                .push(Self::storage_change(sys, &s.storage, &s.initial_storage));
+            for h in &s.history {
+                self.changes
+                    .push(Self::storage_change(sys, &h.storage, &s.initial_storage));
+            }
+        }
+    }
+
     /// The cumulative balance a try `a` is held to (see [`BalanceWindow`]): the balance
     /// error E = storage change − net inflow and the throughput of the current and the
     /// history points, weighted with the try's BDF weights; E at most `tol` of the
-    /// throughput.
-    fn balance_window<P: Problem<B> + ?Sized>(
-        &self,
-        sys: &P,
-        a: &Attempt,
-        tol: f64,
-    ) -> BalanceWindow {
+    /// throughput. Needs `self.changes` up to date.
+    fn balance_window(&self, a: &Attempt, tol: f64) -> BalanceWindow {
         let s = &self.state;
-        let rows = sys.conserved_rows();
-        let nq = rows.len().min(MAX_CONSERVED).min(s.inflow.len());
+        let nq = s.inflow.len().min(MAX_CONSERVED);
         let mut w = BalanceWindow {
             tol,
             ..Default::default()
         };
-        let m0 = &s.initial_storage;
         for j in 1..=a.k {
-            let (storage, inflow, throughput) = if j == 1 {
-                (&s.storage, &s.inflow, &s.throughput)
+            let (inflow, throughput) = if j == 1 {
+                (&s.inflow, &s.throughput)
             } else {
                 let h = &s.history[j - 2];
-                (&h.storage, &h.inflow, &h.throughput)
+                (&h.inflow, &h.throughput)
             };
-            // Storage change summed block by block (as `balance`).
-            let mut change = [0.0; MAX_CONSERVED];
-            for (i, (m, m0)) in storage.chunks_exact(B).zip(m0.chunks_exact(B)).enumerate() {
-                let v = sys.volumes()[i];
-                for (ch, &row) in change[..nq].iter_mut().zip(rows) {
-                    *ch += v * (m[row] - m0[row]);
-                }
-            }
+            let change = &self.changes[j - 1];
             for q in 0..nq {
                 w.past_error[q] += a.alpha[j] * (change[q] - inflow[q]);
                 w.past_throughput[q] += a.alpha[j] * throughput[q];
@@ -792,6 +821,13 @@ impl<const B: usize> Stepper<B> {
         s.t = a.t_new;
         // sys holds the evaluation at the new state (Newton's last assembly).
         sys.storage_into(&mut s.storage);
+        // The balance window's storage changes shift with the points.
+        if !self.changes.is_empty() {
+            let points = s.history.len() + 1;
+            let change = Self::storage_change(sys, &s.storage, &s.initial_storage);
+            self.changes.insert(0, change);
+            self.changes.truncate(points);
+        }
     }
 
     /// Takes one accepted step that does not pass `t_stop` (retrying with smaller Δt).
@@ -815,11 +851,13 @@ impl<const B: usize> Stepper<B> {
         let mut error_failures = 0usize;
         loop {
             let a = self.prepare(sys, t_stop, dt_try, bdf.is_some());
-            self.work.balance_window = self
-                .opts
-                .newton
-                .cumulative_balance_tol
-                .map(|tol| self.balance_window(sys, &a, tol));
+            self.work.balance_window = match self.opts.newton.cumulative_balance_tol {
+                Some(tol) => {
+                    self.update_changes(sys);
+                    Some(self.balance_window(&a, tol))
+                }
+                None => None,
+            };
             let dt = a.dt;
             let s = &mut self.state;
             let result = newton::solve(

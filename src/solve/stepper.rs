@@ -193,10 +193,11 @@ pub struct Stepper<const B: usize> {
     work: NewtonWork<B>,
     u_old: Vec<f64>,
     hist: Vec<f64>,
-    /// Storage change since the start (Σ V (M − M0) per conserved quantity) of the
-    /// current point and the history points, newest first, for the balance window; when
-    /// its length is not that of the points it is recomputed (after a restart).
-    changes: Vec<Conserved>,
+    /// Time and storage change since the start (Σ V (M − M0) per conserved quantity) of
+    /// the current point and the history points, newest first, for the balance window;
+    /// recomputed where its times are not those of the points (after a restart, or a
+    /// state set from outside, as the osmotic coupling does when it retries a step).
+    changes: Vec<(f64, Conserved)>,
 }
 
 /// Largest step ratio Δt_{n+1}/Δt_n for the BDF order (index = order).
@@ -402,13 +403,19 @@ impl<const B: usize> Stepper<B> {
     /// where they are not known.
     fn update_changes<P: Problem<B> + ?Sized>(&mut self, sys: &P) {
         let s = &self.state;
-        if self.changes.len() != s.history.len() + 1 {
+        let known = self.changes.len() == s.history.len() + 1
+            && self.changes[0].0.to_bits() == s.t.to_bits()
+            && s.history
+                .iter()
+                .zip(&self.changes[1..])
+                .all(|(h, c)| h.t.to_bits() == c.0.to_bits());
+        if !known {
             self.changes.clear();
-            self.changes
-                .push(Self::storage_change(sys, &s.storage, &s.initial_storage));
+            let change = Self::storage_change(sys, &s.storage, &s.initial_storage);
+            self.changes.push((s.t, change));
             for h in &s.history {
-                self.changes
-                    .push(Self::storage_change(sys, &h.storage, &s.initial_storage));
+                let change = Self::storage_change(sys, &h.storage, &s.initial_storage);
+                self.changes.push((h.t, change));
             }
         }
     }
@@ -431,7 +438,7 @@ impl<const B: usize> Stepper<B> {
                 let h = &s.history[j - 2];
                 (&h.inflow, &h.throughput)
             };
-            let change = &self.changes[j - 1];
+            let change = &self.changes[j - 1].1;
             for q in 0..nq {
                 w.past_error[q] += a.alpha[j] * (change[q] - inflow[q]);
                 w.past_throughput[q] += a.alpha[j] * throughput[q];
@@ -825,7 +832,7 @@ impl<const B: usize> Stepper<B> {
         if !self.changes.is_empty() {
             let points = s.history.len() + 1;
             let change = Self::storage_change(sys, &s.storage, &s.initial_storage);
-            self.changes.insert(0, change);
+            self.changes.insert(0, (s.t, change));
             self.changes.truncate(points);
         }
     }

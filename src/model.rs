@@ -243,6 +243,10 @@ pub struct TimeControl {
     /// Newton converges when every residual row is within this fraction of the size of
     /// the terms that make it up [-].
     pub newton_tolerance: f64,
+    /// Largest cumulative water and energy balance error of the run relative to its
+    /// cumulative boundary throughput [-]: Newton iterates further where a step would
+    /// leave it (down to round-off).
+    pub balance_tolerance: f64,
 }
 
 /// Model time counts seconds from the start year rounded to a whole multiple of

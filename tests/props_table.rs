@@ -177,6 +177,7 @@ fn model() -> Model {
             atol_theta: 1e-5,
             max_newton: 10,
             newton_tolerance: deepdry::solve::newton::DEFAULT_RESIDUAL_TOL,
+            balance_tolerance: deepdry::case::build::DEFAULT_BALANCE_TOLERANCE,
         },
         output: OutputControl {
             folder: std::path::PathBuf::from("."),

@@ -310,7 +310,8 @@ pub fn summary(m: &Model) -> String {
     let _ = writeln!(
         o,
         "Time: year {} to {}; first step {} yr, steps {} to {} yr; {}; at most {} Newton \
-         iterations (tolerance {}); rtol {}, atol {} K, {} m, {} kg/m³",
+         iterations (tolerance {}); cumulative balance within {} of the throughput; rtol {}, \
+         atol {} K, {} m, {} kg/m³",
         year_of(t.start),
         year_of(t.end),
         yr(t.dt_initial),
@@ -322,6 +323,7 @@ pub fn summary(m: &Model) -> String {
         },
         t.max_newton,
         fmt_g(t.newton_tolerance),
+        fmt_g(t.balance_tolerance),
         fmt_g(t.rtol),
         fmt_g(t.atol_temperature),
         fmt_g(t.atol_head),

@@ -190,6 +190,7 @@ pub fn step_options(model: &Model) -> StepOptions {
         newton: crate::solve::newton::NewtonOptions {
             max_iter: model.time.max_newton,
             residual_tol: model.time.newton_tolerance,
+            cumulative_balance_tol: Some(model.time.balance_tolerance),
             ..Default::default()
         },
         ..Default::default()

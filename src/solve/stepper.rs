@@ -18,8 +18,8 @@
 //! tolerance whatever the order (the BDF weights sum to zero).
 
 use super::linear::LinearSolver;
-use super::newton::{self, NewtonFailure, NewtonOptions, NewtonStats, NewtonWork};
-use super::problem::{ErrorTest, Problem, MAX_CONSERVED};
+use super::newton::{self, BalanceWindow, NewtonFailure, NewtonOptions, NewtonStats, NewtonWork};
+use super::problem::{Conserved, ErrorTest, Problem, MAX_CONSERVED};
 
 /// Which integrator and its relative tolerance (the absolute ones are the problem's).
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -200,6 +200,11 @@ pub struct Stepper<const B: usize> {
     work: NewtonWork<B>,
     u_old: Vec<f64>,
     hist: Vec<f64>,
+    /// Time and storage change since the start (Σ V (M − M0) per conserved quantity) of
+    /// the current point and the history points, newest first, for the balance window;
+    /// recomputed where its times are not those of the points (after a restart, or a
+    /// state set from outside, as the osmotic coupling does when it retries a step).
+    changes: Vec<(f64, Conserved)>,
 }
 
 /// Largest step ratio Δt_{n+1}/Δt_n for the BDF order (index = order).
@@ -308,6 +313,7 @@ impl<const B: usize> Stepper<B> {
             work: NewtonWork::new(sys.blocks()),
             u_old: vec![0.0; len],
             hist: vec![0.0; len],
+            changes: Vec::new(),
         }
     }
 
@@ -397,6 +403,77 @@ impl<const B: usize> Stepper<B> {
             };
         }
         (abs, rel)
+    }
+
+    /// Storage change since the start, Σ V (M − M0), of the storages `storage`, summed
+    /// block by block (as [`Stepper::balance`]).
+    fn storage_change<P: Problem<B> + ?Sized>(
+        sys: &P,
+        storage: &[f64],
+        initial: &[f64],
+    ) -> Conserved {
+        let rows = sys.conserved_rows();
+        let nq = rows.len().min(MAX_CONSERVED);
+        let mut change = [0.0; MAX_CONSERVED];
+        for (i, (m, m0)) in storage
+            .chunks_exact(B)
+            .zip(initial.chunks_exact(B))
+            .enumerate()
+        {
+            let v = sys.volumes()[i];
+            for (ch, &row) in change[..nq].iter_mut().zip(rows) {
+                *ch += v * (m[row] - m0[row]);
+            }
+        }
+        change
+    }
+
+    /// The storage changes of the current and the history points into `self.changes`,
+    /// where they are not known.
+    fn update_changes<P: Problem<B> + ?Sized>(&mut self, sys: &P) {
+        let s = &self.state;
+        let known = self.changes.len() == s.history.len() + 1
+            && self.changes[0].0.to_bits() == s.t.to_bits()
+            && s.history
+                .iter()
+                .zip(&self.changes[1..])
+                .all(|(h, c)| h.t.to_bits() == c.0.to_bits());
+        if !known {
+            self.changes.clear();
+            let change = Self::storage_change(sys, &s.storage, &s.initial_storage);
+            self.changes.push((s.t, change));
+            for h in &s.history {
+                let change = Self::storage_change(sys, &h.storage, &s.initial_storage);
+                self.changes.push((h.t, change));
+            }
+        }
+    }
+
+    /// The cumulative balance a try `a` is held to (see [`BalanceWindow`]): the balance
+    /// error E = storage change − net inflow and the throughput of the current and the
+    /// history points, weighted with the try's BDF weights; E at most `tol` of the
+    /// throughput. Needs `self.changes` up to date.
+    fn balance_window(&self, a: &Attempt, tol: f64) -> BalanceWindow {
+        let s = &self.state;
+        let nq = s.inflow.len().min(MAX_CONSERVED);
+        let mut w = BalanceWindow {
+            tol,
+            ..Default::default()
+        };
+        for j in 1..=a.k {
+            let (inflow, throughput) = if j == 1 {
+                (&s.inflow, &s.throughput)
+            } else {
+                let h = &s.history[j - 2];
+                (&h.inflow, &h.throughput)
+            };
+            let change = &self.changes[j - 1].1;
+            for q in 0..nq {
+                w.past_error[q] += a.alpha[j] * (change[q] - inflow[q]);
+                w.past_throughput[q] += a.alpha[j] * throughput[q];
+            }
+        }
+        w
     }
 
     /// Weighted max norms of the local error estimates of the orders `orders` (at most
@@ -789,6 +866,13 @@ impl<const B: usize> Stepper<B> {
         s.t = a.t_new;
         // sys holds the evaluation at the new state (Newton's last assembly).
         sys.storage_into(&mut s.storage);
+        // The balance window's storage changes shift with the points.
+        if !self.changes.is_empty() {
+            let points = s.history.len() + 1;
+            let change = Self::storage_change(sys, &s.storage, &s.initial_storage);
+            self.changes.insert(0, (s.t, change));
+            self.changes.truncate(points);
+        }
     }
 
     /// Takes one accepted step that does not pass `t_stop` (retrying with smaller Δt).
@@ -812,6 +896,13 @@ impl<const B: usize> Stepper<B> {
         let mut error_failures = 0usize;
         loop {
             let a = self.prepare(sys, t_stop, dt_try, bdf.is_some());
+            self.work.balance_window = match self.opts.newton.cumulative_balance_tol {
+                Some(tol) => {
+                    self.update_changes(sys);
+                    Some(self.balance_window(&a, tol))
+                }
+                None => None,
+            };
             let dt = a.dt;
             let s = &mut self.state;
             let result = newton::solve(

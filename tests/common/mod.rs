@@ -112,6 +112,7 @@ pub fn column(
             atol_theta: 1e-5,
             max_newton: 15,
             newton_tolerance: deepdry::solve::newton::DEFAULT_RESIDUAL_TOL,
+            balance_tolerance: deepdry::case::build::DEFAULT_BALANCE_TOLERANCE,
         },
         output: OutputControl {
             folder: std::env::temp_dir(),

@@ -196,12 +196,31 @@ pub fn build(src: &Source) -> R<Model> {
         Some(t) => t.table(TIME_KEYS)?.get("max_newton_iterations").is_some(),
         None => false,
     };
-    if !newton_given
-        && surface
-            .periods
-            .iter()
-            .any(|p| matches!(p.1.water, SurfaceWater::Pond { .. }))
-    {
+    let ponding = surface
+        .periods
+        .iter()
+        .any(|p| matches!(p.1.water, SurfaceWater::Pond { .. }));
+    let mut soils = soils;
+    if ponding {
+        // A pond that empties over a saturated column, and perched water that drains,
+        // need storage in the saturated zone to be solved reliably: a ponding case gives
+        // every soil without its own `specific_storage_per_m` the default below.
+        let table = root.get("soils").map(|v| v.named_table()).transpose()?;
+        for soil in soils.iter_mut() {
+            let given = match &table {
+                Some(t) => t
+                    .get(&soil.name)
+                    .map(|v| v.table(SOIL_KEYS))
+                    .transpose()?
+                    .is_some_and(|s| s.get("specific_storage_per_m").is_some()),
+                None => false,
+            };
+            if !given {
+                soil.specific_storage = PONDING_SPECIFIC_STORAGE;
+            }
+        }
+    }
+    if !newton_given && ponding {
         // Where a pond empties over a saturated column the top cells desaturate one
         // after another within a step, an iteration each (see `apply_update` in
         // `physics::rules`): a ponding case gets a larger default limit.
@@ -1379,6 +1398,10 @@ pub const MAX_ABS_YEAR: f64 = 1.0e12;
 /// Steps must be at least this many units in the last place of the run's largest time
 /// (from the time origin), so that every step moves the time by its own size to 1/8.
 pub const TIME_RESOLUTION_ULPS: f64 = 4.0;
+
+/// Default specific storage of the soils of a case with a ponding surface [1/m] (0
+/// otherwise; sediments about 1e-6 to 1e-3 1/m, common practice).
+pub const PONDING_SPECIFIC_STORAGE: f64 = 1.0e-4;
 
 /// Default Newton iteration limit of a case with a ponding surface (15 otherwise).
 pub const PONDING_MAX_NEWTON: usize = 60;

@@ -173,8 +173,13 @@ fn soil(s: &Soil) -> String {
             )
         }
     };
+    let storage = if s.specific_storage > 0.0 {
+        format!("; specific storage {} 1/m", fmt_g(s.specific_storage))
+    } else {
+        String::new()
+    };
     format!(
-        "{law}{dry}; Ks {} m/s; {thermal}; solid heat capacity {} J/(m³ K); enhancement {enh}",
+        "{law}{dry}; Ks {} m/s; {thermal}; solid heat capacity {} J/(m³ K); enhancement {enh}{storage}",
         fmt_g(s.saturated_conductivity),
         fmt_g(s.solid_heat_capacity)
     )

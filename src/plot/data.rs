@@ -48,6 +48,9 @@ pub struct Series {
     pub potential_transpiration: Vec<f64>,
     pub root_water_uptake_cumulative: Vec<f64>,
     pub potential_transpiration_cumulative: Vec<f64>,
+    /// Ponding depth [m] and cumulative runoff [kg m-2] (empty without a ponding surface).
+    pub ponding_depth: Vec<f64>,
+    pub runoff_cumulative: Vec<f64>,
 }
 
 /// What the plots need from a results file.
@@ -279,6 +282,8 @@ pub fn read(path: &Path) -> Result<Results> {
         potential_transpiration: optional_ser("potential_transpiration")?,
         root_water_uptake_cumulative: optional_ser("root_water_uptake_cumulative")?,
         potential_transpiration_cumulative: optional_ser("potential_transpiration_cumulative")?,
+        ponding_depth: optional_ser("ponding_depth")?,
+        runoff_cumulative: optional_ser("runoff_cumulative")?,
         time: stime,
     };
     let root_water_uptake = if file.dataset("profiles/root_water_uptake").is_ok() {
@@ -474,6 +479,8 @@ pub fn join_parent(res: &mut Results, parent: &Results, year: f64) -> Result<()>
         &mut b.potential_transpiration_cumulative,
         &p.potential_transpiration_cumulative,
     );
+    join(&mut b.ponding_depth, &p.ponding_depth);
+    join(&mut b.runoff_cumulative, &p.runoff_cumulative);
     join(&mut b.time, &p.time);
     res.parent = Some((parent.path.clone(), year));
     Ok(())

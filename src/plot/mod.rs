@@ -669,6 +669,27 @@ pub fn series_figures_on(res: &Results, ta: TimeAxis) -> Vec<(String, Figure)> {
         ));
     }
 
+    if !s.ponding_depth.is_empty() && !s.runoff_cumulative.is_empty() {
+        let to_mm = |v: f64| v * 1.0e3;
+        let same = |v: f64| v;
+        let lines = vec![
+            line("ponding depth [mm]", blue, &s.ponding_depth, &to_mm),
+            line("cumulative runoff [mm]", red, &s.runoff_cumulative, &same),
+        ];
+        let y = axis_for(Scale::Linear, yvalues(&lines));
+        figs.push((
+            "series-ponding".to_string(),
+            single(
+                "surface store: ponding depth and cumulative runoff",
+                y,
+                "ponding depth, cumulative runoff [mm of water]",
+                lines,
+                true,
+                "surface store",
+            ),
+        ));
+    }
+
     let id = |v: f64| v;
     let lines = vec![line("drying front", blue, &s.drying_front_depth, &id)];
     let vals = yvalues(&lines);

@@ -487,32 +487,36 @@ fn write_via(
             )?;
         }
         table("history_time_inflow", hlen, 5, hmeta, "s, J m-2, kg m-2, J m-2, kg m-2", "per history point: time, cumulative inflow (energy, water), cumulative throughput (energy, water)")?;
-        let ht: Vec<f64> = state
-            .history
-            .iter()
-            .flat_map(|hp| hp.top_inflow.clone())
-            .collect();
-        table(
-            "history_top_inflow",
-            hlen,
-            state.top_inflow.len(),
-            ht,
-            "J m-2, kg m-2",
-            "per history point: cumulative inflow through the top boundary (energy, water)",
-        )?;
-        let hk: Vec<f64> = state
-            .history
-            .iter()
-            .flat_map(|hp| hp.sink.clone())
-            .collect();
-        table(
-            "history_sink",
-            hlen,
-            state.sink.len(),
-            hk,
-            "J m-2, kg m-2",
-            "per history point: cumulative outflow through internal sinks (root water uptake): energy, water",
-        )?;
+        // Per history point, the cumulative flows carried with it (energy, water).
+        type Flows = fn(&crate::solve::stepper::HistoryPoint) -> &Vec<f64>;
+        let per_point: [(&str, usize, Flows, &str); 3] = [
+            (
+                "history_top_inflow",
+                state.top_inflow.len(),
+                |hp| &hp.top_inflow,
+                "per history point: cumulative inflow through the top boundary (energy, water)",
+            ),
+            (
+                "history_sink",
+                state.sink.len(),
+                |hp| &hp.sink,
+                "per history point: cumulative outflow through internal sinks (root water uptake): energy, water",
+            ),
+            (
+                "history_runoff",
+                state.runoff.len(),
+                |hp| &hp.runoff,
+                "per history point: cumulative runoff from the surface store: energy, water",
+            ),
+        ];
+        for (name, width, flows, long) in per_point {
+            let values: Vec<f64> = state
+                .history
+                .iter()
+                .flat_map(|hp| flows(hp).iter().copied())
+                .collect();
+            table(name, hlen, width, values, "J m-2, kg m-2", long)?;
+        }
         f64s(
             "sink",
             &state.sink,
@@ -520,19 +524,6 @@ fn write_via(
             "cumulative outflow through internal sinks (root water uptake) since the start: energy, water",
         )
         .map_err(&er)?;
-        let hr: Vec<f64> = state
-            .history
-            .iter()
-            .flat_map(|hp| hp.runoff.clone())
-            .collect();
-        table(
-            "history_runoff",
-            hlen,
-            state.runoff.len(),
-            hr,
-            "J m-2, kg m-2",
-            "per history point: cumulative runoff from the surface store: energy, water",
-        )?;
         f64s(
             "runoff",
             &state.runoff,

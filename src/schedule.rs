@@ -63,8 +63,13 @@ impl Schedule {
     /// first time equals the first value, so nothing happens there); tables: every knot;
     /// sinusoids and constants: none; sums: the union of their parts'.
     pub fn breakpoints(&self) -> Vec<f64> {
+        self.sorted_times(Self::collect_breakpoints)
+    }
+
+    /// The times `collect` gathers from this schedule, sorted and deduplicated.
+    fn sorted_times(&self, collect: fn(&Self, &mut Vec<f64>)) -> Vec<f64> {
         let mut out = Vec::new();
-        self.collect_breakpoints(&mut out);
+        collect(self, &mut out);
         out.sort_by(f64::total_cmp);
         out.dedup();
         out
@@ -73,11 +78,7 @@ impl Schedule {
     /// Times where the schedule jumps in value (sorted, deduplicated): the steps of a
     /// stepped schedule where the value changes, and those of the parts of a sum.
     pub fn jumps(&self) -> Vec<f64> {
-        let mut out = Vec::new();
-        self.collect_jumps(&mut out);
-        out.sort_by(f64::total_cmp);
-        out.dedup();
-        out
+        self.sorted_times(Self::collect_jumps)
     }
 
     fn collect_jumps(&self, out: &mut Vec<f64>) {

@@ -207,6 +207,27 @@ pub struct Stepper<const B: usize> {
     changes: Vec<(f64, Conserved)>,
 }
 
+/// One cumulative quantity of a history point (inflow, throughput, top inflow, sink,
+/// runoff).
+type PointFlows = fn(&HistoryPoint) -> &Vec<f64>;
+
+/// α1·`current` + Σ_{j=2..k} αj·(entry `q` of `field` of history point j − 2): what the
+/// points before the new one contribute to the step's formula for a cumulative quantity.
+fn carried_sum(
+    alpha: &[f64; 7],
+    k: usize,
+    current: f64,
+    history: &[HistoryPoint],
+    field: PointFlows,
+    q: usize,
+) -> f64 {
+    let mut w = alpha[1] * current;
+    for j in 2..=k {
+        w += alpha[j] * field(&history[j - 2])[q];
+    }
+    w
+}
+
 /// Largest step ratio Δt_{n+1}/Δt_n for the BDF order (index = order).
 const BDF_MAX_RATIO: [f64; 6] = [2.0, 2.0, 2.0, 1.5, 1.2, 1.08];
 
@@ -378,18 +399,9 @@ impl<const B: usize> Stepper<B> {
     /// kg m⁻²]): storage change − net inflow, and the same relative to max(|storage
     /// change|, throughput). Uses the last evaluation.
     pub fn balance<P: Problem<B> + ?Sized>(&self, sys: &P) -> (Vec<f64>, Vec<f64>) {
-        let rows = sys.conserved_rows();
-        let nq = rows.len().min(MAX_CONSERVED);
+        let nq = sys.conserved_rows().len().min(MAX_CONSERVED);
         // Storage change summed block by block.
-        let mut changes = [0.0; MAX_CONSERVED];
-        let m0 = &self.state.initial_storage;
-        for i in 0..sys.blocks() {
-            let m = sys.storage(i);
-            let w = sys.volumes()[i];
-            for (ch, &row) in changes.iter_mut().zip(rows[..nq].iter()) {
-                *ch += w * (m[row] - m0[B * i + row]);
-            }
-        }
+        let changes = Self::storage_change(sys, |i| sys.storage(i), &self.state.initial_storage);
         let mut abs = vec![0.0; nq];
         let mut rel = vec![0.0; nq];
         for k in 0..nq {
@@ -405,27 +417,39 @@ impl<const B: usize> Stepper<B> {
         (abs, rel)
     }
 
-    /// Storage change since the start, Σ V (M − M0), of the storages `storage`, summed
-    /// block by block (as [`Stepper::balance`]).
+    /// Storage change since the start, Σ V (M − M0), of the storages `storage_of(i)` of
+    /// the blocks against the start's `initial` (B per block), summed block by block: of
+    /// the last evaluation for [`Stepper::balance`], of a kept point for the balance
+    /// window.
     fn storage_change<P: Problem<B> + ?Sized>(
         sys: &P,
-        storage: &[f64],
+        storage_of: impl Fn(usize) -> [f64; B],
         initial: &[f64],
     ) -> Conserved {
         let rows = sys.conserved_rows();
         let nq = rows.len().min(MAX_CONSERVED);
         let mut change = [0.0; MAX_CONSERVED];
-        for (i, (m, m0)) in storage
-            .chunks_exact(B)
-            .zip(initial.chunks_exact(B))
-            .enumerate()
-        {
+        for (i, m0) in initial.chunks_exact(B).enumerate() {
+            let m = storage_of(i);
             let v = sys.volumes()[i];
             for (ch, &row) in change[..nq].iter_mut().zip(rows) {
                 *ch += v * (m[row] - m0[row]);
             }
         }
         change
+    }
+
+    /// [`Stepper::storage_change`] of kept storages (B per block).
+    fn kept_storage_change<P: Problem<B> + ?Sized>(
+        sys: &P,
+        storage: &[f64],
+        initial: &[f64],
+    ) -> Conserved {
+        Self::storage_change(
+            sys,
+            |i| std::array::from_fn(|r| storage[B * i + r]),
+            initial,
+        )
     }
 
     /// The storage changes of the current and the history points into `self.changes`,
@@ -440,10 +464,10 @@ impl<const B: usize> Stepper<B> {
                 .all(|(h, c)| h.t.to_bits() == c.0.to_bits());
         if !known {
             self.changes.clear();
-            let change = Self::storage_change(sys, &s.storage, &s.initial_storage);
+            let change = Self::kept_storage_change(sys, &s.storage, &s.initial_storage);
             self.changes.push((s.t, change));
             for h in &s.history {
-                let change = Self::storage_change(sys, &h.storage, &s.initial_storage);
+                let change = Self::kept_storage_change(sys, &h.storage, &s.initial_storage);
                 self.changes.push((h.t, change));
             }
         }
@@ -808,31 +832,16 @@ impl<const B: usize> Stepper<B> {
             // (x − 0.0 is x: without sinks and runoff the sums are those of before.)
             let fin = top[q] - bot[q] - sink[q] - runoff[q];
             let fabs = top[q].abs() + bot[q].abs() + sink[q].abs() + runoff[q].abs();
-            let mut a = alpha[1] * s.inflow[q];
-            let mut b = alpha[1] * s.throughput[q];
-            for j in 2..=k {
-                a += alpha[j] * s.history[j - 2].inflow[q];
-                b += alpha[j] * s.history[j - 2].throughput[q];
-            }
-            new_inflow[q] = (fin - a) / c;
-            new_throughput[q] = (fabs - b) / c;
-            // The top boundary alone, by the same formula (a separate sum: the two above
-            // stay as they were).
-            let mut w = alpha[1] * s.top_inflow[q];
-            for j in 2..=k {
-                w += alpha[j] * s.history[j - 2].top_inflow[q];
-            }
-            new_top[q] = (top[q] - w) / c;
-            let mut w = alpha[1] * s.sink[q];
-            for j in 2..=k {
-                w += alpha[j] * s.history[j - 2].sink[q];
-            }
-            new_sink[q] = (sink[q] - w) / c;
-            let mut w = alpha[1] * s.runoff[q];
-            for j in 2..=k {
-                w += alpha[j] * s.history[j - 2].runoff[q];
-            }
-            new_runoff[q] = (runoff[q] - w) / c;
+            // Each cumulative quantity W by the step's formula: α0 W_new = flow − carried.
+            let carried = |current: &[f64], field: PointFlows| {
+                carried_sum(alpha, k, current[q], &s.history, field, q)
+            };
+            new_inflow[q] = (fin - carried(&s.inflow, |h| &h.inflow)) / c;
+            new_throughput[q] = (fabs - carried(&s.throughput, |h| &h.throughput)) / c;
+            // The top boundary, the sinks and the runoff alone, by the same formula.
+            new_top[q] = (top[q] - carried(&s.top_inflow, |h| &h.top_inflow)) / c;
+            new_sink[q] = (sink[q] - carried(&s.sink, |h| &h.sink)) / c;
+            new_runoff[q] = (runoff[q] - carried(&s.runoff, |h| &h.runoff)) / c;
         }
         {
             // Shift the history: the old current point becomes the newest history point,
@@ -869,7 +878,7 @@ impl<const B: usize> Stepper<B> {
         // The balance window's storage changes shift with the points.
         if !self.changes.is_empty() {
             let points = s.history.len() + 1;
-            let change = Self::storage_change(sys, &s.storage, &s.initial_storage);
+            let change = Self::kept_storage_change(sys, &s.storage, &s.initial_storage);
             self.changes.insert(0, (s.t, change));
             self.changes.truncate(points);
         }

@@ -303,27 +303,36 @@ impl System {
         }
     }
 
-    /// Runoff at `t` from the top cell's last evaluation into `self.runoff`, and added to
-    /// the top cell's water and energy rows; with `jac`, its derivatives too.
-    fn add_runoff(&mut self, t: f64, res: &mut [f64], jac: Option<&mut BlockTri<BLOCK>>) {
-        self.runoff = [0.0; 2];
-        let Some(pmax) = self.max_pond_depth(t) else {
-            return;
-        };
+    /// Runoff at `t` from the top cell's last evaluation: the water flow ρw R(P) [kg m⁻²
+    /// s⁻¹], its derivative with respect to the top cell's head, and the enthalpy per kg
+    /// it carries [J kg⁻¹]; None when nothing runs off.
+    fn runoff_terms(&self, t: f64) -> Option<(f64, f64, f64)> {
+        let pmax = self.max_pond_depth(t)?;
         let c0 = &self.cells[0];
         let (r, dr) = runoff_rate(self.pond_depth(c0.h.v) - pmax);
         if r == 0.0 && dr == 0.0 {
-            return;
+            return None;
         }
         let enthalpy = WATER_HEAT_CAPACITY * (c0.t.v - T_REF);
-        let w = WATER_DENSITY * r;
-        self.runoff = [w * enthalpy, w];
-        res[WATER] += w;
-        res[ENERGY] += w * enthalpy;
-        if let Some(jac) = jac {
+        Some((WATER_DENSITY * r, WATER_DENSITY * dr, enthalpy))
+    }
+
+    /// Runoff at `t` into `self.runoff`, and added to the top cell's water and energy rows.
+    fn add_runoff(&mut self, t: f64, res: &mut [f64]) {
+        self.runoff = [0.0; 2];
+        if let Some((w, _, enthalpy)) = self.runoff_terms(t) {
+            self.runoff = [w * enthalpy, w];
+            res[WATER] += w;
+            res[ENERGY] += w * enthalpy;
+        }
+    }
+
+    /// The derivatives of the runoff terms with respect to the top cell's T and h.
+    fn add_runoff_jacobian(&self, t: f64, jac: &mut BlockTri<BLOCK>) {
+        if let Some((w, dw, enthalpy)) = self.runoff_terms(t) {
             let d = &mut jac.diag[0];
-            d[WATER][H] += WATER_DENSITY * dr;
-            d[ENERGY][H] += WATER_DENSITY * dr * enthalpy;
+            d[WATER][H] += dw;
+            d[ENERGY][H] += dw * enthalpy;
             d[ENERGY][T] += w * WATER_HEAT_CAPACITY;
         }
     }
@@ -771,7 +780,7 @@ impl System {
         }
         if self.surface_store {
             // (Its Jacobian entries are added below, after the flux blocks.)
-            self.add_runoff(t, res, None);
+            self.add_runoff(t, res);
         }
         if !all_finite(&res[..BLOCK * n]) {
             let k = res.iter().position(|r| !r.is_finite()).unwrap_or(0);
@@ -786,8 +795,7 @@ impl System {
                 self.add_uptake_jacobian(t, jac);
             }
             if self.surface_store {
-                let mut scratch = [0.0; BLOCK];
-                self.add_runoff(t, &mut scratch, Some(jac));
+                self.add_runoff_jacobian(t, jac);
             }
             for blocks in [&jac.lower, &jac.diag, &jac.upper] {
                 if blocks.iter().all(|b| b.iter().all(|r| all_finite(r))) {

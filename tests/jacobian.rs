@@ -391,3 +391,66 @@ fn jacobian_matches_finite_differences_with_root_uptake() {
     }));
     check(&m, 4, "root water uptake");
 }
+
+/// The ponding surface store in the Jacobian: the pond in the top cell's storage and the
+/// runoff above the largest ponding depth, with the pond within its 1 mm turn-on band,
+/// within the runoff band and above both (central differences of the residual in the top
+/// cell's head and temperature; numerical differentiation, common practice).
+#[test]
+fn jacobian_matches_finite_differences_with_a_pond_and_runoff() {
+    for pmax in [0.0, 0.1] {
+        let mut m = column(
+            uniform_mesh(2.0, 8),
+            sandy_loam(),
+            dry_surface(291.15, 0.2),
+            water_table(298.15),
+            291.15,
+            298.15,
+            YEAR,
+        );
+        m.surface = Periods::single(SurfaceBc {
+            heat: SurfaceHeat::Temperature(Schedule::Constant(291.15)),
+            water: SurfaceWater::Pond {
+                inflow: Schedule::Constant(1e-5),
+                max_depth: Some(pmax),
+                air: None,
+            },
+        });
+        let mut sys = System::new(&m);
+        let n = sys.n;
+        let d0 = sys.d_above[0];
+        // Surface heads: inside the pond's band, inside the runoff band, well above.
+        for x in [4e-4, pmax + 1.5e-3 + 3e-4, pmax + 0.05] {
+            let mut u = vec![0.0; 3 * n];
+            for i in 0..n {
+                u[3 * i] = 291.15 + 0.5 * i as f64;
+                u[3 * i + 1] = d0 + x + sys.centers[i] - sys.centers[0];
+            }
+            deepdry::run::equilibrate_vapor(&mut u);
+            let c = 1e-4;
+            let hist = vec![0.0; 3 * n];
+            let t = 1.0;
+            let mut res = vec![0.0; 3 * n];
+            let mut jac = BlockTri::new(n);
+            sys.assemble(t, &u, c, &hist, &mut res, Some(&mut jac))
+                .unwrap();
+            for (var, e) in [(1usize, 1e-7), (0usize, 1e-4)] {
+                let mut plus = u.clone();
+                let mut minus = u.clone();
+                plus[var] += e;
+                minus[var] -= e;
+                let (mut rp, mut rm) = (vec![0.0; 3 * n], vec![0.0; 3 * n]);
+                sys.assemble(t, &plus, c, &hist, &mut rp, None).unwrap();
+                sys.assemble(t, &minus, c, &hist, &mut rm, None).unwrap();
+                for row in [0usize, 1] {
+                    let fd = (rp[row] - rm[row]) / (2.0 * e);
+                    let exact = jac.diag[0][row][var];
+                    assert!(
+                        (fd - exact).abs() <= 1e-5 * exact.abs().max(fd.abs()) + 1e-12,
+                        "Pmax {pmax}, surface head {x}: d R[{row}]/d u[{var}] = {exact} vs {fd}"
+                    );
+                }
+            }
+        }
+    }
+}

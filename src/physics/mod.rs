@@ -309,12 +309,14 @@ impl System {
     fn runoff_terms(&self, t: f64) -> Option<(f64, f64, f64)> {
         let pmax = self.max_pond_depth(t)?;
         let c0 = &self.cells[0];
-        let (r, dr) = runoff_rate(self.pond_depth(c0.h.v) - pmax);
+        let (p, dp) = pond_of_excess(c0.h.v - self.d_above[0]);
+        let (r, dr) = runoff_rate(p - pmax);
         if r == 0.0 && dr == 0.0 {
             return None;
         }
         let enthalpy = WATER_HEAT_CAPACITY * (c0.t.v - T_REF);
-        Some((WATER_DENSITY * r, WATER_DENSITY * dr, enthalpy))
+        // dR/dh0 = R'(P − Pmax) · dP/dh0 (dP/dh0 < 1 within the pond's turn-on band).
+        Some((WATER_DENSITY * r, WATER_DENSITY * dr * dp, enthalpy))
     }
 
     /// Runoff at `t` into `self.runoff`, and added to the top cell's water and energy rows.

@@ -95,12 +95,14 @@ pub enum SurfaceWater {
     /// entering the surface store: what the soil does not take ponds on the surface (the
     /// ponding depth is the head above the top cell's hydrostatic surface value, see
     /// [`SURFACE_STORE`] in `physics`), infiltrates later, and runs off above
-    /// `max_depth` [m] (None: no limit). With `air`, vapour is exchanged with the air as
-    /// under [`SurfaceWater::Atmosphere`] (relative humidity, optional resistance).
+    /// `max_depth` [m] (None: no limit). With `air` (relative humidity [-], boundary-layer
+    /// resistance [s m⁻¹]), vapour is exchanged with the air: standing water evaporates
+    /// through the resistance alone, bare soil through the resistance and the top
+    /// half-cell in series.
     Pond {
         inflow: Schedule,
         max_depth: Option<f64>,
-        air: Option<(Schedule, Option<Schedule>)>,
+        air: Option<(Schedule, Schedule)>,
     },
     /// No liquid flux; vapour exchange with air of relative humidity `relative_humidity(t)`
     /// [-] at the surface temperature, either fixed at the surface (`resistance` None) or

@@ -395,10 +395,12 @@ fn jacobian_matches_finite_differences_with_root_uptake() {
 /// The ponding surface store in the Jacobian: the pond in the top cell's storage and the
 /// runoff above the largest ponding depth, with the pond within its 1 mm turn-on band,
 /// within the runoff band and above both (central differences of the residual in the top
-/// cell's head and temperature; numerical differentiation, common practice).
+/// cell's head and temperature; numerical differentiation, common practice); also with
+/// the pond open to the air, whose evaporation turns on over the same band.
 #[test]
 fn jacobian_matches_finite_differences_with_a_pond_and_runoff() {
-    for pmax in [0.0, 0.1] {
+    let open = || Some((Schedule::Constant(0.2), Schedule::Constant(100.0)));
+    for (pmax, air) in [(0.0, None), (0.1, None), (0.1, open()), (0.0, open())] {
         let mut m = column(
             uniform_mesh(2.0, 8),
             sandy_loam(),
@@ -413,7 +415,7 @@ fn jacobian_matches_finite_differences_with_a_pond_and_runoff() {
             water: SurfaceWater::Pond {
                 inflow: Schedule::Constant(1e-5),
                 max_depth: Some(pmax),
-                air: None,
+                air: air.clone(),
             },
         });
         let mut sys = System::new(&m);
@@ -447,7 +449,8 @@ fn jacobian_matches_finite_differences_with_a_pond_and_runoff() {
                     let exact = jac.diag[0][row][var];
                     assert!(
                         (fd - exact).abs() <= 1e-5 * exact.abs().max(fd.abs()) + 1e-12,
-                        "Pmax {pmax}, surface head {x}: d R[{row}]/d u[{var}] = {exact} vs {fd}"
+                        "Pmax {pmax}, open {}, surface head {x}: d R[{row}]/d u[{var}] = {exact} vs {fd}",
+                        air.is_some()
                     );
                 }
             }

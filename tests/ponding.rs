@@ -53,7 +53,7 @@ fn a_flood_ponds_runs_off_and_the_series_add_up() {
     // The second period (dry air, no ponding) starts while the pond still stands
     // (the flood ends at day 3.0, the pond empties about 0.8 day later).
     let text = case(
-        "[[surface]]\nfrom_year = 0.0083\ntemperature_C = 22.0\nrelative_humidity = 0.3\n",
+        "[[surface]]\nfrom_year = 0.0083\ntemperature_C = 22.0\nrelative_humidity = 0.3\nresistance_s_per_m = 100.0\n",
         0.03,
     );
     let path = dir.write("case.toml", &text);
@@ -165,6 +165,16 @@ fn bad_ponding_keys_are_refused_in_one_line() {
             "pond = false\nrelative_humidity = 0.3",
             vec!["max_ponding_depth_m", "pond = true"],
         ),
+        (
+            "max_ponding_depth_m = 0.1",
+            "max_ponding_depth_m = 0.1\nrelative_humidity = 0.3",
+            vec!["resistance_s_per_m", "evaporates"],
+        ),
+        (
+            "[bottom]",
+            "[[surface]]\nfrom_year = 0.005\ntemperature_C = 22.0\nrelative_humidity = 0.3\n[bottom]",
+            vec!["surface", "resistance_s_per_m", "ponding"],
+        ),
     ] {
         let text = base.replace(from, to);
         assert_ne!(text, base, "{from}");
@@ -172,4 +182,73 @@ fn bad_ponding_keys_are_refused_in_one_line() {
         let o = deepdry(&["check", arg(&path)]);
         assert_one_line_error(&o, 2, &fragments);
     }
+}
+
+/// Standing water open to the air evaporates through the boundary-layer resistance alone:
+/// E = (ρv0 − RH·ρvs(Ts))/ra (the bulk transfer law of evaporation from a wet surface,
+/// common practice). A saturated 1 m column whose water table holds a 5 cm pond, at
+/// 300 K throughout, under air of relative humidity 0.3 through ra = 1e4 s/m (so that
+/// the latent heat cools the pond by ~0.01 K only). Reference: ρvs = ps/(Rv T) with
+/// ps(300 K) = 3.53658941e-3 MPa (IAPWS-IF97, Table 35, a verification value of the
+/// saturation-pressure equation) and Rv = 461.51805 J kg⁻¹ K⁻¹ (IAPWS-95, R/M);
+/// E = 0.7 ρvs / ra = 1.788e-6 kg m⁻² s⁻¹ (0.155 mm/day).
+#[test]
+fn a_standing_pond_evaporates_through_the_air_resistance() {
+    let dir = Scratch::new("ponding-evaporation");
+    let text = r#"title = "pond evaporation"
+[column]
+depth_m = 1.0
+[mesh]
+cells = 28
+growth = 1.1
+surface_cell_m = 0.01
+bottom_cell_m = 0.05
+[soils.sandy_loam]
+van_genuchten = { theta_r = 0.065, theta_s = 0.41, alpha_per_m = 7.5, n = 1.89, air_entry_m = 0.02 }
+saturated_conductivity_m_per_s = 1.23e-5
+campbell = { a = 1.46, b = 1.652, c = 9.222, d = 0.274 }
+solid_heat_capacity_J_per_m3_K = 1.18e6
+[[layers]]
+soil = "sandy_loam"
+top_m = 0.0
+bottom_m = 1.0
+[surface]
+temperature_C = 26.85
+pond = true
+flux_mm_per_year = 0.0
+relative_humidity = 0.3
+resistance_s_per_m = 1.0e4
+[bottom]
+head_m = 1.05
+temperature_C = 26.85
+[time]
+end_year = 0.03
+[output]
+every_year = 0.005
+"#;
+    let path = dir.write("case.toml", text);
+    let out = dir.join("out");
+    run_ok(&path, &out, &[]);
+    let d = datasets(&out.join("results.h5")).unwrap();
+    let t = d["series/time"].floats();
+    let top = d["series/surface_water_cumulative"].floats();
+    let pond = d["series/ponding_depth"].floats();
+    let last = t.len() - 1;
+    // The pond stands throughout (the water table holds it).
+    assert!(
+        pond.iter().all(|&p| (0.045..0.055).contains(&p)),
+        "{pond:?}"
+    );
+    // The rate over the second half of the run [kg m⁻² s⁻¹] (surface inflow is positive
+    // downward: evaporation makes it fall).
+    let k = t.iter().position(|&x| x >= 0.015).unwrap();
+    let year = 365.25 * 86400.0;
+    let rate = -(top[last] - top[k]) / ((t[last] - t[k]) * year);
+    let rho_vs = 3.536_589_41e3 / (461.518_05 * 300.0);
+    let expected = 0.7 * rho_vs / 1.0e4;
+    eprintln!("evaporation {rate:.6e} vs {expected:.6e} kg m-2 s-1");
+    assert!(
+        (rate - expected).abs() <= 3e-3 * expected,
+        "evaporation {rate:.5e} vs {expected:.5e} kg m-2 s-1"
+    );
 }

@@ -200,6 +200,9 @@ pub fn build(src: &Source) -> R<Model> {
         .periods
         .iter()
         .any(|p| matches!(p.1.water, SurfaceWater::Pond { .. }));
+    if ponding {
+        pond_periods_open_through_a_resistance(&root, &surface)?;
+    }
     let mut soils = soils;
     if ponding {
         // A pond that empties over a saturated column, and perched water that drains,
@@ -1017,12 +1020,15 @@ fn read_pond(t: &Table) -> R<SurfaceWater> {
     let air = t
         .get("relative_humidity")
         .map(|v| -> R<_> {
-            Ok((
-                schedules::read(&v, "relative_humidity", &RELATIVE_HUMIDITY)?,
-                t.get("resistance_s_per_m")
-                    .map(|r| schedules::read(&r, "resistance_s_per_m", &RESISTANCE))
-                    .transpose()?,
-            ))
+            let rh = schedules::read(&v, "relative_humidity", &RELATIVE_HUMIDITY)?;
+            // Standing water evaporates at (ρv,sat − ρv,air)/ra: without a resistance
+            // the rate has no bound.
+            let r = t.req(
+                "resistance_s_per_m",
+                "a ponding surface open to the air (standing water evaporates through the \
+                 air's boundary layer: give its resistance with `relative_humidity`)",
+            )?;
+            Ok((rh, schedules::read(&r, "resistance_s_per_m", &RESISTANCE)?))
         })
         .transpose()?;
     Ok(SurfaceWater::Pond {
@@ -1120,6 +1126,33 @@ fn read_bottom(t: &Table) -> R<BottomBc> {
 
 /// A boundary given as one table (one period) or as an array of tables, each from its
 /// `from_year` on.
+/// In a case with a ponding surface, a pond may stand in any later period, and standing
+/// water evaporates through the air's boundary layer alone: every period open to the air
+/// must give that resistance.
+fn pond_periods_open_through_a_resistance(root: &Table, surface: &Periods<SurfaceBc>) -> R<()> {
+    let Some(v) = root.get("surface") else {
+        return Ok(());
+    };
+    let items = if v.is_table() {
+        vec![v.clone()]
+    } else {
+        v.array()?
+    };
+    for (item, period) in items.iter().zip(&surface.periods) {
+        if let SurfaceWater::Atmosphere {
+            resistance: None, ..
+        } = period.1.water
+        {
+            return Err(item.table(SURFACE_KEYS)?.err(
+                "relative_humidity without resistance_s_per_m in a case with a ponding \
+                 surface: a pond standing from an earlier period evaporates through the air's \
+                 boundary layer, so give its resistance (s/m) in every period open to the air",
+            ));
+        }
+    }
+    Ok(())
+}
+
 pub(super) fn read_periods<T>(
     root: &Table,
     key: &str,

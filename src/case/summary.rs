@@ -92,12 +92,10 @@ fn surface_bc(bc: &SurfaceBc) -> String {
             match air {
                 None => String::new(),
                 Some((rh, r)) => format!(
-                    "; vapour exchange with air of relative humidity {}{}",
+                    "; vapour exchange with air of relative humidity {}, boundary-layer \
+                     resistance {} (standing water evaporates through it alone)",
                     sched(rh, &RELATIVE_HUMIDITY),
-                    match r {
-                        None => String::new(),
-                        Some(r) => format!(", boundary-layer resistance {}", sched(r, &RESISTANCE)),
-                    }
+                    sched(r, &RESISTANCE),
                 ),
             }
         ),

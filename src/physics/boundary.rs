@@ -53,11 +53,20 @@ impl System {
             SurfaceWater::Atmosphere {
                 relative_humidity,
                 resistance,
-            } => self.air_exchange(t, tg, &c0, relative_humidity, resistance.as_ref()),
+            } => self.air_exchange(
+                t,
+                tg,
+                &c0,
+                relative_humidity,
+                resistance.as_ref(),
+                // A pond left from a ponding period evaporates here too (such a case
+                // gives every period open to the air a resistance).
+                self.surface_store,
+            ),
             SurfaceWater::Pond { inflow, air, .. } => {
                 let mut f = match air {
                     Some((rh, resistance)) => {
-                        self.air_exchange(t, tg, &c0, rh, resistance.as_ref())
+                        self.air_exchange(t, tg, &c0, rh, Some(resistance), true)
                     }
                     None => {
                         let g = self.ghost(0, tg, c0.h, Some(c0.rv));
@@ -103,6 +112,13 @@ impl System {
     /// Vapour exchange between the top cell and air of relative humidity `rh(t)` at the
     /// surface temperature `tg` (no liquid flux), either with the air's vapour density
     /// fixed at the surface or through a boundary-layer resistance [s m⁻¹].
+    ///
+    /// With `pond` (a ponding surface), standing water evaporates through the resistance
+    /// alone, jv = −(ρv0 − ρv,a)/ra, ρv0 being the top cell's vapour density (saturated at
+    /// its temperature: the pond is part of its storage), while bare soil exchanges
+    /// through the resistance and the top half-cell in series. The two fluxes are blended
+    /// by the pond's turn-on weight w = dP/dx ∈ [0, 1] over the 1 mm band of the pond's
+    /// storage ([`super::pond_of_excess`]), so the flux has no jump where a pond appears.
     fn air_exchange<const N: usize, const M: usize>(
         &self,
         t: f64,
@@ -110,6 +126,7 @@ impl System {
         c0: &CellProps<N>,
         rh: &Schedule,
         resistance: Option<&Schedule>,
+        pond: bool,
     ) -> FaceFlux<M> {
         let c0 = *c0;
         let d0 = self.d_above[0];
@@ -136,6 +153,24 @@ impl System {
                 Dual::cst(0.0)
             };
             f.vapor_th = Dual::cst(0.0);
+            if pond {
+                let x = c0.h.v - self.d_above[0];
+                let (_, w) = super::pond_of_excess(x);
+                if w > 0.0 {
+                    let dw = if x < super::POND_BAND {
+                        1.0 / super::POND_BAND
+                    } else {
+                        0.0
+                    };
+                    let w = Dual::lift(c0.h.chain(w, dw), N);
+                    let ra = ra.max(f64::MIN_POSITIVE);
+                    let open = -((rv0 - rva) / ra);
+                    f.vapor_iso = open * w + f.vapor_iso * (Dual::cst(1.0) - w);
+                    // The open water's terms in the round-off scales.
+                    f.scale_water = f.scale_water.max(open.v.abs());
+                    f.operands_water = f.operands_water.max((rv0.v.abs() + rva.v.abs()) / ra);
+                }
+            }
         }
         f
     }

@@ -46,9 +46,7 @@ pub fn freeze_surface(bc: &SurfaceBc, t: f64) -> SurfaceBc {
             } => SurfaceWater::Pond {
                 inflow: frozen(inflow, t),
                 max_depth: *max_depth,
-                air: air
-                    .as_ref()
-                    .map(|(rh, r)| (frozen(rh, t), r.as_ref().map(|r| frozen(r, t)))),
+                air: air.as_ref().map(|(rh, r)| (frozen(rh, t), frozen(r, t))),
             },
             SurfaceWater::NoFlow => SurfaceWater::NoFlow,
         },

@@ -60,9 +60,7 @@ fn schedule_times(model: &Model, pick: fn(&Schedule) -> Vec<f64>) -> Vec<f64> {
                 add_schedule(inflow, &mut ts);
                 if let Some((rh, r)) = air {
                     add_schedule(rh, &mut ts);
-                    if let Some(r) = r {
-                        add_schedule(r, &mut ts);
-                    }
+                    add_schedule(r, &mut ts);
                 }
             }
             SurfaceWater::NoFlow => {}

@@ -190,7 +190,8 @@ fn bad_ponding_keys_are_refused_in_one_line() {
 /// 300 K throughout, under air of relative humidity 0.3 through ra = 1e4 s/m (so that
 /// the latent heat cools the pond by ~0.01 K only). Reference: ρvs = ps/(Rv T) with
 /// ps(300 K) = 3.53658941e-3 MPa (IAPWS-IF97, Table 35, a verification value of the
-/// saturation-pressure equation) and Rv = 461.51805 J kg⁻¹ K⁻¹ (IAPWS-95, R/M);
+/// saturation-pressure equation; from memory) and Rv = 461.51805 J kg⁻¹ K⁻¹ (IAPWS-95's
+/// specific gas constant; from memory);
 /// E = 0.7 ρvs / ra = 1.788e-6 kg m⁻² s⁻¹ (0.155 mm/day).
 #[test]
 fn a_standing_pond_evaporates_through_the_air_resistance() {

@@ -6,7 +6,7 @@
 
 use crate::mesh::Mesh;
 use crate::props::conductivity::FaceAveraging;
-use crate::props::retention::Retention;
+use crate::props::retention::{Retention, RetentionLaw};
 use crate::props::thermal::ThermalConductivity;
 use crate::props::vapor::{Diffusivity, Enhancement};
 use crate::schedule::Schedule;
@@ -363,6 +363,52 @@ impl Model {
                 }
                 _ => None,
             })
+    }
+
+    /// A note when the surface forcing is periodic (a sinusoidal temperature or relative
+    /// humidity) over a soil whose plain van Genuchten curve holds a residual content θr in
+    /// the dry range: cells that the cycle dries to θr then make sharp bends in head and
+    /// vapour density, and the steps that resolve them number thousands per period
+    /// (`cases/annual-wave.toml`: ~2 700 per year; ~250 with the Fayer–Simmons dry end,
+    /// README, "Periodic forcing"). None otherwise.
+    pub fn periodic_dry_end_note(&self) -> Option<String> {
+        fn periodic(s: &Schedule) -> bool {
+            match s {
+                Schedule::Sine { amplitude, .. } => *amplitude != 0.0,
+                Schedule::Sum(parts) => parts.iter().any(periodic),
+                _ => false,
+            }
+        }
+        let forced = self.surface.periods.iter().any(|(_, bc)| {
+            let heat = match &bc.heat {
+                SurfaceHeat::Temperature(s) | SurfaceHeat::Flux(s) => periodic(s),
+            };
+            let air = match &bc.water {
+                SurfaceWater::Atmosphere {
+                    relative_humidity, ..
+                } => periodic(relative_humidity),
+                SurfaceWater::Pond {
+                    air: Some((rh, _)), ..
+                } => periodic(rh),
+                _ => false,
+            };
+            heat || air
+        });
+        if !forced {
+            return None;
+        }
+        let soil = self.layers.iter().map(|l| &self.soils[l.soil]).find(|s| {
+            s.retention.dry_end.is_none()
+                && matches!(s.retention.law, RetentionLaw::VanGenuchten { theta_r, .. } if theta_r > 0.0)
+        })?;
+        Some(format!(
+            "soil {}: plain van Genuchten keeps its residual content in the dry range under a \
+             periodic surface forcing; cells that the cycle dries to it make sharp bends in head \
+             and vapour density that can cost thousands of steps per period; where the soil \
+             dries below its residual content, dry_end = \"fayer-simmons\" removes them (see \
+             docs/case-file.md)",
+            soil.name
+        ))
     }
 
     /// Whether any surface period stores ponded water ([`SurfaceWater::Pond`]): the top

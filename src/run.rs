@@ -524,7 +524,10 @@ pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
     }
     // Refused before any file is touched.
     let plan = SyncPlan::new(model)?;
-    if let Some(note) = model.moving_table_note() {
+    for note in [model.moving_table_note(), model.periodic_dry_end_note()]
+        .into_iter()
+        .flatten()
+    {
         log::warn!("{note}");
     }
     let folder = opts

@@ -208,7 +208,10 @@ pub fn summary(m: &Model) -> String {
             "  liquid content of each cell averaged over a hydrostatic head profile within it (cell_average_retention)"
         );
     }
-    if let Some(note) = m.moving_table_note() {
+    for note in [m.moving_table_note(), m.periodic_dry_end_note()]
+        .into_iter()
+        .flatten()
+    {
         let _ = writeln!(o, "  note: {note}");
     }
     let _ = writeln!(o, "Layers:");

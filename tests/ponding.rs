@@ -100,10 +100,21 @@ fn a_flood_ponds_runs_off_and_the_series_add_up() {
     );
     // Afterwards the surface only loses vapour to the dry air.
     assert!(top[last] < top[k]);
-    // The figure of the surface store.
-    let o = deepdry(&["plot", arg(&out.join("results.h5"))]);
+    // The figure of the surface store: a panel each for pond and runoff, on a linear time
+    // axis even where the other series take a log axis.
+    let o = deepdry(&["plot", arg(&out.join("results.h5")), "--log-time"]);
     assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
-    assert!(out.join("series-ponding.svg").exists());
+    let svg = std::fs::read_to_string(out.join("series-ponding.svg")).unwrap();
+    for text in [
+        "water standing on the surface",
+        "cumulative runoff [m of water]",
+        "time [yr]",
+    ] {
+        assert!(svg.contains(text), "{text}");
+    }
+    assert!(!svg.contains("log scale"));
+    let other = std::fs::read_to_string(out.join("series-water-fluxes.svg")).unwrap();
+    assert!(other.contains("log scale"));
 }
 
 #[test]

@@ -127,7 +127,8 @@ pub enum Command {
         #[arg(long, value_delimiter = ',', num_args = 1.., allow_negative_numbers = true)]
         times: Option<Vec<f64>>,
         /// Logarithmic time axis for the time series (automatic beyond 3 decades), in
-        /// years after the time origin.
+        /// years after the time origin (the ponding figure keeps a linear axis: floods are
+        /// events in linear time).
         #[arg(long)]
         log_time: bool,
         /// The year a log time axis counts from (default: the case's

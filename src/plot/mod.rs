@@ -670,23 +670,91 @@ pub fn series_figures_on(res: &Results, ta: TimeAxis) -> Vec<(String, Figure)> {
     }
 
     if !s.ponding_depth.is_empty() && !s.runoff_cumulative.is_empty() {
-        let to_mm = |v: f64| v * 1.0e3;
-        let same = |v: f64| v;
-        let lines = vec![
-            line("ponding depth [mm]", blue, &s.ponding_depth, &to_mm),
-            line("cumulative runoff [mm]", red, &s.runoff_cumulative, &same),
-        ];
-        let y = axis_for(Scale::Linear, yvalues(&lines));
+        // Floods are events in linear time (days within decades): this figure keeps a
+        // linear time axis whatever the others use, and the pond (mm) and the runoff
+        // (metres over a long run) get a panel each.
+        let lo = s
+            .time
+            .iter()
+            .cloned()
+            .filter(|t| t.is_finite())
+            .fold(f64::INFINITY, f64::min);
+        let hi = s
+            .time
+            .iter()
+            .cloned()
+            .filter(|t| t.is_finite())
+            .fold(f64::NEG_INFINITY, f64::max);
+        let tl = if lo.is_finite() && hi > lo {
+            Axis::new(Scale::Linear, lo, hi)
+        } else {
+            axis_for(Scale::Linear, s.time.iter().cloned())
+        };
+        let linear_line = |label: &str, color: RGBColor, v: &[f64], f: &dyn Fn(f64) -> f64| Line {
+            label: label.into(),
+            color,
+            width: if color == blue { 3 } else { 2 },
+            points: chart::thin(
+                &s.time
+                    .iter()
+                    .zip(v)
+                    .map(|(t_, v)| (*t_, f(*v)))
+                    .filter(|(x, _)| x.is_finite())
+                    .collect::<Vec<_>>(),
+                &tl,
+                SERIES_BUCKETS,
+            ),
+        };
+        let pond = vec![linear_line("ponding depth", blue, &s.ponding_depth, &|v| {
+            v * 1.0e3
+        })];
+        let runoff = vec![linear_line(
+            "cumulative runoff",
+            red,
+            &s.runoff_cumulative,
+            &|v| v * 1.0e-3,
+        )];
+        let panel = |heading: &str, y_label: &str, lines: Vec<Line>| Panel {
+            heading: heading.into(),
+            x: tl,
+            y: axis_for(Scale::Linear, yvalues(&lines)),
+            x_label: "time [yr]".into(),
+            y_label: y_label.into(),
+            lines,
+            x_zero: false,
+            y_zero: true,
+        };
+        let span_linear = format!(
+            "t = {} to {} yr{}",
+            format_years(lo),
+            format_years(hi),
+            match &res.parent {
+                Some((_, y)) => format!(
+                    "; the parent run's up to year {}, this branch's after",
+                    format_years(*y)
+                ),
+                None => String::new(),
+            }
+        );
         figs.push((
             "series-ponding".to_string(),
-            single(
-                "surface store: ponding depth and cumulative runoff",
-                y,
-                "ponding depth, cumulative runoff [mm of water]",
-                lines,
-                true,
-                "surface store",
-            ),
+            Figure {
+                title: title.clone(),
+                subtitle: format!(
+                    "surface store: ponding depth and cumulative runoff, {span_linear}"
+                ),
+                panels: vec![
+                    panel("water standing on the surface", "ponding depth [mm]", pond),
+                    panel(
+                        "water run off above the largest ponding depth",
+                        "cumulative runoff [m of water]",
+                        runoff,
+                    ),
+                ],
+                columns: 1,
+                size: (1100, 1000),
+                legend_heading: "surface store".into(),
+            },
         ));
     }
 

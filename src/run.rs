@@ -105,6 +105,15 @@ pub fn solute_lines(solutes: &[(String, Vec<f64>)]) -> String {
     out
 }
 
+/// A count of periods: whole numbers without decimals, others with six digits.
+fn whole_or(x: f64) -> String {
+    if (x - x.round()).abs() <= 1e-9 * x.abs().max(1.0) {
+        format!("{}", x.round())
+    } else {
+        crate::output::human(x, 6)
+    }
+}
+
 impl RunSummary {
     /// The one-screen summary printed at the end of `deepdry run`.
     pub fn text(&self) -> String {
@@ -134,8 +143,8 @@ impl RunSummary {
             match self.cycle_skipping {
                 Some((jumps, skipped, periods, [w, e])) => format!(
                     "cycle skipping: {skipped} of {} periods skipped in {jumps} jumps ({} integrated); balance error of the jumps {} kg m-2 (water), {} J m-2 (energy), not included above\n",
-                    human(periods, 6),
-                    human(periods - skipped as f64, 6),
+                    whole_or(periods),
+                    whole_or(periods - skipped as f64),
                     human(w, 3),
                     human(e, 3)
                 ),

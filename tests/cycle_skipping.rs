@@ -183,3 +183,19 @@ fn resume_between_jumps_is_bitwise() {
         assert_same_datasets(&checkpoint_at(&a, 60.0), &checkpoint_at(&b, 60.0));
     }
 }
+
+#[test]
+fn check_describes_cycle_skipping() {
+    let case = Path::new(env!("CARGO_MANIFEST_DIR")).join("cases/harrow-dunes.toml");
+    let o = deepdry(&["check", arg(&case)]);
+    assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
+    let text = stdout(&o);
+    assert!(
+        text.contains("Cycle skipping: forcing period 1 yr from year 0; 4 whole periods integrated, then a jump of up to 1000 periods"),
+        "{text}"
+    );
+    // A case without it says nothing of it.
+    let plain = Path::new(env!("CARGO_MANIFEST_DIR")).join("cases/annual-wave.toml");
+    let o = deepdry(&["check", arg(&plain)]);
+    assert!(!stdout(&o).contains("Cycle skipping"));
+}

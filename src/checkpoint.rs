@@ -12,6 +12,7 @@ use crate::model::Model;
 use crate::output::h5util::{attr_f64, attr_str, describe, read_attr_str};
 use crate::props::constants::SECONDS_PER_YEAR;
 use crate::solute::SoluteState;
+use crate::solve::envelope::{EnvelopeState, PeriodPoint};
 use crate::solve::stepper::{Counters, HistoryPoint, StepState};
 use hdf5::File;
 use ndarray::Array1;
@@ -185,10 +186,15 @@ pub fn physics_hash(m: &Model) -> String {
         m.output.series_every,
         m.checkpoint.every
     ));
-    if solutes.is_empty() {
+    // Cycle skipping joins likewise only when it is on.
+    let skipping = match &t.cycle_skipping {
+        Some(c) => format!("|{c:?}"),
+        None => String::new(),
+    };
+    if solutes.is_empty() && skipping.is_empty() {
         base
     } else {
-        fnv1a(&format!("{base}{solutes}"))
+        fnv1a(&format!("{base}{solutes}{skipping}"))
     }
 }
 
@@ -241,6 +247,8 @@ pub struct Checkpoint {
     pub info: CheckpointInfo,
     /// The solute state (None: the run has no solutes).
     pub solutes: Option<SoluteState>,
+    /// Where cycle skipping stands (None: the run has none).
+    pub envelope: Option<EnvelopeState>,
 }
 
 fn e(path: &Path) -> impl Fn(hdf5::Error) -> Error + '_ {
@@ -249,6 +257,7 @@ fn e(path: &Path) -> impl Fn(hdf5::Error) -> Error + '_ {
 
 /// Writes a checkpoint atomically to `path`. On failure (e.g. a full disk) the partial
 /// temporary file is removed and any earlier file at `path` is left as it was.
+#[allow(clippy::too_many_arguments)]
 pub fn write(
     path: &Path,
     model: &Model,
@@ -257,6 +266,7 @@ pub fn write(
     results_file: &Path,
     info: &CheckpointInfo,
     solutes: Option<&SoluteState>,
+    envelope: Option<&EnvelopeState>,
 ) -> Result<()> {
     let tmp = path.with_extension("h5.tmp");
     write_via(
@@ -268,6 +278,7 @@ pub fn write(
         results_file,
         info,
         solutes,
+        envelope,
     )
     .map_err(|err| {
         let _ = std::fs::remove_file(&tmp);
@@ -288,6 +299,7 @@ fn write_via(
     results_file: &Path,
     info: &CheckpointInfo,
     solutes: Option<&SoluteState>,
+    envelope: Option<&EnvelopeState>,
 ) -> Result<()> {
     {
         let file = File::create(tmp).map_err(e(tmp))?;
@@ -560,6 +572,9 @@ fn write_via(
         if let Some(sol) = solutes {
             write_solutes(&file, sol).map_err(&er)?;
         }
+        if let Some(env) = envelope {
+            write_envelope(&file, env).map_err(&er)?;
+        }
         // The checksum over everything above (every dataset and attribute, as read back).
         let sum = content_checksum(&file).map_err(&er)?;
         attr_str(&root, CHECKSUM_ATTR, &sum).map_err(&er)?;
@@ -581,6 +596,97 @@ fn write_via(
         }
     }
     Ok(())
+}
+
+/// The cycle-skipping datasets of a checkpoint (root level, so that the checksum covers
+/// them).
+fn write_envelope(file: &File, env: &EnvelopeState) -> hdf5::Result<()> {
+    let counts = vec![
+        env.period,
+        env.exact,
+        env.last_jump,
+        env.jumps,
+        env.skipped,
+        env.points.len() as u64,
+    ];
+    let ds = file
+        .new_dataset_builder()
+        .with_data(&Array1::from_vec(counts))
+        .create("cycle_skipping_counts")?;
+    describe(&ds, "1", "cycle skipping: index of the last period boundary reached, periods integrated in the current block, periods of the last jump, jumps, periods skipped, boundary states kept")?;
+    let mut values = vec![env.last_error];
+    values.extend_from_slice(&env.mismatch);
+    let ds = file
+        .new_dataset_builder()
+        .with_data(&Array1::from_vec(values))
+        .create("cycle_skipping_values")?;
+    describe(&ds, "1, J m-2, kg m-2", "cycle skipping: last error estimate (scaled), then the jumps' cumulative balance error (energy, water)")?;
+    if !env.points.is_empty() {
+        let mut points = Vec::new();
+        for p in &env.points {
+            points.extend_from_slice(&p.u);
+            points.extend_from_slice(&p.storage);
+            points.extend_from_slice(&p.flows);
+        }
+        let ds = file
+            .new_dataset_builder()
+            .with_data(&Array1::from_vec(points))
+            .create("cycle_skipping_points")?;
+        describe(&ds, "mixed", "cycle skipping: the boundary states of the current block, oldest first, each its unknowns, storages and cumulative flows (net inflow, throughput, top inflow, sinks, runoff; energy, water)")?;
+    }
+    Ok(())
+}
+
+/// The cycle-skipping state of a checkpoint (None when it has none); `len` unknowns per
+/// state, `nq` conserved quantities.
+fn read_envelope(
+    file: &File,
+    len: usize,
+    nq: usize,
+) -> std::result::Result<Option<EnvelopeState>, &'static str> {
+    let Ok(counts) = file.dataset("cycle_skipping_counts") else {
+        return Ok(None);
+    };
+    let c = counts
+        .read_raw::<u64>()
+        .map_err(|_| "cycle_skipping_counts")?;
+    let v = file
+        .dataset("cycle_skipping_values")
+        .and_then(|d| d.read_raw::<f64>())
+        .map_err(|_| "cycle_skipping_values")?;
+    if c.len() != 6 || v.len() != 1 + nq || c[5] > 3 {
+        return Err("cycle skipping state");
+    }
+    let width = 2 * len + 5 * nq;
+    let count = c[5] as usize;
+    let points = if count == 0 {
+        Vec::new()
+    } else {
+        let raw = file
+            .dataset("cycle_skipping_points")
+            .and_then(|d| d.read_raw::<f64>())
+            .map_err(|_| "cycle_skipping_points")?;
+        if raw.len() != count * width {
+            return Err("cycle_skipping_points");
+        }
+        raw.chunks_exact(width)
+            .map(|w| PeriodPoint {
+                u: w[..len].to_vec(),
+                storage: w[len..2 * len].to_vec(),
+                flows: w[2 * len..].to_vec(),
+            })
+            .collect()
+    };
+    Ok(Some(EnvelopeState {
+        period: c[0],
+        exact: c[1],
+        points,
+        last_jump: c[2],
+        jumps: c[3],
+        skipped: c[4],
+        mismatch: v[1..].to_vec(),
+        last_error: v[0],
+    }))
 }
 
 /// The solute datasets of a checkpoint (root level, so that the checksum covers them).
@@ -953,6 +1059,7 @@ pub fn read(path: &Path) -> Result<Checkpoint> {
         {
             return Err(bad("finite state"));
         }
+        let envelope = read_envelope(&file, state.u.len(), nq).map_err(bad)?;
         Ok(Checkpoint {
             path: path.to_path_buf(),
             state,
@@ -978,6 +1085,7 @@ pub fn read(path: &Path) -> Result<Checkpoint> {
             format,
             info,
             solutes: read_solutes(&file).map_err(bad)?,
+            envelope,
         })
     };
     inner()

@@ -249,6 +249,22 @@ pub struct TimeControl {
     /// cumulative boundary throughput [-]: Newton iterates further where a step would
     /// leave it (down to round-off).
     pub balance_tolerance: f64,
+    /// Cycle skipping under periodic forcing (`[time.cycle_skipping]`); None: off.
+    pub cycle_skipping: Option<CycleSkipping>,
+}
+
+/// Cycle skipping (envelope following, see [`crate::solve::envelope`]): whole periods
+/// integrated exactly, then jumps of many periods along the measured drift.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct CycleSkipping {
+    /// The forcing period [s]; period boundaries at `start + k period`.
+    pub period: f64,
+    /// Whole periods integrated exactly between two jumps.
+    pub exact_periods: u64,
+    /// Most periods one jump skips.
+    pub max_jump_periods: u64,
+    /// Relative tolerance of a jump's estimated error [-].
+    pub tolerance: f64,
 }
 
 /// Model time counts seconds from the start year rounded to a whole multiple of

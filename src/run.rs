@@ -71,6 +71,9 @@ pub struct RunSummary {
     /// Per solute: its name and its final series values (as
     /// [`crate::solute::SoluteColumn::series_values`]).
     pub solutes: Vec<(String, Vec<f64>)>,
+    /// Cycle skipping (None: off): jumps, periods skipped, periods of the run, and the
+    /// jumps' cumulative balance errors [water kg m⁻², energy J m⁻²].
+    pub cycle_skipping: Option<(u64, u64, f64, [f64; 2])>,
 }
 
 /// The summary lines of the solutes: totals, balance, bulge and recharge estimate.
@@ -102,6 +105,15 @@ pub fn solute_lines(solutes: &[(String, Vec<f64>)]) -> String {
     out
 }
 
+/// A count of periods: whole numbers without decimals, others with six digits.
+fn whole_or(x: f64) -> String {
+    if (x - x.round()).abs() <= 1e-9 * x.abs().max(1.0) {
+        format!("{}", x.round())
+    } else {
+        crate::output::human(x, 6)
+    }
+}
+
 impl RunSummary {
     /// The one-screen summary printed at the end of `deepdry run`.
     pub fn text(&self) -> String {
@@ -112,7 +124,7 @@ impl RunSummary {
              steps {} (rejected {}), Newton iterations {}, Jacobian evaluations {}, factorisations {}\n\
              water balance error {} kg m-2 (relative {}); energy balance error {} J m-2 (relative {})\n\
              water flux at the surface {} mm/yr, at the bottom {} mm/yr (positive downward)\n\
-             {}results: {}\n{}",
+             {}{}results: {}\n{}",
             years(self.start),
             years(self.end),
             self.wall_seconds,
@@ -128,6 +140,16 @@ impl RunSummary {
             human(self.surface_flux_mm_yr, 4),
             human(self.bottom_flux_mm_yr, 4),
             solute_lines(&self.solutes),
+            match self.cycle_skipping {
+                Some((jumps, skipped, periods, [w, e])) => format!(
+                    "cycle skipping: {skipped} of {} periods skipped in {jumps} jumps ({} integrated); balance error of the jumps {} kg m-2 (water), {} J m-2 (energy), not included above\n",
+                    whole_or(periods),
+                    whole_or(periods - skipped as f64),
+                    human(w, 3),
+                    human(e, 3)
+                ),
+                None => String::new(),
+            },
             self.results.display(),
             if self.overrides.is_empty() {
                 String::new()
@@ -250,6 +272,8 @@ struct Prepared {
     initial_output: bool,
     /// The solute state to continue (resume) or to start from (branch).
     solutes: Option<crate::solute::SoluteState>,
+    /// Where cycle skipping stood (resume; None: start afresh).
+    envelope: Option<crate::solve::envelope::EnvelopeState>,
 }
 
 /// A new run from the case's initial state.
@@ -276,6 +300,7 @@ fn start_fresh(
         parent: None,
         initial_output: true,
         solutes: None,
+        envelope: None,
     })
 }
 
@@ -358,6 +383,7 @@ fn start_resume(
         parent: ck.info.parent,
         initial_output: false,
         solutes: ck.solutes,
+        envelope: ck.envelope,
     })
 }
 
@@ -394,6 +420,7 @@ fn start_branch(
         solutes: ck
             .solutes
             .filter(|s| s.names.iter().eq(model.solutes.iter().map(|m| &m.name))),
+        envelope: None,
     })
 }
 
@@ -562,6 +589,9 @@ pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
         opts.solver,
         start.solutes,
     )?;
+    if let Some(envelope) = start.envelope {
+        sim.set_envelope_state(envelope);
+    }
     // In this order: the bar is cleared before anything is reported, and the results
     // file is flushed before a checkpoint counts its rows.
     let mut progress = Progress::new(opts.progress);
@@ -622,6 +652,18 @@ pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
         })
         .unwrap_or_default();
     let end_year = model.time.year(sim.state().t);
+    let cycle_skipping = match (sim.envelope_state(), model.time.cycle_skipping) {
+        (Some(env), Some(c)) => Some((
+            env.jumps,
+            env.skipped,
+            (sim.state().t - model.time.start) / c.period,
+            [
+                env.mismatch.get(1).copied().unwrap_or(f64::NAN),
+                env.mismatch.first().copied().unwrap_or(f64::NAN),
+            ],
+        )),
+        _ => None,
+    };
     Ok(RunSummary {
         results: results_path,
         start: model.time.year(begin_t),
@@ -637,6 +679,7 @@ pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
         final_state: sim.into_state(),
         overrides: model.overrides.clone(),
         solutes,
+        cycle_skipping,
     })
 }
 

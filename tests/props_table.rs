@@ -178,6 +178,7 @@ fn model() -> Model {
             max_newton: 10,
             newton_tolerance: deepdry::solve::newton::DEFAULT_RESIDUAL_TOL,
             balance_tolerance: deepdry::case::build::DEFAULT_BALANCE_TOLERANCE,
+            cycle_skipping: None,
         },
         output: OutputControl {
             folder: std::path::PathBuf::from("."),

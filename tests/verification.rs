@@ -218,3 +218,13 @@ fn ponded_column_fills_to_the_darcy_steady_state() {
 fn ponded_infiltration_approaches_green_ampt() {
     check("green-ampt");
 }
+
+/// Cycle skipping on linear conduction: a 2 K excess decaying under a yearly surface wave
+/// (Carslaw & Jaeger 1959 §2.6 for the periodic part; the slab's Fourier series, derived,
+/// for the excess), within the derived sum of the jumps' errors plus the periodic part's
+/// a-priori discretisation error (validation/cycle-skipping/README.md); at most half of
+/// the years integrated.
+#[test]
+fn cycle_skipping_follows_a_decaying_excess_under_a_yearly_wave() {
+    check("cycle-skipping");
+}

@@ -229,7 +229,7 @@ pub fn build(src: &Source) -> R<Model> {
         // `physics::rules`): a ponding case gets a larger default limit.
         time.max_newton = PONDING_MAX_NEWTON;
     }
-    Ok(Model {
+    let model = Model {
         title,
         case_text: src.text.to_string(),
         overrides: src.overrides.iter().map(|o| o.to_string()).collect(),
@@ -246,7 +246,11 @@ pub fn build(src: &Source) -> R<Model> {
         checkpoint,
         solutes,
         vegetation,
-    })
+    };
+    if let Some(t) = root.get("time") {
+        super::cycles::check(&t.table(TIME_KEYS)?, &model)?;
+    }
+    Ok(model)
 }
 
 /// Refuses boundary temperatures at or above the boiling point at the air pressure: the
@@ -1413,6 +1417,7 @@ const TIME_KEYS: &[&str] = &[
     "max_newton_iterations",
     "newton_tolerance",
     "balance_tolerance",
+    "cycle_skipping",
 ];
 
 /// Default of `[time] balance_tolerance`: the cumulative balance error of a run relative
@@ -1557,6 +1562,7 @@ fn read_time(root: &Table) -> R<TimeControl> {
         "must be 1e-14 to 1e-2",
     )?
     .unwrap_or(DEFAULT_BALANCE_TOLERANCE);
+    let cycle_skipping = super::cycles::read(&t, start, end)?;
     let origin = crate::model::time_origin_year(start);
     Ok(TimeControl {
         epoch_year: origin,
@@ -1574,6 +1580,7 @@ fn read_time(root: &Table) -> R<TimeControl> {
         max_newton,
         newton_tolerance,
         balance_tolerance,
+        cycle_skipping,
     })
 }
 

@@ -12,6 +12,7 @@
 
 pub mod build;
 pub mod csvfile;
+pub mod cycles;
 pub mod overrides;
 pub mod schedules;
 pub mod solutes;

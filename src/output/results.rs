@@ -178,6 +178,13 @@ fn extra_series_sets(
                 .map(|(n, u, l)| (n.to_string(), *u, l.to_string())),
         );
     }
+    if extras.cycle_skipping {
+        out.extend(
+            crate::sim::simulation::CYCLE_SKIPPING_SERIES
+                .iter()
+                .map(|(n, u, l)| (n.to_string(), *u, l.to_string())),
+        );
+    }
     out
 }
 
@@ -187,6 +194,8 @@ fn extra_series_sets(
 pub struct Extras {
     pub vegetation: bool,
     pub surface_store: bool,
+    /// Cycle skipping (its jumps and their balance error).
+    pub cycle_skipping: bool,
 }
 
 impl Extras {
@@ -194,6 +203,7 @@ impl Extras {
         Extras {
             vegetation: model.has_plants(),
             surface_store: model.has_surface_store(),
+            cycle_skipping: model.time.cycle_skipping.is_some(),
         }
     }
 }

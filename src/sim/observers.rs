@@ -172,6 +172,7 @@ impl Checkpointer {
             &self.results,
             &info,
             sim.solutes().map(|c| &c.state),
+            sim.envelope_state(),
         )
     }
 }

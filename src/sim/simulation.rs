@@ -15,6 +15,7 @@ use crate::output::diagnostics::{drying_front_depth, Profile, SeriesRecord};
 use crate::physics::{column_balance, ColumnStepper as Stepper, System};
 use crate::props::constants::SECONDS_PER_YEAR;
 use crate::solute::{SoluteColumn, SoluteState};
+use crate::solve::envelope::{self, EnvelopeOptions, EnvelopeState};
 use crate::solve::linear::{make_solver, SolverKind};
 use crate::solve::newton::NewtonFailure;
 use crate::solve::stepper::{Counters, StepFailure, StepInfo, StepOptions, StepState};
@@ -77,6 +78,42 @@ pub const SURFACE_STORE_SERIES: [(&str, &str, &str); 4] = [
         "water held in the pond (part of water_storage)",
     ),
 ];
+
+/// The cycle-skipping series (name, units, long name), in the order of
+/// [`Simulation::extra_series`] (after the surface store's).
+pub const CYCLE_SKIPPING_SERIES: [(&str, &str, &str); 4] = [
+    (
+        "skipped_periods",
+        "1",
+        "forcing periods skipped by the jump that ends at this record (0: the record is of an integrated step; > 0: the state is extrapolated along the drift of the last integrated period, not simulated)",
+    ),
+    (
+        "skipped_periods_cumulative",
+        "1",
+        "forcing periods skipped by jumps since the start",
+    ),
+    (
+        "jump_water_balance_error_cumulative",
+        "kg m-2",
+        "water balance error of the jumps since the start (storage change of the extrapolated states minus the extrapolated net inflow); not part of water_balance_error",
+    ),
+    (
+        "jump_energy_balance_error_cumulative",
+        "J m-2",
+        "energy balance error of the jumps since the start; not part of energy_balance_error",
+    ),
+];
+
+/// The envelope settings of a model's cycle skipping (None: off).
+pub fn envelope_options(model: &Model) -> Option<EnvelopeOptions> {
+    model.time.cycle_skipping.map(|c| EnvelopeOptions {
+        period: c.period,
+        exact_periods: c.exact_periods,
+        max_jump: c.max_jump_periods,
+        tolerance: c.tolerance,
+        dt_after_jump: model.time.dt_initial,
+    })
+}
 
 /// Potential transpiration since the case's start time up to `t` [kg m⁻²]: the exact
 /// integral of the schedule over the periods with plants.
@@ -346,6 +383,11 @@ pub struct Simulation<'m> {
     profile: Profile,
     /// The solutes carried along with each step (None when the case has none).
     solutes: Option<SoluteColumn>,
+    /// Cycle skipping: its settings and where it stands (None: off).
+    envelope: Option<(EnvelopeOptions, EnvelopeState)>,
+    /// Periods skipped by the jump that ends at the current state (0: the state was
+    /// reached by a step); for the series record of a jump.
+    just_skipped: u64,
 }
 
 impl<'m> Simulation<'m> {
@@ -393,6 +435,11 @@ impl<'m> Simulation<'m> {
             }
             Some(column)
         };
+        let envelope = envelope_options(model).map(|o| {
+            let nq = st.state.inflow.len();
+            let state = EnvelopeState::new(st.state.t, model.time.start, o.period, nq);
+            (o, state)
+        });
         Ok(Simulation {
             model,
             sys,
@@ -401,7 +448,21 @@ impl<'m> Simulation<'m> {
             output,
             profile: Profile::default(),
             solutes,
+            envelope,
+            just_skipped: 0,
         })
+    }
+
+    /// Where cycle skipping stands (None: off).
+    pub fn envelope_state(&self) -> Option<&EnvelopeState> {
+        self.envelope.as_ref().map(|e| &e.1)
+    }
+
+    /// Continues cycle skipping from `state` (a resumed run; ignored when it is off).
+    pub fn set_envelope_state(&mut self, state: EnvelopeState) {
+        if let Some(e) = self.envelope.as_mut() {
+            e.1 = state;
+        }
     }
 
     /// The solute transport (None when the case has no solutes).
@@ -435,6 +496,15 @@ impl<'m> Simulation<'m> {
                 self.sys.runoff[1],
                 self.st.state.runoff.get(1).copied().unwrap_or(f64::NAN),
                 crate::props::constants::WATER_DENSITY * pond,
+            ]);
+        }
+        if let Some((_, env)) = &self.envelope {
+            let mismatch = |k: usize| env.mismatch.get(k).copied().unwrap_or(f64::NAN);
+            out.extend_from_slice(&[
+                self.just_skipped as f64,
+                env.skipped as f64,
+                mismatch(1),
+                mismatch(0),
             ]);
         }
         out
@@ -508,6 +578,9 @@ impl<'m> Simulation<'m> {
     /// Advances through every sync time after the current time to the end time, or until
     /// an observer asks to stop.
     pub fn run_to_end(&mut self, obs: &mut [&mut dyn Observer]) -> Result<Advance> {
+        if self.envelope.is_some() {
+            return self.run_skipping(obs);
+        }
         let t_begin = self.st.state.t;
         for k in 0..self.plan.syncs.len() {
             let t_sync = self.plan.syncs[k];
@@ -519,6 +592,92 @@ impl<'m> Simulation<'m> {
             }
         }
         Ok(Advance::Reached)
+    }
+
+    /// [`Simulation::run_to_end`] with cycle skipping: from period boundary to period
+    /// boundary (landing on the plan's sync times on the way), each boundary state kept;
+    /// after a block of exact periods a jump along the drift of the last one, as long as
+    /// its error estimate allows and never onto or past a sync time (snapshots,
+    /// checkpoint times and the end are always simulated). See [`crate::solve::envelope`].
+    fn run_skipping(&mut self, obs: &mut [&mut dyn Observer]) -> Result<Advance> {
+        let Some((opts, _)) = self.envelope else {
+            return Ok(Advance::Reached);
+        };
+        let (t0, end) = (self.model.time.start, self.model.time.end);
+        let p = opts.period;
+        // The start of a run on a boundary is the first point of its first block.
+        if let Some((_, env)) = self.envelope.as_mut() {
+            if env.points.is_empty() && self.st.state.t == envelope::boundary(t0, p, env.period) {
+                env.push(&self.st.state);
+            }
+        }
+        loop {
+            let t = self.st.state.t;
+            if t >= end {
+                return Ok(Advance::Reached);
+            }
+            let period = self.envelope.as_ref().map_or(0, |e| e.1.period);
+            let next_boundary = envelope::boundary(t0, p, period + 1);
+            let target = next_boundary.min(end);
+            // The plan's sync times before the boundary first.
+            let mut k = self.plan.syncs.partition_point(|&s| s <= t);
+            while k < self.plan.syncs.len() && self.plan.syncs[k] < target {
+                if self.advance_to(self.plan.syncs[k], obs)? == Advance::Stopped {
+                    return Ok(Advance::Stopped);
+                }
+                k += 1;
+            }
+            if self.st.state.t < target && self.advance_to(target, obs)? == Advance::Stopped {
+                return Ok(Advance::Stopped);
+            }
+            if self.st.state.t != next_boundary {
+                continue;
+            }
+            let Some((_, env)) = self.envelope.as_mut() else {
+                return Ok(Advance::Reached);
+            };
+            env.period += 1;
+            env.exact += 1;
+            env.push(&self.st.state);
+            if env.exact < opts.exact_periods || env.points.len() < 3 {
+                continue;
+            }
+            // The error tests read the state's cells: evaluate it directly (the same
+            // whatever the solver kept, so a resumed run decides the same).
+            let t = self.st.state.t;
+            self.sys.evaluate_direct(t, &self.st.state.u);
+            let Some((_, env)) = self.envelope.as_mut() else {
+                return Ok(Advance::Reached);
+            };
+            let err = envelope::drift_change(&self.sys, &env.points, opts.tolerance);
+            env.last_error = err;
+            // Whole periods before the next sync time, landing strictly before it.
+            let next_sync = self
+                .plan
+                .syncs
+                .get(self.plan.syncs.partition_point(|&s| s <= t))
+                .copied()
+                .unwrap_or(end);
+            let mut room = ((next_sync - t) / p).floor().max(0.0) as u64;
+            while room > 0 && envelope::boundary(t0, p, env.period + room) >= next_sync {
+                room -= 1;
+            }
+            let m = envelope::jump_size(err, &opts, env.last_jump, room);
+            if m == 0 {
+                continue;
+            }
+            let t_new = envelope::boundary(t0, p, env.period + m);
+            let left = envelope::jump(&mut self.sys, &mut self.st, env, &opts, m, t_new);
+            log::debug!(
+                "cycle skipping: jumped {m} periods to year {:.6} (drift change {err:.3e}, storage residual {left:.1e})",
+                self.model.time.year(t_new)
+            );
+            self.just_skipped = m;
+            let rec = series_record(&self.sys, &self.st, m as f64 * p, 0);
+            let emitted = self.emit_series(obs, rec);
+            self.just_skipped = 0;
+            emitted?;
+        }
     }
 
     /// Steps until the time is `t_sync` (landing on it exactly), giving series records,

@@ -2,6 +2,7 @@
 //! module here knows the soil physics (the column implements the trait in `physics`).
 
 pub mod blocktri;
+pub mod envelope;
 pub mod linear;
 pub mod newton;
 pub mod problem;

@@ -113,6 +113,7 @@ pub fn column(
             max_newton: 15,
             newton_tolerance: deepdry::solve::newton::DEFAULT_RESIDUAL_TOL,
             balance_tolerance: deepdry::case::build::DEFAULT_BALANCE_TOLERANCE,
+            cycle_skipping: None,
         },
         output: OutputControl {
             folder: std::env::temp_dir(),

@@ -46,6 +46,7 @@ macro_rules! files {
 
 mod balance_closure;
 mod closed_column_loop;
+mod cycle_skipping;
 mod drying_front;
 mod fick_vapour_diffusion;
 mod gardner_evaporation;
@@ -71,6 +72,7 @@ mod water_properties;
 
 use balance_closure::balance_closure;
 use closed_column_loop::closed_column_loop;
+use cycle_skipping::cycle_skipping;
 use drying_front::drying_front;
 use fick_vapour_diffusion::fick_vapour_diffusion;
 use gardner_evaporation::gardner_evaporation;
@@ -111,6 +113,11 @@ pub fn all() -> Vec<Case> {
             "periodic-surface",
             "periodic surface temperature: amplitude e^(-z/d), phase lag z/d",
             periodic_surface
+        ),
+        case!(
+            "cycle-skipping",
+            "cycle skipping: a decaying temperature excess under a yearly surface wave, most years jumped",
+            cycle_skipping
         ),
         case!(
             "gardner-evaporation",

@@ -1,0 +1,220 @@
+//! `[time.cycle_skipping]`: its keys, and the check that the forcing repeats with the
+//! period given (a jump along the drift of one period is only meaningful when every
+//! period is the same).
+
+use super::build::opt_num;
+use super::schedules::fmt_g;
+use super::tree::Table;
+use crate::error::Error;
+use crate::model::{
+    BottomHeat, BottomWater, CycleSkipping, Model, SurfaceHeat, SurfaceWater, TimeControl,
+};
+use crate::props::constants::SECONDS_PER_YEAR;
+use crate::schedule::Schedule;
+
+type R<T> = Result<T, Error>;
+
+pub const CYCLE_KEYS: &[&str] = &[
+    "period_year",
+    "exact_periods",
+    "max_jump_periods",
+    "tolerance",
+];
+
+/// Default whole periods integrated exactly between two jumps.
+pub const DEFAULT_EXACT_PERIODS: u64 = 4;
+/// Default most periods one jump skips.
+pub const DEFAULT_MAX_JUMP_PERIODS: u64 = 1000;
+/// Default relative tolerance of a jump's estimated error: the integration's own
+/// period-to-period scatter at rtol 1e-3 is 1e-2 to 1e-1 of the weights at 1e-3, which
+/// would hold every jump to 1–2 periods.
+pub const DEFAULT_TOLERANCE: f64 = 1.0e-2;
+
+/// Reads `[time.cycle_skipping]` of the time section `t` (None when absent); the span
+/// must hold a block of exact periods and one more.
+pub fn read(t: &Table, start_year: f64, end_year: f64) -> R<Option<CycleSkipping>> {
+    let Some(v) = t.get("cycle_skipping") else {
+        return Ok(None);
+    };
+    let c = v.table(CYCLE_KEYS)?;
+    let span = end_year - start_year;
+    let pv = c.req("period_year", "the forcing period [years]")?;
+    let period = super::build::num(
+        &pv,
+        |p| p > 0.0 && p.is_finite(),
+        "must be a positive number of years (the forcing's period)",
+    )?;
+    let exact = match c.get("exact_periods") {
+        Some(v) => v.usize_in(3, 1000, "whole periods integrated between jumps")? as u64,
+        None => DEFAULT_EXACT_PERIODS,
+    };
+    if span < (exact + 1) as f64 * period {
+        return Err(pv.err(format!(
+            "the run ({} to {}, {} yr) must hold at least exact_periods + 1 = {} periods for a jump",
+            fmt_g(start_year),
+            fmt_g(end_year),
+            fmt_g(span),
+            exact + 1
+        )));
+    }
+    let max_jump = match c.get("max_jump_periods") {
+        Some(v) => v.usize_in(1, 1_000_000_000, "periods")? as u64,
+        None => DEFAULT_MAX_JUMP_PERIODS,
+    };
+    let tolerance = opt_num(
+        &c,
+        "tolerance",
+        |x| (1e-8..=0.1).contains(&x),
+        "must be 1e-8 to 0.1 (relative)",
+    )?
+    .unwrap_or(DEFAULT_TOLERANCE);
+    Ok(Some(CycleSkipping {
+        period: period * SECONDS_PER_YEAR,
+        exact_periods: exact,
+        max_jump_periods: max_jump,
+        tolerance,
+    }))
+}
+
+/// Why schedule `s` does not repeat with period `period` [s] over (start, end) [s], if
+/// it does not: constants and sinusoids whose period divides `period` repeat; a table or
+/// stepped schedule only when it does not change inside the run.
+fn not_periodic(s: &Schedule, period: f64, start: f64, end: f64) -> Option<String> {
+    match s {
+        Schedule::Constant(_) => None,
+        Schedule::Sine { period: p, .. } => {
+            let r = period / p;
+            let k = r.round();
+            if k >= 1.0 && (r - k).abs() <= 1e-9 * r {
+                None
+            } else {
+                Some(format!(
+                    "a sinusoid of period {} yr, which does not divide it",
+                    fmt_g(p / SECONDS_PER_YEAR)
+                ))
+            }
+        }
+        Schedule::Steps { .. } | Schedule::Table { .. } => {
+            let tol = 1e-9 * period;
+            s.breakpoints()
+                .into_iter()
+                .find(|&b| b > start + tol && b < end - tol)
+                .map(|b| {
+                    format!(
+                        "a table or stepped schedule that changes inside the run (at {} yr after the start)",
+                        fmt_g((b - start) / SECONDS_PER_YEAR)
+                    )
+                })
+        }
+        Schedule::Sum(parts) => parts
+            .iter()
+            .find_map(|p| not_periodic(p, period, start, end)),
+    }
+}
+
+/// Refuses a model whose forcing does not repeat with the cycle-skipping period, or
+/// that has what cycle skipping does not carry (solutes), naming `time.cycle_skipping
+/// .period_year` of the case and what is allowed.
+pub fn check(t: &Table, model: &Model) -> R<()> {
+    let Some(cs) = model.time.cycle_skipping else {
+        return Ok(());
+    };
+    let c = t
+        .get("cycle_skipping")
+        .ok_or_else(|| t.err("cycle_skipping missing"))?
+        .table(CYCLE_KEYS)?;
+    let pv = c.req("period_year", "the forcing period [years]")?;
+    let TimeControl { start, end, .. } = model.time;
+    let refuse = |what: &str, why: String| {
+        pv.err(format!(
+            "the forcing must repeat with this period, but {what} has {why} (allowed: constants and sinusoids whose periods divide it; no tables, steps or changes of boundary condition inside the run)"
+        ))
+    };
+    let check_s = |what: &str, s: &Schedule| -> R<()> {
+        match not_periodic(s, cs.period, start, end) {
+            Some(why) => Err(refuse(what, why)),
+            None => Ok(()),
+        }
+    };
+    let tol = 1e-9 * cs.period;
+    let inside = |b: f64| b > start + tol && b < end - tol;
+    let change = |what: &str, b: f64| {
+        refuse(
+            what,
+            format!(
+                "a change of condition at {} yr after the start",
+                fmt_g((b - start) / SECONDS_PER_YEAR)
+            ),
+        )
+    };
+    // Only the periods in force during the run count.
+    let in_force = |starts: Vec<f64>| -> Vec<usize> {
+        (0..starts.len())
+            .filter(|&k| starts.get(k + 1).is_none_or(|&next| next > start) && starts[k] < end)
+            .collect()
+    };
+    let surf = &model.surface.periods;
+    for k in in_force(surf.iter().map(|p| p.0).collect()) {
+        let (b, bc) = &surf[k];
+        if inside(*b) {
+            return Err(change("[surface]", *b));
+        }
+        match &bc.heat {
+            SurfaceHeat::Temperature(s) => check_s("the surface temperature", s)?,
+            SurfaceHeat::Flux(s) => check_s("the surface heat flux", s)?,
+        }
+        match &bc.water {
+            SurfaceWater::Head(s) => check_s("the surface head", s)?,
+            SurfaceWater::Flux { flux, .. } => check_s("the surface water flux", flux)?,
+            SurfaceWater::Pond { inflow, air, .. } => {
+                check_s("the water applied to the surface", inflow)?;
+                if let Some((rh, r)) = air {
+                    check_s("the air's relative humidity", rh)?;
+                    if let Some(r) = r {
+                        check_s("the surface resistance", r)?;
+                    }
+                }
+            }
+            SurfaceWater::Atmosphere {
+                relative_humidity,
+                resistance,
+            } => {
+                check_s("the air's relative humidity", relative_humidity)?;
+                if let Some(r) = resistance {
+                    check_s("the surface resistance", r)?;
+                }
+            }
+            SurfaceWater::NoFlow => {}
+        }
+    }
+    let bot = &model.bottom.periods;
+    for k in in_force(bot.iter().map(|p| p.0).collect()) {
+        let (b, bc) = &bot[k];
+        if inside(*b) {
+            return Err(change("[bottom]", *b));
+        }
+        match &bc.heat {
+            BottomHeat::Temperature(s) => check_s("the bottom temperature", s)?,
+            BottomHeat::GeothermalFlux(s) => check_s("the geothermal heat flux", s)?,
+        }
+        if let BottomWater::WaterTable(s) = &bc.water {
+            check_s("the bottom head", s)?;
+        }
+    }
+    let veg = &model.vegetation.periods;
+    for k in in_force(veg.iter().map(|p| p.0).collect()) {
+        let (b, v) = &veg[k];
+        if inside(*b) {
+            return Err(change("[[vegetation]]", *b));
+        }
+        if let Some(v) = v {
+            check_s("the potential transpiration", &v.transpiration)?;
+        }
+    }
+    if !model.solutes.is_empty() {
+        return Err(pv.err(
+            "cycle skipping does not carry solutes (their masses are not extrapolated): remove [time.cycle_skipping] or the [[solutes]]",
+        ));
+    }
+    Ok(())
+}

@@ -170,9 +170,7 @@ pub fn check(t: &Table, model: &Model) -> R<()> {
                 check_s("the water applied to the surface", inflow)?;
                 if let Some((rh, r)) = air {
                     check_s("the air's relative humidity", rh)?;
-                    if let Some(r) = r {
-                        check_s("the surface resistance", r)?;
-                    }
+                    check_s("the surface resistance", r)?;
                 }
             }
             SurfaceWater::Atmosphere {

@@ -59,22 +59,34 @@ pub fn write_1d(
 
 /// A growable 1-D f64 dataset (chunked, unlimited).
 pub fn growable_1d(g: &Group, name: &str, units: &str, long_name: &str) -> hdf5::Result<Dataset> {
-    let ds = g.new_dataset::<f64>().chunk(256).shape(0..).create(name)?;
+    let ds = g
+        .new_dataset::<f64>()
+        .chunk(SERIES_CHUNK_ROWS)
+        .shape(0..)
+        .create(name)?;
     describe(&ds, units, long_name)?;
     Ok(ds)
 }
 
-/// A growable 2-D f64 dataset with `width` columns.
+/// Rows per chunk of a growable series dataset (1-D, or 2-D with a few columns per row).
+pub const SERIES_CHUNK_ROWS: usize = 256;
+
+/// A growable 2-D f64 dataset with `width` columns, chunked by `rows_per_chunk` rows: 1
+/// for profiles (a row per snapshot, as wide as the mesh), [`SERIES_CHUNK_ROWS`] for a
+/// series with a few values per record (one-row chunks there gave every series record a
+/// chunk of its own: ~7 kB of HDF5's bookkeeping per record while a batch of queued
+/// records was written, and a chunk index as long as the run).
 pub fn growable_2d(
     g: &Group,
     name: &str,
     width: usize,
+    rows_per_chunk: usize,
     units: &str,
     long_name: &str,
 ) -> hdf5::Result<Dataset> {
     let ds = g
         .new_dataset::<f64>()
-        .chunk((1, width.max(1)))
+        .chunk((rows_per_chunk.max(1), width.max(1)))
         .shape((0.., width))
         .create(name)?;
     describe(&ds, units, long_name)?;

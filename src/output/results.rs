@@ -29,6 +29,10 @@ use std::path::{Path, PathBuf};
 /// Attribute value of `kind` that marks a results file.
 pub const RESULTS_KIND: &str = "deepdry-results";
 
+/// Series rows queued in memory at most before they are written out (and the file
+/// flushed) between snapshots and checkpoints (~0.4 kB per queued row).
+pub const SERIES_QUEUE_ROWS: usize = 4096;
+
 /// The cell-centred profiles: dataset name, units, long name.
 pub const PROFILE_CELL: [(&str, &str, &str); 5] = [
     ("temperature", "degC", "temperature"),
@@ -372,7 +376,7 @@ impl Sets {
             list.iter()
                 .map(|(name, units, long)| {
                     if create {
-                        let ds = growable_2d(&prof, name, width, units, long)?;
+                        let ds = growable_2d(&prof, name, width, 1, units, long)?;
                         add_standard_name(&ds, name)?;
                         Ok(ds)
                     } else {
@@ -387,6 +391,7 @@ impl Sets {
                 &ser,
                 "layer_water_storage",
                 names.len(),
+                super::h5util::SERIES_CHUNK_ROWS,
                 "kg m-2",
                 "water (liquid and vapour) stored in each layer of the column",
             )?,
@@ -411,7 +416,7 @@ impl Sets {
                         cells
                     };
                     let ds = if create {
-                        growable_2d(&prof, &name, width, units, &long)?
+                        growable_2d(&prof, &name, width, 1, units, &long)?
                     } else {
                         prof.dataset(&name)?
                     };
@@ -754,23 +759,34 @@ impl ResultsFile {
         super::h5util::attr_f64(&root, name, value).map_err(h5(&self.path))
     }
 
-    /// Queues one series row (written at the next snapshot or flush), with no water
-    /// storage per layer (NaN).
-    pub fn push_series(&mut self, rec: SeriesRecord) {
+    /// Queues one series row (written at the next snapshot or flush, or when
+    /// [`SERIES_QUEUE_ROWS`] rows are queued), with no water storage per layer (NaN).
+    pub fn push_series(&mut self, rec: SeriesRecord) -> Result<()> {
         let nan = vec![f64::NAN; self.layers];
-        self.push_series_layers(rec, &nan, &[]);
+        self.push_series_layers(rec, &nan, &[])
     }
 
     /// Queues one series row, the water stored in each layer [kg m⁻²] (as many values
     /// as layers; missing ones are NaN) and the solute series values (as
     /// [`crate::solute::SoluteColumn::series_values`]; missing ones are NaN).
-    pub fn push_series_layers(&mut self, rec: SeriesRecord, layer_water: &[f64], solutes: &[f64]) {
+    pub fn push_series_layers(
+        &mut self,
+        rec: SeriesRecord,
+        layer_water: &[f64],
+        solutes: &[f64],
+    ) -> Result<()> {
         self.pending.push(rec);
         self.pending_layers
             .extend((0..self.layers).map(|k| layer_water.get(k).copied().unwrap_or(f64::NAN)));
         let ns = self.sets.extra_series.len();
         self.pending_solutes
             .extend((0..ns).map(|k| solutes.get(k).copied().unwrap_or(f64::NAN)));
+        // A run with few snapshots and checkpoints (10⁶ steps between them) must not
+        // hold its series in memory: the queue is written out when it is long.
+        if self.pending.len() >= SERIES_QUEUE_ROWS {
+            self.flush()?;
+        }
+        Ok(())
     }
 
     /// Writes a snapshot at `time_year`, then everything queued, then flushes the file.

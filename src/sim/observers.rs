@@ -89,8 +89,7 @@ impl Observer for ResultsWriter {
             self.file.layers,
         );
         self.file
-            .push_series_layers(*record, &layers, &sim.extra_series());
-        Ok(())
+            .push_series_layers(*record, &layers, &sim.extra_series())
     }
     fn snapshot(&mut self, sim: &Simulation, time_year: f64, profile: &Profile) -> Result<()> {
         self.still_there(sim)?;

@@ -109,7 +109,8 @@ pub fn write_synthetic_with(path: &Path, title: &str, case_text: &str, year0: f6
             dt: 100.0,
             newton_iterations: 3.0,
             ..Default::default()
-        });
+        })
+        .unwrap();
         while next_snapshot < SNAPSHOT_TIMES.len() && SNAPSHOT_TIMES[next_snapshot] <= t {
             let ts = SNAPSHOT_TIMES[next_snapshot];
             rf.write_snapshot(year0 + ts, &profile(ts, &centers, &faces))

@@ -14,7 +14,8 @@ use super::dual::Dual;
 use super::flux::{face_flux, FaceFlux};
 use super::BLOCK;
 use super::{System, ENERGY, H, RV, T, VAPOR, WATER};
-use crate::solve::blocktri::{zero_block, Block, BlockTri};
+use crate::solve::blocktri::{zero_block, Block, BlockRows};
+use crate::solve::problem::NonFinite;
 
 /// Largest relative change of a cell's unknowns from the base of a kept evaluation with
 /// derivatives (head: relative to max(|h|, 0.01 m)), within which its values are taken
@@ -80,6 +81,10 @@ impl<const N: usize, const M: usize> Default for Derivs<N, M> {
     }
 }
 
+/// Adds the derivatives of cell i's source terms (root uptake, runoff) to its diagonal
+/// block (see [`Kept::jacobian_into`]).
+pub(super) type SourceJacobian<'a> = dyn Fn(usize, &mut Block<BLOCK>) + 'a;
+
 /// What the system asks of its kept evaluations, whatever their number of slots (the
 /// methods of [`Derivs`], see there).
 pub(super) trait Kept {
@@ -101,8 +106,14 @@ pub(super) trait Kept {
         parts: bool,
     ) -> bool;
     fn complete_parts(&self, sys: &System, u: &[f64], faces: &mut [FaceFlux<0>]);
-    fn jacobian_into(&self, sys: &System, c: f64, jac: &mut BlockTri<BLOCK>);
-    fn storage_blocks_into(&self, sys: &System, out: &mut [Block<BLOCK>]);
+    fn jacobian_into(
+        &self,
+        sys: &System,
+        c: f64,
+        jac: &mut dyn BlockRows<BLOCK>,
+        sources: Option<&SourceJacobian>,
+    ) -> Result<(), NonFinite>;
+    fn storage_blocks_into(&self, sys: &System, out: &mut dyn BlockRows<BLOCK>);
     /// The heap arrays of the kept evaluations (see [`crate::memory`]).
     fn arrays(&self, out: &mut Vec<crate::memory::ArrayCost>);
 }
@@ -404,15 +415,28 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
     }
 
     /// The Jacobian of the residual of [`System::assemble`] with coefficient `c` into
-    /// `jac` (zeroed first).
-    fn jacobian_into(&self, sys: &System, c: f64, jac: &mut BlockTri<BLOCK>) {
+    /// `jac`, block row by block row, with `sources(i, diag)` (when given) adding the
+    /// derivatives of cell i's source terms last. Each entry sums, in this order, the cell's storage
+    /// and local terms, the face above, the face below and the sources. NaN or Inf: the
+    /// first in a lower block, else in a diagonal, else in an upper one (by block row,
+    /// then row).
+    fn jacobian_into(
+        &self,
+        sys: &System,
+        c: f64,
+        jac: &mut dyn BlockRows<BLOCK>,
+        sources: Option<&SourceJacobian>,
+    ) -> Result<(), NonFinite> {
         let n = sys.n;
         let rate = sys.kinetic_rate();
-        jac.zero();
+        let rows = if rate.is_some() { BLOCK } else { BLOCK - 1 };
+        let mut bad: [Option<NonFinite>; 3] = [None, None, None];
         for i in 0..n {
+            // Lower, diagonal and upper block of row i.
+            let mut blocks = [zero_block::<BLOCK>(); 3];
             let w = sys.widths[i];
             let cp = &self.cells[i];
-            let d = &mut jac.diag[i];
+            let d = &mut blocks[1];
             let energy = cp.energy * (c * w);
             let water = cp.water * (c * w);
             for col in 0..N {
@@ -434,29 +458,39 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
                     d[VAPOR][RV] += 1.0;
                 }
             }
-        }
-        let rows = if rate.is_some() { BLOCK } else { BLOCK - 1 };
-        for j in 0..=n {
-            let vals = &self.totals[j];
-            let col_up = if j == 0 { 0 } else { j - 1 };
-            let col_dn = if j == n { n - 1 } else { j };
-            for (rb, sign) in [(j.wrapping_sub(1), 1.0), (j, -1.0)] {
-                if rb >= n {
-                    continue;
-                }
+            // Face i (above the cell: its flow leaves the row, sign −1), then face i + 1
+            // (below: +1); a face's derivatives are w.r.t. the cell above it (slots
+            // 0..N) and below it (N..2N), the boundary faces' both w.r.t. their cell.
+            for (j, sign) in [(i, -1.0), (i + 1, 1.0)] {
+                let vals = &self.totals[j];
+                let col_up = if j == 0 { 0 } else { j - 1 };
+                let col_dn = if j == n { n - 1 } else { j };
+                // 0: lower, 1: diagonal, 2: upper block of row i.
+                let (ku, kd) = (col_up + 1 - i, col_dn + 1 - i);
                 for (r, v) in vals.iter().enumerate().take(rows) {
-                    {
-                        let b = jac.block_mut(rb, col_up);
-                        for col in 0..N {
-                            b[r][col] += sign * v.d[col];
-                        }
-                    }
-                    let b = jac.block_mut(rb, col_dn);
                     for col in 0..N {
-                        b[r][col] += sign * v.d[N + col];
+                        blocks[ku][r][col] += sign * v.d[col];
+                    }
+                    for col in 0..N {
+                        blocks[kd][r][col] += sign * v.d[N + col];
                     }
                 }
             }
+            if let Some(add) = sources {
+                add(i, &mut blocks[1]);
+            }
+            for (k, b) in blocks.iter().enumerate() {
+                if bad[k].is_none() {
+                    if let Some(row) = b.iter().position(|r| !super::all_finite(r)) {
+                        bad[k] = Some(NonFinite { cell: i, row });
+                    }
+                }
+            }
+            jac.set_row(i, &blocks[0], &blocks[1], &blocks[2]);
+        }
+        match bad.into_iter().flatten().next() {
+            Some(e) => Err(e),
+            None => Ok(()),
         }
     }
 
@@ -472,12 +506,12 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
     }
 
     /// The storage-derivative blocks (see [`System::storage_jacobian_into`]).
-    fn storage_blocks_into(&self, sys: &System, out: &mut [Block<BLOCK>]) {
+    fn storage_blocks_into(&self, sys: &System, out: &mut dyn BlockRows<BLOCK>) {
         let kinetic = sys.kinetic_rate().is_some();
-        for (i, b) in out.iter_mut().enumerate().take(sys.n) {
+        for i in 0..sys.n {
             let w = sys.widths[i];
             let cp = &self.cells[i];
-            *b = zero_block();
+            let mut b = zero_block();
             let rows = [cp.energy, cp.water, cp.vapor];
             let used = if kinetic { BLOCK } else { BLOCK - 1 };
             for (r, row) in rows.iter().enumerate().take(used) {
@@ -485,6 +519,7 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
                     b[r][col] = w * row.d[col];
                 }
             }
+            out.set_diag(i, &b);
         }
     }
 }

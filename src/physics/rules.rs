@@ -7,7 +7,7 @@
 use super::{System, ENERGY, H, RV, T, WATER};
 use crate::model::Model;
 use crate::props::constants::WATER_DENSITY;
-use crate::solve::blocktri::{Block, BlockTri};
+use crate::solve::blocktri::BlockRows;
 use crate::solve::problem::{BalanceScales, Conserved, ErrorTest, NonFinite, Problem};
 
 /// Unknowns per cell: T [K], h [m], rv [kg m⁻³].
@@ -115,12 +115,17 @@ impl Problem<BLOCK> for System {
         c: f64,
         hist: &[f64],
         res: &mut [f64],
-        jac: Option<&mut BlockTri<BLOCK>>,
+        jac: Option<&mut dyn BlockRows<BLOCK>>,
     ) -> Result<(), NonFinite> {
         System::assemble(self, t, u, c, hist, res, jac)
     }
 
-    fn storage_jacobian_into(&self, out: &mut [Block<BLOCK>]) {
+    fn last_unknown_decoupled(&self) -> bool {
+        // In equilibrium mode the vapour row is rv − rveq(T, h) and nothing depends on rv.
+        self.kinetic_rate().is_none()
+    }
+
+    fn storage_jacobian_into(&self, out: &mut dyn BlockRows<BLOCK>) {
         System::storage_jacobian_into(self, out);
     }
 

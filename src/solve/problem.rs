@@ -19,7 +19,7 @@
 //! through its two ends; the stepper integrates those flows with its own weights, so
 //! that storage change and cumulative inflow agree to the Newton tolerance.
 
-use super::blocktri::{Block, BlockTri};
+use super::blocktri::BlockRows;
 
 /// Largest number of conserved quantities a problem may declare.
 pub const MAX_CONSERVED: usize = 4;
@@ -111,13 +111,23 @@ pub trait Problem<const B: usize> {
         c: f64,
         hist: &[f64],
         res: &mut [f64],
-        jac: Option<&mut BlockTri<B>>,
+        jac: Option<&mut dyn BlockRows<B>>,
     ) -> Result<(), NonFinite>;
+
+    /// Whether, at every state, the last unknown of each block appears in no other row
+    /// than its own and its own row couples only within the block (an algebraic unknown
+    /// that follows the others, as the equilibrium vapour density): Newton then keeps the
+    /// Jacobian in (B−1)×(B−1) blocks plus that row (see
+    /// [`super::blocktri::PackedTri`]). Default: false (full blocks).
+    fn last_unknown_decoupled(&self) -> bool {
+        false
+    }
 
     /// Derivative of the storage terms `V M(u)` of each block with respect to its own
     /// unknowns, from the last evaluation with derivatives: the part of the Jacobian
     /// that scales with `c` (zero rows for algebraic equations).
-    fn storage_jacobian_into(&self, out: &mut [Block<B>]);
+    /// Written with [`BlockRows::set_diag`].
+    fn storage_jacobian_into(&self, out: &mut dyn BlockRows<B>);
 
     /// After the last evaluation (by [`Problem::assemble`]): per row, the scale against
     /// which Newton applies its tolerance `tol` (the magnitude of the terms that make

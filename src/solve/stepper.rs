@@ -331,7 +331,7 @@ impl<const B: usize> Stepper<B> {
             state,
             opts,
             lin,
-            work: NewtonWork::new(sys.blocks()),
+            work: NewtonWork::with_pattern(sys.blocks(), sys.last_unknown_decoupled()),
             u_old: vec![0.0; len],
             hist: vec![0.0; len],
             changes: Vec::new(),

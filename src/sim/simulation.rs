@@ -644,6 +644,9 @@ impl<'m> Simulation<'m> {
         for o in obs.iter_mut() {
             o.checkpoint(self, &data)?;
         }
+        // The copies of the kept evaluations' states are written: not kept resident
+        // (72 B per cell) until the next checkpoint copies them afresh.
+        self.st.drop_synced();
         Ok(())
     }
 

@@ -129,8 +129,10 @@ impl<const B: usize> BlockRows<B> for Vec<Block<B>> {
 /// only within the block): then the last row and column of the off-diagonal blocks and
 /// the last column of the diagonal blocks above that row are zero by construction and
 /// not stored, and the last row of each diagonal block is kept apart (B values). For
-/// B = 3 that is 3 × 32 + 24 B per block row instead of 3 × 72 B. Entries written where
-/// the pattern has none are dropped (a broken promise of the problem; checked in debug
+/// B = 3 that is 3 × 32 + 24 B per block row instead of 3 × 72 B. Storage derivatives
+/// ([`PackedTri::storage`]) are diagonal blocks whose decoupled last unknown, being
+/// algebraic, has no row at all (32 B instead of 72 B). Entries written where the
+/// pattern has none are dropped (a broken promise of the problem; checked in debug
 /// builds).
 #[derive(Debug, Clone)]
 pub struct PackedTri<const B: usize> {
@@ -143,24 +145,37 @@ pub struct PackedTri<const B: usize> {
 }
 
 impl<const B: usize> PackedTri<B> {
-    /// `n` zero block rows; `decoupled`: the pattern above; `tridiagonal` false: only
-    /// diagonal blocks (the off-diagonal ones read as zero and may not be set).
-    pub fn new(n: usize, decoupled: bool, tridiagonal: bool) -> Self {
+    /// `n` zero block rows of a block-tridiagonal matrix; `decoupled`: the pattern above.
+    pub fn new(n: usize, decoupled: bool) -> Self {
         let m = if decoupled && B >= 2 { B - 1 } else { B };
-        let off = if tridiagonal { m * m * n } else { 0 };
         PackedTri {
             n,
             m,
-            lower: vec![0.0; off],
+            lower: vec![0.0; m * m * n],
             diag: vec![0.0; m * m * n],
-            upper: vec![0.0; off],
+            upper: vec![0.0; m * m * n],
             last: if m < B { vec![[0.0; B]; n] } else { Vec::new() },
+        }
+    }
+
+    /// `n` zero diagonal blocks of storage derivatives (the off-diagonal blocks read as
+    /// zero and may not be set); `decoupled`: the last unknown is algebraic and
+    /// decoupled, so the last row and column of every block are zero and not stored.
+    pub fn storage(n: usize, decoupled: bool) -> Self {
+        let m = if decoupled && B >= 2 { B - 1 } else { B };
+        PackedTri {
+            n,
+            m,
+            lower: Vec::new(),
+            diag: vec![0.0; m * m * n],
+            upper: Vec::new(),
+            last: Vec::new(),
         }
     }
 
     /// A packed copy of `a` (entries outside the pattern dropped).
     pub fn from_matrix(a: &BlockTri<B>, decoupled: bool) -> Self {
-        let mut p = PackedTri::new(a.n, decoupled, true);
+        let mut p = PackedTri::new(a.n, decoupled);
         for i in 0..a.n {
             p.set_row(i, &a.lower[i], &a.diag[i], &a.upper[i]);
         }
@@ -248,11 +263,11 @@ impl<const B: usize> BlockRows<B> for PackedTri<B> {
     fn set_diag(&mut self, i: usize, d: &Block<B>) {
         let m = self.m;
         debug_assert!(
-            Self::fits(d, m, true),
+            Self::fits(d, m, !self.last.is_empty()),
             "diagonal block {i} outside the pattern"
         );
         Self::pack(&mut self.diag, m, i, d);
-        if m < B {
+        if m < B && !self.last.is_empty() {
             self.last[i] = d[m];
         }
     }
@@ -282,7 +297,7 @@ impl<const B: usize> BlockSource<B> for PackedTri<B> {
     #[inline(always)]
     fn diag(&self, i: usize) -> Block<B> {
         let mut b = Self::unpack(&self.diag, self.m, i);
-        if self.m < B {
+        if self.m < B && !self.last.is_empty() {
             b[self.m] = self.last[i];
         }
         b

@@ -158,8 +158,8 @@ impl<const B: usize> NewtonWork<B> {
             row: vec![0.0; B * n],
             col: vec![0.0; B * n],
             step: vec![0.0; B * n],
-            jac_raw: PackedTri::new(n, decoupled, true),
-            storage: PackedTri::new(n, decoupled, false),
+            jac_raw: PackedTri::new(n, decoupled),
+            storage: PackedTri::storage(n, decoupled),
             jac_c: None,
             factor_c: None,
             scale_c: None,
@@ -181,11 +181,8 @@ impl<const B: usize> NewtonWork<B> {
                 "Jacobian, algebraic rows",
             ],
         );
-        self.storage.arrays(
-            out,
-            OWNER,
-            ["", "storage blocks", "", "storage blocks, algebraic rows"],
-        );
+        self.storage
+            .arrays(out, OWNER, ["", "storage blocks", "", ""]);
         for v in [&self.res, &self.dx, &self.row, &self.col, &self.step] {
             push(out, OWNER, "vectors (5)", v);
         }

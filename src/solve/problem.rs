@@ -115,9 +115,10 @@ pub trait Problem<const B: usize> {
     ) -> Result<(), NonFinite>;
 
     /// Whether, at every state, the last unknown of each block appears in no other row
-    /// than its own and its own row couples only within the block (an algebraic unknown
-    /// that follows the others, as the equilibrium vapour density): Newton then keeps the
-    /// Jacobian in (B−1)×(B−1) blocks plus that row (see
+    /// than its own, its own row couples only within the block and has no storage (an
+    /// algebraic unknown that follows the others, as the equilibrium vapour density):
+    /// Newton then keeps the Jacobian in (B−1)×(B−1) blocks plus that row, and the
+    /// storage derivatives in (B−1)×(B−1) blocks (see
     /// [`super::blocktri::PackedTri`]). Default: false (full blocks).
     fn last_unknown_decoupled(&self) -> bool {
         false

@@ -386,6 +386,13 @@ impl<const B: usize> Stepper<B> {
         self.state.linearization_faces = faces;
     }
 
+    /// Drops the copies [`Stepper::sync_state`] made (once they are saved): the problem
+    /// still holds its kept evaluations, and the next sync copies them afresh.
+    pub fn drop_synced(&mut self) {
+        self.state.linearization_cells = Vec::new();
+        self.state.linearization_faces = Vec::new();
+    }
+
     /// Forgets the multistep history (after a discontinuity in the forcing): the next
     /// step is of order 1.
     pub fn restart_history(&mut self) {

@@ -9,7 +9,7 @@
 //! blocks; in equilibrium mode their vapour column is zero outside that row, which the
 //! block-tridiagonal solver exploits.
 
-use super::cell::{cell_props, CellProps};
+use super::cell::{cell_props, CellProps, KeptCell};
 use super::dual::Dual;
 use super::flux::{face_flux, FaceFlux};
 use super::BLOCK;
@@ -59,7 +59,8 @@ fn change<const N: usize>(x: &[f64], x0: &[f64]) -> [f64; N] {
 /// for ([`Kept::complete_parts`]).
 #[derive(Debug, Clone)]
 pub(super) struct Derivs<const N: usize, const M: usize> {
-    cells: Vec<CellProps<N>>,
+    /// Without the unknowns, which `cell_base` gives (see [`KeptCell`]).
+    cells: Vec<KeptCell<N>>,
     cell_base: Vec<f64>,
     faces: Vec<FaceFlux<0>>,
     totals: Vec<[Dual<M>; BLOCK]>,
@@ -137,12 +138,19 @@ impl<const N: usize, const M: usize> Derivs<N, M> {
             0.0,
             0.0,
         );
-        self.cells = vec![any; n];
+        self.cells = vec![KeptCell::of(&any); n];
         self.cell_base = vec![f64::NAN; BLOCK * n];
         self.faces = vec![FaceFlux::zero(); n + 1];
         self.totals = vec![[Dual::cst(0.0); BLOCK]; n + 1];
         self.face_base = vec![[f64::NAN; 6]; n + 1];
         self.face_kept = vec![false; n + 1];
+    }
+
+    /// Cell `k`'s whole record rebuilt from the kept record at its base (the values of
+    /// its evaluation there; not reached where [`Derivs::evaluate`] needs a direct cell).
+    #[inline]
+    fn whole_at(&self, k: usize) -> CellProps<N> {
+        self.cells[k].full(&self.cell_base[BLOCK * k..BLOCK * k + BLOCK], Self::WITH_RV)
     }
 
     /// Whether the unknowns of face `j`'s two cells lie near the face's base.
@@ -234,7 +242,7 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
         for i in 0..n {
             let x = &cells[BLOCK * i..BLOCK * i + BLOCK];
             if x.iter().all(|v| v.is_finite()) {
-                self.cells[i] = props(i, x);
+                self.cells[i] = KeptCell::of(&props(i, x));
                 self.cell_base[BLOCK * i..BLOCK * i + BLOCK].copy_from_slice(x);
             }
         }
@@ -271,6 +279,17 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
         for j in 1..n {
             self.face_kept[j] = self.face_near(j, u);
         }
+        // Cells and the interior face above each, in one pass: a face evaluated afresh
+        // reads the whole records of its two cells, both evaluated directly in this pass
+        // (a face that does not keep its base makes both its cells direct), kept here
+        // in two alternating slots while needed (the kept records hold no unknowns). The
+        // end cells are always direct (their boundary faces are evaluated), and their
+        // boundary faces are evaluated as soon as they are.
+        let avg = sys.physics.face_conductivity;
+        let mut slot: [CellProps<N>; 2] = [self.whole_at(0), self.whole_at(0)];
+        let mut fresh = [false; 2];
+        let mut top = None;
+        let mut bottom = None;
         for i in 0..n {
             let x = &u[BLOCK * i..BLOCK * i + BLOCK];
             let direct = !near(
@@ -279,10 +298,13 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
                 Self::WITH_RV,
             ) || !self.face_kept[i]
                 || !self.face_kept[i + 1];
+            let (here, prev) = (i % 2, 1 - i % 2);
             if direct {
-                self.cells[i] = sys.props_at(i, x);
+                slot[here] = sys.props_at::<N>(i, x);
+                let c = &slot[here];
+                self.cells[i] = KeptCell::of(c);
                 self.cell_base[BLOCK * i..BLOCK * i + BLOCK].copy_from_slice(x);
-                sys.cells[i] = self.cells[i].values();
+                sys.cells[i] = c.values();
             } else {
                 let x0 = &self.cell_base[BLOCK * i..BLOCK * i + BLOCK];
                 self.cells[i].taylor_into(
@@ -293,9 +315,24 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
                     &mut sys.cells[i],
                 );
             }
-        }
-        let avg = sys.physics.face_conductivity;
-        for j in 1..n {
+            fresh[here] = direct;
+            if i == 0 || i == n - 1 {
+                if !direct {
+                    slot[here] = self.whole_at(i);
+                }
+                let c = &slot[here];
+                if i == 0 {
+                    top = Some(sys.top_face(t, c));
+                }
+                if i == n - 1 {
+                    bottom = Some(sys.bottom_face(t, c));
+                }
+            }
+            // Face j = i, between cells i − 1 and i.
+            let j = i;
+            if j == 0 {
+                continue;
+            }
             if self.face_kept[j] {
                 let du = self.face_change(j, u);
                 // The parts at the base (their scales are what the convergence test
@@ -304,9 +341,14 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
                 sys.face_totals[j] = self.totals_at(j, &du);
                 any_kept = true;
             } else {
+                for (k, cell) in [(prev, j - 1), (here, j)] {
+                    if !fresh[k] {
+                        slot[k] = self.whole_at(cell);
+                    }
+                }
                 let f = face_flux(
-                    &self.cells[j - 1],
-                    &self.cells[j],
+                    &slot[prev],
+                    &slot[here],
                     0,
                     N,
                     sys.d_below[j - 1],
@@ -321,9 +363,9 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
                 sys.face_totals[j] = value_totals(&self.totals[j]);
             }
         }
-        // The end cells are always direct (their boundary faces are evaluated).
-        let top = sys.top_face(t, &self.cells[0]);
-        let bottom = sys.bottom_face(t, &self.cells[n - 1]);
+        let (Some(top), Some(bottom)) = (top, bottom) else {
+            return any_kept;
+        };
         for (j, f) in [(0, top), (n, bottom)] {
             self.totals[j] = f.totals();
             self.faces[j] = f.values();
@@ -445,7 +487,8 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
             }
             match rate {
                 Some(b) => {
-                    let vapor = cp.vapor * (c * w) - (cp.rveq - cp.rv) * (b * w);
+                    let rv = cp.rv(&self.cell_base[BLOCK * i..BLOCK * i + BLOCK], true);
+                    let vapor = cp.vapor * (c * w) - (cp.rveq - rv) * (b * w);
                     for col in 0..N {
                         d[VAPOR][col] += vapor.d[col];
                     }

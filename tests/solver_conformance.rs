@@ -125,12 +125,12 @@ impl<const B: usize, O: Ode<B>> Problem<B> for OdeProblem<B, O> {
     fn column_scales_into(&self, _u: &[f64], col: &mut [f64]) {
         col.fill(1.0);
     }
-    fn apply_update(&self, u: &mut [f64], dx: &[f64], col: &[f64], step: &mut [f64]) -> bool {
+    fn apply_update(&self, u: &mut [f64], dx: &mut [f64], col: &[f64]) -> bool {
         let atol = self.ode.atol();
         let mut small = true;
         for r in 0..B {
             let d = dx[r] * col[r];
-            step[r] = d;
+            dx[r] = d;
             u[r] += d;
             if d.abs() > 1e-14 * u[r].abs().max(atol[r]) {
                 small = false;
@@ -431,12 +431,12 @@ impl Problem<2> for Chain {
     fn column_scales_into(&self, _u: &[f64], col: &mut [f64]) {
         col.fill(1.0);
     }
-    fn apply_update(&self, u: &mut [f64], dx: &[f64], col: &[f64], step: &mut [f64]) -> bool {
+    fn apply_update(&self, u: &mut [f64], dx: &mut [f64], col: &[f64]) -> bool {
         let mut small = true;
-        for ((x, d), (c, s)) in u.iter_mut().zip(dx).zip(col.iter().zip(step.iter_mut())) {
-            *s = d * c;
-            *x += *s;
-            small &= s.abs() < 1e-14;
+        for ((x, d), c) in u.iter_mut().zip(dx.iter_mut()).zip(col) {
+            *d *= c;
+            *x += *d;
+            small &= d.abs() < 1e-14;
         }
         small
     }

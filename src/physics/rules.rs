@@ -151,7 +151,7 @@ impl Problem<BLOCK> for System {
         }
     }
 
-    fn apply_update(&self, u: &mut [f64], dx: &[f64], col: &[f64], step: &mut [f64]) -> bool {
+    fn apply_update(&self, u: &mut [f64], dx: &mut [f64], col: &[f64]) -> bool {
         let r = &self.rules;
         let mut small = true;
         let shrink = 1.0 / r.max_head_factor;
@@ -161,7 +161,8 @@ impl Problem<BLOCK> for System {
         let mut old_above = f64::NAN;
         for i in 0..n {
             let k = BLOCK * i;
-            let (d, c) = (&dx[k..k + BLOCK], &col[k..k + BLOCK]);
+            let d = [dx[k + T], dx[k + H], dx[k + RV]];
+            let c = &col[k..k + BLOCK];
             let dt = (d[T] * c[T]).clamp(-r.max_temperature_update, r.max_temperature_update);
             // Heads move at most by the factor `max_head_factor` per iteration in |h|
             // (dry soil spans decades), plus `max_head_update` near saturation.
@@ -199,9 +200,9 @@ impl Problem<BLOCK> for System {
             {
                 small = false;
             }
-            step[k + T] = dt;
-            step[k + H] = dh;
-            step[k + RV] = drv;
+            dx[k + T] = dt;
+            dx[k + H] = dh;
+            dx[k + RV] = drv;
             u[k + T] += dt;
             u[k + H] += dh;
             u[k + RV] += drv;

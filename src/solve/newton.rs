@@ -125,8 +125,6 @@ pub struct NewtonWork<const B: usize> {
     /// The reciprocal row scales of the convergence test (the row scaling of the matrix).
     pub row: Vec<f64>,
     pub col: Vec<f64>,
-    /// The last (limited) update.
-    pub step: Vec<f64>,
     /// The kept Jacobian, unscaled, evaluated with coefficient `jac_c`, and the storage
     /// derivative blocks `S` of the same evaluation (diagonal blocks only); packed with
     /// (B−1)×(B−1) blocks when the problem's last unknown is decoupled
@@ -157,7 +155,6 @@ impl<const B: usize> NewtonWork<B> {
             dx: vec![0.0; B * n],
             row: vec![0.0; B * n],
             col: vec![0.0; B * n],
-            step: vec![0.0; B * n],
             jac_raw: PackedTri::new(n, decoupled),
             storage: PackedTri::storage(n, decoupled),
             jac_c: None,
@@ -183,8 +180,8 @@ impl<const B: usize> NewtonWork<B> {
         );
         self.storage
             .arrays(out, OWNER, ["", "storage blocks", "", ""]);
-        for v in [&self.res, &self.dx, &self.row, &self.col, &self.step] {
-            push(out, OWNER, "vectors (5)", v);
+        for v in [&self.res, &self.dx, &self.row, &self.col] {
+            push(out, OWNER, "vectors (4)", v);
         }
     }
 
@@ -352,7 +349,8 @@ pub fn solve<const B: usize, P: Problem<B> + ?Sized>(
             continue;
         }
         stats.iterations += 1;
-        small_update = sys.apply_update(u, &w.dx, &w.col, &mut w.step);
+        // (The update taken replaces the solution in `dx`.)
+        small_update = sys.apply_update(u, &mut w.dx, &w.col);
     }
 }
 

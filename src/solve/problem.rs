@@ -148,10 +148,10 @@ pub trait Problem<const B: usize> {
 
     /// Applies Newton's update `dx · col` (the solution of the column-scaled system
     /// times the column scales) to `u`, limited where the problem needs it (sign
-    /// constraints, largest change per iteration); the update taken goes to `step`.
+    /// constraints, largest change per iteration); the update taken replaces `dx`.
     /// Returns whether every update taken was below the problem's "no longer moving"
     /// thresholds.
-    fn apply_update(&self, u: &mut [f64], dx: &[f64], col: &[f64], step: &mut [f64]) -> bool;
+    fn apply_update(&self, u: &mut [f64], dx: &mut [f64], col: &[f64]) -> bool;
 
     /// Called when Newton accepts `u`, whose residual was the last evaluation: complete
     /// anything that evaluation left out for speed (default: nothing).

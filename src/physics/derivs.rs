@@ -5,9 +5,10 @@
 //! `N` derivative slots per cell and `M` = 2N per face: 3 and 6 (T, h, rv) in kinetic
 //! mode; 2 and 4 (T, h) in equilibrium mode, where the vapour density inside the physics
 //! is the function rveq(T, h) (see [`cell_props`]): no property depends on the vapour
-//! unknown, whose row is the algebraic `rv − rveq(T, h)`. The Jacobian keeps its 3×3
-//! blocks; in equilibrium mode their vapour column is zero outside that row, which the
-//! block-tridiagonal solver exploits.
+//! unknown, whose row is the algebraic `rv − rveq(T, h)`. The Jacobian is written as 3×3
+//! blocks, row by row; in equilibrium mode their vapour column is zero outside that row,
+//! so Newton keeps them packed (2×2 blocks plus that row) and the block-tridiagonal
+//! solver solves the 2×2 system.
 
 use super::cell::{cell_props, CellProps, KeptCell};
 use super::dual::Dual;
@@ -100,10 +101,11 @@ impl FaceBase {
 /// base state, a pure function of the base states: restoring them restores it exactly
 /// ([`Derivs::restore`], for resuming a run).
 ///
-/// Of a face, only its totals (the residual's terms) keep their derivatives; its flux
-/// parts are kept as values at the base (for the magnitudes of the convergence scales),
-/// and the parts of a linearised face are evaluated directly from its cells when asked
-/// for ([`Kept::complete_parts`]).
+/// Of a face, only its totals (the residual's terms) keep their derivatives; of its flux
+/// parts only what the convergence scales read is kept, at the base ([`FaceBase`]), and
+/// the parts of a linearised face are evaluated directly from its cells when asked for
+/// ([`Kept::complete_parts`]). A cell keeps its properties without its unknowns
+/// ([`KeptCell`]), which its base state gives.
 #[derive(Debug, Clone)]
 pub(super) struct Derivs<const N: usize, const M: usize> {
     /// Without the unknowns, which `cell_base` gives (see [`KeptCell`]).

@@ -107,18 +107,21 @@ impl FaceBase {
 /// ([`Kept::complete_parts`]). A cell keeps its properties without its unknowns
 /// ([`KeptCell`]), which its base state gives.
 #[derive(Debug, Clone)]
-pub(super) struct Derivs<const N: usize, const M: usize> {
+pub(super) struct Derivs<const N: usize, const M: usize, const R: usize> {
     /// Without the unknowns, which `cell_base` gives (see [`KeptCell`]).
     cells: Vec<KeptCell<N>>,
     cell_base: Vec<f64>,
     faces: Vec<FaceBase>,
-    totals: Vec<[Dual<M>; BLOCK]>,
+    /// The first `R` totals (energy, water, and the vapour total in kinetic mode: in
+    /// equilibrium mode the vapour row is algebraic and no formula reads a face's vapour
+    /// total, which saves 40 B per face).
+    totals: Vec<[Dual<M>; R]>,
     face_base: Vec<[f64; 6]>,
     /// Scratch: per face, whether it keeps its base.
     face_kept: Vec<bool>,
 }
 
-impl<const N: usize, const M: usize> Default for Derivs<N, M> {
+impl<const N: usize, const M: usize, const R: usize> Default for Derivs<N, M, R> {
     fn default() -> Self {
         Derivs {
             cells: Vec::new(),
@@ -168,7 +171,7 @@ pub(super) trait Kept {
     fn arrays(&self, out: &mut Vec<crate::memory::ArrayCost>);
 }
 
-impl<const N: usize, const M: usize> Derivs<N, M> {
+impl<const N: usize, const M: usize, const R: usize> Derivs<N, M, R> {
     /// Whether the vapour density is one of the derivative slots (kinetic mode).
     const WITH_RV: bool = N > RV;
 
@@ -190,7 +193,7 @@ impl<const N: usize, const M: usize> Derivs<N, M> {
         self.cells = vec![KeptCell::of(&any); n];
         self.cell_base = vec![f64::NAN; BLOCK * n];
         self.faces = vec![FaceBase::of(&FaceFlux::zero()); n + 1];
-        self.totals = vec![[Dual::cst(0.0); BLOCK]; n + 1];
+        self.totals = vec![[Dual::cst(0.0); R]; n + 1];
         self.face_base = vec![[f64::NAN; 6]; n + 1];
         self.face_kept = vec![false; n + 1];
     }
@@ -242,7 +245,7 @@ impl<const N: usize, const M: usize> Derivs<N, M> {
     #[inline]
     fn totals_at(&self, j: usize, du: &[f64; M]) -> [Dual<0>; BLOCK] {
         let td = &self.totals[j];
-        [td[0].taylor(du), td[1].taylor(du), td[2].taylor(du)]
+        std::array::from_fn(|k| td.get(k).map_or(Dual::cst(f64::NAN), |t| t.taylor(du)))
     }
 
     /// The change of the unknowns of face `j`'s two cells from the face's base, in the
@@ -259,7 +262,7 @@ impl<const N: usize, const M: usize> Derivs<N, M> {
     }
 }
 
-impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
+impl<const N: usize, const M: usize, const R: usize> Kept for Derivs<N, M, R> {
     /// Forgets every base (the next evaluations are direct).
     fn forget(&mut self) {
         self.cell_base.fill(f64::NAN);
@@ -308,7 +311,7 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
                     sys.d_above[j],
                     avg,
                 );
-                self.totals[j] = f.totals();
+                self.totals[j] = rows_of(f.totals());
                 self.faces[j] = FaceBase::of(&f.values());
                 self.face_base[j].copy_from_slice(x);
             }
@@ -404,24 +407,26 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
                     sys.d_above[j],
                     avg,
                 );
-                self.totals[j] = f.totals();
+                let tot = f.totals();
+                self.totals[j] = rows_of(tot);
                 let v = f.values();
                 self.faces[j] = FaceBase::of(&v);
                 self.face_base[j][..BLOCK].copy_from_slice(&u[BLOCK * (j - 1)..BLOCK * j]);
                 self.face_base[j][BLOCK..].copy_from_slice(&u[BLOCK * j..BLOCK * j + BLOCK]);
                 sys.faces[j] = v;
-                sys.face_totals[j] = value_totals(&self.totals[j]);
+                sys.face_totals[j] = value_totals(&tot);
             }
         }
         let (Some(top), Some(bottom)) = (top, bottom) else {
             return any_kept;
         };
         for (j, f) in [(0, top), (n, bottom)] {
-            self.totals[j] = f.totals();
+            let tot = f.totals();
+            self.totals[j] = rows_of(tot);
             let v = f.values();
             self.faces[j] = FaceBase::of(&v);
             sys.faces[j] = v;
-            sys.face_totals[j] = value_totals(&self.totals[j]);
+            sys.face_totals[j] = value_totals(&tot);
         }
         any_kept
     }
@@ -618,8 +623,14 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
     }
 }
 
-/// The values of a face's totals.
+/// The values of a face's totals (NaN for those not kept).
 #[inline]
-fn value_totals<const M: usize>(t: &[Dual<M>; BLOCK]) -> [Dual<0>; BLOCK] {
-    [t[0].value_only(), t[1].value_only(), t[2].value_only()]
+fn value_totals<const M: usize, const R: usize>(t: &[Dual<M>; R]) -> [Dual<0>; BLOCK] {
+    std::array::from_fn(|k| t.get(k).map_or(Dual::cst(f64::NAN), |t| t.value_only()))
+}
+
+/// The first `R` of a face's totals (see [`Derivs`]).
+#[inline]
+fn rows_of<const M: usize, const R: usize>(t: [Dual<M>; BLOCK]) -> [Dual<M>; R] {
+    std::array::from_fn(|k| t[k])
 }

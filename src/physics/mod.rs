@@ -74,8 +74,8 @@ pub struct System {
     pub face_totals: Vec<[D0; BLOCK]>,
     /// The last evaluation with derivatives (the Jacobian's source): 3 slots per cell
     /// in kinetic mode, 2 in equilibrium mode (see `derivs`).
-    d_full: Derivs<BLOCK, { 2 * BLOCK }>,
-    d_reduced: Derivs<2, 4>,
+    d_full: Derivs<BLOCK, { 2 * BLOCK }, BLOCK>,
+    d_reduced: Derivs<2, 4, 2>,
     /// Whether the last evaluation left out the flux parts of linearised faces.
     parts_left_out: bool,
     /// Osmotic head of the pore water in each cell [m] (empty: none; see

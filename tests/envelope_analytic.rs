@@ -16,7 +16,7 @@
 //! y_k e^{−bP(j)} has the relative error 1 + m (1 − e^{bP}) − e^{−bmP}
 //! = −½ m (m + 1) (bP)² + O((bmP)³) (Taylor expansion; derived), and these add up.
 
-use deepdry::solve::blocktri::{zero_block, Block, BlockTri};
+use deepdry::solve::blocktri::{zero_block, Block, BlockRows};
 use deepdry::solve::envelope::{self, EnvelopeOptions, EnvelopeState};
 use deepdry::solve::linear::{make_solver, SolverKind};
 use deepdry::solve::newton::NewtonOptions;
@@ -83,7 +83,7 @@ impl Problem<2> for TwoModes {
         c: f64,
         hist: &[f64],
         res: &mut [f64],
-        jac: Option<&mut BlockTri<2>>,
+        jac: Option<&mut dyn BlockRows<2>>,
     ) -> Result<(), NonFinite> {
         self.evaluate(t, u);
         let s = (omega() * t).sin();
@@ -97,14 +97,15 @@ impl Problem<2> for TwoModes {
             self.terms[r] = (c * self.y[r]).abs() + hist[r].abs() + m[r];
         }
         if let Some(jac) = jac {
-            jac.diag[0] = [[c + A, 0.0], [-B_RATE, c + B_RATE]];
+            jac.set_diag(0, &[[c + A, 0.0], [-B_RATE, c + B_RATE]]);
         }
         Ok(())
     }
-    fn storage_jacobian_into(&self, out: &mut [Block<2>]) {
-        out[0] = zero_block();
-        out[0][0][0] = 1.0;
-        out[0][1][1] = 1.0;
+    fn storage_jacobian_into(&self, out: &mut dyn BlockRows<2>) {
+        let mut s: Block<2> = zero_block();
+        s[0][0] = 1.0;
+        s[1][1] = 1.0;
+        out.set_diag(0, &s);
     }
     fn convergence_scales_into(
         &self,
@@ -121,11 +122,11 @@ impl Problem<2> for TwoModes {
     fn column_scales_into(&self, _u: &[f64], col: &mut [f64]) {
         col.fill(1.0);
     }
-    fn apply_update(&self, u: &mut [f64], dx: &[f64], col: &[f64], step: &mut [f64]) -> bool {
+    fn apply_update(&self, u: &mut [f64], dx: &mut [f64], col: &[f64]) -> bool {
         let mut small = true;
         for r in 0..2 {
             let d = dx[r] * col[r];
-            step[r] = d;
+            dx[r] = d;
             u[r] += d;
             small &= d.abs() <= 1e-14 * u[r].abs().max(ATOL);
         }

@@ -9,7 +9,7 @@
 
 #![allow(clippy::needless_range_loop)] // matrix code reads best with indices
 
-use deepdry::solve::blocktri::{zero_block, Block, BlockTri};
+use deepdry::solve::blocktri::{zero_block, Block, BlockRows};
 use deepdry::solve::linear::{make_solver, SolverKind};
 use deepdry::solve::newton::{self, NewtonOptions, NewtonWork};
 use deepdry::solve::problem::{BalanceScales, Conserved, ErrorTest, NonFinite, Problem};
@@ -81,7 +81,7 @@ impl<const B: usize, O: Ode<B>> Problem<B> for OdeProblem<B, O> {
         c: f64,
         hist: &[f64],
         res: &mut [f64],
-        jac: Option<&mut BlockTri<B>>,
+        jac: Option<&mut dyn BlockRows<B>>,
     ) -> Result<(), NonFinite> {
         self.evaluate(t, u);
         let g = self.ode.rhs(&self.y);
@@ -95,19 +95,22 @@ impl<const B: usize, O: Ode<B>> Problem<B> for OdeProblem<B, O> {
         }
         if let Some(jac) = jac {
             let dg = self.ode.jacobian(&self.y);
+            let mut d = zero_block::<B>();
             for r in 0..B {
                 for q in 0..B {
-                    jac.diag[0][r][q] = -dg[r][q] + if r == q { c } else { 0.0 };
+                    d[r][q] = -dg[r][q] + if r == q { c } else { 0.0 };
                 }
             }
+            jac.set_row(0, &zero_block(), &d, &zero_block());
         }
         Ok(())
     }
-    fn storage_jacobian_into(&self, out: &mut [Block<B>]) {
-        out[0] = zero_block();
+    fn storage_jacobian_into(&self, out: &mut dyn BlockRows<B>) {
+        let mut s: Block<B> = zero_block();
         for r in 0..B {
-            out[0][r][r] = 1.0;
+            s[r][r] = 1.0;
         }
+        out.set_diag(0, &s);
     }
     fn convergence_scales_into(
         &self,
@@ -122,12 +125,12 @@ impl<const B: usize, O: Ode<B>> Problem<B> for OdeProblem<B, O> {
     fn column_scales_into(&self, _u: &[f64], col: &mut [f64]) {
         col.fill(1.0);
     }
-    fn apply_update(&self, u: &mut [f64], dx: &[f64], col: &[f64], step: &mut [f64]) -> bool {
+    fn apply_update(&self, u: &mut [f64], dx: &mut [f64], col: &[f64]) -> bool {
         let atol = self.ode.atol();
         let mut small = true;
         for r in 0..B {
             let d = dx[r] * col[r];
-            step[r] = d;
+            dx[r] = d;
             u[r] += d;
             if d.abs() > 1e-14 * u[r].abs().max(atol[r]) {
                 small = false;
@@ -330,6 +333,8 @@ struct Chain {
     a: Vec<f64>,
     ones: Vec<f64>,
     terms: Vec<f64>,
+    /// Whether it declares its last unknown decoupled (it is: y = x² in its own row).
+    decoupled: bool,
 }
 
 fn chain_root(i: usize) -> f64 {
@@ -349,6 +354,7 @@ impl Chain {
             a,
             ones: vec![1.0; n],
             terms: vec![0.0; 2 * n],
+            decoupled: false,
         }
     }
 }
@@ -377,7 +383,7 @@ impl Problem<2> for Chain {
         _c: f64,
         _hist: &[f64],
         res: &mut [f64],
-        jac: Option<&mut BlockTri<2>>,
+        jac: Option<&mut dyn BlockRows<2>>,
     ) -> Result<(), NonFinite> {
         let n = self.a.len();
         for i in 0..n {
@@ -389,21 +395,28 @@ impl Problem<2> for Chain {
             self.terms[2 * i + 1] = u[2 * i + 1].abs() + x * x;
         }
         if let Some(jac) = jac {
-            jac.zero();
             for i in 0..n {
                 let x = u[2 * i];
-                jac.diag[i][0][0] = 3.0 * x * x + 0.1;
-                jac.diag[i][1][0] = -2.0 * x;
-                jac.diag[i][1][1] = 1.0;
+                let (mut lower, mut diag) = (zero_block(), zero_block());
+                diag[0][0] = 3.0 * x * x + 0.1;
+                diag[1][0] = -2.0 * x;
+                diag[1][1] = 1.0;
                 if i > 0 {
-                    jac.lower[i][0][0] = -0.1;
+                    lower[0][0] = -0.1;
                 }
+                jac.set_row(i, &lower, &diag, &zero_block());
             }
         }
         Ok(())
     }
-    fn storage_jacobian_into(&self, out: &mut [Block<2>]) {
-        out.fill(zero_block());
+    fn last_unknown_decoupled(&self) -> bool {
+        // y = x² appears in its own row alone.
+        self.decoupled
+    }
+    fn storage_jacobian_into(&self, out: &mut dyn BlockRows<2>) {
+        for i in 0..self.a.len() {
+            out.set_diag(i, &zero_block());
+        }
     }
     fn convergence_scales_into(
         &self,
@@ -418,12 +431,12 @@ impl Problem<2> for Chain {
     fn column_scales_into(&self, _u: &[f64], col: &mut [f64]) {
         col.fill(1.0);
     }
-    fn apply_update(&self, u: &mut [f64], dx: &[f64], col: &[f64], step: &mut [f64]) -> bool {
+    fn apply_update(&self, u: &mut [f64], dx: &mut [f64], col: &[f64]) -> bool {
         let mut small = true;
-        for ((x, d), (c, s)) in u.iter_mut().zip(dx).zip(col.iter().zip(step.iter_mut())) {
-            *s = d * c;
-            *x += *s;
-            small &= s.abs() < 1e-14;
+        for ((x, d), c) in u.iter_mut().zip(dx.iter_mut()).zip(col) {
+            *d *= c;
+            *x += *d;
+            small &= d.abs() < 1e-14;
         }
         small
     }
@@ -443,50 +456,61 @@ fn newton_finds_a_known_root_with_full_and_modified_jacobians() {
         (true, SolverKind::BlockThomas),
         (false, SolverKind::SparseLu),
     ] {
-        let mut p = Chain::new(n);
-        let mut lin = make_solver::<2>(kind, n);
-        let mut work = NewtonWork::<2>::new(n);
-        let opts = NewtonOptions {
-            max_iter: 30,
-            residual_tol: 1e-13,
-            reuse_jacobian: reuse,
-            ..Default::default()
-        };
-        // Start 30 % off the root.
-        let mut u: Vec<f64> = (0..n)
-            .flat_map(|i| [1.3 * chain_root(i), 0.7 * chain_root(i).powi(2)])
-            .collect();
-        let hist = vec![0.0; 2 * n];
-        let stats = newton::solve(
-            &mut p,
-            lin.as_mut(),
-            0.0,
-            0.0,
-            &hist,
-            &mut u,
-            &opts,
-            &mut work,
-        )
-        .expect("Newton converges");
-        for i in 0..n {
-            let x = chain_root(i);
-            assert!(
-                (u[2 * i] - x).abs() < 1e-12,
-                "block {i}: x {} vs {x}",
-                u[2 * i]
-            );
-            assert!((u[2 * i + 1] - x * x).abs() < 1e-12, "block {i}: y");
+        // The Jacobian kept in full 2×2 blocks, then packed (the decoupled pattern: 1×1
+        // blocks and the algebraic row): the same iterates bitwise.
+        let mut solutions = Vec::new();
+        for decoupled in [false, true] {
+            let mut p = Chain::new(n);
+            p.decoupled = decoupled;
+            let mut lin = make_solver::<2>(kind, n);
+            let mut work = NewtonWork::<2>::with_pattern(n, p.last_unknown_decoupled());
+            let opts = NewtonOptions {
+                max_iter: 30,
+                residual_tol: 1e-13,
+                reuse_jacobian: reuse,
+                ..Default::default()
+            };
+            // Start 30 % off the root.
+            let mut u: Vec<f64> = (0..n)
+                .flat_map(|i| [1.3 * chain_root(i), 0.7 * chain_root(i).powi(2)])
+                .collect();
+            let hist = vec![0.0; 2 * n];
+            let stats = newton::solve(
+                &mut p,
+                lin.as_mut(),
+                0.0,
+                0.0,
+                &hist,
+                &mut u,
+                &opts,
+                &mut work,
+            )
+            .expect("Newton converges");
+            for i in 0..n {
+                let x = chain_root(i);
+                assert!(
+                    (u[2 * i] - x).abs() < 1e-12,
+                    "block {i}: x {} vs {x}",
+                    u[2 * i]
+                );
+                assert!((u[2 * i + 1] - x * x).abs() < 1e-12, "block {i}: y");
+            }
+            if !reuse {
+                // Quadratic convergence from 30 % off: a handful of iterations (common
+                // practice; 6 measured).
+                assert!(stats.iterations <= 8, "{} iterations", stats.iterations);
+                assert_eq!(stats.jacobians, stats.iterations + 1);
+            } else {
+                assert!(
+                    stats.jacobians < stats.iterations + 1,
+                    "no Jacobian was reused"
+                );
+            }
+            solutions.push((u, stats.iterations));
         }
-        if !reuse {
-            // Quadratic convergence from 30 % off: a handful of iterations (common
-            // practice; 6 measured).
-            assert!(stats.iterations <= 8, "{} iterations", stats.iterations);
-            assert_eq!(stats.jacobians, stats.iterations + 1);
-        } else {
-            assert!(
-                stats.jacobians < stats.iterations + 1,
-                "no Jacobian was reused"
-            );
-        }
+        assert_eq!(
+            solutions[0], solutions[1],
+            "packed Jacobian: other iterates"
+        );
     }
 }

@@ -5,16 +5,18 @@
 //! `N` derivative slots per cell and `M` = 2N per face: 3 and 6 (T, h, rv) in kinetic
 //! mode; 2 and 4 (T, h) in equilibrium mode, where the vapour density inside the physics
 //! is the function rveq(T, h) (see [`cell_props`]): no property depends on the vapour
-//! unknown, whose row is the algebraic `rv − rveq(T, h)`. The Jacobian keeps its 3×3
-//! blocks; in equilibrium mode their vapour column is zero outside that row, which the
-//! block-tridiagonal solver exploits.
+//! unknown, whose row is the algebraic `rv − rveq(T, h)`. The Jacobian is written as 3×3
+//! blocks, row by row; in equilibrium mode their vapour column is zero outside that row,
+//! so Newton keeps them packed (2×2 blocks plus that row) and the block-tridiagonal
+//! solver solves the 2×2 system.
 
-use super::cell::{cell_props, CellProps};
+use super::cell::{cell_props, CellProps, KeptCell};
 use super::dual::Dual;
 use super::flux::{face_flux, FaceFlux};
 use super::BLOCK;
 use super::{System, ENERGY, H, RV, T, VAPOR, WATER};
-use crate::solve::blocktri::{zero_block, Block, BlockTri};
+use crate::solve::blocktri::{zero_block, Block, BlockRows};
+use crate::solve::problem::NonFinite;
 
 /// Largest relative change of a cell's unknowns from the base of a kept evaluation with
 /// derivatives (head: relative to max(|h|, 0.01 m)), within which its values are taken
@@ -41,6 +43,53 @@ fn change<const N: usize>(x: &[f64], x0: &[f64]) -> [f64; N] {
     du
 }
 
+/// What a face keeps of its flux parts at its base: the round-off scales and the
+/// vapour parts, which the convergence test reads (48 B instead of the 80 B of all the
+/// parts); the liquid and heat parts of a face that keeps its base are left out (NaN)
+/// until completed at the current state ([`Kept::complete_parts`]), as its vapour parts
+/// are.
+#[derive(Debug, Clone, Copy)]
+struct FaceBase {
+    vapor_iso: f64,
+    vapor_th: f64,
+    scale_water: f64,
+    scale_energy: f64,
+    operands_water: f64,
+    operands_energy: f64,
+}
+
+impl FaceBase {
+    #[inline]
+    fn of(f: &FaceFlux<0>) -> Self {
+        FaceBase {
+            vapor_iso: f.vapor_iso.v,
+            vapor_th: f.vapor_th.v,
+            scale_water: f.scale_water,
+            scale_energy: f.scale_energy,
+            operands_water: f.operands_water,
+            operands_energy: f.operands_energy,
+        }
+    }
+
+    /// The face's values until its parts are completed: the kept parts, NaN for the rest.
+    #[inline]
+    fn placeholder(&self) -> FaceFlux<0> {
+        let none = Dual::cst(f64::NAN);
+        FaceFlux {
+            liquid_iso: none,
+            liquid_th: none,
+            vapor_iso: Dual::cst(self.vapor_iso),
+            vapor_th: Dual::cst(self.vapor_th),
+            conduction: none,
+            t_face: none,
+            scale_water: self.scale_water,
+            scale_energy: self.scale_energy,
+            operands_water: self.operands_water,
+            operands_energy: self.operands_energy,
+        }
+    }
+}
+
 /// Cell properties and interior-face fluxes with `N` (`M`) derivative slots, each kept
 /// with the state it was evaluated at (its *base*; NaN: none): a cell's own unknowns,
 /// and for a face the unknowns of both its cells. An evaluation with derivatives
@@ -52,22 +101,27 @@ fn change<const N: usize>(x: &[f64], x0: &[f64]) -> [f64; N] {
 /// base state, a pure function of the base states: restoring them restores it exactly
 /// ([`Derivs::restore`], for resuming a run).
 ///
-/// Of a face, only its totals (the residual's terms) keep their derivatives; its flux
-/// parts are kept as values at the base (for the magnitudes of the convergence scales),
-/// and the parts of a linearised face are evaluated directly from its cells when asked
-/// for ([`Kept::complete_parts`]).
+/// Of a face, only its totals (the residual's terms) keep their derivatives; of its flux
+/// parts only what the convergence scales read is kept, at the base ([`FaceBase`]), and
+/// the parts of a linearised face are evaluated directly from its cells when asked for
+/// ([`Kept::complete_parts`]). A cell keeps its properties without its unknowns
+/// ([`KeptCell`]), which its base state gives.
 #[derive(Debug, Clone)]
-pub(super) struct Derivs<const N: usize, const M: usize> {
-    cells: Vec<CellProps<N>>,
+pub(super) struct Derivs<const N: usize, const M: usize, const R: usize> {
+    /// Without the unknowns, which `cell_base` gives (see [`KeptCell`]).
+    cells: Vec<KeptCell<N>>,
     cell_base: Vec<f64>,
-    faces: Vec<FaceFlux<0>>,
-    totals: Vec<[Dual<M>; BLOCK]>,
+    faces: Vec<FaceBase>,
+    /// The first `R` totals (energy, water, and the vapour total in kinetic mode: in
+    /// equilibrium mode the vapour row is algebraic and no formula reads a face's vapour
+    /// total, which saves 40 B per face).
+    totals: Vec<[Dual<M>; R]>,
     face_base: Vec<[f64; 6]>,
     /// Scratch: per face, whether it keeps its base.
     face_kept: Vec<bool>,
 }
 
-impl<const N: usize, const M: usize> Default for Derivs<N, M> {
+impl<const N: usize, const M: usize, const R: usize> Default for Derivs<N, M, R> {
     fn default() -> Self {
         Derivs {
             cells: Vec::new(),
@@ -79,6 +133,10 @@ impl<const N: usize, const M: usize> Default for Derivs<N, M> {
         }
     }
 }
+
+/// Adds the derivatives of cell i's source terms (root uptake, runoff) to its diagonal
+/// block (see [`Kept::jacobian_into`]).
+pub(super) type SourceJacobian<'a> = dyn Fn(usize, &mut Block<BLOCK>) + 'a;
 
 /// What the system asks of its kept evaluations, whatever their number of slots (the
 /// methods of [`Derivs`], see there).
@@ -101,13 +159,19 @@ pub(super) trait Kept {
         parts: bool,
     ) -> bool;
     fn complete_parts(&self, sys: &System, u: &[f64], faces: &mut [FaceFlux<0>]);
-    fn jacobian_into(&self, sys: &System, c: f64, jac: &mut BlockTri<BLOCK>);
-    fn storage_blocks_into(&self, sys: &System, out: &mut [Block<BLOCK>]);
+    fn jacobian_into(
+        &self,
+        sys: &System,
+        c: f64,
+        jac: &mut dyn BlockRows<BLOCK>,
+        sources: Option<&SourceJacobian>,
+    ) -> Result<(), NonFinite>;
+    fn storage_blocks_into(&self, sys: &System, out: &mut dyn BlockRows<BLOCK>);
     /// The heap arrays of the kept evaluations (see [`crate::memory`]).
     fn arrays(&self, out: &mut Vec<crate::memory::ArrayCost>);
 }
 
-impl<const N: usize, const M: usize> Derivs<N, M> {
+impl<const N: usize, const M: usize, const R: usize> Derivs<N, M, R> {
     /// Whether the vapour density is one of the derivative slots (kinetic mode).
     const WITH_RV: bool = N > RV;
 
@@ -126,12 +190,19 @@ impl<const N: usize, const M: usize> Derivs<N, M> {
             0.0,
             0.0,
         );
-        self.cells = vec![any; n];
+        self.cells = vec![KeptCell::of(&any); n];
         self.cell_base = vec![f64::NAN; BLOCK * n];
-        self.faces = vec![FaceFlux::zero(); n + 1];
-        self.totals = vec![[Dual::cst(0.0); BLOCK]; n + 1];
+        self.faces = vec![FaceBase::of(&FaceFlux::zero()); n + 1];
+        self.totals = vec![[Dual::cst(0.0); R]; n + 1];
         self.face_base = vec![[f64::NAN; 6]; n + 1];
         self.face_kept = vec![false; n + 1];
+    }
+
+    /// Cell `k`'s whole record rebuilt from the kept record at its base (the values of
+    /// its evaluation there; not reached where [`Derivs::evaluate`] needs a direct cell).
+    #[inline]
+    fn whole_at(&self, k: usize) -> CellProps<N> {
+        self.cells[k].full(&self.cell_base[BLOCK * k..BLOCK * k + BLOCK], Self::WITH_RV)
     }
 
     /// Whether the unknowns of face `j`'s two cells lie near the face's base.
@@ -174,7 +245,7 @@ impl<const N: usize, const M: usize> Derivs<N, M> {
     #[inline]
     fn totals_at(&self, j: usize, du: &[f64; M]) -> [Dual<0>; BLOCK] {
         let td = &self.totals[j];
-        [td[0].taylor(du), td[1].taylor(du), td[2].taylor(du)]
+        std::array::from_fn(|k| td.get(k).map_or(Dual::cst(f64::NAN), |t| t.taylor(du)))
     }
 
     /// The change of the unknowns of face `j`'s two cells from the face's base, in the
@@ -191,7 +262,7 @@ impl<const N: usize, const M: usize> Derivs<N, M> {
     }
 }
 
-impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
+impl<const N: usize, const M: usize, const R: usize> Kept for Derivs<N, M, R> {
     /// Forgets every base (the next evaluations are direct).
     fn forget(&mut self) {
         self.cell_base.fill(f64::NAN);
@@ -223,7 +294,7 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
         for i in 0..n {
             let x = &cells[BLOCK * i..BLOCK * i + BLOCK];
             if x.iter().all(|v| v.is_finite()) {
-                self.cells[i] = props(i, x);
+                self.cells[i] = KeptCell::of(&props(i, x));
                 self.cell_base[BLOCK * i..BLOCK * i + BLOCK].copy_from_slice(x);
             }
         }
@@ -240,8 +311,8 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
                     sys.d_above[j],
                     avg,
                 );
-                self.totals[j] = f.totals();
-                self.faces[j] = f.values();
+                self.totals[j] = rows_of(f.totals());
+                self.faces[j] = FaceBase::of(&f.values());
                 self.face_base[j].copy_from_slice(x);
             }
         }
@@ -260,6 +331,17 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
         for j in 1..n {
             self.face_kept[j] = self.face_near(j, u);
         }
+        // Cells and the interior face above each, in one pass: a face evaluated afresh
+        // reads the whole records of its two cells, both evaluated directly in this pass
+        // (a face that does not keep its base makes both its cells direct), kept here
+        // in two alternating slots while needed (the kept records hold no unknowns). The
+        // end cells are always direct (their boundary faces are evaluated), and their
+        // boundary faces are evaluated as soon as they are.
+        let avg = sys.physics.face_conductivity;
+        let mut slot: [CellProps<N>; 2] = [self.whole_at(0), self.whole_at(0)];
+        let mut fresh = [false; 2];
+        let mut top = None;
+        let mut bottom = None;
         for i in 0..n {
             let x = &u[BLOCK * i..BLOCK * i + BLOCK];
             let direct = !near(
@@ -268,10 +350,13 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
                 Self::WITH_RV,
             ) || !self.face_kept[i]
                 || !self.face_kept[i + 1];
+            let (here, prev) = (i % 2, 1 - i % 2);
             if direct {
-                self.cells[i] = sys.props_at(i, x);
+                slot[here] = sys.props_at::<N>(i, x);
+                let c = &slot[here];
+                self.cells[i] = KeptCell::of(c);
                 self.cell_base[BLOCK * i..BLOCK * i + BLOCK].copy_from_slice(x);
-                sys.cells[i] = self.cells[i].values();
+                sys.cells[i] = c.values();
             } else {
                 let x0 = &self.cell_base[BLOCK * i..BLOCK * i + BLOCK];
                 self.cells[i].taylor_into(
@@ -282,42 +367,66 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
                     &mut sys.cells[i],
                 );
             }
-        }
-        let avg = sys.physics.face_conductivity;
-        for j in 1..n {
+            fresh[here] = direct;
+            if i == 0 || i == n - 1 {
+                if !direct {
+                    slot[here] = self.whole_at(i);
+                }
+                let c = &slot[here];
+                if i == 0 {
+                    top = Some(sys.top_face(t, c));
+                }
+                if i == n - 1 {
+                    bottom = Some(sys.bottom_face(t, c));
+                }
+            }
+            // Face j = i, between cells i − 1 and i.
+            let j = i;
+            if j == 0 {
+                continue;
+            }
             if self.face_kept[j] {
                 let du = self.face_change(j, u);
                 // The parts at the base (their scales are what the convergence test
                 // reads), completed at `u` on demand.
-                sys.faces[j] = self.faces[j];
+                sys.faces[j] = self.faces[j].placeholder();
                 sys.face_totals[j] = self.totals_at(j, &du);
                 any_kept = true;
             } else {
+                for (k, cell) in [(prev, j - 1), (here, j)] {
+                    if !fresh[k] {
+                        slot[k] = self.whole_at(cell);
+                    }
+                }
                 let f = face_flux(
-                    &self.cells[j - 1],
-                    &self.cells[j],
+                    &slot[prev],
+                    &slot[here],
                     0,
                     N,
                     sys.d_below[j - 1],
                     sys.d_above[j],
                     avg,
                 );
-                self.totals[j] = f.totals();
-                self.faces[j] = f.values();
+                let tot = f.totals();
+                self.totals[j] = rows_of(tot);
+                let v = f.values();
+                self.faces[j] = FaceBase::of(&v);
                 self.face_base[j][..BLOCK].copy_from_slice(&u[BLOCK * (j - 1)..BLOCK * j]);
                 self.face_base[j][BLOCK..].copy_from_slice(&u[BLOCK * j..BLOCK * j + BLOCK]);
-                sys.faces[j] = self.faces[j];
-                sys.face_totals[j] = value_totals(&self.totals[j]);
+                sys.faces[j] = v;
+                sys.face_totals[j] = value_totals(&tot);
             }
         }
-        // The end cells are always direct (their boundary faces are evaluated).
-        let top = sys.top_face(t, &self.cells[0]);
-        let bottom = sys.bottom_face(t, &self.cells[n - 1]);
+        let (Some(top), Some(bottom)) = (top, bottom) else {
+            return any_kept;
+        };
         for (j, f) in [(0, top), (n, bottom)] {
-            self.totals[j] = f.totals();
-            self.faces[j] = f.values();
-            sys.faces[j] = self.faces[j];
-            sys.face_totals[j] = value_totals(&self.totals[j]);
+            let tot = f.totals();
+            self.totals[j] = rows_of(tot);
+            let v = f.values();
+            self.faces[j] = FaceBase::of(&v);
+            sys.faces[j] = v;
+            sys.face_totals[j] = value_totals(&tot);
         }
         any_kept
     }
@@ -404,15 +513,28 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
     }
 
     /// The Jacobian of the residual of [`System::assemble`] with coefficient `c` into
-    /// `jac` (zeroed first).
-    fn jacobian_into(&self, sys: &System, c: f64, jac: &mut BlockTri<BLOCK>) {
+    /// `jac`, block row by block row, with `sources(i, diag)` (when given) adding the
+    /// derivatives of cell i's source terms last. Each entry sums, in this order, the cell's storage
+    /// and local terms, the face above, the face below and the sources. NaN or Inf: the
+    /// first in a lower block, else in a diagonal, else in an upper one (by block row,
+    /// then row).
+    fn jacobian_into(
+        &self,
+        sys: &System,
+        c: f64,
+        jac: &mut dyn BlockRows<BLOCK>,
+        sources: Option<&SourceJacobian>,
+    ) -> Result<(), NonFinite> {
         let n = sys.n;
         let rate = sys.kinetic_rate();
-        jac.zero();
+        let rows = if rate.is_some() { BLOCK } else { BLOCK - 1 };
+        let mut bad: [Option<NonFinite>; 3] = [None, None, None];
         for i in 0..n {
+            // Lower, diagonal and upper block of row i.
+            let mut blocks = [zero_block::<BLOCK>(); 3];
             let w = sys.widths[i];
             let cp = &self.cells[i];
-            let d = &mut jac.diag[i];
+            let d = &mut blocks[1];
             let energy = cp.energy * (c * w);
             let water = cp.water * (c * w);
             for col in 0..N {
@@ -421,7 +543,8 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
             }
             match rate {
                 Some(b) => {
-                    let vapor = cp.vapor * (c * w) - (cp.rveq - cp.rv) * (b * w);
+                    let rv = cp.rv(&self.cell_base[BLOCK * i..BLOCK * i + BLOCK], true);
+                    let vapor = cp.vapor * (c * w) - (cp.rveq - rv) * (b * w);
                     for col in 0..N {
                         d[VAPOR][col] += vapor.d[col];
                     }
@@ -434,29 +557,39 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
                     d[VAPOR][RV] += 1.0;
                 }
             }
-        }
-        let rows = if rate.is_some() { BLOCK } else { BLOCK - 1 };
-        for j in 0..=n {
-            let vals = &self.totals[j];
-            let col_up = if j == 0 { 0 } else { j - 1 };
-            let col_dn = if j == n { n - 1 } else { j };
-            for (rb, sign) in [(j.wrapping_sub(1), 1.0), (j, -1.0)] {
-                if rb >= n {
-                    continue;
-                }
+            // Face i (above the cell: its flow leaves the row, sign −1), then face i + 1
+            // (below: +1); a face's derivatives are w.r.t. the cell above it (slots
+            // 0..N) and below it (N..2N), the boundary faces' both w.r.t. their cell.
+            for (j, sign) in [(i, -1.0), (i + 1, 1.0)] {
+                let vals = &self.totals[j];
+                let col_up = if j == 0 { 0 } else { j - 1 };
+                let col_dn = if j == n { n - 1 } else { j };
+                // 0: lower, 1: diagonal, 2: upper block of row i.
+                let (ku, kd) = (col_up + 1 - i, col_dn + 1 - i);
                 for (r, v) in vals.iter().enumerate().take(rows) {
-                    {
-                        let b = jac.block_mut(rb, col_up);
-                        for col in 0..N {
-                            b[r][col] += sign * v.d[col];
-                        }
-                    }
-                    let b = jac.block_mut(rb, col_dn);
                     for col in 0..N {
-                        b[r][col] += sign * v.d[N + col];
+                        blocks[ku][r][col] += sign * v.d[col];
+                    }
+                    for col in 0..N {
+                        blocks[kd][r][col] += sign * v.d[N + col];
                     }
                 }
             }
+            if let Some(add) = sources {
+                add(i, &mut blocks[1]);
+            }
+            for (k, b) in blocks.iter().enumerate() {
+                if bad[k].is_none() {
+                    if let Some(row) = b.iter().position(|r| !super::all_finite(r)) {
+                        bad[k] = Some(NonFinite { cell: i, row });
+                    }
+                }
+            }
+            jac.set_row(i, &blocks[0], &blocks[1], &blocks[2]);
+        }
+        match bad.into_iter().flatten().next() {
+            Some(e) => Err(e),
+            None => Ok(()),
         }
     }
 
@@ -472,12 +605,12 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
     }
 
     /// The storage-derivative blocks (see [`System::storage_jacobian_into`]).
-    fn storage_blocks_into(&self, sys: &System, out: &mut [Block<BLOCK>]) {
+    fn storage_blocks_into(&self, sys: &System, out: &mut dyn BlockRows<BLOCK>) {
         let kinetic = sys.kinetic_rate().is_some();
-        for (i, b) in out.iter_mut().enumerate().take(sys.n) {
+        for i in 0..sys.n {
             let w = sys.widths[i];
             let cp = &self.cells[i];
-            *b = zero_block();
+            let mut b = zero_block();
             let rows = [cp.energy, cp.water, cp.vapor];
             let used = if kinetic { BLOCK } else { BLOCK - 1 };
             for (r, row) in rows.iter().enumerate().take(used) {
@@ -485,12 +618,19 @@ impl<const N: usize, const M: usize> Kept for Derivs<N, M> {
                     b[r][col] = w * row.d[col];
                 }
             }
+            out.set_diag(i, &b);
         }
     }
 }
 
-/// The values of a face's totals.
+/// The values of a face's totals (NaN for those not kept).
 #[inline]
-fn value_totals<const M: usize>(t: &[Dual<M>; BLOCK]) -> [Dual<0>; BLOCK] {
-    [t[0].value_only(), t[1].value_only(), t[2].value_only()]
+fn value_totals<const M: usize, const R: usize>(t: &[Dual<M>; R]) -> [Dual<0>; BLOCK] {
+    std::array::from_fn(|k| t.get(k).map_or(Dual::cst(f64::NAN), |t| t.value_only()))
+}
+
+/// The first `R` of a face's totals (see [`Derivs`]).
+#[inline]
+fn rows_of<const M: usize, const R: usize>(t: [Dual<M>; BLOCK]) -> [Dual<M>; R] {
+    std::array::from_fn(|k| t[k])
 }

@@ -21,7 +21,7 @@ use crate::model::{
     BottomBc, Model, Periods, Physics, Soil, SurfaceBc, SurfaceWater, VaporMode, Vegetation,
 };
 use crate::props::constants::{T_REF, WATER_DENSITY, WATER_HEAT_CAPACITY};
-use crate::solve::blocktri::{Block, BlockTri};
+use crate::solve::blocktri::{Block, BlockRows};
 pub use crate::solve::problem::NonFinite;
 pub use rules::{VariableRules, BLOCK};
 
@@ -74,8 +74,8 @@ pub struct System {
     pub face_totals: Vec<[D0; BLOCK]>,
     /// The last evaluation with derivatives (the Jacobian's source): 3 slots per cell
     /// in kinetic mode, 2 in equilibrium mode (see `derivs`).
-    d_full: Derivs<BLOCK, { 2 * BLOCK }>,
-    d_reduced: Derivs<2, 4>,
+    d_full: Derivs<BLOCK, { 2 * BLOCK }, BLOCK>,
+    d_reduced: Derivs<2, 4, 2>,
     /// Whether the last evaluation left out the flux parts of linearised faces.
     parts_left_out: bool,
     /// Osmotic head of the pore water in each cell [m] (empty: none; see
@@ -329,10 +329,29 @@ impl System {
         }
     }
 
-    /// The derivatives of the runoff terms with respect to the top cell's T and h.
-    fn add_runoff_jacobian(&self, t: f64, jac: &mut BlockTri<BLOCK>) {
-        if let Some((w, dw, enthalpy)) = self.runoff_terms(t) {
-            let d = &mut jac.diag[0];
+    /// The derivatives of the root uptake (with `plants`, as [`System::plants`] at the
+    /// step's time) and runoff (`runoff`, as [`System::runoff_terms`]; top cell only)
+    /// terms of cell `i` with respect to its own T and h, added to its diagonal block.
+    #[inline]
+    fn add_source_jacobian(
+        &self,
+        i: usize,
+        plants: Option<(&Vegetation, f64)>,
+        runoff: Option<(f64, f64, f64)>,
+        d: &mut Block<BLOCK>,
+    ) {
+        if let Some((veg, tp)) = plants {
+            let cell = &self.cells[i];
+            let (alpha, dalpha) = veg.stress(cell.h.v);
+            let k = WATER_DENSITY * tp * veg.root_fraction[i];
+            if k != 0.0 {
+                let enthalpy = WATER_HEAT_CAPACITY * (cell.t.v - T_REF);
+                d[WATER][H] += k * dalpha;
+                d[ENERGY][H] += k * dalpha * enthalpy;
+                d[ENERGY][T] += k * alpha * WATER_HEAT_CAPACITY;
+            }
+        }
+        if let (0, Some((w, dw, enthalpy))) = (i, runoff) {
             d[WATER][H] += dw;
             d[ENERGY][H] += dw * enthalpy;
             d[ENERGY][T] += w * WATER_HEAT_CAPACITY;
@@ -649,7 +668,7 @@ impl System {
     /// derivatives: the part of the Jacobian that scales with the integrator coefficient
     /// `c`, so a Jacobian built at `c` becomes the one at `c'` by adding `(c' − c)` times
     /// these blocks. The algebraic vapour row of equilibrium mode has no storage part.
-    pub fn storage_jacobian_into(&self, out: &mut [Block<BLOCK>]) {
+    pub fn storage_jacobian_into(&self, out: &mut dyn BlockRows<BLOCK>) {
         self.kept().storage_blocks_into(self, out);
     }
 
@@ -700,26 +719,6 @@ impl System {
         }
     }
 
-    /// The derivatives of the uptake terms with respect to the cell's own T and h.
-    fn add_uptake_jacobian(&self, t: f64, jac: &mut BlockTri<BLOCK>) {
-        let Some((veg, tp)) = self.plants(t) else {
-            return;
-        };
-        for i in 0..self.n {
-            let cell = &self.cells[i];
-            let (alpha, dalpha) = veg.stress(cell.h.v);
-            let k = WATER_DENSITY * tp * veg.root_fraction[i];
-            if k == 0.0 {
-                continue;
-            }
-            let enthalpy = WATER_HEAT_CAPACITY * (cell.t.v - T_REF);
-            let d = &mut jac.diag[i];
-            d[WATER][H] += k * dalpha;
-            d[ENERGY][H] += k * dalpha * enthalpy;
-            d[ENERGY][T] += k * alpha * WATER_HEAT_CAPACITY;
-        }
-    }
-
     /// Fills the residual (and, when given, the Jacobian) at state `u`, time `t`, with
     /// integrator coefficient `c` and history `hist` (3 per cell).
     pub fn assemble(
@@ -729,7 +728,7 @@ impl System {
         c: f64,
         hist: &[f64],
         res: &mut [f64],
-        jac: Option<&mut BlockTri<BLOCK>>,
+        jac: Option<&mut dyn BlockRows<BLOCK>>,
     ) -> Result<(), NonFinite> {
         if jac.is_some() {
             self.evaluate_with_derivatives(t, u);
@@ -792,23 +791,23 @@ impl System {
             });
         }
         if let Some(jac) = jac {
-            self.kept().jacobian_into(self, c, jac);
-            if self.has_vegetation {
-                self.add_uptake_jacobian(t, jac);
-            }
-            if self.surface_store {
-                self.add_runoff_jacobian(t, jac);
-            }
-            for blocks in [&jac.lower, &jac.diag, &jac.upper] {
-                if blocks.iter().all(|b| b.iter().all(|r| all_finite(r))) {
-                    continue;
-                }
-                for (i, b) in blocks.iter().enumerate() {
-                    if let Some(row) = b.iter().position(|r| !all_finite(r)) {
-                        return Err(NonFinite { cell: i, row });
-                    }
-                }
-            }
+            // With the uptake and runoff terms (their Jacobian entries added after the
+            // flux blocks'), row by row.
+            let plants = if self.has_vegetation {
+                self.plants(t)
+            } else {
+                None
+            };
+            let runoff = if self.surface_store {
+                self.runoff_terms(t)
+            } else {
+                None
+            };
+            let sources =
+                |i: usize, d: &mut Block<BLOCK>| self.add_source_jacobian(i, plants, runoff, d);
+            let any = plants.is_some() || runoff.is_some();
+            self.kept()
+                .jacobian_into(self, c, jac, any.then_some(&sources))?;
         }
         Ok(())
     }

@@ -7,7 +7,7 @@
 use super::{System, ENERGY, H, RV, T, WATER};
 use crate::model::Model;
 use crate::props::constants::WATER_DENSITY;
-use crate::solve::blocktri::{Block, BlockTri};
+use crate::solve::blocktri::BlockRows;
 use crate::solve::problem::{BalanceScales, Conserved, ErrorTest, NonFinite, Problem};
 
 /// Unknowns per cell: T [K], h [m], rv [kg m⁻³].
@@ -115,12 +115,17 @@ impl Problem<BLOCK> for System {
         c: f64,
         hist: &[f64],
         res: &mut [f64],
-        jac: Option<&mut BlockTri<BLOCK>>,
+        jac: Option<&mut dyn BlockRows<BLOCK>>,
     ) -> Result<(), NonFinite> {
         System::assemble(self, t, u, c, hist, res, jac)
     }
 
-    fn storage_jacobian_into(&self, out: &mut [Block<BLOCK>]) {
+    fn last_unknown_decoupled(&self) -> bool {
+        // In equilibrium mode the vapour row is rv − rveq(T, h) and nothing depends on rv.
+        self.kinetic_rate().is_none()
+    }
+
+    fn storage_jacobian_into(&self, out: &mut dyn BlockRows<BLOCK>) {
         System::storage_jacobian_into(self, out);
     }
 
@@ -146,7 +151,7 @@ impl Problem<BLOCK> for System {
         }
     }
 
-    fn apply_update(&self, u: &mut [f64], dx: &[f64], col: &[f64], step: &mut [f64]) -> bool {
+    fn apply_update(&self, u: &mut [f64], dx: &mut [f64], col: &[f64]) -> bool {
         let r = &self.rules;
         let mut small = true;
         let shrink = 1.0 / r.max_head_factor;
@@ -156,7 +161,8 @@ impl Problem<BLOCK> for System {
         let mut old_above = f64::NAN;
         for i in 0..n {
             let k = BLOCK * i;
-            let (d, c) = (&dx[k..k + BLOCK], &col[k..k + BLOCK]);
+            let d = [dx[k + T], dx[k + H], dx[k + RV]];
+            let c = &col[k..k + BLOCK];
             let dt = (d[T] * c[T]).clamp(-r.max_temperature_update, r.max_temperature_update);
             // Heads move at most by the factor `max_head_factor` per iteration in |h|
             // (dry soil spans decades), plus `max_head_update` near saturation.
@@ -194,9 +200,9 @@ impl Problem<BLOCK> for System {
             {
                 small = false;
             }
-            step[k + T] = dt;
-            step[k + H] = dh;
-            step[k + RV] = drv;
+            dx[k + T] = dt;
+            dx[k + H] = dh;
+            dx[k + RV] = drv;
             u[k + T] += dt;
             u[k + H] += dh;
             u[k + RV] += drv;

@@ -186,31 +186,70 @@ fn mat_vec<const B: usize>(a: &Block<B>, x: &[f64; B], m: usize) -> [f64; B] {
 /// its own, and its own row couples only within the block (the algebraic vapour row of
 /// equilibrium mode) — the other B − 1 unknowns form a block-tridiagonal system of
 /// (B−1)×(B−1) blocks, solved alone, and the last follows block by block from its row.
+///
+/// The factors are stored flat, m² values per block (m = B, or B − 1 in the decoupled
+/// pattern): sized at the first factorisation for the pattern it meets, grown (never
+/// shrunk) if a later one needs full blocks, so no factorisation after the first of each
+/// pattern allocates. In equilibrium mode (B = 3, m = 2) the three factor arrays cost
+/// 3 × 32 B per block instead of 3 × 72 B.
 #[derive(Debug, Clone)]
 pub struct BlockThomas<const B: usize> {
     n: usize,
     /// Explicit inverses of the pivot blocks B'_i (from their pivoted LU): the solve is
     /// then mat-vec products only, without the division chain of triangular solves.
-    inv: Vec<Block<B>>,
-    e: Vec<Block<B>>,
-    lower: Vec<Block<B>>,
+    inv: Vec<f64>,
+    e: Vec<f64>,
+    lower: Vec<f64>,
     /// Whether the last factorisation used the decoupled pattern; then `inv`, `e` and
-    /// `lower` hold the reduced blocks in their leading (B−1)×(B−1) part, and `last`,
-    /// per block, the last row (a_0 … a_{B−2}, 1/a_{B−1}) of
-    /// x_{B−1} = (r_{B−1} − Σ a_c x_c) / a_{B−1}.
+    /// `lower` hold the reduced (B−1)×(B−1) blocks, and `last`, per block, the last row
+    /// (a_0 … a_{B−2}, 1/a_{B−1}) of x_{B−1} = (r_{B−1} − Σ a_c x_c) / a_{B−1}.
     reduced: bool,
     last: Vec<[f64; B]>,
 }
 
+/// Block `i` of a flat array of m×m blocks, into the leading part of a B×B block.
+#[inline(always)]
+fn load<const B: usize>(v: &[f64], i: usize, m: usize) -> Block<B> {
+    let mut b = zero_block::<B>();
+    let s = &v[m * m * i..m * m * (i + 1)];
+    for r in 0..m {
+        b[r][..m].copy_from_slice(&s[m * r..m * r + m]);
+    }
+    b
+}
+
+/// The leading m×m part of `b` into block `i` of a flat array of m×m blocks.
+#[inline(always)]
+fn store<const B: usize>(v: &mut [f64], i: usize, m: usize, b: &Block<B>) {
+    let s = &mut v[m * m * i..m * m * (i + 1)];
+    for r in 0..m {
+        s[m * r..m * r + m].copy_from_slice(&b[r][..m]);
+    }
+}
+
 impl<const B: usize> BlockThomas<B> {
+    /// A solver for `n` blocks (its factor arrays are sized by the first factorisation).
     pub fn new(n: usize) -> Self {
         BlockThomas {
             n,
-            inv: vec![zero_block(); n],
-            e: vec![zero_block(); n],
-            lower: vec![zero_block(); n],
+            inv: Vec::new(),
+            e: Vec::new(),
+            lower: Vec::new(),
             reduced: false,
-            last: vec![[0.0; B]; n],
+            last: Vec::new(),
+        }
+    }
+
+    /// Sizes the factor arrays for blocks of m×m (and the last rows when reduced).
+    fn reserve(&mut self, m: usize, reduced: bool) {
+        let need = m * m * self.n;
+        for v in [&mut self.inv, &mut self.e, &mut self.lower] {
+            if v.len() < need {
+                v.resize(need, 0.0);
+            }
+        }
+        if reduced && self.last.len() < self.n {
+            self.last.resize(self.n, [0.0; B]);
         }
     }
 
@@ -263,7 +302,7 @@ impl<const B: usize> BlockThomas<B> {
             let mut bp = sub(&d);
             let low = sub(&a.lower(i));
             if i > 0 {
-                let e = &self.e[i - 1];
+                let e = &load::<B>(&self.e, i - 1, m);
                 for r in 0..m {
                     for c in 0..m {
                         let mut s = low[r][0] * e[0][c];
@@ -277,7 +316,7 @@ impl<const B: usize> BlockThomas<B> {
             let inv = Self::reduced_inverse(&bp).ok_or(LinearError::Singular { index: B * i })?;
             if i + 1 < n {
                 let c = sub(&a.upper(i));
-                let e = &mut self.e[i];
+                let mut e = zero_block::<B>();
                 for r in 0..m {
                     for q in 0..m {
                         let mut s = inv[r][0] * c[0][q];
@@ -287,9 +326,10 @@ impl<const B: usize> BlockThomas<B> {
                         e[r][q] = s;
                     }
                 }
+                store(&mut self.e, i, m, &e);
             }
-            self.inv[i] = inv;
-            self.lower[i] = low;
+            store(&mut self.inv, i, m, &inv);
+            store(&mut self.lower, i, m, &low);
             if d[m][m] == 0.0 || !d[m][m].is_finite() {
                 return Err(LinearError::Singular { index: B * i + m });
             }
@@ -309,17 +349,17 @@ impl<const B: usize> BlockThomas<B> {
             let mut r = [0.0; B];
             r[..m].copy_from_slice(&b[B * i..B * i + m]);
             if i > 0 {
-                let ly = mat_vec(&self.lower[i], &prev, m);
+                let ly = mat_vec(&load::<B>(&self.lower, i, m), &prev, m);
                 for k in 0..m {
                     r[k] -= ly[k];
                 }
             }
-            prev = mat_vec(&self.inv[i], &r, m);
+            prev = mat_vec(&load::<B>(&self.inv, i, m), &r, m);
             b[B * i..B * i + m].copy_from_slice(&prev[..m]);
         }
         let mut next = prev;
         for i in (0..n.saturating_sub(1)).rev() {
-            let ex = mat_vec(&self.e[i], &next, m);
+            let ex = mat_vec(&load::<B>(&self.e, i, m), &next, m);
             for k in 0..m {
                 b[B * i + k] -= ex[k];
                 next[k] = b[B * i + k];
@@ -343,14 +383,16 @@ impl<const B: usize> BlockThomas<B> {
         }
         self.reduced = a.last_decoupled();
         if self.reduced {
+            self.reserve(B - 1, true);
             return self.factor_reduced(a);
         }
+        self.reserve(B, false);
         let n = self.n;
         for i in 0..n {
             let mut bp = a.diag(i);
             let low = a.lower(i);
             if i > 0 {
-                let ae = mat_mul(&low, &self.e[i - 1]);
+                let ae = mat_mul(&low, &load::<B>(&self.e, i - 1, B));
                 for (row, ae_row) in bp.iter_mut().zip(ae.iter()) {
                     for (x, y) in row.iter_mut().zip(ae_row.iter()) {
                         *x -= y;
@@ -360,10 +402,10 @@ impl<const B: usize> BlockThomas<B> {
             let inv = LuBlock::factor(&bp, B * i)?.inverse();
             if i + 1 < n {
                 // E_i = B'_i⁻¹ C_i.
-                self.e[i] = mat_mul(&inv, &a.upper(i));
+                store(&mut self.e, i, B, &mat_mul(&inv, &a.upper(i)));
             }
-            self.inv[i] = inv;
-            self.lower[i] = low;
+            store(&mut self.inv, i, B, &inv);
+            store(&mut self.lower, i, B, &low);
         }
         Ok(())
     }
@@ -382,6 +424,11 @@ impl<const B: usize> LinearSolver<B> for BlockThomas<B> {
         if b.len() != B * self.n {
             return Err(LinearError::Pattern);
         }
+        let m = if self.reduced { B - 1 } else { B };
+        if self.inv.len() < m * m * self.n {
+            // Not factorised yet.
+            return Err(LinearError::Singular { index: 0 });
+        }
         if self.reduced {
             self.solve_reduced(b);
             return all_finite(b);
@@ -392,17 +439,17 @@ impl<const B: usize> LinearSolver<B> for BlockThomas<B> {
             let mut r = [0.0; B];
             r.copy_from_slice(&b[B * i..B * i + B]);
             if i > 0 {
-                let ay = mat_vec(&self.lower[i], &prev, B);
+                let ay = mat_vec(&load::<B>(&self.lower, i, B), &prev, B);
                 for k in 0..B {
                     r[k] -= ay[k];
                 }
             }
-            prev = mat_vec(&self.inv[i], &r, B);
+            prev = mat_vec(&load::<B>(&self.inv, i, B), &r, B);
             b[B * i..B * i + B].copy_from_slice(&prev);
         }
         let mut next = prev;
         for i in (0..n.saturating_sub(1)).rev() {
-            let ex = mat_vec(&self.e[i], &next, B);
+            let ex = mat_vec(&load::<B>(&self.e, i, B), &next, B);
             for k in 0..B {
                 b[B * i + k] -= ex[k];
                 next[k] = b[B * i + k];

@@ -18,7 +18,7 @@
 //! when the residual contracts by less than `refresh_rate` per iteration, when the linear
 //! solve fails, and when the caller invalidates it (the stepper does at every step).
 
-use super::blocktri::{zero_block, Block, BlockTri, Scaled};
+use super::blocktri::{PackedTri, Scaled};
 use super::linear::{LinearError, LinearSolver};
 use super::problem::{BalanceScales, NonFinite, Problem, MAX_CONSERVED};
 
@@ -125,12 +125,12 @@ pub struct NewtonWork<const B: usize> {
     /// The reciprocal row scales of the convergence test (the row scaling of the matrix).
     pub row: Vec<f64>,
     pub col: Vec<f64>,
-    /// The last (limited) update.
-    pub step: Vec<f64>,
     /// The kept Jacobian, unscaled, evaluated with coefficient `jac_c`, and the storage
-    /// derivative blocks `S` of the same evaluation.
-    jac_raw: BlockTri<B>,
-    storage: Vec<Block<B>>,
+    /// derivative blocks `S` of the same evaluation (diagonal blocks only); packed with
+    /// (B−1)×(B−1) blocks when the problem's last unknown is decoupled
+    /// ([`Problem::last_unknown_decoupled`]).
+    jac_raw: PackedTri<B>,
+    storage: PackedTri<B>,
     jac_c: Option<f64>,
     /// Coefficient of the current factorisation (None: no valid factorisation).
     factor_c: Option<f64>,
@@ -141,17 +141,22 @@ pub struct NewtonWork<const B: usize> {
 }
 
 impl<const B: usize> NewtonWork<B> {
-    /// Work arrays for `n` blocks.
+    /// Work arrays for `n` blocks, the Jacobian stored in full B×B blocks.
     pub fn new(n: usize) -> Self {
+        Self::with_pattern(n, false)
+    }
+
+    /// Work arrays for `n` blocks; `decoupled`: the Jacobian stored in the packed pattern
+    /// of a decoupled last unknown (see [`PackedTri`]).
+    pub fn with_pattern(n: usize, decoupled: bool) -> Self {
         NewtonWork {
             balance_window: None,
             res: vec![0.0; B * n],
             dx: vec![0.0; B * n],
             row: vec![0.0; B * n],
             col: vec![0.0; B * n],
-            step: vec![0.0; B * n],
-            jac_raw: BlockTri::new(n),
-            storage: vec![zero_block(); n],
+            jac_raw: PackedTri::new(n, decoupled),
+            storage: PackedTri::storage(n, decoupled),
             jac_c: None,
             factor_c: None,
             scale_c: None,
@@ -163,12 +168,20 @@ impl<const B: usize> NewtonWork<B> {
     pub fn arrays(&self, out: &mut Vec<crate::memory::ArrayCost>) {
         use crate::memory::push;
         const OWNER: &str = "Newton";
-        push(out, OWNER, "Jacobian, lower blocks", &self.jac_raw.lower);
-        push(out, OWNER, "Jacobian, diagonal blocks", &self.jac_raw.diag);
-        push(out, OWNER, "Jacobian, upper blocks", &self.jac_raw.upper);
-        push(out, OWNER, "storage blocks", &self.storage);
-        for v in [&self.res, &self.dx, &self.row, &self.col, &self.step] {
-            push(out, OWNER, "vectors (5)", v);
+        self.jac_raw.arrays(
+            out,
+            OWNER,
+            [
+                "Jacobian, lower blocks",
+                "Jacobian, diagonal blocks",
+                "Jacobian, upper blocks",
+                "Jacobian, algebraic rows",
+            ],
+        );
+        self.storage
+            .arrays(out, OWNER, ["", "storage blocks", "", ""]);
+        for v in [&self.res, &self.dx, &self.row, &self.col] {
+            push(out, OWNER, "vectors (4)", v);
         }
     }
 
@@ -336,7 +349,8 @@ pub fn solve<const B: usize, P: Problem<B> + ?Sized>(
             continue;
         }
         stats.iterations += 1;
-        small_update = sys.apply_update(u, &w.dx, &w.col, &mut w.step);
+        // (The update taken replaces the solution in `dx`.)
+        small_update = sys.apply_update(u, &mut w.dx, &w.col);
     }
 }
 

@@ -19,7 +19,7 @@
 //! through its two ends; the stepper integrates those flows with its own weights, so
 //! that storage change and cumulative inflow agree to the Newton tolerance.
 
-use super::blocktri::{Block, BlockTri};
+use super::blocktri::BlockRows;
 
 /// Largest number of conserved quantities a problem may declare.
 pub const MAX_CONSERVED: usize = 4;
@@ -111,13 +111,24 @@ pub trait Problem<const B: usize> {
         c: f64,
         hist: &[f64],
         res: &mut [f64],
-        jac: Option<&mut BlockTri<B>>,
+        jac: Option<&mut dyn BlockRows<B>>,
     ) -> Result<(), NonFinite>;
+
+    /// Whether, at every state, the last unknown of each block appears in no other row
+    /// than its own, its own row couples only within the block and has no storage (an
+    /// algebraic unknown that follows the others, as the equilibrium vapour density):
+    /// Newton then keeps the Jacobian in (B−1)×(B−1) blocks plus that row, and the
+    /// storage derivatives in (B−1)×(B−1) blocks (see
+    /// [`super::blocktri::PackedTri`]). Default: false (full blocks).
+    fn last_unknown_decoupled(&self) -> bool {
+        false
+    }
 
     /// Derivative of the storage terms `V M(u)` of each block with respect to its own
     /// unknowns, from the last evaluation with derivatives: the part of the Jacobian
     /// that scales with `c` (zero rows for algebraic equations).
-    fn storage_jacobian_into(&self, out: &mut [Block<B>]);
+    /// Written with [`BlockRows::set_diag`].
+    fn storage_jacobian_into(&self, out: &mut dyn BlockRows<B>);
 
     /// After the last evaluation (by [`Problem::assemble`]): per row, the scale against
     /// which Newton applies its tolerance `tol` (the magnitude of the terms that make
@@ -137,10 +148,10 @@ pub trait Problem<const B: usize> {
 
     /// Applies Newton's update `dx · col` (the solution of the column-scaled system
     /// times the column scales) to `u`, limited where the problem needs it (sign
-    /// constraints, largest change per iteration); the update taken goes to `step`.
+    /// constraints, largest change per iteration); the update taken replaces `dx`.
     /// Returns whether every update taken was below the problem's "no longer moving"
     /// thresholds.
-    fn apply_update(&self, u: &mut [f64], dx: &[f64], col: &[f64], step: &mut [f64]) -> bool;
+    fn apply_update(&self, u: &mut [f64], dx: &mut [f64], col: &[f64]) -> bool;
 
     /// Called when Newton accepts `u`, whose residual was the last evaluation: complete
     /// anything that evaluation left out for speed (default: nothing).

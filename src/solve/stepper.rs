@@ -331,7 +331,7 @@ impl<const B: usize> Stepper<B> {
             state,
             opts,
             lin,
-            work: NewtonWork::new(sys.blocks()),
+            work: NewtonWork::with_pattern(sys.blocks(), sys.last_unknown_decoupled()),
             u_old: vec![0.0; len],
             hist: vec![0.0; len],
             changes: Vec::new(),
@@ -384,6 +384,13 @@ impl<const B: usize> Stepper<B> {
         let (cells, faces) = sys.kept_states();
         self.state.linearization_cells = cells;
         self.state.linearization_faces = faces;
+    }
+
+    /// Drops the copies [`Stepper::sync_state`] made (once they are saved): the problem
+    /// still holds its kept evaluations, and the next sync copies them afresh.
+    pub fn drop_synced(&mut self) {
+        self.state.linearization_cells = Vec::new();
+        self.state.linearization_faces = Vec::new();
     }
 
     /// Forgets the multistep history (after a discontinuity in the forcing): the next

@@ -187,41 +187,6 @@ pub fn cell_props<const N: usize>(
 }
 
 impl<const N: usize> CellProps<N> {
-    /// The properties at the state (t, h, rv), displaced by `du` (the first N of
-    /// t, h, rv) from the state of this evaluation, to first order, into `out` (written in
-    /// place: no copy of the whole record); the unknowns themselves exactly (`rv`: None
-    /// where it is not an unknown, equilibrium mode, and is linearised like the other
-    /// properties).
-    pub fn taylor_into(
-        &self,
-        t: f64,
-        h: f64,
-        rv: Option<f64>,
-        du: &[f64; N],
-        out: &mut CellProps<0>,
-    ) {
-        out.t = Dual::cst(t);
-        out.h = Dual::cst(h);
-        out.rv = match rv {
-            Some(rv) => Dual::cst(rv),
-            None => self.rv.taylor(du),
-        };
-        out.theta = self.theta.taylor(du);
-        out.theta_a = self.theta_a.taylor(du);
-        out.hr = self.hr.taylor(du);
-        out.rvs = self.rvs.taylor(du);
-        out.drvs = self.drvs.taylor(du);
-        out.rveq = self.rveq.taylor(du);
-        out.k = self.k.taylor(du);
-        out.kt = self.kt.taylor(du);
-        out.dv = self.dv.taylor(du);
-        out.eta = self.eta.taylor(du);
-        out.lambda = self.lambda.taylor(du);
-        out.energy = self.energy.taylor(du);
-        out.water = self.water.taylor(du);
-        out.vapor = self.vapor.taylor(du);
-    }
-
     /// The values alone (what the residual-only path computes).
     pub fn values(&self) -> CellProps<0> {
         CellProps {
@@ -326,8 +291,10 @@ impl<const N: usize> KeptCell<N> {
         }
     }
 
-    /// As [`CellProps::taylor_into`] (the same arithmetic; in equilibrium mode, `rv`
-    /// None, the vapour density is rveq linearised).
+    /// The properties at the state (t, h, rv), displaced by `du` (the first N of t, h, rv)
+    /// from the base state of this record, to first order, into `out` (written in place:
+    /// no copy of the whole record); the unknowns themselves exactly (`rv`: None where it
+    /// is not an unknown, equilibrium mode, and then rveq linearised).
     #[inline(always)]
     pub fn taylor_into(
         &self,

@@ -490,6 +490,14 @@ pub fn series_time_axis(time: &[f64], origin: f64, log_time: bool) -> TimeAxis {
             origin: Some(origin),
         };
     }
+    TimeAxis {
+        axis: linear_time_axis(time),
+        origin: None,
+    }
+}
+
+/// A linear axis in years over the finite times of `time`.
+fn linear_time_axis(time: &[f64]) -> Axis {
     let min = time
         .iter()
         .cloned()
@@ -500,12 +508,11 @@ pub fn series_time_axis(time: &[f64], origin: f64, log_time: bool) -> TimeAxis {
         .cloned()
         .filter(|t| t.is_finite())
         .fold(f64::NEG_INFINITY, f64::max);
-    let axis = if min.is_finite() && max > min {
+    if min.is_finite() && max > min {
         Axis::new(Scale::Linear, min, max)
     } else {
         axis_for(Scale::Linear, time.iter().cloned())
-    };
-    TimeAxis { axis, origin: None }
+    }
 }
 
 /// [`series_time_axis`] counted from year 0.
@@ -555,7 +562,13 @@ pub fn series_figures_on(res: &Results, ta: TimeAxis) -> Vec<(String, Figure)> {
     // beside the second where they overlap.
     let blue = palette::PALETTE[0];
     let red = palette::PALETTE[3];
-    let line = |label: &str, color: RGBColor, v: &[f64], f: &dyn Fn(f64) -> f64| Line {
+    // A series line on the time axis `axis`, the record times mapped by `x_of`.
+    let line_on = |axis: &Axis,
+                   x_of: &dyn Fn(f64) -> f64,
+                   label: &str,
+                   color: RGBColor,
+                   v: &[f64],
+                   f: &dyn Fn(f64) -> f64| Line {
         label: label.into(),
         color,
         width: if color == blue { 3 } else { 2 },
@@ -563,12 +576,15 @@ pub fn series_figures_on(res: &Results, ta: TimeAxis) -> Vec<(String, Figure)> {
             &s.time
                 .iter()
                 .zip(v)
-                .map(|(t_, v)| (ta.x(*t_), f(*v)))
-                .filter(|(x, _)| t.scale.shows(*x))
+                .map(|(t_, v)| (x_of(*t_), f(*v)))
+                .filter(|(x, _)| axis.scale.shows(*x))
                 .collect::<Vec<_>>(),
-            &t,
+            axis,
             SERIES_BUCKETS,
         ),
+    };
+    let line = |label: &str, color: RGBColor, v: &[f64], f: &dyn Fn(f64) -> f64| {
+        line_on(&t, &|x| ta.x(x), label, color, v, f)
     };
     let single =
         |what: &str, y: Axis, y_label: &str, lines: Vec<Line>, y_zero: bool, key: &str| Figure {
@@ -673,37 +689,14 @@ pub fn series_figures_on(res: &Results, ta: TimeAxis) -> Vec<(String, Figure)> {
         // Floods are events in linear time (days within decades): this figure keeps a
         // linear time axis whatever the others use, and the pond (mm) and the runoff
         // (metres over a long run) get a panel each.
-        let lo = s
-            .time
-            .iter()
-            .cloned()
-            .filter(|t| t.is_finite())
-            .fold(f64::INFINITY, f64::min);
-        let hi = s
-            .time
-            .iter()
-            .cloned()
-            .filter(|t| t.is_finite())
-            .fold(f64::NEG_INFINITY, f64::max);
-        let tl = if lo.is_finite() && hi > lo {
-            Axis::new(Scale::Linear, lo, hi)
-        } else {
-            axis_for(Scale::Linear, s.time.iter().cloned())
-        };
-        let linear_line = |label: &str, color: RGBColor, v: &[f64], f: &dyn Fn(f64) -> f64| Line {
-            label: label.into(),
-            color,
-            width: if color == blue { 3 } else { 2 },
-            points: chart::thin(
-                &s.time
-                    .iter()
-                    .zip(v)
-                    .map(|(t_, v)| (*t_, f(*v)))
-                    .filter(|(x, _)| x.is_finite())
-                    .collect::<Vec<_>>(),
-                &tl,
-                SERIES_BUCKETS,
-            ),
+        let tl = linear_time_axis(&s.time);
+        let finite = || s.time.iter().cloned().filter(|t| t.is_finite());
+        let (lo, hi) = (
+            finite().fold(f64::INFINITY, f64::min),
+            finite().fold(f64::NEG_INFINITY, f64::max),
+        );
+        let linear_line = |label: &str, color: RGBColor, v: &[f64], f: &dyn Fn(f64) -> f64| {
+            line_on(&tl, &|x| x, label, color, v, f)
         };
         let pond = vec![linear_line("ponding depth", blue, &s.ponding_depth, &|v| {
             v * 1.0e3

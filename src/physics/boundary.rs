@@ -118,7 +118,7 @@ impl System {
     /// its temperature: the pond is part of its storage), while bare soil exchanges
     /// through the resistance and the top half-cell in series. The two fluxes are blended
     /// by the pond's turn-on weight w = dP/dx ∈ [0, 1] over the 1 mm band of the pond's
-    /// storage ([`super::pond_of_excess`]), so the flux has no jump where a pond appears.
+    /// storage ([`super::pond_weight`]), so the flux has no jump where a pond appears.
     fn air_exchange<const N: usize, const M: usize>(
         &self,
         t: f64,
@@ -154,14 +154,8 @@ impl System {
             };
             f.vapor_th = Dual::cst(0.0);
             if pond {
-                let x = c0.h.v - self.d_above[0];
-                let (_, w) = super::pond_of_excess(x);
+                let (w, dw) = super::pond_weight(c0.h.v - self.d_above[0]);
                 if w > 0.0 {
-                    let dw = if x < super::POND_BAND {
-                        1.0 / super::POND_BAND
-                    } else {
-                        0.0
-                    };
                     let w = Dual::lift(c0.h.chain(w, dw), N);
                     let ra = ra.max(f64::MIN_POSITIVE);
                     let open = -((rv0 - rva) / ra);

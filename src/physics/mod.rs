@@ -123,6 +123,20 @@ pub fn pond_of_excess(x: f64) -> (f64, f64) {
     }
 }
 
+/// The pond's turn-on weight w = dP/dx ∈ [0, 1] for a hydrostatic surface head `x` [m]
+/// (the slope of [`pond_of_excess`]) and its derivative dw/dx [m⁻¹]: 0 below, x/δ within
+/// the band δ, 1 above.
+#[inline]
+pub fn pond_weight(x: f64) -> (f64, f64) {
+    if x <= 0.0 {
+        (0.0, 0.0)
+    } else if x < POND_BAND {
+        (x / POND_BAND, 1.0 / POND_BAND)
+    } else {
+        (1.0, 0.0)
+    }
+}
+
 /// Runoff rate per unit area [m s⁻¹] for a pond standing `x` [m] above its largest depth,
 /// and its derivative [s⁻¹]: 0 below, x²/(2δτ) within the band δ, (x − δ/2)/τ above.
 #[inline]

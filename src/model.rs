@@ -122,6 +122,37 @@ pub struct SurfaceBc {
     pub water: SurfaceWater,
 }
 
+impl SurfaceBc {
+    /// Every schedule of the condition with what it is (heat first, then water), for
+    /// the walks over the forcing: breakpoints, the cycle-skipping check.
+    pub fn schedules(&self) -> impl Iterator<Item = (&'static str, &Schedule)> {
+        let heat = match &self.heat {
+            SurfaceHeat::Temperature(s) => ("the surface temperature", s),
+            SurfaceHeat::Flux(s) => ("the surface heat flux", s),
+        };
+        let water = match &self.water {
+            SurfaceWater::Head(s) => [Some(("the surface head", s)), None, None],
+            SurfaceWater::Flux { flux, .. } => [Some(("the surface water flux", flux)), None, None],
+            SurfaceWater::Atmosphere {
+                relative_humidity,
+                resistance,
+            } => [
+                Some(("the air's relative humidity", relative_humidity)),
+                resistance.as_ref().map(|r| ("the surface resistance", r)),
+                None,
+            ],
+            SurfaceWater::Pond { inflow, air, .. } => [
+                Some(("the water applied to the surface", inflow)),
+                air.as_ref()
+                    .map(|(rh, _)| ("the air's relative humidity", rh)),
+                air.as_ref().map(|(_, r)| ("the surface resistance", r)),
+            ],
+            SurfaceWater::NoFlow => [None, None, None],
+        };
+        std::iter::once(Some(heat)).chain(water).flatten()
+    }
+}
+
 /// Bottom heat condition.
 #[derive(Debug, Clone)]
 pub enum BottomHeat {
@@ -147,6 +178,21 @@ pub enum BottomWater {
 pub struct BottomBc {
     pub heat: BottomHeat,
     pub water: BottomWater,
+}
+
+impl BottomBc {
+    /// Every schedule of the condition with what it is (heat first, then water).
+    pub fn schedules(&self) -> impl Iterator<Item = (&'static str, &Schedule)> {
+        let heat = match &self.heat {
+            BottomHeat::Temperature(s) => ("the bottom temperature", s),
+            BottomHeat::GeothermalFlux(s) => ("the geothermal heat flux", s),
+        };
+        let water = match &self.water {
+            BottomWater::WaterTable(s) => Some(("the bottom head", s)),
+            BottomWater::FreeDrainage | BottomWater::NoFlow => None,
+        };
+        std::iter::once(Some(heat)).chain([water]).flatten()
+    }
 }
 
 /// A boundary condition that may change kind at given times. Periods are sorted by `start`;

@@ -6,9 +6,7 @@ use super::build::opt_num;
 use super::schedules::fmt_g;
 use super::tree::Table;
 use crate::error::Error;
-use crate::model::{
-    BottomHeat, BottomWater, CycleSkipping, Model, SurfaceHeat, SurfaceWater, TimeControl,
-};
+use crate::model::{CycleSkipping, Model, TimeControl};
 use crate::props::constants::SECONDS_PER_YEAR;
 use crate::schedule::Schedule;
 
@@ -159,30 +157,8 @@ pub fn check(t: &Table, model: &Model) -> R<()> {
         if inside(*b) {
             return Err(change("[surface]", *b));
         }
-        match &bc.heat {
-            SurfaceHeat::Temperature(s) => check_s("the surface temperature", s)?,
-            SurfaceHeat::Flux(s) => check_s("the surface heat flux", s)?,
-        }
-        match &bc.water {
-            SurfaceWater::Head(s) => check_s("the surface head", s)?,
-            SurfaceWater::Flux { flux, .. } => check_s("the surface water flux", flux)?,
-            SurfaceWater::Pond { inflow, air, .. } => {
-                check_s("the water applied to the surface", inflow)?;
-                if let Some((rh, r)) = air {
-                    check_s("the air's relative humidity", rh)?;
-                    check_s("the surface resistance", r)?;
-                }
-            }
-            SurfaceWater::Atmosphere {
-                relative_humidity,
-                resistance,
-            } => {
-                check_s("the air's relative humidity", relative_humidity)?;
-                if let Some(r) = resistance {
-                    check_s("the surface resistance", r)?;
-                }
-            }
-            SurfaceWater::NoFlow => {}
+        for (what, s) in bc.schedules() {
+            check_s(what, s)?;
         }
     }
     let bot = &model.bottom.periods;
@@ -191,12 +167,8 @@ pub fn check(t: &Table, model: &Model) -> R<()> {
         if inside(*b) {
             return Err(change("[bottom]", *b));
         }
-        match &bc.heat {
-            BottomHeat::Temperature(s) => check_s("the bottom temperature", s)?,
-            BottomHeat::GeothermalFlux(s) => check_s("the geothermal heat flux", s)?,
-        }
-        if let BottomWater::WaterTable(s) = &bc.water {
-            check_s("the bottom head", s)?;
+        for (what, s) in bc.schedules() {
+            check_s(what, s)?;
         }
     }
     let veg = &model.vegetation.periods;

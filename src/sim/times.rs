@@ -1,7 +1,7 @@
 //! The times a simulation lands on: forcing breakpoints, snapshots, checkpoints, the end.
 
 use crate::error::{Error, Result};
-use crate::model::{BottomHeat, BottomWater, Model, SurfaceHeat, SurfaceWater};
+use crate::model::Model;
 use crate::props::constants::SECONDS_PER_YEAR;
 use crate::schedule::Schedule;
 
@@ -41,37 +41,13 @@ fn schedule_times(model: &Model, pick: fn(&Schedule) -> Vec<f64>) -> Vec<f64> {
     let add_schedule = |s: &Schedule, ts: &mut Vec<f64>| ts.extend(pick(s));
     for (start, bc) in &model.surface.periods {
         ts.push(*start);
-        match &bc.heat {
-            SurfaceHeat::Temperature(s) | SurfaceHeat::Flux(s) => add_schedule(s, &mut ts),
-        }
-        match &bc.water {
-            SurfaceWater::Head(s) => add_schedule(s, &mut ts),
-            SurfaceWater::Flux { flux, .. } => add_schedule(flux, &mut ts),
-            SurfaceWater::Atmosphere {
-                relative_humidity,
-                resistance,
-            } => {
-                add_schedule(relative_humidity, &mut ts);
-                if let Some(r) = resistance {
-                    add_schedule(r, &mut ts);
-                }
-            }
-            SurfaceWater::Pond { inflow, air, .. } => {
-                add_schedule(inflow, &mut ts);
-                if let Some((rh, r)) = air {
-                    add_schedule(rh, &mut ts);
-                    add_schedule(r, &mut ts);
-                }
-            }
-            SurfaceWater::NoFlow => {}
+        for (_, s) in bc.schedules() {
+            add_schedule(s, &mut ts);
         }
     }
     for (start, bc) in &model.bottom.periods {
         ts.push(*start);
-        match &bc.heat {
-            BottomHeat::Temperature(s) | BottomHeat::GeothermalFlux(s) => add_schedule(s, &mut ts),
-        }
-        if let BottomWater::WaterTable(s) = &bc.water {
+        for (_, s) in bc.schedules() {
             add_schedule(s, &mut ts);
         }
     }

@@ -4,45 +4,22 @@
 //! binary before the simulation is built and after it has run (BDF, so the multistep
 //! history is full); the listed arrays must make up nearly all of the difference.
 
+mod counting;
 mod support;
 
+use counting::LIVE;
 use deepdry::memory::{table, total};
 use deepdry::physics::cell::{CellProps, KeptCell};
 use deepdry::physics::flux::FaceFlux;
 use deepdry::sim::initial::initial_unknowns;
 use deepdry::sim::{Begin, OutputPosition, Simulation, SyncPlan};
 use deepdry::solve::linear::SolverKind;
-use std::alloc::{GlobalAlloc, Layout, System};
 use std::path::Path;
-use std::sync::atomic::{AtomicUsize, Ordering};
+use std::sync::atomic::Ordering;
 use support::Small;
 
-/// The system allocator, counting the bytes live.
-struct Counting;
-static LIVE: AtomicUsize = AtomicUsize::new(0);
-
-unsafe impl GlobalAlloc for Counting {
-    unsafe fn alloc(&self, layout: Layout) -> *mut u8 {
-        LIVE.fetch_add(layout.size(), Ordering::Relaxed);
-        System.alloc(layout)
-    }
-    unsafe fn dealloc(&self, ptr: *mut u8, layout: Layout) {
-        LIVE.fetch_sub(layout.size(), Ordering::Relaxed);
-        System.dealloc(ptr, layout)
-    }
-    unsafe fn alloc_zeroed(&self, layout: Layout) -> *mut u8 {
-        LIVE.fetch_add(layout.size(), Ordering::Relaxed);
-        System.alloc_zeroed(layout)
-    }
-    unsafe fn realloc(&self, ptr: *mut u8, layout: Layout, new_size: usize) -> *mut u8 {
-        LIVE.fetch_add(new_size, Ordering::Relaxed);
-        LIVE.fetch_sub(layout.size(), Ordering::Relaxed);
-        System.realloc(ptr, layout, new_size)
-    }
-}
-
 #[global_allocator]
-static ALLOC: Counting = Counting;
+static ALLOC: counting::Counting = counting::Counting;
 
 #[test]
 fn the_listed_arrays_are_what_a_run_holds_and_fit_the_budget() {

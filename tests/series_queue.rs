@@ -5,44 +5,15 @@
 //! one queue's worth of rows. (A bound of this program's own design; no outside source.)
 
 mod common;
+mod counting;
 
+use counting::{LIVE, PEAK};
 use deepdry::output::diagnostics::SeriesRecord;
 use deepdry::output::results::{ResultsFile, SERIES_QUEUE_ROWS};
-use std::alloc::{GlobalAlloc, Layout, System};
-use std::sync::atomic::{AtomicUsize, Ordering};
-
-/// The system allocator, counting the bytes live and their peak.
-struct Counting;
-static LIVE: AtomicUsize = AtomicUsize::new(0);
-static PEAK: AtomicUsize = AtomicUsize::new(0);
-
-fn grew(by: usize) {
-    let now = LIVE.fetch_add(by, Ordering::Relaxed) + by;
-    PEAK.fetch_max(now, Ordering::Relaxed);
-}
-
-unsafe impl GlobalAlloc for Counting {
-    unsafe fn alloc(&self, layout: Layout) -> *mut u8 {
-        grew(layout.size());
-        System.alloc(layout)
-    }
-    unsafe fn dealloc(&self, ptr: *mut u8, layout: Layout) {
-        LIVE.fetch_sub(layout.size(), Ordering::Relaxed);
-        System.dealloc(ptr, layout)
-    }
-    unsafe fn alloc_zeroed(&self, layout: Layout) -> *mut u8 {
-        grew(layout.size());
-        System.alloc_zeroed(layout)
-    }
-    unsafe fn realloc(&self, ptr: *mut u8, layout: Layout, new_size: usize) -> *mut u8 {
-        grew(new_size);
-        LIVE.fetch_sub(layout.size(), Ordering::Relaxed);
-        System.realloc(ptr, layout, new_size)
-    }
-}
+use std::sync::atomic::Ordering;
 
 #[global_allocator]
-static ALLOC: Counting = Counting;
+static ALLOC: counting::Counting = counting::Counting;
 
 #[test]
 fn queued_series_rows_are_written_out_when_the_queue_is_full() {

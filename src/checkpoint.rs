@@ -355,24 +355,19 @@ fn write_via(
         attr_f64(&root, "time_origin_year", model.time.epoch_year).map_err(&er)?;
         attr_f64(&root, "time_year", model.time.year(state.t)).map_err(&er)?;
         attr_f64(&root, "end_year", model.time.year(model.time.end)).map_err(&er)?;
-        let f64s = |name: &str, v: &[f64], units: &str, long: &str| -> hdf5::Result<()> {
-            let ds = file
-                .new_dataset_builder()
-                .with_data(ndarray::ArrayView1::from(v))
-                .create(name)?;
-            describe(&ds, units, long)
-        };
         let n = model.mesh.faces.len().saturating_sub(1);
         let per_cell = "per cell, ordered temperature [K], pressure head [m], vapour density [kg m-3] (interleaved by cell)";
         f64s(
+            &file,
             "time_s",
             &[state.t],
             "s",
             "simulated time of the state (seconds since year 0 of the case's time axis)",
         )
         .map_err(&er)?;
-        f64s("dt_s", &[state.dt], "s", "proposed next time step").map_err(&er)?;
+        f64s(&file, "dt_s", &[state.dt], "s", "proposed next time step").map_err(&er)?;
         f64s(
+            &file,
             "unknowns",
             &state.u,
             "mixed: K, m, kg m-3",
@@ -380,6 +375,7 @@ fn write_via(
         )
         .map_err(&er)?;
         f64s(
+            &file,
             "storage",
             &state.storage,
             "mixed: J m-3, kg m-3, kg m-3",
@@ -387,6 +383,7 @@ fn write_via(
         )
         .map_err(&er)?;
         f64s(
+            &file,
             "linearization_cells",
             &state.linearization_cells,
             "mixed",
@@ -394,6 +391,7 @@ fn write_via(
         )
         .map_err(&er)?;
         f64s(
+            &file,
             "linearization_faces",
             &state.linearization_faces,
             "mixed",
@@ -401,6 +399,7 @@ fn write_via(
         )
         .map_err(&er)?;
         f64s(
+            &file,
             "inflow",
             &state.inflow,
             "J m-2, kg m-2",
@@ -408,6 +407,7 @@ fn write_via(
         )
         .map_err(&er)?;
         f64s(
+            &file,
             "throughput",
             &state.throughput,
             "J m-2, kg m-2",
@@ -415,6 +415,7 @@ fn write_via(
         )
         .map_err(&er)?;
         f64s(
+            &file,
             "top_inflow",
             &state.top_inflow,
             "J m-2, kg m-2",
@@ -422,6 +423,7 @@ fn write_via(
         )
         .map_err(&er)?;
         f64s(
+            &file,
             "initial_totals",
             &state.initial_totals,
             "J m-2, kg m-2",
@@ -429,6 +431,7 @@ fn write_via(
         )
         .map_err(&er)?;
         f64s(
+            &file,
             "initial_storage",
             &state.initial_storage,
             "mixed: J m-3, kg m-3, kg m-3",
@@ -436,6 +439,7 @@ fn write_via(
         )
         .map_err(&er)?;
         f64s(
+            &file,
             "face_depth",
             &model.mesh.faces,
             "m",
@@ -444,6 +448,7 @@ fn write_via(
         .map_err(&er)?;
         if let (Some(a), Some(r)) = (info.balance_abs, info.balance_rel) {
             f64s(
+                &file,
                 "balance_error",
                 &[a[0], a[1], r[0], r[1]],
                 "J m-2, kg m-2, 1, 1",
@@ -452,6 +457,7 @@ fn write_via(
             .map_err(&er)?;
         }
         f64s(
+            &file,
             "results_last_times",
             &[
                 info.last_series_year.unwrap_or(f64::NAN),
@@ -561,6 +567,7 @@ fn write_via(
             table(name, hlen, width, values, "J m-2, kg m-2", long)?;
         }
         f64s(
+            &file,
             "sink",
             &state.sink,
             "J m-2, kg m-2",
@@ -568,6 +575,7 @@ fn write_via(
         )
         .map_err(&er)?;
         f64s(
+            &file,
             "runoff",
             &state.runoff,
             "J m-2, kg m-2",
@@ -594,6 +602,7 @@ fn write_via(
             .map_err(&er)?;
         describe(&ds, "1", "counts: steps, rejected steps, Newton iterations, factorisations, steps since the last series row, series rows, snapshots, BDF order, steps at that order, Jacobian evaluations").map_err(&er)?;
         f64s(
+            &file,
             "last_error_estimate",
             &[state.last_error],
             "1",
@@ -631,6 +640,15 @@ fn write_via(
 
 /// The cycle-skipping datasets of a checkpoint (root level, so that the checksum covers
 /// them).
+/// Writes `v` as the 1-D dataset `name` of `file`, with its units and long name.
+fn f64s(file: &File, name: &str, v: &[f64], units: &str, long: &str) -> hdf5::Result<()> {
+    let ds = file
+        .new_dataset_builder()
+        .with_data(ndarray::ArrayView1::from(v))
+        .create(name)?;
+    describe(&ds, units, long)
+}
+
 fn write_envelope(file: &File, env: &EnvelopeState) -> hdf5::Result<()> {
     let counts = vec![
         env.period,
@@ -647,11 +665,7 @@ fn write_envelope(file: &File, env: &EnvelopeState) -> hdf5::Result<()> {
     describe(&ds, "1", "cycle skipping: index of the last period boundary reached, periods integrated in the current block, periods of the last jump, jumps, periods skipped, boundary states kept")?;
     let mut values = vec![env.last_error];
     values.extend_from_slice(&env.mismatch);
-    let ds = file
-        .new_dataset_builder()
-        .with_data(&Array1::from_vec(values))
-        .create("cycle_skipping_values")?;
-    describe(&ds, "1, J m-2, kg m-2", "cycle skipping: last error estimate (scaled), then the jumps' cumulative balance error (energy, water)")?;
+    f64s(file, "cycle_skipping_values", &values, "1, J m-2, kg m-2", "cycle skipping: last error estimate (scaled), then the jumps' cumulative balance error (energy, water)")?;
     if !env.points.is_empty() {
         let mut points = Vec::new();
         for p in &env.points {
@@ -659,11 +673,7 @@ fn write_envelope(file: &File, env: &EnvelopeState) -> hdf5::Result<()> {
             points.extend_from_slice(&p.storage);
             points.extend_from_slice(&p.flows);
         }
-        let ds = file
-            .new_dataset_builder()
-            .with_data(&Array1::from_vec(points))
-            .create("cycle_skipping_points")?;
-        describe(&ds, "mixed", "cycle skipping: the boundary states of the current block, oldest first, each its unknowns, storages and cumulative flows (net inflow, throughput, top inflow, sinks, runoff; energy, water)")?;
+        f64s(file, "cycle_skipping_points", &points, "mixed", "cycle skipping: the boundary states of the current block, oldest first, each its unknowns, storages and cumulative flows (net inflow, throughput, top inflow, sinks, runoff; energy, water)")?;
     }
     Ok(())
 }
@@ -748,12 +758,10 @@ fn write_solutes(file: &File, sol: &SoluteState) -> hdf5::Result<()> {
         let ds = file.new_dataset_builder().with_data(&a).create(name)?;
         describe(&ds, units, long)
     };
-    let ds = file
-        .new_dataset_builder()
-        .with_data(&Array1::from_vec(times))
-        .create("solute_time_s")?;
-    describe(
-        &ds,
+    f64s(
+        file,
+        "solute_time_s",
+        &times,
         "s",
         "time of the current solute point, then of the history points (newest first)",
     )?;

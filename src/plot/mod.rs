@@ -498,21 +498,21 @@ pub fn series_time_axis(time: &[f64], origin: f64, log_time: bool) -> TimeAxis {
 
 /// A linear axis in years over the finite times of `time`.
 fn linear_time_axis(time: &[f64]) -> Axis {
-    let min = time
-        .iter()
-        .cloned()
-        .filter(|t| t.is_finite())
-        .fold(f64::INFINITY, f64::min);
-    let max = time
-        .iter()
-        .cloned()
-        .filter(|t| t.is_finite())
-        .fold(f64::NEG_INFINITY, f64::max);
+    let (min, max) = finite_range(time);
     if min.is_finite() && max > min {
         Axis::new(Scale::Linear, min, max)
     } else {
         axis_for(Scale::Linear, time.iter().cloned())
     }
+}
+
+/// The smallest and largest finite values of `v` (∞, −∞ when there are none).
+fn finite_range(v: &[f64]) -> (f64, f64) {
+    v.iter()
+        .filter(|x| x.is_finite())
+        .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), &x| {
+            (lo.min(x), hi.max(x))
+        })
 }
 
 /// [`series_time_axis`] counted from year 0.
@@ -690,11 +690,7 @@ pub fn series_figures_on(res: &Results, ta: TimeAxis) -> Vec<(String, Figure)> {
         // linear time axis whatever the others use, and the pond (mm) and the runoff
         // (metres over a long run) get a panel each.
         let tl = linear_time_axis(&s.time);
-        let finite = || s.time.iter().cloned().filter(|t| t.is_finite());
-        let (lo, hi) = (
-            finite().fold(f64::INFINITY, f64::min),
-            finite().fold(f64::NEG_INFINITY, f64::max),
-        );
+        let (lo, hi) = finite_range(&s.time);
         let linear_line = |label: &str, color: RGBColor, v: &[f64], f: &dyn Fn(f64) -> f64| {
             line_on(&tl, &|x| x, label, color, v, f)
         };

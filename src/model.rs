@@ -245,12 +245,36 @@ pub enum InitialState {
         surface_temperature: f64,
         gradient: f64,
     },
+    /// The periodic steady state: the state at the start time that one period of the
+    /// given boundary conditions (their forcing over [start, start + period], repeated)
+    /// brings back to itself, found by shooting from the steady state under the
+    /// conditions' period means (see [`crate::sim::initial::periodic_steady_state`]).
+    Periodic {
+        surface: SurfaceBc,
+        bottom: BottomBc,
+        /// Hydrostatic/linear first guess of the mean steady state.
+        surface_temperature: f64,
+        gradient: f64,
+        spin_up: PeriodicSpinUp,
+    },
     /// A profile table interpolated linearly onto the cell centres.
     Profile {
         depth: Vec<f64>,
         temperature: Vec<f64>,
         moisture: ProfileMoisture,
     },
+}
+
+/// The settings of the periodic steady state (`[initial] state = "periodic"`).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct PeriodicSpinUp {
+    /// The forcing period [s].
+    pub period: f64,
+    /// The largest correction accepted as converged, measured by the run's error tests
+    /// with this relative tolerance (1 = the correction's size equals the tolerance).
+    pub tolerance: f64,
+    /// Most periods integrated before giving up.
+    pub max_periods: usize,
 }
 
 #[derive(Debug, Clone)]

@@ -74,6 +74,9 @@ pub struct RunSummary {
     /// Cycle skipping (None: off): jumps, periods skipped, periods of the run, and the
     /// jumps' cumulative balance errors [water kg m⁻², energy J m⁻²].
     pub cycle_skipping: Option<(u64, u64, f64, [f64; 2])>,
+    /// How the periodic initial state was found (`[initial] state = "periodic"`, a
+    /// fresh start; None otherwise).
+    pub spin_up: Option<crate::sim::initial::PeriodicReport>,
 }
 
 /// The summary lines of the solutes: totals, balance, bulge and recharge estimate.
@@ -124,7 +127,7 @@ impl RunSummary {
              steps {} (rejected {}), Newton iterations {}, Jacobian evaluations {}, factorisations {}\n\
              water balance error {} kg m-2 (relative {}); energy balance error {} J m-2 (relative {})\n\
              water flux at the surface {} mm/yr, at the bottom {} mm/yr (positive downward)\n\
-             {}{}results: {}\n{}",
+             {}{}{}results: {}\n{}",
             years(self.start),
             years(self.end),
             self.wall_seconds,
@@ -140,6 +143,10 @@ impl RunSummary {
             human(self.surface_flux_mm_yr, 4),
             human(self.bottom_flux_mm_yr, 4),
             solute_lines(&self.solutes),
+            match &self.spin_up {
+                Some(r) => format!("{}\n", r.describe()),
+                None => String::new(),
+            },
             match self.cycle_skipping {
                 Some((jumps, skipped, periods, [w, e])) => format!(
                     "cycle skipping: {skipped} of {} periods skipped in {jumps} jumps ({} integrated); balance error of the jumps {} kg m-2 (water), {} J m-2 (energy), not included above\n",
@@ -274,6 +281,8 @@ struct Prepared {
     solutes: Option<crate::solute::SoluteState>,
     /// Where cycle skipping stood (resume; None: start afresh).
     envelope: Option<crate::solve::envelope::EnvelopeState>,
+    /// How the periodic initial state was found (None: not one).
+    spin_up: Option<crate::sim::initial::PeriodicReport>,
 }
 
 /// A new run from the case's initial state.
@@ -284,7 +293,7 @@ fn start_fresh(
     results: &Path,
 ) -> Result<Prepared> {
     check_new_output(folder, results, opts.overwrite)?;
-    let u = initial_unknowns(model, opts.solver)?;
+    let (u, spin_up) = crate::sim::initial::initial_unknowns_reported(model, opts.solver)?;
     // Create (and so lock) the new results file first: a run still writing to the
     // folder makes this fail before its checkpoints are touched.
     let results = ResultsFile::create(results, model, opts.overwrite)?;
@@ -301,6 +310,7 @@ fn start_fresh(
         initial_output: true,
         solutes: None,
         envelope: None,
+        spin_up,
     })
 }
 
@@ -384,6 +394,7 @@ fn start_resume(
         initial_output: false,
         solutes: ck.solutes,
         envelope: ck.envelope,
+        spin_up: None,
     })
 }
 
@@ -421,6 +432,7 @@ fn start_branch(
             .solutes
             .filter(|s| s.names.iter().eq(model.solutes.iter().map(|m| &m.name))),
         envelope: None,
+        spin_up: None,
     })
 }
 
@@ -589,6 +601,7 @@ pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
         opts.solver,
         start.solutes,
     )?;
+    let spin_up = start.spin_up;
     if let Some(envelope) = start.envelope {
         sim.set_envelope_state(envelope);
     }
@@ -680,6 +693,7 @@ pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
         overrides: model.overrides.clone(),
         solutes,
         cycle_skipping,
+        spin_up,
     })
 }
 

@@ -1238,7 +1238,15 @@ const INITIAL_KEYS: &[&str] = &[
     "surface",
     "bottom",
     "csv",
+    "period_year",
+    "periodic_tolerance",
+    "max_periods",
 ];
+
+/// Default relative tolerance of the periodic steady state's last correction.
+pub const DEFAULT_PERIODIC_TOLERANCE: f64 = 1.0e-3;
+/// Default most periods integrated for the periodic steady state.
+pub const DEFAULT_MAX_PERIODS: usize = 200;
 
 #[allow(clippy::too_many_arguments)]
 fn read_initial(
@@ -1252,23 +1260,32 @@ fn read_initial(
 ) -> R<InitialState> {
     let t = optional_section(root, "initial", INITIAL_KEYS)?;
     let state = match t.get("state") {
-        Some(v) => v.choice(&["hydrostatic", "steady", "profile"])?,
+        Some(v) => v.choice(&["hydrostatic", "steady", "periodic", "profile"])?,
         None => "hydrostatic",
     };
-    if state != "steady" {
-        t.only_with("surface", "state = \"steady\"")?;
-        t.only_with("bottom", "state = \"steady\"")?;
+    let spun_up = state == "steady" || state == "periodic";
+    if !spun_up {
+        t.only_with("surface", "state = \"steady\" or \"periodic\"")?;
+        t.only_with("bottom", "state = \"steady\" or \"periodic\"")?;
     }
+    let spin_up = if state == "periodic" {
+        Some(read_periodic(&t)?)
+    } else {
+        for key in ["period_year", "periodic_tolerance", "max_periods"] {
+            t.only_with(key, "state = \"periodic\"")?;
+        }
+        None
+    };
     if state == "profile" {
         for key in ["surface_temperature_C", "gradient_K_per_m"] {
-            t.only_with(key, "state = \"hydrostatic\" or \"steady\"")?;
+            t.only_with(key, "state = \"hydrostatic\", \"steady\" or \"periodic\"")?;
         }
         let file = t.req("csv", "the profile table, a CSV file")?;
         return read_profile(&file, depth, soils, layers);
     }
     t.only_with("csv", "state = \"profile\"")?;
 
-    let (surf, bot) = if state == "steady" {
+    let (surf, bot) = if spun_up {
         let s = match t.get("surface") {
             Some(v) => read_surface(&v.table(&SURFACE_KEYS[1..])?)?,
             None => surface.at(time.start).clone(),
@@ -1321,7 +1338,23 @@ fn read_initial(
             fmt_g(bottom_c)
         )));
     }
-    Ok(if state == "steady" {
+    if spin_up.is_some()
+        && matches!(surf.water, SurfaceWater::NoFlow)
+        && matches!(bot.water, BottomWater::NoFlow)
+    {
+        return Err(t.err(
+            "state = \"periodic\": the column is closed to water at both ends, so its periodic state is not unique (it keeps whatever water it starts with); open one end (e.g. bottom.head_m) or use state = \"hydrostatic\" or \"profile\"",
+        ));
+    }
+    Ok(if let Some(spin_up) = spin_up {
+        InitialState::Periodic {
+            surface: surf,
+            bottom: bot,
+            surface_temperature,
+            gradient,
+            spin_up,
+        }
+    } else if state == "steady" {
         InitialState::Steady {
             surface: surf,
             bottom: bot,
@@ -1333,6 +1366,35 @@ fn read_initial(
             surface_temperature,
             gradient,
         }
+    })
+}
+
+/// The keys of `state = "periodic"`: the period, the tolerance, the most periods.
+fn read_periodic(t: &Table) -> R<PeriodicSpinUp> {
+    let pv = t.req(
+        "period_year",
+        "the forcing period [years] (state = \"periodic\")",
+    )?;
+    let period = num(
+        &pv,
+        |p| p > 0.0 && p.is_finite(),
+        "must be a positive number of years (the forcing's period)",
+    )?;
+    let tolerance = opt_num(
+        t,
+        "periodic_tolerance",
+        |x| (1e-8..=1.0).contains(&x),
+        "must be 1e-8 to 1 (relative)",
+    )?
+    .unwrap_or(DEFAULT_PERIODIC_TOLERANCE);
+    let max_periods = match t.get("max_periods") {
+        Some(v) => v.usize_in(2, 100_000, "periods integrated at most")?,
+        None => DEFAULT_MAX_PERIODS,
+    };
+    Ok(PeriodicSpinUp {
+        period: period * SECONDS_PER_YEAR,
+        tolerance,
+        max_periods,
     })
 }
 

@@ -298,6 +298,21 @@ pub fn summary(m: &Model) -> String {
             bottom_bc(bottom),
             linear(*surface_temperature, *gradient)
         ),
+        InitialState::Periodic {
+            surface,
+            bottom,
+            surface_temperature,
+            gradient,
+            spin_up,
+        } => format!(
+            "periodic steady state under surface {{{}}} and bottom {{{}}} repeated every {} yr (their forcing over the first period), within {} (relative) in at most {} periods; from the steady state under their period means, first guess {}",
+            surface_bc(surface),
+            bottom_bc(bottom),
+            fmt_g(spin_up.period / SECONDS_PER_YEAR),
+            fmt_g(spin_up.tolerance),
+            spin_up.max_periods,
+            linear(*surface_temperature, *gradient)
+        ),
         InitialState::Profile {
             depth, moisture, ..
         } => format!(

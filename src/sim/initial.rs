@@ -3,69 +3,82 @@
 
 use crate::error::{Error, Result};
 use crate::model::{
-    BottomBc, BottomHeat, BottomWater, InitialState, Model, Periods, ProfileMoisture, SurfaceBc,
-    SurfaceHeat, SurfaceWater,
+    BottomBc, BottomHeat, BottomWater, InitialState, Model, PeriodicSpinUp, Periods,
+    ProfileMoisture, SurfaceBc, SurfaceHeat, SurfaceWater,
 };
 use crate::physics::cell::equilibrium_vapor;
 use crate::physics::dual::D3;
 use crate::physics::{ColumnStepper as Stepper, System, H, RV, T};
 use crate::schedule::Schedule;
+use crate::solve::blocktri::BlockTri;
 use crate::solve::linear::{make_solver, SolverKind};
+use crate::solve::problem::{ErrorTest, Problem};
 use crate::solve::stepper::StepOptions;
 
 use super::simulation::numerical_message;
+use super::{Begin, OutputPosition, Simulation, SyncPlan};
 
 fn frozen(s: &Schedule, t: f64) -> Schedule {
     Schedule::Constant(s.value(t))
 }
 
-/// The surface condition with every schedule held at its value at `t`.
-pub fn freeze_surface(bc: &SurfaceBc, t: f64) -> SurfaceBc {
+/// The surface condition with every schedule replaced by `f` of it.
+pub fn map_surface(bc: &SurfaceBc, f: &dyn Fn(&Schedule) -> Schedule) -> SurfaceBc {
     SurfaceBc {
         heat: match &bc.heat {
-            SurfaceHeat::Temperature(s) => SurfaceHeat::Temperature(frozen(s, t)),
-            SurfaceHeat::Flux(s) => SurfaceHeat::Flux(frozen(s, t)),
+            SurfaceHeat::Temperature(s) => SurfaceHeat::Temperature(f(s)),
+            SurfaceHeat::Flux(s) => SurfaceHeat::Flux(f(s)),
         },
         water: match &bc.water {
-            SurfaceWater::Head(s) => SurfaceWater::Head(frozen(s, t)),
+            SurfaceWater::Head(s) => SurfaceWater::Head(f(s)),
             SurfaceWater::Flux { flux, ponding_head } => SurfaceWater::Flux {
-                flux: frozen(flux, t),
+                flux: f(flux),
                 ponding_head: *ponding_head,
             },
             SurfaceWater::Atmosphere {
                 relative_humidity,
                 resistance,
             } => SurfaceWater::Atmosphere {
-                relative_humidity: frozen(relative_humidity, t),
-                resistance: resistance.as_ref().map(|r| frozen(r, t)),
+                relative_humidity: f(relative_humidity),
+                resistance: resistance.as_ref().map(f),
             },
             SurfaceWater::Pond {
                 inflow,
                 max_depth,
                 air,
             } => SurfaceWater::Pond {
-                inflow: frozen(inflow, t),
+                inflow: f(inflow),
                 max_depth: *max_depth,
-                air: air.as_ref().map(|(rh, r)| (frozen(rh, t), frozen(r, t))),
+                air: air.as_ref().map(|(rh, r)| (f(rh), f(r))),
             },
             SurfaceWater::NoFlow => SurfaceWater::NoFlow,
         },
     }
 }
 
-/// The bottom condition with every schedule held at its value at `t`.
-pub fn freeze_bottom(bc: &BottomBc, t: f64) -> BottomBc {
+/// The bottom condition with every schedule replaced by `f` of it.
+pub fn map_bottom(bc: &BottomBc, f: &dyn Fn(&Schedule) -> Schedule) -> BottomBc {
     BottomBc {
         heat: match &bc.heat {
-            BottomHeat::Temperature(s) => BottomHeat::Temperature(frozen(s, t)),
-            BottomHeat::GeothermalFlux(s) => BottomHeat::GeothermalFlux(frozen(s, t)),
+            BottomHeat::Temperature(s) => BottomHeat::Temperature(f(s)),
+            BottomHeat::GeothermalFlux(s) => BottomHeat::GeothermalFlux(f(s)),
         },
         water: match &bc.water {
-            BottomWater::WaterTable(s) => BottomWater::WaterTable(frozen(s, t)),
+            BottomWater::WaterTable(s) => BottomWater::WaterTable(f(s)),
             BottomWater::FreeDrainage => BottomWater::FreeDrainage,
             BottomWater::NoFlow => BottomWater::NoFlow,
         },
     }
+}
+
+/// The surface condition with every schedule held at its value at `t`.
+pub fn freeze_surface(bc: &SurfaceBc, t: f64) -> SurfaceBc {
+    map_surface(bc, &|s| frozen(s, t))
+}
+
+/// The bottom condition with every schedule held at its value at `t`.
+pub fn freeze_bottom(bc: &BottomBc, t: f64) -> BottomBc {
+    map_bottom(bc, &|s| frozen(s, t))
 }
 
 /// Bottom head at time t for the hydrostatic profile (0 unless a water table is given).
@@ -113,7 +126,40 @@ fn interp(xs: &[f64], ys: &[f64], x: f64) -> f64 {
 
 /// Unknowns of the initial state (the steady state is solved for).
 pub fn initial_unknowns(model: &Model, solver: SolverKind) -> Result<Vec<f64>> {
-    match &model.initial {
+    initial_unknowns_reported(model, solver).map(|(u, _)| u)
+}
+
+/// [`initial_unknowns`], with how the periodic steady state was found when it is one.
+pub fn initial_unknowns_reported(
+    model: &Model,
+    solver: SolverKind,
+) -> Result<(Vec<f64>, Option<PeriodicReport>)> {
+    if let InitialState::Periodic {
+        surface,
+        bottom,
+        surface_temperature,
+        gradient,
+        spin_up,
+    } = &model.initial
+    {
+        let m = periodic_model(model, surface, bottom, spin_up.period);
+        // First guess: the steady state under the period means of the forcing.
+        let (t0, t1) = (m.time.start, m.time.end);
+        let mean = |s: &Schedule| Schedule::Constant(s.integral(t0, t1) / (t1 - t0));
+        let mut ms = m.clone();
+        ms.surface = Periods::single(map_surface(surface, &mean));
+        ms.bottom = Periods::single(map_bottom(bottom, &mean));
+        ms.vegetation = Periods::single(m.vegetation.at(t0).clone().map(|mut v| {
+            v.transpiration = mean(&v.transpiration);
+            v
+        }));
+        let guess = hydrostatic(&ms, *surface_temperature, *gradient);
+        let mean_steady = steady_state(&ms, guess, solver)?;
+        let (u, report) = periodic_steady_state(&m, mean_steady, solver, spin_up)?;
+        log::info!("{}", report.describe());
+        return Ok((u, Some(report)));
+    }
+    let u = match &model.initial {
         InitialState::Hydrostatic {
             surface_temperature,
             gradient,
@@ -162,9 +208,566 @@ pub fn initial_unknowns(model: &Model, solver: SolverKind) -> Result<Vec<f64>> {
             }));
             steady_state(&m, guess, solver)
         }
+        InitialState::Periodic { .. } => Err(Error::Internal(
+            "the periodic initial state is solved above".into(),
+        )),
+    };
+    Ok((u?, None))
+}
+
+/// The model of one period of the spin-up: `model` from its start over one `period`
+/// under `surface` and `bottom` (and the plants in force at the start), without outputs,
+/// checkpoints, solutes or cycle skipping.
+pub fn periodic_model(model: &Model, surface: &SurfaceBc, bottom: &BottomBc, period: f64) -> Model {
+    let mut m = model.clone();
+    let t0 = model.time.start;
+    m.time.end = t0 + period;
+    m.time.cycle_skipping = None;
+    m.surface = Periods::single(surface.clone());
+    m.bottom = Periods::single(bottom.clone());
+    m.vegetation = Periods::single(model.vegetation.at(t0).clone());
+    // The Jacobian samples of the period's mean: midpoints of JACOBIAN_SAMPLES equal parts.
+    m.output.snapshot_times = (0..JACOBIAN_SAMPLES)
+        .map(|k| t0 + (k as f64 + 0.5) / JACOBIAN_SAMPLES as f64 * period)
+        .chain(std::iter::once(m.time.end))
+        .collect();
+    m.checkpoint.every = None;
+    m.checkpoint.wall_every = None;
+    m.solutes.clear();
+    m
+}
+
+/// Jacobians averaged over a period of the spin-up (the midpoint rule, exact for the
+/// harmonics of the period below this order).
+const JACOBIAN_SAMPLES: usize = 16;
+
+/// How the periodic steady state was found.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct PeriodicReport {
+    /// Periods integrated (each from a new estimate).
+    pub periods: usize,
+    /// Time steps over all of them.
+    pub steps: u64,
+    /// Size of each correction, measured by the run's error tests at the spin-up
+    /// tolerance (≤ 1: converged), in order.
+    pub corrections: Vec<f64>,
+    /// Size of each change of the iterate, by the same measure.
+    pub steps_taken: Vec<f64>,
+    /// Water [kg m⁻²] and energy [J m⁻²] that entered through the surface and left
+    /// through the bottom over the last period integrated, per period length [s].
+    pub surface_water: f64,
+    pub bottom_water: f64,
+    pub surface_energy: f64,
+    pub bottom_energy: f64,
+    pub period: f64,
+}
+
+impl PeriodicReport {
+    /// One paragraph for the log and the run's summary.
+    pub fn describe(&self) -> String {
+        let yr = crate::props::constants::SECONDS_PER_YEAR;
+        // kg m⁻² over the period → mm of water per year (1 kg m⁻² = 1 mm).
+        let mm_yr = |q: f64| q / self.period * yr;
+        format!(
+            "initial state: periodic steady state after {} periods ({} steps; last distance {} of the tolerance); over its last period, water in at the surface {} mm/yr and out at the bottom {} mm/yr, heat in at the surface {} W m-2 and out at the bottom {} W m-2 (means)",
+            self.periods,
+            self.steps,
+            crate::output::human(self.corrections.last().copied().unwrap_or(f64::NAN), 3),
+            crate::output::human(mm_yr(self.surface_water), 4),
+            crate::output::human(mm_yr(self.bottom_water), 4),
+            crate::output::human(self.surface_energy / self.period, 4),
+            crate::output::human(self.bottom_energy / self.period, 4),
+        )
     }
 }
 
+/// What one period of the spin-up model gives.
+struct PeriodEnd {
+    u: Vec<f64>,
+    steps: u64,
+    /// Cumulative inflow through the surface and through both ends (energy, water).
+    top_inflow: [f64; 2],
+    inflow: [f64; 2],
+}
+
+/// Integrates the spin-up model `m` over its one period from `u` (the run's own
+/// time stepping, landing on the forcing's breakpoints), calling `sample` with the time
+/// and state at each of the model's snapshot times before its end.
+fn one_period(
+    m: &Model,
+    u: &[f64],
+    dt: f64,
+    solver: SolverKind,
+    sample: &mut dyn FnMut(f64, &[f64]) -> Result<()>,
+) -> Result<PeriodEnd> {
+    let plan = SyncPlan::new(m)?;
+    let syncs = plan.syncs.clone();
+    let begin = Begin::Unknowns {
+        t: m.time.start,
+        dt,
+        u: u.to_vec(),
+    };
+    let mut sim = Simulation::new(m, plan, begin, OutputPosition::default(), solver, None)?;
+    for t in syncs {
+        sim.advance_to(t, &mut [])?;
+        if t < m.time.end && m.output.snapshot_times.contains(&t) {
+            sample(t, &sim.state().u)?;
+        }
+    }
+    let st = sim.state();
+    let two = |v: &[f64]| [v[0], v[1]];
+    Ok(PeriodEnd {
+        u: st.u.clone(),
+        steps: st.counters.steps,
+        top_inflow: two(&st.top_inflow),
+        inflow: two(&st.inflow),
+    })
+}
+
+/// The period-mean linearisation of the last period: (S/τ − F̄) δ = ΔS/P.
+struct MeanLinearization {
+    /// −F̄, unscaled.
+    mean_jac: BlockTri<3>,
+    /// S: the storage Jacobian (diagonal blocks) at the period's end.
+    stor: Vec<crate::solve::blocktri::Block<3>>,
+    /// Row and column scales, and ΔS/P.
+    row: Vec<f64>,
+    col: Vec<f64>,
+    rhs: Vec<f64>,
+    a: BlockTri<3>,
+    lin: Box<dyn crate::solve::linear::LinearSolver<3>>,
+}
+
+impl MeanLinearization {
+    fn new(n: usize, solver: SolverKind) -> Self {
+        MeanLinearization {
+            mean_jac: BlockTri::new(n),
+            stor: vec![[[0.0; 3]; 3]; n],
+            row: vec![0.0; 3 * n],
+            col: vec![0.0; 3 * n],
+            rhs: vec![0.0; 3 * n],
+            a: BlockTri::new(n),
+            lin: make_solver(solver, n),
+        }
+    }
+
+    /// δ, unscaled, for pseudo-time step `tau` [s] (∞: without S).
+    fn solve(&mut self, tau: f64, delta: &mut [f64]) -> std::result::Result<(), String> {
+        let a = &mut self.a;
+        a.lower.copy_from_slice(&self.mean_jac.lower);
+        a.upper.copy_from_slice(&self.mean_jac.upper);
+        for (d, (mj, st)) in a
+            .diag
+            .iter_mut()
+            .zip(self.mean_jac.diag.iter().zip(&self.stor))
+        {
+            for r in 0..3 {
+                for c in 0..3 {
+                    d[r][c] = mj[r][c] + st[r][c] / tau;
+                }
+            }
+        }
+        a.scale(&self.row, &self.col);
+        for ((d, r), x) in delta.iter_mut().zip(&self.row).zip(&self.rhs) {
+            *d = x * r;
+        }
+        self.lin
+            .factor(a)
+            .and_then(|_| self.lin.solve(delta))
+            .map_err(|e| {
+                format!(
+                    "the period-mean Jacobian cannot be solved ({e:?}): a column closed at both ends has no unique periodic state"
+                )
+            })?;
+        for (d, c) in delta.iter_mut().zip(&self.col) {
+            *d *= c;
+        }
+        Ok(())
+    }
+}
+
+/// The periodic steady state of the spin-up model `m` (see [`periodic_model`]): the
+/// state x at the start with Φ(x) = x, Φ the map over one period, from the first guess
+/// `guess`.
+///
+/// **Method** (derived here). Newton on G(x) = Φ(x) − x needs the period's monodromy
+/// matrix M = ∂Φ/∂x. It is approximated by that of one backward-Euler step of length τ
+/// under the period-mean Jacobian, M ≈ (S − τ F̄)⁻¹ S (S the storage Jacobian
+/// ∂(V M)/∂x at the period's end, F̄ = ∂f/∂x of the fluxes and sources averaged over the
+/// period, [`JACOBIAN_SAMPLES`] midpoints). With τ = P (the period) and the storage
+/// change to first order S r, r = Φ(x) − x, replaced by the exact change ΔS of the
+/// contents over the period, the update is x ← Φ(x) + δ with (S/τ − F̄) δ = ΔS / P.
+/// For τ → ∞ that is a steady-state Newton step for the period's mean imbalance,
+/// which multiplies the deviation of a linear mode of rate −s/P by
+/// e^{−s} − (1 − e^{−s})/s ∈ [−0.3, 0] (derived): the slow modes, which a plain
+/// repetition of periods would take thousands of periods to settle, converge like the
+/// fast ones. But the steady problem of a dry soil is far from linear (a small
+/// imbalance asks for a large change of head), so τ starts at one period and grows 4×
+/// after every period that succeeds, and shrinks 8× (the update taken again from the
+/// period's end) after one that fails: pseudo-transient continuation, as for the steady
+/// state. Updates are limited as a Newton update of the run is
+/// ([`Problem::apply_update`]).
+///
+/// **Convergence.** The distance to the periodic state is estimated by the τ = ∞
+/// update δ∞ (−F̄ δ∞ = ΔS / P), in temperature and in liquid content (S δ∞, where the
+/// head is a poor measure), by the run's error tests at the spin-up tolerance: ≤ 1.
+pub fn periodic_steady_state(
+    m: &Model,
+    guess: Vec<f64>,
+    solver: SolverKind,
+    spin: &PeriodicSpinUp,
+) -> Result<(Vec<f64>, PeriodicReport)> {
+    const B: usize = 3;
+    let t0 = m.time.start;
+    let period = spin.period;
+    let mut sys = System::new(m);
+    let n = sys.n;
+    let decoupled = sys.last_unknown_decoupled();
+    let mut jac = BlockTri::<B>::new(n);
+    // The mean Jacobian being summed, the last period's, and the matrix solved.
+    let mut acc = BlockTri::<B>::new(n);
+    let zeros = vec![0.0; B * n];
+    let mut lin_sys = MeanLinearization::new(n, solver);
+    let (mut s0, mut s1, mut res) = (zeros.clone(), zeros.clone(), zeros.clone());
+    let mut delta = zeros.clone();
+    let ones = vec![1.0; B * n];
+    let mut report = PeriodicReport {
+        period,
+        ..Default::default()
+    };
+    let fail = |why: String| {
+        Error::Numerical(format!(
+            "initial state \"periodic\": {why}; try a larger max_periods or periodic_tolerance, or state = \"steady\""
+        ))
+    };
+    let list = |v: &[f64]| {
+        v.iter()
+            .map(|c| format!("{c:.2e}"))
+            .collect::<Vec<_>>()
+            .join(", ")
+    };
+    let mut x = guess;
+    // Every period starts as the run does, from the first step size: the first step
+    // of a BDF start has no error estimate, so a large one would go unchecked.
+    let dt = m.time.dt_initial;
+    let mut tau = period;
+    let mut anderson = Anderson::default();
+    // The last period's end, to take the update again from.
+    let mut base: Option<Vec<f64>> = None;
+    loop {
+        if report.periods >= spin.max_periods {
+            let last = &report.corrections[report.corrections.len().saturating_sub(5)..];
+            return Err(fail(format!(
+                "not converged in {} periods (last distances {}, converged at ≤ 1)",
+                report.periods,
+                list(last)
+            )));
+        }
+        // The period-mean Jacobian of the fluxes, −F̄, summed from its samples.
+        acc.zero();
+        let mut sample = |t: f64, u: &[f64]| -> Result<()> {
+            sys.forget_kept();
+            sys.assemble(t, u, 0.0, &zeros, &mut res, Some(&mut jac))
+                .map_err(|nf| {
+                    Error::Numerical(format!(
+                        "the Jacobian is not finite at cell {} row {}",
+                        nf.cell, nf.row
+                    ))
+                })?;
+            for (a, b) in [
+                (&mut acc.lower, &jac.lower),
+                (&mut acc.diag, &jac.diag),
+                (&mut acc.upper, &jac.upper),
+            ] {
+                for (x, y) in a.iter_mut().zip(b.iter()) {
+                    for r in 0..B {
+                        for c in 0..B {
+                            x[r][c] += y[r][c] / JACOBIAN_SAMPLES as f64;
+                        }
+                    }
+                }
+            }
+            Ok(())
+        };
+        let end = match one_period(m, &x, dt, solver, &mut sample) {
+            Ok(e) => e,
+            Err(Error::Numerical(msg)) => {
+                report.periods += 1;
+                let Some(phi) = &base else {
+                    return Err(fail(format!(
+                        "the first period from the mean steady state failed: {msg}"
+                    )));
+                };
+                tau /= 8.0;
+                anderson.clear();
+                if tau < period / 64.0 {
+                    return Err(fail(format!(
+                        "a period failed after every shortened update: {msg}"
+                    )));
+                }
+                log::debug!(
+                    "periodic steady state: period failed ({msg}); τ {:.3e} periods",
+                    tau / period
+                );
+                lin_sys.solve(tau, &mut delta).map_err(&fail)?;
+                x.copy_from_slice(phi);
+                sys.apply_update(&mut x, &mut delta, &ones);
+                if decoupled {
+                    equilibrate_vapor(&mut x);
+                }
+                continue;
+            }
+            Err(e) => return Err(e),
+        };
+        report.periods += 1;
+        report.steps += end.steps;
+        report.surface_water = end.top_inflow[1];
+        report.bottom_water = end.top_inflow[1] - end.inflow[1];
+        report.surface_energy = end.top_inflow[0];
+        report.bottom_energy = end.top_inflow[0] - end.inflow[0];
+        std::mem::swap(&mut lin_sys.mean_jac, &mut acc);
+
+        // The contents' change over the period; scales and storage Jacobian at its end.
+        sys.forget_kept();
+        sys.evaluate(t0, &x);
+        sys.storage_into(&mut s0);
+        sys.assemble(t0, &end.u, 0.0, &zeros, &mut res, Some(&mut jac))
+            .map_err(|nf| {
+                fail(format!(
+                    "the Jacobian is not finite at cell {} row {}",
+                    nf.cell, nf.row
+                ))
+            })?;
+        sys.storage_into(&mut s1);
+        sys.storage_jacobian_into(&mut lin_sys.stor);
+        sys.convergence_scales_into(0.0, &zeros, m.time.newton_tolerance, &mut lin_sys.row);
+        for r in lin_sys.row.iter_mut() {
+            *r = 1.0 / *r;
+        }
+        sys.column_scales_into(&end.u, &mut lin_sys.col);
+        let volumes = sys.volumes();
+        for i in 0..n {
+            for k in 0..B {
+                let j = B * i + k;
+                lin_sys.rhs[j] = if decoupled && k == RV {
+                    0.0
+                } else {
+                    volumes[i] * (s1[j] - s0[j]) / period
+                };
+            }
+        }
+        // The distance to the periodic state: the τ = ∞ update, by the error tests
+        // (temperature directly, liquid content through S δ∞).
+        lin_sys.solve(f64::INFINITY, &mut delta).map_err(&fail)?;
+        let mut distance = 0.0f64;
+        for i in 0..n {
+            let r = B * i..B * (i + 1);
+            let mut moved = end.u[r.clone()].to_vec();
+            for (m, d) in moved.iter_mut().zip(&delta[r.clone()]) {
+                *m += d;
+            }
+            for (k, test) in sys.error_tests(i, &moved, &end.u[r.clone()], spin.tolerance) {
+                let e = match test {
+                    ErrorTest::Unknown { den } => delta[B * i + k].abs() / den,
+                    ErrorTest::Storage { row, factor, den } => {
+                        let sd: f64 = (0..B)
+                            .map(|c| lin_sys.stor[i][row][c] * delta[B * i + c])
+                            .sum();
+                        (factor * sd / volumes[i]).abs() / den
+                    }
+                };
+                distance = if e.is_nan() {
+                    f64::INFINITY
+                } else {
+                    distance.max(e)
+                };
+            }
+        }
+        report.corrections.push(distance);
+        log::debug!(
+            "periodic steady state: period {} ({} steps), τ {:.3e} periods, distance {distance:.3e}",
+            report.periods,
+            end.steps,
+            tau / period
+        );
+        // The update of this period at τ.
+        lin_sys.solve(tau, &mut delta).map_err(&fail)?;
+        let mut next = end.u.clone();
+        sys.apply_update(&mut next, &mut delta, &ones);
+        if decoupled {
+            equilibrate_vapor(&mut next);
+        }
+        // Past the continuation, Anderson acceleration of x ← g(x) (g: a period and
+        // its update at the final τ), whose slow modes the mean Jacobian alone
+        // contracts slowly: the mean of the fluxes' Jacobians over a period is not the
+        // derivative of the period's mean flux where the periodic response adjusts.
+        let accelerated = if tau >= ANDERSON_TAU_PERIODS * period {
+            let weights = weights_of(&x);
+            anderson.next(&x, &next, &weights)
+        } else {
+            next.clone()
+        };
+        let mut step_state = accelerated;
+        if decoupled {
+            equilibrate_vapor(&mut step_state);
+        }
+        let step = change_size(&mut sys, t0, &step_state, &x, spin.tolerance);
+        log::debug!(
+            "periodic steady state: step {step:.3e} (Anderson memory {})",
+            anderson.len()
+        );
+        report.steps_taken.push(step);
+        if distance <= 1.0 && step <= 1.0 && anderson.len() >= 2 {
+            return Ok((step_state, report));
+        }
+        base = Some(end.u);
+        if tau < ANDERSON_TAU_PERIODS * period {
+            tau = (tau * 4.0).min(ANDERSON_TAU_PERIODS * period);
+        }
+        x = step_state;
+    }
+}
+
+/// The pseudo-time step [periods] of the continuation at which Anderson acceleration
+/// takes over (with τ held).
+const ANDERSON_TAU_PERIODS: f64 = 1.0e3;
+/// Past iterates Anderson acceleration combines.
+const ANDERSON_DEPTH: usize = 5;
+
+/// Weights of the unknowns for the acceleration: temperature in K, head relative to
+/// 1 m + |h|, vapour density relative to 1e-3 kg m⁻³ + ρv.
+fn weights_of(u: &[f64]) -> Vec<f64> {
+    u.chunks_exact(3)
+        .flat_map(|x| [1.0, 1.0 / (1.0 + x[H].abs()), 1.0 / (1e-3 + x[RV].abs())])
+        .collect()
+}
+
+/// The size of the change from `old` to `new` by the problem's error tests at relative
+/// tolerance `rtol` (≤ 1: within it).
+fn change_size(sys: &mut System, t: f64, new: &[f64], old: &[f64], rtol: f64) -> f64 {
+    let n = sys.n;
+    let mut s_old = vec![0.0; 3 * n];
+    let mut s_new = vec![0.0; 3 * n];
+    sys.evaluate(t, old);
+    sys.storage_into(&mut s_old);
+    sys.evaluate(t, new);
+    sys.storage_into(&mut s_new);
+    let mut size = 0.0f64;
+    for i in 0..n {
+        let r = 3 * i..3 * (i + 1);
+        for (k, test) in sys.error_tests(i, &new[r.clone()], &old[r.clone()], rtol) {
+            let e = match test {
+                ErrorTest::Unknown { den } => (new[3 * i + k] - old[3 * i + k]).abs() / den,
+                ErrorTest::Storage { row, factor, den } => {
+                    (factor * (s_new[3 * i + row] - s_old[3 * i + row])).abs() / den
+                }
+            };
+            size = if e.is_nan() {
+                f64::INFINITY
+            } else {
+                size.max(e)
+            };
+        }
+    }
+    size
+}
+
+/// Anderson acceleration (Walker & Ni 2011, SIAM J. Numer. Anal. 49: "Anderson
+/// acceleration for fixed-point iterations", type II with unconstrained least squares)
+/// of x ← g(x): the next iterate is g_k − Σ γ_j Δg_j with γ minimising
+/// ‖f_k − Σ γ_j Δf_j‖ (f = g − x, weighted), over the last [`ANDERSON_DEPTH`] differences.
+#[derive(Default)]
+struct Anderson {
+    g: std::collections::VecDeque<Vec<f64>>,
+    f: std::collections::VecDeque<Vec<f64>>,
+}
+
+impl Anderson {
+    fn len(&self) -> usize {
+        self.g.len()
+    }
+
+    fn clear(&mut self) {
+        self.g.clear();
+        self.f.clear();
+    }
+
+    fn next(&mut self, x: &[f64], g: &[f64], w: &[f64]) -> Vec<f64> {
+        let f: Vec<f64> = g
+            .iter()
+            .zip(x)
+            .zip(w)
+            .map(|((g, x), w)| (g - x) * w)
+            .collect();
+        self.g.push_back(g.to_vec());
+        self.f.push_back(f);
+        if self.g.len() > ANDERSON_DEPTH + 1 {
+            self.g.pop_front();
+            self.f.pop_front();
+        }
+        let k = self.g.len() - 1;
+        if k == 0 {
+            return g.to_vec();
+        }
+        let df: Vec<Vec<f64>> = (0..k)
+            .map(|j| {
+                self.f[j + 1]
+                    .iter()
+                    .zip(&self.f[j])
+                    .map(|(a, b)| a - b)
+                    .collect()
+            })
+            .collect();
+        let fk = &self.f[k];
+        let mut a = vec![vec![0.0; k]; k];
+        let mut b = vec![0.0; k];
+        for i in 0..k {
+            for j in 0..k {
+                a[i][j] = df[i].iter().zip(&df[j]).map(|(p, q)| p * q).sum();
+            }
+            a[i][i] *= 1.0 + 1e-10;
+            b[i] = df[i].iter().zip(fk).map(|(p, q)| p * q).sum();
+        }
+        let Some(gamma) = solve_dense(a, b) else {
+            self.clear();
+            return g.to_vec();
+        };
+        let mut out = g.to_vec();
+        for (j, gj) in gamma.iter().enumerate() {
+            for ((o, g1), g0) in out.iter_mut().zip(&self.g[j + 1]).zip(&self.g[j]) {
+                *o -= gj * (g1 - g0);
+            }
+        }
+        out
+    }
+}
+
+/// Solves the small dense system a x = b by Gaussian elimination with partial pivoting
+/// (None when singular or not finite).
+fn solve_dense(mut a: Vec<Vec<f64>>, mut b: Vec<f64>) -> Option<Vec<f64>> {
+    let n = b.len();
+    for c in 0..n {
+        let p = (c..n).max_by(|&i, &j| a[i][c].abs().total_cmp(&a[j][c].abs()))?;
+        if a[p][c] == 0.0 || !a[p][c].is_finite() {
+            return None;
+        }
+        a.swap(c, p);
+        b.swap(c, p);
+        for r in c + 1..n {
+            let m = a[r][c] / a[c][c];
+            for k in c..n {
+                a[r][k] -= m * a[c][k];
+            }
+            b[r] -= m * b[c];
+        }
+    }
+    let mut x = vec![0.0; n];
+    for r in (0..n).rev() {
+        let s: f64 = (r + 1..n).map(|k| a[r][k] * x[k]).sum();
+        x[r] = (b[r] - s) / a[r][r];
+    }
+    x.iter().all(|v| v.is_finite()).then_some(x)
+}
 /// Steady state of `model` (its boundary conditions must be time-independent) by
 /// pseudo-transient continuation: backward-Euler steps from `guess` with Δt growing
 /// without bound, until the state stops changing at Δt ≥ 10¹⁶ s.

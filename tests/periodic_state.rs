@@ -1,0 +1,162 @@
+//! `[initial] state = "periodic"`: the periodic steady state found by shooting over
+//! single periods, against the state a long integration settles into, and its input
+//! checks. (The linear case against the steady-periodic solution of Carslaw & Jaeger is
+//! the verification case `periodic-state`.)
+
+use std::path::Path;
+
+use deepdry::sim::run_in_memory;
+use deepdry::solve::linear::SolverKind;
+
+fn case_text(edit: impl Fn(String) -> String) -> String {
+    let dir = Path::new(env!("CARGO_MANIFEST_DIR")).join("cases");
+    edit(std::fs::read_to_string(dir.join("harrow-dunes-periodic.toml")).unwrap())
+}
+
+fn parse(text: &str) -> deepdry::error::Result<deepdry::model::Model> {
+    let dir = Path::new(env!("CARGO_MANIFEST_DIR")).join("cases");
+    deepdry::case::parse(text, "harrow-dunes-periodic.toml", &dir)
+}
+
+/// The demo column shortened to 4 m, where an integration from the hydrostatic state
+/// settles within a few hundred years (its storage changes by < 1e-5 relative from
+/// 1 000 to 2 000 years, measured when this test was written).
+fn short_column(text: String) -> String {
+    text.replace("depth_m = 20.0", "depth_m = 4.0")
+        .replace("cells = 150", "cells = 92")
+        .replace("bottom_cell_m = 0.2", "bottom_cell_m = 0.1")
+        .replace("bottom_m = 20.0", "bottom_m = 4.0")
+}
+
+#[test]
+fn the_periodic_state_is_where_a_long_integration_settles() {
+    // The long integration: 1 000 annual cycles from the hydrostatic state.
+    let long = parse(&case_text(|t| {
+        short_column(t)
+            .replace(
+                "state = \"periodic\"\nperiod_year = 1.0",
+                "state = \"hydrostatic\"",
+            )
+            .replace("end_year = 100.0", "end_year = 1000.0")
+            .replace(
+                "times_year = [0.5, 1.0, 10.0, 100.0]",
+                "times_year = [1000.0]",
+            )
+    }))
+    .unwrap();
+    let (long_rec, _) = run_in_memory(&long, SolverKind::BlockThomas).unwrap();
+    // The periodic state, and one period from it.
+    let periodic = parse(&case_text(|t| {
+        short_column(t)
+            .replace("end_year = 100.0", "end_year = 1.0")
+            .replace("times_year = [0.5, 1.0, 10.0, 100.0]", "times_year = [1.0]")
+    }))
+    .unwrap();
+    let (rec, _) = run_in_memory(&periodic, SolverKind::BlockThomas).unwrap();
+    let settled = &long_rec.snapshots.last().unwrap().profile;
+    let start = &long_rec.snapshots.first().unwrap().profile;
+    let found = &rec.snapshots.first().unwrap().profile;
+    let after = &rec.snapshots.last().unwrap().profile;
+    let max_diff = |a: &[f64], b: &[f64]| {
+        a.iter()
+            .zip(b)
+            .map(|(x, y)| (x - y).abs())
+            .fold(0.0f64, f64::max)
+    };
+    // The start of the long run is far from where it settles: the test is not trivial.
+    assert!(max_diff(&start.liquid_content, &settled.liquid_content) > 1e-2);
+    // Both are integrations at rtol 1e-3 whose liquid-content error weight is
+    // atol 1e-5 + 1e-3 θ ≈ 4e-5 at the wettest unsaturated cells: a few weights apart
+    // at most (common practice). Measured: 8.1e-5 and 2.2e-4 K.
+    let dtheta = max_diff(&found.liquid_content, &settled.liquid_content);
+    let dtemp = max_diff(&found.temperature_c, &settled.temperature_c);
+    assert!(dtheta < 2.0e-4, "liquid content {dtheta:.3e}");
+    assert!(dtemp < 2.0e-3, "temperature {dtemp:.3e} K");
+    // The state found returns after one period.
+    let back = max_diff(&after.liquid_content, &found.liquid_content);
+    assert!(back < 4.0e-5, "change over one period {back:.3e}");
+    // The column's water: within 1e-3 relative of the settled storage (measured 2.4e-4).
+    let (w_long, w_found) = (
+        long_rec.series.last().unwrap().water_storage,
+        rec.series.first().unwrap().water_storage,
+    );
+    assert!(
+        ((w_found - w_long) / w_long).abs() < 1e-3,
+        "{w_found} vs {w_long}"
+    );
+}
+
+#[test]
+fn periodic_keys_are_checked() {
+    // The period is required.
+    let e = parse(&case_text(|t| {
+        t.replace("period_year = 1.0\n\n[time]", "\n[time]")
+    }))
+    .unwrap_err()
+    .to_string();
+    assert!(e.contains("period_year"), "{e}");
+    // Its keys only with state = "periodic".
+    let e = parse(&case_text(|t| {
+        t.replace("\nstate = \"periodic\"\n", "\nstate = \"steady\"\n")
+    }))
+    .unwrap_err()
+    .to_string();
+    assert!(
+        e.contains("period_year") && e.contains("only allowed with state = \"periodic\""),
+        "{e}"
+    );
+    // A period must be positive; the tolerance within its range.
+    let e = parse(&case_text(|t| {
+        t.replace(
+            "period_year = 1.0\n\n[time]",
+            "period_year = -1.0\n\n[time]",
+        )
+    }))
+    .unwrap_err()
+    .to_string();
+    assert!(e.contains("period_year") && e.contains("positive"), "{e}");
+    let e = parse(&case_text(|t| {
+        t.replace(
+            "period_year = 1.0\n\n[time]",
+            "period_year = 1.0\nperiodic_tolerance = 2.0\n\n[time]",
+        )
+    }))
+    .unwrap_err()
+    .to_string();
+    assert!(
+        e.contains("periodic_tolerance") && e.contains("1e-8 to 1"),
+        "{e}"
+    );
+}
+
+#[test]
+fn a_spin_up_that_does_not_converge_says_so() {
+    let m = parse(&case_text(|t| {
+        t.replace(
+            "period_year = 1.0\n\n[time]",
+            "period_year = 1.0\nmax_periods = 3\n\n[time]",
+        )
+    }))
+    .unwrap();
+    let e = deepdry::sim::initial::initial_unknowns(&m, SolverKind::BlockThomas)
+        .unwrap_err()
+        .to_string();
+    assert!(
+        e.contains("not converged in 3 periods") && e.contains("max_periods"),
+        "{e}"
+    );
+}
+
+#[test]
+fn a_column_closed_at_both_ends_is_refused() {
+    let e = parse(&case_text(|t| {
+        t.replace("[bottom]\nhead_m = 0.0", "[bottom]\nno_flow = true")
+            .replace(
+                "\nstate = \"periodic\"\n",
+                "\nstate = \"periodic\"\nsurface_temperature_C = 20.0\ngradient_K_per_m = 0.0\n",
+            )
+    }))
+    .unwrap_err()
+    .to_string();
+    assert!(e.contains("closed to water at both ends"), "{e}");
+}

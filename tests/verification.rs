@@ -228,3 +228,12 @@ fn ponded_infiltration_approaches_green_ampt() {
 fn cycle_skipping_follows_a_decaying_excess_under_a_yearly_wave() {
     check("cycle-skipping");
 }
+
+/// Carslaw & Jaeger (1959) §2.6: the periodic steady state found before the run
+/// (`[initial] state = "periodic"`) is the steady-periodic solution at the start; the
+/// tolerance is the a-priori budget of periodic-surface plus the spin-up's convergence
+/// allowance (validation/periodic-state/README.md).
+#[test]
+fn periodic_state_is_the_steady_periodic_solution() {
+    check("periodic-state");
+}

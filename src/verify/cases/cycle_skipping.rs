@@ -2,7 +2,7 @@
 //! state decays (Fourier series of the slab) while the surface follows its sinusoid
 //! (Carslaw & Jaeger), and the run jumps over most periods.
 
-use super::periodic_surface::start_periodic;
+use super::periodic_surface::{start_periodic, wave_budget, FAST_WAVE};
 use super::*;
 
 pub(super) const FILES: Files = files!("cycle-skipping");
@@ -32,16 +32,7 @@ fn excess(kappa: f64, length: f64, z: f64, t: f64) -> f64 {
 }
 
 pub(super) fn cycle_skipping(v: Variant) -> Result<CaseResult> {
-    let (model, _scratch) = load_variant(
-        &FILES,
-        v,
-        &[
-            ("mesh.cells", "100"),
-            ("mesh.growth", "1.06"),
-            ("time.max_step_year", "0.004"),
-            ("time.initial_step_year", "0.004"),
-        ],
-    )?;
+    let (model, _scratch) = load_variant(&FILES, v, FAST_WAVE)?;
     let mut model = model;
     let kappa = constant_lambda(&model) / saturated_heat_capacity(&model);
     let omega = 2.0 * std::f64::consts::PI / SECONDS_PER_YEAR;
@@ -97,13 +88,8 @@ pub(super) fn cycle_skipping(v: Variant) -> Result<CaseResult> {
     let d = r::damping_depth(kappa, omega);
     let mut periodic_budget: f64 = 0.0;
     for (i, &z) in model.mesh.centers.iter().enumerate() {
-        let (be_ratio, be_lag) = r::periodic_backward_euler(kappa, omega, dt, z);
-        let exact_ratio = (-z / d).exp();
-        let dzmax = widths[..=i].iter().cloned().fold(0.0, f64::max);
-        let space = (2.0f64.sqrt() * dzmax / d).powi(2) / 24.0 * (z / d) * 2.0f64.sqrt();
-        let amp_err = (be_ratio - exact_ratio).abs() + space * exact_ratio;
-        let lag_err = ((be_lag - z / d).abs() + space) * exact_ratio;
-        periodic_budget = periodic_budget.max(AMPLITUDE * (amp_err + lag_err));
+        let (amp_err, lag_err) = wave_budget(kappa, omega, dt, &widths, i, z);
+        periodic_budget = periodic_budget.max(AMPLITUDE * (amp_err + lag_err) * (-z / d).exp());
     }
     let mut err: f64 = 0.0;
     let mut tol: f64 = 0.0;

@@ -55,6 +55,7 @@ mod kinetic_to_equilibrium;
 mod linearised_infiltration;
 mod mesh_order;
 mod moving_water_table;
+mod periodic_state;
 mod periodic_surface;
 mod ponded_darcy_column;
 mod ponding_cycle;
@@ -81,6 +82,7 @@ use kinetic_to_equilibrium::kinetic_to_equilibrium;
 use linearised_infiltration::linearised_infiltration;
 use mesh_order::mesh_order;
 use moving_water_table::moving_water_table;
+use periodic_state::periodic_state;
 use periodic_surface::periodic_surface;
 use ponded_darcy_column::ponded_darcy_column;
 use ponding_cycle::ponding_cycle;
@@ -118,6 +120,11 @@ pub fn all() -> Vec<Case> {
             "cycle-skipping",
             "cycle skipping: a decaying temperature excess under a yearly surface wave, most years jumped",
             cycle_skipping
+        ),
+        case!(
+            "periodic-state",
+            "periodic steady state of a yearly surface wave, found before the run: the start state",
+            periodic_state
         ),
         case!(
             "gardner-evaporation",

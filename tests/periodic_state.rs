@@ -160,3 +160,78 @@ fn a_column_closed_at_both_ends_is_refused() {
     .to_string();
     assert!(e.contains("closed to water at both ends"), "{e}");
 }
+
+/// `cases/seasonal-cycle.toml` shortened to 3 m: a surface open to air whose humidity and
+/// temperature follow the year, evaporating what rises from the water table. An
+/// integration from the hydrostatic state settles within 100 years (its storage equal to
+/// 7 digits from 100 to 400 years, measured when this test was written).
+#[test]
+fn an_evaporating_column_settles_where_the_periodic_state_is() {
+    let dir = Path::new(env!("CARGO_MANIFEST_DIR")).join("cases");
+    let text = std::fs::read_to_string(dir.join("seasonal-cycle.toml"))
+        .unwrap()
+        .replace("depth_m = 10.0", "depth_m = 3.0")
+        .replace("bottom_m = 10.0", "bottom_m = 3.0")
+        .replace("cells = 150", "cells = 80");
+    let model = |t: String| deepdry::case::parse(&t, "seasonal-cycle.toml", &dir).unwrap();
+    let long = model(
+        text.replace("end_year = 20.0", "end_year = 200.0")
+            .replace("every_year = 0.125", "times_year = [200.0]"),
+    );
+    let periodic = model(
+        text.replace(
+            "\nstate = \"hydrostatic\"\n",
+            "\nstate = \"periodic\"\nperiod_year = 1.0\n",
+        )
+        .replace("end_year = 20.0", "end_year = 1.0")
+        .replace("every_year = 0.125", "times_year = [1.0]"),
+    );
+    let (long_rec, _) = run_in_memory(&long, SolverKind::BlockThomas).unwrap();
+    let (rec, _) = run_in_memory(&periodic, SolverKind::BlockThomas).unwrap();
+    let settled = &long_rec.snapshots.last().unwrap().profile;
+    let start = &long_rec.snapshots.first().unwrap().profile;
+    let found = &rec.snapshots.first().unwrap().profile;
+    let max_diff = |a: &[f64], b: &[f64]| {
+        a.iter()
+            .zip(b)
+            .map(|(x, y)| (x - y).abs())
+            .fold(0.0f64, f64::max)
+    };
+    assert!(max_diff(&start.liquid_content, &settled.liquid_content) > 1e-2);
+    // As above: a few of the integrations' error weights (common practice).
+    let dtheta = max_diff(&found.liquid_content, &settled.liquid_content);
+    let dtemp = max_diff(&found.temperature_c, &settled.temperature_c);
+    assert!(dtheta < 2.0e-4, "liquid content {dtheta:.3e}");
+    assert!(dtemp < 2.0e-3, "temperature {dtemp:.3e} K");
+    let (w_long, w_found) = (
+        long_rec.series.last().unwrap().water_storage,
+        rec.series.first().unwrap().water_storage,
+    );
+    assert!(
+        ((w_found - w_long) / w_long).abs() < 1e-3,
+        "{w_found} vs {w_long}"
+    );
+}
+
+/// A plain van Genuchten soil with a residual content under a periodic forcing
+/// (`cases/annual-wave.toml`, which did not converge in 200 periods): the error says
+/// what to change.
+#[test]
+fn a_spin_up_over_a_plain_van_genuchten_soil_points_to_the_dry_end() {
+    let dir = Path::new(env!("CARGO_MANIFEST_DIR")).join("cases");
+    let text = std::fs::read_to_string(dir.join("annual-wave.toml"))
+        .unwrap()
+        .replace(
+            "\nstate = \"hydrostatic\"\n",
+            "\nstate = \"periodic\"\nperiod_year = 1.0\nmax_periods = 2\n",
+        );
+    let m = deepdry::case::parse(&text, "annual-wave.toml", &dir).unwrap();
+    let e = deepdry::sim::initial::initial_unknowns(&m, SolverKind::BlockThomas)
+        .unwrap_err()
+        .to_string();
+    assert!(
+        e.contains("not converged in 2 periods") && e.contains("dry_end = \"fayer-simmons\""),
+        "{e}"
+    );
+    assert!(!e.contains('\n'), "one line: {e}");
+}

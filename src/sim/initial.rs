@@ -435,9 +435,17 @@ pub fn periodic_steady_state(
         period,
         ..Default::default()
     };
+    // A soil whose plain van Genuchten curve stops at a residual content makes the period
+    // map rough where the cycle dries cells to it (measured: `annual-wave` did not
+    // converge in 200 periods, its fayer-simmons variant `harrow-dunes-periodic` in 60).
+    let advice = if m.periodic_dry_end_note().is_some() {
+        "; a soil here keeps its van Genuchten residual content, which makes the period map rough where the cycle dries cells to it: where it dries below, set dry_end = \"fayer-simmons\""
+    } else {
+        ""
+    };
     let fail = |why: String| {
         Error::Numerical(format!(
-            "initial state \"periodic\": {why}; try a larger max_periods or periodic_tolerance, or state = \"steady\""
+            "initial state \"periodic\": {why}; try a larger max_periods or periodic_tolerance, or state = \"steady\"{advice}"
         ))
     };
     let list = |v: &[f64]| {

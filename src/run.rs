@@ -285,6 +285,46 @@ struct Prepared {
     spin_up: Option<crate::sim::initial::PeriodicReport>,
 }
 
+/// How the periodic initial state was found, as attributes of the results file's root
+/// (units in the names; the summary line as text).
+fn write_spin_up(results: &ResultsFile, r: &crate::sim::initial::PeriodicReport) -> Result<()> {
+    let yr = SECONDS_PER_YEAR;
+    results.set_attr("periodic_state", &r.describe())?;
+    for (name, value) in [
+        ("periodic_state_periods", r.periods as f64),
+        ("periodic_state_steps", r.steps as f64),
+        ("periodic_state_water_kg_per_m2", r.water),
+        (
+            "periodic_state_mean_surface_water_flux_mm_per_yr",
+            r.surface_water / r.period * yr,
+        ),
+        (
+            "periodic_state_mean_bottom_water_flux_mm_per_yr",
+            r.bottom_water / r.period * yr,
+        ),
+        (
+            "periodic_state_mean_surface_heat_flux_W_per_m2",
+            r.surface_energy / r.period,
+        ),
+        (
+            "periodic_state_mean_bottom_heat_flux_W_per_m2",
+            r.bottom_energy / r.period,
+        ),
+        ("mean_steady_state_water_kg_per_m2", r.steady_water),
+        (
+            "mean_steady_state_surface_water_flux_mm_per_yr",
+            r.steady_surface_water * yr,
+        ),
+        (
+            "mean_steady_state_bottom_water_flux_mm_per_yr",
+            r.steady_bottom_water * yr,
+        ),
+    ] {
+        results.set_attr_f64(name, value)?;
+    }
+    Ok(())
+}
+
 /// A new run from the case's initial state.
 fn start_fresh(
     model: &Model,
@@ -297,6 +337,9 @@ fn start_fresh(
     // Create (and so lock) the new results file first: a run still writing to the
     // folder makes this fail before its checkpoints are touched.
     let results = ResultsFile::create(results, model, opts.overwrite)?;
+    if let Some(r) = &spin_up {
+        write_spin_up(&results, r)?;
+    }
     replace_earlier_run(folder, None);
     Ok(Prepared {
         begin: Begin::Unknowns {

@@ -11,6 +11,7 @@ use crate::physics::dual::D3;
 use crate::physics::{ColumnStepper as Stepper, System, H, RV, T};
 use crate::schedule::Schedule;
 use crate::solve::blocktri::BlockTri;
+use crate::solve::envelope::unknowns_of_storages;
 use crate::solve::linear::{make_solver, SolverKind};
 use crate::solve::problem::{ErrorTest, Problem};
 use crate::solve::stepper::StepOptions;
@@ -155,7 +156,18 @@ pub fn initial_unknowns_reported(
         }));
         let guess = hydrostatic(&ms, *surface_temperature, *gradient);
         let mean_steady = steady_state(&ms, guess, solver)?;
-        let (u, report) = periodic_steady_state(&m, mean_steady, solver, spin_up)?;
+        // The steady state under the means, for the report: what the cycle changes.
+        let mut steady_sys = System::new(&ms);
+        steady_sys.evaluate(t0, &mean_steady);
+        let steady_water = steady_sys.totals()[1];
+        let (top, bottom) = Problem::boundary_flows(&steady_sys);
+        let (u, mut report) = periodic_steady_state(&m, mean_steady, solver, spin_up)?;
+        let mut sys = System::new(&m);
+        sys.evaluate(t0, &u);
+        report.water = sys.totals()[1];
+        report.steady_water = steady_water;
+        report.steady_surface_water = top[1];
+        report.steady_bottom_water = bottom[1];
         log::info!("{}", report.describe());
         return Ok((u, Some(report)));
     }
@@ -260,6 +272,14 @@ pub struct PeriodicReport {
     pub surface_energy: f64,
     pub bottom_energy: f64,
     pub period: f64,
+    /// The column's water [kg m⁻²] in the periodic state at the start of the cycle, and
+    /// in the steady state under the period means of the forcing (the first guess); the
+    /// water flows of that steady state into the surface and out at the bottom
+    /// [kg m⁻² s⁻¹]. Their differences are the long-term effect of the cycle itself.
+    pub water: f64,
+    pub steady_water: f64,
+    pub steady_surface_water: f64,
+    pub steady_bottom_water: f64,
 }
 
 impl PeriodicReport {
@@ -269,7 +289,7 @@ impl PeriodicReport {
         // kg m⁻² over the period → mm of water per year (1 kg m⁻² = 1 mm).
         let mm_yr = |q: f64| q / self.period * yr;
         format!(
-            "initial state: periodic steady state after {} periods ({} steps; last distance {} of the tolerance); over its last period, water in at the surface {} mm/yr and out at the bottom {} mm/yr, heat in at the surface {} W m-2 and out at the bottom {} W m-2 (means)",
+            "initial state: periodic steady state after {} periods ({} steps; last distance {} of the tolerance); over its last period, water in at the surface {} mm/yr and out at the bottom {} mm/yr, heat in at the surface {} W m-2 and out at the bottom {} W m-2 (means); the column holds {} kg m-2 of water at the start of the cycle, against {} kg m-2 in the steady state under the period means (water in at the surface {} mm/yr, out at the bottom {} mm/yr)",
             self.periods,
             self.steps,
             crate::output::human(self.corrections.last().copied().unwrap_or(f64::NAN), 3),
@@ -277,6 +297,10 @@ impl PeriodicReport {
             crate::output::human(mm_yr(self.bottom_water), 4),
             crate::output::human(self.surface_energy / self.period, 4),
             crate::output::human(self.bottom_energy / self.period, 4),
+            crate::output::human(self.water, 6),
+            crate::output::human(self.steady_water, 6),
+            crate::output::human(self.steady_surface_water * yr, 4),
+            crate::output::human(self.steady_bottom_water * yr, 4),
         )
     }
 }
@@ -430,7 +454,6 @@ pub fn periodic_steady_state(
     let mut lin_sys = MeanLinearization::new(n, solver);
     let (mut s0, mut s1, mut res) = (zeros.clone(), zeros.clone(), zeros.clone());
     let mut delta = zeros.clone();
-    let ones = vec![1.0; B * n];
     let mut report = PeriodicReport {
         period,
         ..Default::default()
@@ -459,9 +482,10 @@ pub fn periodic_steady_state(
     // of a BDF start has no error estimate, so a large one would go unchecked.
     let dt = m.time.dt_initial;
     let mut tau = period;
+    let tau_max = ANDERSON_TAU_SECONDS.max(1.0e3 * period);
     let mut anderson = Anderson::default();
     // The last period's end, to take the update again from.
-    let mut base: Option<Vec<f64>> = None;
+    let mut base: Option<(Vec<f64>, Vec<f64>)> = None;
     loop {
         if report.periods >= spin.max_periods {
             let last = &report.corrections[report.corrections.len().saturating_sub(5)..];
@@ -501,7 +525,7 @@ pub fn periodic_steady_state(
             Ok(e) => e,
             Err(Error::Numerical(msg)) => {
                 report.periods += 1;
-                let Some(phi) = &base else {
+                let Some((phi, s_phi)) = &base else {
                     return Err(fail(format!(
                         "the first period from the mean steady state failed: {msg}"
                     )));
@@ -518,11 +542,7 @@ pub fn periodic_steady_state(
                     tau / period
                 );
                 lin_sys.solve(tau, &mut delta).map_err(&fail)?;
-                x.copy_from_slice(phi);
-                sys.apply_update(&mut x, &mut delta, &ones);
-                if decoupled {
-                    equilibrate_vapor(&mut x);
-                }
+                x = corrected(&mut sys, t0, phi, s_phi, &mut delta, &lin_sys.stor);
                 continue;
             }
             Err(e) => return Err(e),
@@ -600,16 +620,12 @@ pub fn periodic_steady_state(
         );
         // The update of this period at τ.
         lin_sys.solve(tau, &mut delta).map_err(&fail)?;
-        let mut next = end.u.clone();
-        sys.apply_update(&mut next, &mut delta, &ones);
-        if decoupled {
-            equilibrate_vapor(&mut next);
-        }
+        let next = corrected(&mut sys, t0, &end.u, &s1, &mut delta, &lin_sys.stor);
         // Past the continuation, Anderson acceleration of x ← g(x) (g: a period and
         // its update at the final τ), whose slow modes the mean Jacobian alone
         // contracts slowly: the mean of the fluxes' Jacobians over a period is not the
         // derivative of the period's mean flux where the periodic response adjusts.
-        let accelerated = if tau >= ANDERSON_TAU_PERIODS * period {
+        let accelerated = if tau >= tau_max {
             let weights = weights_of(&x);
             anderson.next(&x, &next, &weights)
         } else {
@@ -628,17 +644,61 @@ pub fn periodic_steady_state(
         if distance <= 1.0 && step <= 1.0 && anderson.len() >= 2 {
             return Ok((step_state, report));
         }
-        base = Some(end.u);
-        if tau < ANDERSON_TAU_PERIODS * period {
-            tau = (tau * 4.0).min(ANDERSON_TAU_PERIODS * period);
+        base = Some((end.u, s1.clone()));
+        if tau < tau_max {
+            tau = (tau * 4.0).min(tau_max);
         }
         x = step_state;
     }
 }
 
-/// The pseudo-time step [periods] of the continuation at which Anderson acceleration
-/// takes over (with τ held).
-const ANDERSON_TAU_PERIODS: f64 = 1.0e3;
+/// The state the update `delta` from `phi` (storages `s_phi`) leads to, in the contents:
+/// the contents of `phi` moved by S δ (S: the storage Jacobian blocks `stor`), and the
+/// unknowns found from them cell by cell ([`unknowns_of_storages`]), from the update
+/// limited as a Newton update ([`Problem::apply_update`]); the vapour in equilibrium where
+/// it is algebraic. Where a small change of content is a large change of head (dry
+/// cells), the head follows the content, not the linearisation.
+fn corrected(
+    sys: &mut System,
+    t: f64,
+    phi: &[f64],
+    s_phi: &[f64],
+    delta: &mut [f64],
+    stor: &[crate::solve::blocktri::Block<3>],
+) -> Vec<f64> {
+    let n = sys.n;
+    let mut target = s_phi.to_vec();
+    let mut scale = vec![0.0; 3 * n];
+    let volumes = sys.volumes().to_vec();
+    for i in 0..n {
+        for r in 0..3 {
+            let j = 3 * i + r;
+            let change: f64 = (0..3)
+                .map(|c| stor[i][r][c] * delta[3 * i + c])
+                .sum::<f64>()
+                / volumes[i];
+            target[j] += change;
+            scale[j] = target[j].abs().max(change.abs());
+        }
+    }
+    let mut u = phi.to_vec();
+    let ones = vec![1.0; 3 * n];
+    sys.apply_update(&mut u, delta, &ones);
+    unknowns_of_storages(sys, t, &mut u, &target, &scale, phi);
+    if sys.last_unknown_decoupled() {
+        equilibrate_vapor(&mut u);
+    }
+    u
+}
+
+/// The pseudo-time step of the continuation at which Anderson acceleration takes over
+/// (with τ held) [s]: 10³ years, at least 10³ periods. Longer steps of the mean
+/// Jacobian overshoot the slow modes of the sand columns we measured (`harrow-dunes`
+/// did not converge in 200 periods with 10⁸ annual periods, and converges in ~60 with
+/// 10³); a shorter one leaves the acceleration slower modes than it can take (a daily
+/// wave over the same column did not converge in 200 periods with 10³ daily periods,
+/// and converges in ~45 with 10⁸).
+const ANDERSON_TAU_SECONDS: f64 = 1.0e3 * crate::props::constants::SECONDS_PER_YEAR;
 /// Past iterates Anderson acceleration combines.
 const ANDERSON_DEPTH: usize = 5;
 

@@ -255,7 +255,6 @@ pub fn jump<const B: usize, P: Problem<B> + ?Sized>(
     sys.limit_prediction(&mut s.u, &old);
     s.t = t_new;
     // Target storages and the Newton iteration on M(u) = M*.
-    let len = s.u.len();
     let target: Vec<f64> = p2
         .storage
         .iter()
@@ -263,72 +262,12 @@ pub fn jump<const B: usize, P: Problem<B> + ?Sized>(
         .zip(&p0.storage)
         .map(|((&a, &b), &c)| ext(a, b, c))
         .collect();
-    let mut cur = vec![0.0; len];
-    let mut pert = vec![0.0; len];
-    let mut deriv = vec![0.0; len * nq];
-    let mut u_try = vec![0.0; len];
-    let mut worst = f64::INFINITY;
-    for _ in 0..INVERSION_ITERATIONS {
-        sys.evaluate(t_new, &s.u);
-        sys.storage_into(&mut cur);
-        worst = 0.0f64;
-        for i in 0..len / B {
-            for &r in &rows[..nq] {
-                let j = B * i + r;
-                let scale = target[j]
-                    .abs()
-                    .max(mf * (p2.storage[j] - p1.storage[j]).abs());
-                let e = (cur[j] - target[j]).abs() / scale.max(f64::MIN_POSITIVE);
-                worst = worst.max(if e.is_nan() { f64::INFINITY } else { e });
-            }
-        }
-        if worst <= INVERSION_TOLERANCE {
-            break;
-        }
-        // Forward differences, one unknown of every block at a time (storages are
-        // block-local).
-        for (q, &r) in rows[..nq].iter().enumerate() {
-            u_try.copy_from_slice(&s.u);
-            for i in 0..len / B {
-                let x = s.u[B * i + r];
-                u_try[B * i + r] = x + 1e-7 * (x.abs() + 1e-3);
-            }
-            sys.evaluate(t_new, &u_try);
-            sys.storage_into(&mut pert);
-            for i in 0..len / B {
-                let j = B * i + r;
-                let du = u_try[j] - s.u[j];
-                for (c, &rc) in rows[..nq].iter().enumerate() {
-                    let jc = B * i + rc;
-                    deriv[(i * nq + c) * nq + q] = (pert[jc] - cur[jc]) / du;
-                }
-            }
-        }
-        // Per block: solve the nq × nq system (Gaussian elimination with partial
-        // pivoting; nq ≤ MAX_CONSERVED), limited to a tenth of the unknown's size plus
-        // one unit per iteration; a singular or non-finite block keeps its unknowns.
-        for i in 0..len / B {
-            let mut a = [[0.0f64; MAX_CONSERVED + 1]; MAX_CONSERVED];
-            for c in 0..nq {
-                for q in 0..nq {
-                    a[c][q] = deriv[(i * nq + c) * nq + q];
-                }
-                let j = B * i + rows[c];
-                a[c][nq] = target[j] - cur[j];
-            }
-            let Some(dx) = solve_small(&mut a, nq) else {
-                continue;
-            };
-            for (q, &r) in rows[..nq].iter().enumerate() {
-                let x = &mut s.u[B * i + r];
-                let cap = 0.1 * x.abs() + 1.0;
-                *x += dx[q].clamp(-cap, cap);
-            }
-        }
-        u_try.copy_from_slice(&s.u);
-        sys.limit_prediction(&mut u_try, &old);
-        s.u.copy_from_slice(&u_try);
-    }
+    let scale: Vec<f64> = target
+        .iter()
+        .zip(p2.storage.iter().zip(&p1.storage))
+        .map(|(t, (a, b))| t.abs().max(mf * (a - b).abs()))
+        .collect();
+    let worst = unknowns_of_storages(sys, t_new, &mut s.u, &target, &scale, &old);
     sys.evaluate(t_new, &s.u);
     sys.storage_into(&mut s.storage);
     // Storage change over the jump per conserved quantity, summed block by block.
@@ -370,6 +309,90 @@ pub fn jump<const B: usize, P: Problem<B> + ?Sized>(
     env.skipped += m;
     env.points.clear();
     env.points.push(PeriodPoint::of(&st.state));
+    worst
+}
+
+/// Finds the unknowns `u` (from their value on entry) whose storages of the conserved
+/// rows are `target`, block by block (Newton with forward-difference derivatives,
+/// [`INVERSION_ITERATIONS`] at most, each update limited to a tenth of the unknown's size
+/// plus one unit; a singular or non-finite block keeps its unknowns), the other unknowns
+/// kept admissible by [`Problem::limit_prediction`] against `old`. Converged when every
+/// storage is within [`INVERSION_TOLERANCE`] of `scale`. Returns the largest relative
+/// storage residual left.
+pub fn unknowns_of_storages<const B: usize, P: Problem<B> + ?Sized>(
+    sys: &mut P,
+    t: f64,
+    u: &mut [f64],
+    target: &[f64],
+    scale: &[f64],
+    old: &[f64],
+) -> f64 {
+    let rows: Vec<usize> = sys.conserved_rows().to_vec();
+    let nq = rows.len().min(MAX_CONSERVED);
+    let len = u.len();
+    let mut cur = vec![0.0; len];
+    let mut pert = vec![0.0; len];
+    let mut deriv = vec![0.0; len * nq];
+    let mut u_try = vec![0.0; len];
+    let mut worst = f64::INFINITY;
+    for _ in 0..INVERSION_ITERATIONS {
+        sys.evaluate(t, u);
+        sys.storage_into(&mut cur);
+        worst = 0.0f64;
+        for i in 0..len / B {
+            for &r in &rows[..nq] {
+                let j = B * i + r;
+                let e = (cur[j] - target[j]).abs() / scale[j].max(f64::MIN_POSITIVE);
+                worst = worst.max(if e.is_nan() { f64::INFINITY } else { e });
+            }
+        }
+        if worst <= INVERSION_TOLERANCE {
+            break;
+        }
+        // Forward differences, one unknown of every block at a time (storages are
+        // block-local).
+        for (q, &r) in rows[..nq].iter().enumerate() {
+            u_try.copy_from_slice(u);
+            for i in 0..len / B {
+                let x = u[B * i + r];
+                u_try[B * i + r] = x + 1e-7 * (x.abs() + 1e-3);
+            }
+            sys.evaluate(t, &u_try);
+            sys.storage_into(&mut pert);
+            for i in 0..len / B {
+                let j = B * i + r;
+                let du = u_try[j] - u[j];
+                for (c, &rc) in rows[..nq].iter().enumerate() {
+                    let jc = B * i + rc;
+                    deriv[(i * nq + c) * nq + q] = (pert[jc] - cur[jc]) / du;
+                }
+            }
+        }
+        // Per block: solve the nq × nq system (Gaussian elimination with partial
+        // pivoting; nq ≤ MAX_CONSERVED), limited to a tenth of the unknown's size plus
+        // one unit per iteration; a singular or non-finite block keeps its unknowns.
+        for i in 0..len / B {
+            let mut a = [[0.0f64; MAX_CONSERVED + 1]; MAX_CONSERVED];
+            for c in 0..nq {
+                for q in 0..nq {
+                    a[c][q] = deriv[(i * nq + c) * nq + q];
+                }
+                let j = B * i + rows[c];
+                a[c][nq] = target[j] - cur[j];
+            }
+            let Some(dx) = solve_small(&mut a, nq) else {
+                continue;
+            };
+            for (q, &r) in rows[..nq].iter().enumerate() {
+                let x = &mut u[B * i + r];
+                let cap = 0.1 * x.abs() + 1.0;
+                *x += dx[q].clamp(-cap, cap);
+            }
+        }
+        u_try.copy_from_slice(u);
+        sys.limit_prediction(&mut u_try, old);
+        u.copy_from_slice(&u_try);
+    }
     worst
 }
 

@@ -250,3 +250,23 @@ fn a_spin_up_over_a_plain_van_genuchten_soil_points_to_the_dry_end() {
     );
     assert!(!e.contains('\n'), "one line: {e}");
 }
+
+#[test]
+fn a_sinusoid_that_does_not_repeat_with_the_period_is_refused() {
+    let e = parse(&case_text(|t| {
+        t.replace("period_year = 1.0\n\n[time]", "period_year = 1.5\n\n[time]")
+    }))
+    .unwrap_err()
+    .to_string();
+    assert!(
+        e.contains("period_year")
+            && e.contains("the surface temperature")
+            && e.contains("does not divide it"),
+        "{e}"
+    );
+    // Two years hold two whole periods of the yearly wave.
+    parse(&case_text(|t| {
+        t.replace("period_year = 1.0\n\n[time]", "period_year = 2.0\n\n[time]")
+    }))
+    .unwrap();
+}

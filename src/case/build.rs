@@ -1346,6 +1346,17 @@ fn read_initial(
             "state = \"periodic\": the column is closed to water at both ends, so its periodic state is not unique (it keeps whatever water it starts with); open one end (e.g. bottom.head_m) or use state = \"hydrostatic\" or \"profile\"",
         ));
     }
+    if let Some(spin_up) = &spin_up {
+        // Tables and steps repeat their first period; a sinusoid must repeat whole.
+        for (what, sched) in surf.schedules().chain(bot.schedules()) {
+            if let Some(why) = super::cycles::sine_not_dividing(sched, spin_up.period) {
+                let pv = t.req("period_year", "the forcing period [years]")?;
+                return Err(pv.err(format!(
+                    "the spin-up's forcing must repeat with this period, but {what} has {why} (allowed: constants, sinusoids whose periods divide it, and tables or steps, whose first period is repeated)"
+                )));
+            }
+        }
+    }
     Ok(if let Some(spin_up) = spin_up {
         InitialState::Periodic {
             surface: surf,

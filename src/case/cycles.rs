@@ -80,18 +80,7 @@ pub fn read(t: &Table, start_year: f64, end_year: f64) -> R<Option<CycleSkipping
 fn not_periodic(s: &Schedule, period: f64, start: f64, end: f64) -> Option<String> {
     match s {
         Schedule::Constant(_) => None,
-        Schedule::Sine { period: p, .. } => {
-            let r = period / p;
-            let k = r.round();
-            if k >= 1.0 && (r - k).abs() <= 1e-9 * r {
-                None
-            } else {
-                Some(format!(
-                    "a sinusoid of period {} yr, which does not divide it",
-                    fmt_g(p / SECONDS_PER_YEAR)
-                ))
-            }
-        }
+        Schedule::Sine { .. } => sine_not_dividing(s, period),
         Schedule::Steps { .. } | Schedule::Table { .. } => {
             let tol = 1e-9 * period;
             s.breakpoints()
@@ -107,6 +96,27 @@ fn not_periodic(s: &Schedule, period: f64, start: f64, end: f64) -> Option<Strin
         Schedule::Sum(parts) => parts
             .iter()
             .find_map(|p| not_periodic(p, period, start, end)),
+    }
+}
+
+/// Why schedule `s` has a sinusoid whose period does not divide `period` [s], if it has
+/// one (constants, tables and steps pass).
+pub fn sine_not_dividing(s: &Schedule, period: f64) -> Option<String> {
+    match s {
+        Schedule::Sine { period: p, .. } => {
+            let r = period / p;
+            let k = r.round();
+            if k >= 1.0 && (r - k).abs() <= 1e-9 * r {
+                None
+            } else {
+                Some(format!(
+                    "a sinusoid of period {} yr, which does not divide it",
+                    fmt_g(p / SECONDS_PER_YEAR)
+                ))
+            }
+        }
+        Schedule::Sum(parts) => parts.iter().find_map(|p| sine_not_dividing(p, period)),
+        _ => None,
     }
 }
 

@@ -259,3 +259,46 @@ fn a_sinusoid_that_does_not_repeat_with_the_period_is_refused() {
     }))
     .unwrap();
 }
+
+/// Plants with a seasonal transpiration over the 3 m column of the test above: at the
+/// periodic state the period's water balance closes with the root uptake (surface inflow
+/// − bottom outflow − uptake = 0, the storage repeating; derived), which the report must
+/// count (the bottom's outflow is the top's inflow minus the net inflow, the sinks and the
+/// runoff, as in the series).
+#[test]
+fn the_report_counts_root_uptake_in_the_period_balance() {
+    let dir = Path::new(env!("CARGO_MANIFEST_DIR")).join("cases");
+    let text = std::fs::read_to_string(dir.join("seasonal-cycle.toml"))
+        .unwrap()
+        .replace("depth_m = 10.0", "depth_m = 3.0")
+        .replace("bottom_m = 10.0", "bottom_m = 3.0")
+        .replace("cells = 150", "cells = 80")
+        .replace(
+            "\nstate = \"hydrostatic\"\n",
+            "\nstate = \"periodic\"\nperiod_year = 1.0\n",
+        )
+        + "\n[[vegetation]]\n\
+           transpiration_mm_per_year = { mean = 20.0, amplitude = 20.0, period_year = 1.0, phase_year = 0.0 }\n\
+           root_depth_m = 1.0\n\
+           root_distribution = \"uniform\"\n\
+           stress_heads_m = [-0.1, -0.25, -100.0, -20000.0]\n";
+    let m = deepdry::case::parse(&text, "seasonal-cycle.toml", &dir).unwrap();
+    let (_, report) =
+        deepdry::sim::initial::initial_unknowns_reported(&m, SolverKind::BlockThomas).unwrap();
+    let r = report.expect("a report");
+    // Measured: 0.163 mm/yr in at the surface, 2.079 up from the water table, 2.242 to roots.
+    assert!(r.root_water > 0.0, "roots took {}", r.root_water);
+    let closure = r.surface_water - r.bottom_water - r.root_water - r.runoff_water;
+    assert!(
+        closure.abs() < 1e-3 * r.root_water,
+        "surface {} bottom {} roots {}: {closure:.3e}",
+        r.surface_water,
+        r.bottom_water,
+        r.root_water
+    );
+    assert!(
+        r.describe().contains("taken up by roots"),
+        "{}",
+        r.describe()
+    );
+}

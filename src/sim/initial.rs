@@ -271,6 +271,9 @@ pub struct PeriodicReport {
     pub bottom_water: f64,
     pub surface_energy: f64,
     pub bottom_energy: f64,
+    /// Water taken up by roots and run off over the last period [kg m⁻²].
+    pub root_water: f64,
+    pub runoff_water: f64,
     pub period: f64,
     /// The column's water [kg m⁻²] in the periodic state at the start of the cycle, and
     /// in the steady state under the period means of the forcing (the first guess); the
@@ -283,6 +286,24 @@ pub struct PeriodicReport {
 }
 
 impl PeriodicReport {
+    /// The period-mean root uptake and runoff, where there are any (for [`Self::describe`]).
+    fn other_flows(&self) -> String {
+        let yr = crate::props::constants::SECONDS_PER_YEAR;
+        let mut out = String::new();
+        for (what, q) in [
+            ("taken up by roots", self.root_water),
+            ("run off", self.runoff_water),
+        ] {
+            if q != 0.0 {
+                out += &format!(
+                    "; over its last period, water {what} {} mm/yr",
+                    crate::output::human(q / self.period * yr, 4)
+                );
+            }
+        }
+        out
+    }
+
     /// One paragraph for the log and the run's summary.
     pub fn describe(&self) -> String {
         let yr = crate::props::constants::SECONDS_PER_YEAR;
@@ -301,7 +322,7 @@ impl PeriodicReport {
             crate::output::human(self.steady_water, 6),
             crate::output::human(self.steady_surface_water * yr, 4),
             crate::output::human(self.steady_bottom_water * yr, 4),
-        )
+        ) + &self.other_flows()
     }
 }
 
@@ -309,9 +330,12 @@ impl PeriodicReport {
 struct PeriodEnd {
     u: Vec<f64>,
     steps: u64,
-    /// Cumulative inflow through the surface and through both ends (energy, water).
+    /// Cumulative inflow through the surface, net inflow, outflow to sinks (roots) and
+    /// runoff (energy, water).
     top_inflow: [f64; 2],
     inflow: [f64; 2],
+    sink: [f64; 2],
+    runoff: [f64; 2],
 }
 
 /// Integrates the spin-up model `m` over its one period from `u` (the run's own
@@ -345,6 +369,8 @@ fn one_period(
         steps: st.counters.steps,
         top_inflow: two(&st.top_inflow),
         inflow: two(&st.inflow),
+        sink: two(&st.sink),
+        runoff: two(&st.runoff),
     })
 }
 
@@ -549,10 +575,15 @@ pub fn periodic_steady_state(
         };
         report.periods += 1;
         report.steps += end.steps;
+        // The bottom's outflow: the top's inflow minus the net inflow, the sinks' and
+        // the runoff (as the series' cumulative bottom flows).
+        let bottom = |q: usize| end.top_inflow[q] - end.inflow[q] - end.sink[q] - end.runoff[q];
         report.surface_water = end.top_inflow[1];
-        report.bottom_water = end.top_inflow[1] - end.inflow[1];
+        report.bottom_water = bottom(1);
         report.surface_energy = end.top_inflow[0];
-        report.bottom_energy = end.top_inflow[0] - end.inflow[0];
+        report.bottom_energy = bottom(0);
+        report.root_water = end.sink[1];
+        report.runoff_water = end.runoff[1];
         std::mem::swap(&mut lin_sys.mean_jac, &mut acc);
 
         // The contents' change over the period; scales and storage Jacobian at its end.

@@ -12,8 +12,8 @@ use crate::physics::{ColumnStepper as Stepper, System, H, RV, T};
 use crate::schedule::Schedule;
 use crate::solve::blocktri::BlockTri;
 use crate::solve::envelope::unknowns_of_storages;
-use crate::solve::linear::{make_solver, SolverKind};
-use crate::solve::problem::{ErrorTest, Problem};
+use crate::solve::linear::{make_solver, solve_dense, SolverKind};
+use crate::solve::problem::{weighted_change, Problem};
 use crate::solve::stepper::StepOptions;
 
 use super::simulation::numerical_message;
@@ -162,9 +162,6 @@ pub fn initial_unknowns_reported(
         let steady_water = steady_sys.totals()[1];
         let (top, bottom) = Problem::boundary_flows(&steady_sys);
         let (u, mut report) = periodic_steady_state(&m, mean_steady, solver, spin_up)?;
-        let mut sys = System::new(&m);
-        sys.evaluate(t0, &u);
-        report.water = sys.totals()[1];
         report.steady_water = steady_water;
         report.steady_surface_water = top[1];
         report.steady_bottom_water = bottom[1];
@@ -263,8 +260,6 @@ pub struct PeriodicReport {
     /// Size of each correction, measured by the run's error tests at the spin-up
     /// tolerance (≤ 1: converged), in order.
     pub corrections: Vec<f64>,
-    /// Size of each change of the iterate, by the same measure.
-    pub steps_taken: Vec<f64>,
     /// Water [kg m⁻²] and energy [J m⁻²] that entered through the surface and left
     /// through the bottom over the last period integrated, per period length [s].
     pub surface_water: f64,
@@ -401,6 +396,16 @@ impl MeanLinearization {
         }
     }
 
+    /// The change of storage `j` (block j / 3, row j % 3) that update `delta` makes to
+    /// first order, (S δ)_j / V.
+    fn content_change(&self, delta: &[f64], volumes: &[f64], j: usize) -> f64 {
+        let (i, r) = (j / 3, j % 3);
+        (0..3)
+            .map(|c| self.stor[i][r][c] * delta[3 * i + c])
+            .sum::<f64>()
+            / volumes[i]
+    }
+
     /// δ, unscaled, for pseudo-time step `tau` [s] (∞: without S).
     fn solve(&mut self, tau: f64, delta: &mut [f64]) -> std::result::Result<(), String> {
         let a = &mut self.a;
@@ -478,7 +483,8 @@ pub fn periodic_steady_state(
     let mut acc = BlockTri::<B>::new(n);
     let zeros = vec![0.0; B * n];
     let mut lin_sys = MeanLinearization::new(n, solver);
-    let (mut s0, mut s1, mut res) = (zeros.clone(), zeros.clone(), zeros.clone());
+    let (mut s0, mut s1, mut s_next) = (zeros.clone(), zeros.clone(), zeros.clone());
+    let mut res = zeros.clone();
     let mut delta = zeros.clone();
     let mut report = PeriodicReport {
         period,
@@ -568,7 +574,7 @@ pub fn periodic_steady_state(
                     tau / period
                 );
                 lin_sys.solve(tau, &mut delta).map_err(&fail)?;
-                x = corrected(&mut sys, t0, phi, s_phi, &mut delta, &lin_sys.stor);
+                x = corrected(&mut sys, t0, phi, s_phi, &mut delta, &lin_sys);
                 continue;
             }
             Err(e) => return Err(e),
@@ -618,30 +624,15 @@ pub fn periodic_steady_state(
         // The distance to the periodic state: the τ = ∞ update, by the error tests
         // (temperature directly, liquid content through S δ∞).
         lin_sys.solve(f64::INFINITY, &mut delta).map_err(&fail)?;
-        let mut distance = 0.0f64;
-        for i in 0..n {
-            let r = B * i..B * (i + 1);
-            let mut moved = end.u[r.clone()].to_vec();
-            for (m, d) in moved.iter_mut().zip(&delta[r.clone()]) {
-                *m += d;
-            }
-            for (k, test) in sys.error_tests(i, &moved, &end.u[r.clone()], spin.tolerance) {
-                let e = match test {
-                    ErrorTest::Unknown { den } => delta[B * i + k].abs() / den,
-                    ErrorTest::Storage { row, factor, den } => {
-                        let sd: f64 = (0..B)
-                            .map(|c| lin_sys.stor[i][row][c] * delta[B * i + c])
-                            .sum();
-                        (factor * sd / volumes[i]).abs() / den
-                    }
-                };
-                distance = if e.is_nan() {
-                    f64::INFINITY
-                } else {
-                    distance.max(e)
-                };
-            }
-        }
+        let moved: Vec<f64> = end.u.iter().zip(&delta).map(|(u, d)| u + d).collect();
+        let distance = weighted_change(
+            &sys,
+            &moved,
+            &end.u,
+            spin.tolerance,
+            |j| delta[j],
+            |j| lin_sys.content_change(&delta, volumes, j),
+        );
         report.corrections.push(distance);
         log::debug!(
             "periodic steady state: period {} ({} steps), τ {:.3e} periods, distance {distance:.3e}",
@@ -651,7 +642,7 @@ pub fn periodic_steady_state(
         );
         // The update of this period at τ.
         lin_sys.solve(tau, &mut delta).map_err(&fail)?;
-        let next = corrected(&mut sys, t0, &end.u, &s1, &mut delta, &lin_sys.stor);
+        let next = corrected(&mut sys, t0, &end.u, &s1, &mut delta, &lin_sys);
         // Past the continuation, Anderson acceleration of x ← g(x) (g: a period and
         // its update at the final τ), whose slow modes the mean Jacobian alone
         // contracts slowly: the mean of the fluxes' Jacobians over a period is not the
@@ -666,13 +657,24 @@ pub fn periodic_steady_state(
         if decoupled {
             equilibrate_vapor(&mut step_state);
         }
-        let step = change_size(&mut sys, t0, &step_state, &x, spin.tolerance);
+        // The iterate's change (the storages of x are s0, from this period's start).
+        sys.evaluate(t0, &step_state);
+        sys.storage_into(&mut s_next);
+        let step = weighted_change(
+            &sys,
+            &step_state,
+            &x,
+            spin.tolerance,
+            |j| step_state[j] - x[j],
+            |j| s_next[j] - s0[j],
+        );
         log::debug!(
             "periodic steady state: step {step:.3e} (Anderson memory {})",
             anderson.len()
         );
-        report.steps_taken.push(step);
         if distance <= 1.0 && step <= 1.0 && anderson.len() >= 2 {
+            // The column's water in the state returned (evaluated above).
+            report.water = sys.totals()[1];
             return Ok((step_state, report));
         }
         base = Some((end.u, s1.clone()));
@@ -684,7 +686,7 @@ pub fn periodic_steady_state(
 }
 
 /// The state the update `delta` from `phi` (storages `s_phi`) leads to, in the contents:
-/// the contents of `phi` moved by S δ (S: the storage Jacobian blocks `stor`), and the
+/// the contents of `phi` moved by S δ (S: the storage Jacobian blocks of `lin`), and the
 /// unknowns found from them cell by cell ([`unknowns_of_storages`]), from the update
 /// limited as a Newton update ([`Problem::apply_update`]); the vapour in equilibrium where
 /// it is algebraic. Where a small change of content is a large change of head (dry
@@ -695,22 +697,16 @@ fn corrected(
     phi: &[f64],
     s_phi: &[f64],
     delta: &mut [f64],
-    stor: &[crate::solve::blocktri::Block<3>],
+    lin: &MeanLinearization,
 ) -> Vec<f64> {
     let n = sys.n;
     let mut target = s_phi.to_vec();
     let mut scale = vec![0.0; 3 * n];
     let volumes = sys.volumes().to_vec();
-    for i in 0..n {
-        for r in 0..3 {
-            let j = 3 * i + r;
-            let change: f64 = (0..3)
-                .map(|c| stor[i][r][c] * delta[3 * i + c])
-                .sum::<f64>()
-                / volumes[i];
-            target[j] += change;
-            scale[j] = target[j].abs().max(change.abs());
-        }
+    for j in 0..3 * n {
+        let change = lin.content_change(delta, &volumes, j);
+        target[j] += change;
+        scale[j] = target[j].abs().max(change.abs());
     }
     let mut u = phi.to_vec();
     let ones = vec![1.0; 3 * n];
@@ -739,36 +735,6 @@ fn weights_of(u: &[f64]) -> Vec<f64> {
     u.chunks_exact(3)
         .flat_map(|x| [1.0, 1.0 / (1.0 + x[H].abs()), 1.0 / (1e-3 + x[RV].abs())])
         .collect()
-}
-
-/// The size of the change from `old` to `new` by the problem's error tests at relative
-/// tolerance `rtol` (≤ 1: within it).
-fn change_size(sys: &mut System, t: f64, new: &[f64], old: &[f64], rtol: f64) -> f64 {
-    let n = sys.n;
-    let mut s_old = vec![0.0; 3 * n];
-    let mut s_new = vec![0.0; 3 * n];
-    sys.evaluate(t, old);
-    sys.storage_into(&mut s_old);
-    sys.evaluate(t, new);
-    sys.storage_into(&mut s_new);
-    let mut size = 0.0f64;
-    for i in 0..n {
-        let r = 3 * i..3 * (i + 1);
-        for (k, test) in sys.error_tests(i, &new[r.clone()], &old[r.clone()], rtol) {
-            let e = match test {
-                ErrorTest::Unknown { den } => (new[3 * i + k] - old[3 * i + k]).abs() / den,
-                ErrorTest::Storage { row, factor, den } => {
-                    (factor * (s_new[3 * i + row] - s_old[3 * i + row])).abs() / den
-                }
-            };
-            size = if e.is_nan() {
-                f64::INFINITY
-            } else {
-                size.max(e)
-            };
-        }
-    }
-    size
 }
 
 /// Anderson acceleration (Walker & Ni 2011, SIAM J. Numer. Anal. 49: "Anderson
@@ -818,19 +784,20 @@ impl Anderson {
             })
             .collect();
         let fk = &self.f[k];
-        let mut a = vec![vec![0.0; k]; k];
-        let mut b = vec![0.0; k];
+        // The normal equations, each row augmented with its right-hand side.
+        let mut a = vec![vec![0.0; k + 1]; k];
         for i in 0..k {
             for j in 0..k {
                 a[i][j] = df[i].iter().zip(&df[j]).map(|(p, q)| p * q).sum();
             }
             a[i][i] *= 1.0 + 1e-10;
-            b[i] = df[i].iter().zip(fk).map(|(p, q)| p * q).sum();
+            a[i][k] = df[i].iter().zip(fk).map(|(p, q)| p * q).sum();
         }
-        let Some(gamma) = solve_dense(a, b) else {
+        let mut gamma = vec![0.0; k];
+        if !solve_dense(&mut a, &mut gamma) {
             self.clear();
             return g.to_vec();
-        };
+        }
         let mut out = g.to_vec();
         for (j, gj) in gamma.iter().enumerate() {
             for ((o, g1), g0) in out.iter_mut().zip(&self.g[j + 1]).zip(&self.g[j]) {
@@ -839,33 +806,6 @@ impl Anderson {
         }
         out
     }
-}
-
-/// Solves the small dense system a x = b by Gaussian elimination with partial pivoting
-/// (None when singular or not finite).
-fn solve_dense(mut a: Vec<Vec<f64>>, mut b: Vec<f64>) -> Option<Vec<f64>> {
-    let n = b.len();
-    for c in 0..n {
-        let p = (c..n).max_by(|&i, &j| a[i][c].abs().total_cmp(&a[j][c].abs()))?;
-        if a[p][c] == 0.0 || !a[p][c].is_finite() {
-            return None;
-        }
-        a.swap(c, p);
-        b.swap(c, p);
-        for r in c + 1..n {
-            let m = a[r][c] / a[c][c];
-            for k in c..n {
-                a[r][k] -= m * a[c][k];
-            }
-            b[r] -= m * b[c];
-        }
-    }
-    let mut x = vec![0.0; n];
-    for r in (0..n).rev() {
-        let s: f64 = (r + 1..n).map(|k| a[r][k] * x[k]).sum();
-        x[r] = (b[r] - s) / a[r][r];
-    }
-    x.iter().all(|v| v.is_finite()).then_some(x)
 }
 /// Steady state of `model` (its boundary conditions must be time-independent) by
 /// pseudo-transient continuation: backward-Euler steps from `guess` with Δt growing

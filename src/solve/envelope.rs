@@ -48,7 +48,8 @@
 //! table, and moved that exchange by 25 %.) After a jump the multistep history restarts
 //! (order 1, from the first step size).
 
-use super::problem::{ErrorTest, Problem, MAX_CONSERVED};
+use super::linear::solve_dense;
+use super::problem::{weighted_change, Problem, MAX_CONSERVED};
 use super::stepper::{StepState, Stepper};
 
 /// The settings of cycle skipping.
@@ -156,30 +157,15 @@ pub fn drift_change<const B: usize, P: Problem<B> + ?Sized>(
         [a, b, c] => [a, b, c],
         _ => return f64::NAN,
     };
-    let mut worst = 0.0f64;
-    for i in 0..sys.blocks() {
-        let r = B * i..B * (i + 1);
-        let tests = sys.error_tests(i, &p2.u[r.clone()], &p1.u[r.clone()], rtol);
-        for (k, test) in tests {
-            let e = match test {
-                ErrorTest::Unknown { den } => {
-                    let j = B * i + k;
-                    (p2.u[j] - 2.0 * p1.u[j] + p0.u[j]).abs() / den
-                }
-                ErrorTest::Storage { row, factor, den } => {
-                    let j = B * i + row;
-                    (factor * (p2.storage[j] - 2.0 * p1.storage[j] + p0.storage[j])).abs() / den
-                }
-            };
-            // A NaN estimate takes the block to no jump.
-            worst = if e.is_nan() {
-                f64::INFINITY
-            } else {
-                worst.max(e)
-            };
-        }
-    }
-    worst
+    // A NaN estimate takes the block to no jump.
+    weighted_change(
+        sys,
+        &p2.u,
+        &p1.u,
+        rtol,
+        |j| p2.u[j] - 2.0 * p1.u[j] + p0.u[j],
+        |j| p2.storage[j] - 2.0 * p1.storage[j] + p0.storage[j],
+    )
 }
 
 /// The jump [periods] for error estimate `err` (‖Δd‖): the largest m with
@@ -380,9 +366,10 @@ pub fn unknowns_of_storages<const B: usize, P: Problem<B> + ?Sized>(
                 let j = B * i + rows[c];
                 a[c][nq] = target[j] - cur[j];
             }
-            let Some(dx) = solve_small(&mut a, nq) else {
+            let mut dx = [0.0; MAX_CONSERVED];
+            if !solve_dense(&mut a[..nq], &mut dx[..nq]) {
                 continue;
-            };
+            }
             for (q, &r) in rows[..nq].iter().enumerate() {
                 let x = &mut u[B * i + r];
                 let cap = 0.1 * x.abs() + 1.0;
@@ -394,37 +381,4 @@ pub fn unknowns_of_storages<const B: usize, P: Problem<B> + ?Sized>(
         u.copy_from_slice(&u_try);
     }
     worst
-}
-
-/// Solves the n × n system in `a` (augmented with the right-hand side in column n) by
-/// Gaussian elimination with partial pivoting; None when singular or not finite.
-fn solve_small(
-    a: &mut [[f64; MAX_CONSERVED + 1]; MAX_CONSERVED],
-    n: usize,
-) -> Option<[f64; MAX_CONSERVED]> {
-    for c in 0..n {
-        let p = (c..n).max_by(|&x, &y| a[x][c].abs().total_cmp(&a[y][c].abs()))?;
-        if a[p][c] == 0.0 || !a[p][c].is_finite() {
-            return None;
-        }
-        a.swap(c, p);
-        for r in c + 1..n {
-            let f = a[r][c] / a[c][c];
-            for k in c..=n {
-                a[r][k] -= f * a[c][k];
-            }
-        }
-    }
-    let mut x = [0.0; MAX_CONSERVED];
-    for c in (0..n).rev() {
-        let mut v = a[c][n];
-        for k in c + 1..n {
-            v -= a[c][k] * x[k];
-        }
-        x[c] = v / a[c][c];
-        if !x[c].is_finite() {
-            return None;
-        }
-    }
-    Some(x)
 }

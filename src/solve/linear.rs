@@ -38,6 +38,48 @@ pub trait LinearSolver<const B: usize> {
     fn arrays(&self, out: &mut Vec<crate::memory::ArrayCost>);
 }
 
+/// Solves a small dense system by Gaussian elimination with partial pivoting: `a` holds
+/// its n rows, each augmented with its right-hand side in column n; the solution goes into
+/// `x` (n values). False, with `x` unspecified, when a pivot is zero or not finite or the
+/// solution is not finite. (Cycle skipping's per-block inversion, Anderson acceleration's
+/// least squares.)
+pub fn solve_dense<R: AsRef<[f64]> + AsMut<[f64]>>(a: &mut [R], x: &mut [f64]) -> bool {
+    let n = a.len();
+    for c in 0..n {
+        let Some(p) =
+            (c..n).max_by(|&i, &j| a[i].as_ref()[c].abs().total_cmp(&a[j].as_ref()[c].abs()))
+        else {
+            return false;
+        };
+        let pivot = a[p].as_ref()[c];
+        if pivot == 0.0 || !pivot.is_finite() {
+            return false;
+        }
+        a.swap(c, p);
+        let (top, rest) = a.split_at_mut(c + 1);
+        let pivot_row = top[c].as_ref();
+        for row in rest.iter_mut() {
+            let row = row.as_mut();
+            let f = row[c] / pivot_row[c];
+            for k in c..=n {
+                row[k] -= f * pivot_row[k];
+            }
+        }
+    }
+    for c in (0..n).rev() {
+        let row = a[c].as_ref();
+        let mut v = row[n];
+        for k in c + 1..n {
+            v -= row[k] * x[k];
+        }
+        x[c] = v / row[c];
+        if !x[c].is_finite() {
+            return false;
+        }
+    }
+    true
+}
+
 /// Which linear solver a run uses.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum SolverKind {

@@ -184,3 +184,35 @@ pub trait Problem<const B: usize> {
     /// Remakes kept evaluations at the given states (as from [`Problem::kept_states`]).
     fn restore_kept(&mut self, _a: &[f64], _b: &[f64]) {}
 }
+
+/// The largest weighted change over every block and unknown, by the problem's error
+/// tests at relative tolerance `rtol` (the problem evaluated at `new`; `old` the other
+/// state the tests compare it with): an unknown's change `du(j)` over its weight, or a
+/// storage's change `ds(j)` times the test's factor over its weight (`j` the index of the
+/// unknown, or of the storage row, in the B-per-block layout). A NaN counts as infinite.
+/// The measure of cycle skipping's drift change and of the periodic state's updates.
+pub fn weighted_change<const B: usize, P: Problem<B> + ?Sized>(
+    sys: &P,
+    new: &[f64],
+    old: &[f64],
+    rtol: f64,
+    du: impl Fn(usize) -> f64,
+    ds: impl Fn(usize) -> f64,
+) -> f64 {
+    let mut worst = 0.0f64;
+    for i in 0..sys.blocks() {
+        let r = B * i..B * (i + 1);
+        for (k, test) in sys.error_tests(i, &new[r.clone()], &old[r], rtol) {
+            let e = match test {
+                ErrorTest::Unknown { den } => du(B * i + k).abs() / den,
+                ErrorTest::Storage { row, factor, den } => (factor * ds(B * i + row)).abs() / den,
+            };
+            worst = if e.is_nan() {
+                f64::INFINITY
+            } else {
+                worst.max(e)
+            };
+        }
+    }
+    worst
+}

@@ -199,3 +199,43 @@ fn check_describes_cycle_skipping() {
     let o = deepdry(&["check", arg(&plain)]);
     assert!(!stdout(&o).contains("Cycle skipping"));
 }
+
+/// What cycle skipping refuses, each in one line naming `period_year` and what is wrong:
+/// a sinusoid whose period does not divide it, a change of condition inside the run, a
+/// table that changes inside the run, and solutes.
+#[test]
+fn forcing_that_does_not_repeat_is_refused() {
+    let dir = Path::new(env!("CARGO_MANIFEST_DIR")).join("cases");
+    let refused = |extra: &[(&str, &str)]| -> String {
+        let text = demo_text(20.0, "[10.0]", true, extra);
+        let e = deepdry::case::parse(&text, "harrow-dunes (edited)", &dir)
+            .unwrap_err()
+            .to_string();
+        assert!(e.contains("period_year") && !e.contains('\n'), "{e}");
+        e
+    };
+    let e = refused(&[(
+        "temperature_C = { mean = 20.0, amplitude = 10.0, period_year = 1.0",
+        "temperature_C = { mean = 20.0, amplitude = 10.0, period_year = 1.5",
+    )]);
+    assert!(
+        e.contains("the surface temperature") && e.contains("does not divide it"),
+        "{e}"
+    );
+    let e = refused(&[(
+        "[bottom]\nhead_m = 0.0\ntemperature_C = 20.0\n",
+        "[[bottom]]\nhead_m = 0.0\ntemperature_C = 20.0\n\n[[bottom]]\nfrom_year = 12.0\nhead_m = -1.0\ntemperature_C = 20.0\n",
+    )]);
+    assert!(
+        e.contains("[bottom]") && e.contains("a change of condition at 12 yr"),
+        "{e}"
+    );
+    let e = refused(&[(
+        "[bottom]\nhead_m = 0.0\n",
+        "[bottom]\nhead_m = { table = [[0.0, 0.0], [15.0, -1.0]] }\n",
+    )]);
+    assert!(
+        e.contains("the bottom head") && e.contains("a table or stepped schedule"),
+        "{e}"
+    );
+}

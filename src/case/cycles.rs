@@ -155,40 +155,36 @@ pub fn check(t: &Table, model: &Model) -> R<()> {
             ),
         )
     };
-    // Only the periods in force during the run count.
-    let in_force = |starts: Vec<f64>| -> Vec<usize> {
-        (0..starts.len())
-            .filter(|&k| starts.get(k + 1).is_none_or(|&next| next > start) && starts[k] < end)
-            .collect()
-    };
-    let surf = &model.surface.periods;
-    for k in in_force(surf.iter().map(|p| p.0).collect()) {
-        let (b, bc) = &surf[k];
-        if inside(*b) {
-            return Err(change("[surface]", *b));
-        }
-        for (what, s) in bc.schedules() {
-            check_s(what, s)?;
-        }
+    // Only the periods in force during the run count: each with its start and schedules,
+    // the surface's, the bottom's and the plants', in that order.
+    fn in_force<T>(periods: &[(f64, T)], start: f64, end: f64) -> impl Iterator<Item = &(f64, T)> {
+        periods.iter().enumerate().filter_map(move |(k, p)| {
+            let later = periods.get(k + 1).is_none_or(|next| next.0 > start);
+            (later && p.0 < end).then_some(p)
+        })
     }
-    let bot = &model.bottom.periods;
-    for k in in_force(bot.iter().map(|p| p.0).collect()) {
-        let (b, bc) = &bot[k];
-        if inside(*b) {
-            return Err(change("[bottom]", *b));
-        }
-        for (what, s) in bc.schedules() {
-            check_s(what, s)?;
-        }
+    // (what, the period's start, its schedules with what each is)
+    type Condition<'a> = (&'a str, f64, Vec<(&'a str, &'a Schedule)>);
+    let mut conditions: Vec<Condition> = Vec::new();
+    for (b, bc) in in_force(&model.surface.periods, start, end) {
+        conditions.push(("[surface]", *b, bc.schedules().collect()));
     }
-    let veg = &model.vegetation.periods;
-    for k in in_force(veg.iter().map(|p| p.0).collect()) {
-        let (b, v) = &veg[k];
-        if inside(*b) {
-            return Err(change("[[vegetation]]", *b));
+    for (b, bc) in in_force(&model.bottom.periods, start, end) {
+        conditions.push(("[bottom]", *b, bc.schedules().collect()));
+    }
+    for (b, v) in in_force(&model.vegetation.periods, start, end) {
+        let schedules = v
+            .iter()
+            .map(|v| ("the potential transpiration", &v.transpiration))
+            .collect();
+        conditions.push(("[[vegetation]]", *b, schedules));
+    }
+    for (label, b, schedules) in conditions {
+        if inside(b) {
+            return Err(change(label, b));
         }
-        if let Some(v) = v {
-            check_s("the potential transpiration", &v.transpiration)?;
+        for (what, s) in schedules {
+            check_s(what, s)?;
         }
     }
     if !model.solutes.is_empty() {

@@ -663,6 +663,20 @@ fn write_envelope(file: &File, env: &EnvelopeState) -> hdf5::Result<()> {
         .with_data(&Array1::from_vec(counts))
         .create("cycle_skipping_counts")?;
     describe(&ds, "1", "cycle skipping: index of the last period boundary reached, periods integrated in the current block, periods of the last jump, jumps, periods skipped, boundary states kept")?;
+    if env.trial_periods > 0 || env.implicit_pause > 0 || env.last_implicit {
+        let implicit = vec![
+            env.trial_periods,
+            env.trial_steps,
+            env.implicit_failures,
+            env.implicit_pause,
+            u64::from(env.last_implicit),
+        ];
+        let ds = file
+            .new_dataset_builder()
+            .with_data(&Array1::from_vec(implicit))
+            .create("cycle_skipping_implicit")?;
+        describe(&ds, "1", "cycle skipping's implicit jumps: trial periods integrated, their time steps, jumps abandoned in a row, blocks of explicit jumps left before the next try, whether the last jump was implicit (1)")?;
+    }
     let mut values = vec![env.last_error];
     values.extend_from_slice(&env.mismatch);
     f64s(file, "cycle_skipping_values", &values, "1, J m-2, kg m-2", "cycle skipping: last error estimate (scaled), then the jumps' cumulative balance error (energy, water)")?;
@@ -698,6 +712,14 @@ fn read_envelope(
     if c.len() != 6 || v.len() != 1 + nq || c[5] > 3 {
         return Err("cycle skipping state");
     }
+    // Written only once an implicit jump was tried.
+    let implicit = match file.dataset("cycle_skipping_implicit") {
+        Ok(d) => d.read_raw::<u64>().map_err(|_| "cycle_skipping_implicit")?,
+        Err(_) => vec![0; 5],
+    };
+    if implicit.len() != 5 || implicit[4] > 1 {
+        return Err("cycle_skipping_implicit");
+    }
     let width = 2 * len + 5 * nq;
     let count = c[5] as usize;
     let points = if count == 0 {
@@ -727,6 +749,11 @@ fn read_envelope(
         skipped: c[4],
         mismatch: v[1..].to_vec(),
         last_error: v[0],
+        trial_periods: implicit[0],
+        trial_steps: implicit[1],
+        implicit_failures: implicit[2],
+        implicit_pause: implicit[3],
+        last_implicit: implicit[4] == 1,
     }))
 }
 

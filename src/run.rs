@@ -24,6 +24,20 @@ pub use crate::sim::initial::{
 pub use crate::sim::simulation::{numerical_message, series_record, step_options};
 pub use crate::sim::times::{forcing_times, sync_times, MAX_CHECKPOINT_TIMES};
 
+/// What cycle skipping did in a run.
+#[derive(Debug, Clone, PartialEq)]
+pub struct SkippingSummary {
+    pub jumps: u64,
+    pub skipped: u64,
+    /// Periods of the run (a fraction where it does not end on a boundary).
+    pub periods: f64,
+    /// The jumps' cumulative balance errors [water kg m⁻², energy J m⁻²].
+    pub mismatch: [f64; 2],
+    /// Trial periods of the implicit jumps and their time steps (0 for explicit jumps).
+    pub trial_periods: u64,
+    pub trial_steps: u64,
+}
+
 /// Options of one run that are not part of the case.
 #[derive(Debug, Clone)]
 pub struct RunOptions {
@@ -71,9 +85,8 @@ pub struct RunSummary {
     /// Per solute: its name and its final series values (as
     /// [`crate::solute::SoluteColumn::series_values`]).
     pub solutes: Vec<(String, Vec<f64>)>,
-    /// Cycle skipping (None: off): jumps, periods skipped, periods of the run, and the
-    /// jumps' cumulative balance errors [water kg m⁻², energy J m⁻²].
-    pub cycle_skipping: Option<(u64, u64, f64, [f64; 2])>,
+    /// Cycle skipping (None: off).
+    pub cycle_skipping: Option<SkippingSummary>,
     /// How the periodic initial state was found (`[initial] state = "periodic"`, a
     /// fresh start; None otherwise).
     pub spin_up: Option<crate::sim::initial::PeriodicReport>,
@@ -147,13 +160,23 @@ impl RunSummary {
                 Some(r) => format!("{}\n", r.describe()),
                 None => String::new(),
             },
-            match self.cycle_skipping {
-                Some((jumps, skipped, periods, [w, e])) => format!(
-                    "cycle skipping: {skipped} of {} periods skipped in {jumps} jumps ({} integrated); balance error of the jumps {} kg m-2 (water), {} J m-2 (energy), not included above\n",
-                    whole_or(periods),
-                    whole_or(periods - skipped as f64),
-                    human(w, 3),
-                    human(e, 3)
+            match &self.cycle_skipping {
+                Some(c) => format!(
+                    "cycle skipping: {} of {} periods skipped in {} jumps ({} integrated{}); balance error of the jumps {} kg m-2 (water), {} J m-2 (energy), not included above\n",
+                    c.skipped,
+                    whole_or(c.periods),
+                    c.jumps,
+                    whole_or(c.periods - c.skipped as f64),
+                    if c.trial_periods > 0 {
+                        format!(
+                            ", and {} trial periods of the implicit jumps in {} steps",
+                            c.trial_periods, c.trial_steps
+                        )
+                    } else {
+                        String::new()
+                    },
+                    human(c.mismatch[0], 3),
+                    human(c.mismatch[1], 3)
                 ),
                 None => String::new(),
             },
@@ -709,15 +732,17 @@ pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
         .unwrap_or_default();
     let end_year = model.time.year(sim.state().t);
     let cycle_skipping = match (sim.envelope_state(), model.time.cycle_skipping) {
-        (Some(env), Some(c)) => Some((
-            env.jumps,
-            env.skipped,
-            (sim.state().t - model.time.start) / c.period,
-            [
+        (Some(env), Some(c)) => Some(SkippingSummary {
+            jumps: env.jumps,
+            skipped: env.skipped,
+            periods: (sim.state().t - model.time.start) / c.period,
+            mismatch: [
                 env.mismatch.get(1).copied().unwrap_or(f64::NAN),
                 env.mismatch.first().copied().unwrap_or(f64::NAN),
             ],
-        )),
+            trial_periods: env.trial_periods,
+            trial_steps: env.trial_steps,
+        }),
         _ => None,
     };
     Ok(RunSummary {

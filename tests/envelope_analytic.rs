@@ -175,6 +175,7 @@ fn the_envelope_follows_the_slow_decay_of_a_linear_problem() {
         max_jump: 1000,
         tolerance: 1e-3,
         dt_after_jump: 1e-4,
+        implicit: false,
     };
     let mut env = EnvelopeState::new(0.0, 0.0, P, 0);
     env.push(&st.state);

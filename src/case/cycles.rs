@@ -17,6 +17,7 @@ pub const CYCLE_KEYS: &[&str] = &[
     "exact_periods",
     "max_jump_periods",
     "tolerance",
+    "jump",
 ];
 
 /// Default whole periods integrated exactly between two jumps.
@@ -66,11 +67,16 @@ pub fn read(t: &Table, start_year: f64, end_year: f64) -> R<Option<CycleSkipping
         "must be 1e-8 to 0.1 (relative)",
     )?
     .unwrap_or(DEFAULT_TOLERANCE);
+    let implicit = match c.get("jump") {
+        Some(v) => v.choice(&["explicit", "implicit"])? == "implicit",
+        None => false,
+    };
     Ok(Some(CycleSkipping {
         period: period * SECONDS_PER_YEAR,
         exact_periods: exact,
         max_jump_periods: max_jump,
         tolerance,
+        implicit,
     }))
 }
 

@@ -351,13 +351,18 @@ pub fn summary(m: &Model) -> String {
         fmt_g(t.atol_vapor)
     );
     if let Some(c) = &t.cycle_skipping {
+        let how = if c.implicit {
+            "an implicit jump (backward Euler on the envelope, solved by trial periods on the steps of one recorded period) of up to {} periods while its estimated error (½ m × the change of the drift over the jump) is"
+        } else {
+            "a jump of up to {} periods along the drift of the last one while its estimated error (½ m (m + 1) × the change of the drift between periods) is"
+        }
+        .replace("{}", &c.max_jump_periods.to_string());
         let _ = writeln!(
             o,
-            "Cycle skipping: forcing period {} yr from year {}; {} whole periods integrated, then a jump of up to {} periods along the drift of the last one while its estimated error (½ m (m + 1) × the change of the drift between periods) is within rtol {} and the case's atol; snapshots, checkpoint times and the end are always integrated (a jump never reaches them); the forcing was checked to repeat with this period",
+            "Cycle skipping: forcing period {} yr from year {}; {} whole periods integrated, then {how} within rtol {} and the case's atol; snapshots, checkpoint times and the end are always integrated (a jump never reaches them); the forcing was checked to repeat with this period",
             fmt_g(c.period / crate::props::constants::SECONDS_PER_YEAR),
             year_of(t.start),
             c.exact_periods,
-            c.max_jump_periods,
             fmt_g(c.tolerance)
         );
     }

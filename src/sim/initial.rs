@@ -11,13 +11,15 @@ use crate::physics::dual::D3;
 use crate::physics::{ColumnStepper as Stepper, System, H, RV, T};
 use crate::schedule::Schedule;
 use crate::solve::blocktri::BlockTri;
-use crate::solve::envelope::unknowns_of_storages;
-use crate::solve::linear::{make_solver, solve_dense, SolverKind};
+use crate::solve::linear::{make_solver, SolverKind};
 use crate::solve::problem::{weighted_change, Problem};
 use crate::solve::stepper::StepOptions;
 
+use super::period::{
+    add_jacobian_sample, corrected, one_period, periodic_model, weights_of, Anderson,
+    MeanLinearization,
+};
 use super::simulation::numerical_message;
-use super::{Begin, OutputPosition, Simulation, SyncPlan};
 
 fn frozen(s: &Schedule, t: f64) -> Schedule {
     Schedule::Constant(s.value(t))
@@ -224,32 +226,6 @@ pub fn initial_unknowns_reported(
     Ok((u?, None))
 }
 
-/// The model of one period of the spin-up: `model` from its start over one `period`
-/// under `surface` and `bottom` (and the plants in force at the start), without outputs,
-/// checkpoints, solutes or cycle skipping.
-pub fn periodic_model(model: &Model, surface: &SurfaceBc, bottom: &BottomBc, period: f64) -> Model {
-    let mut m = model.clone();
-    let t0 = model.time.start;
-    m.time.end = t0 + period;
-    m.time.cycle_skipping = None;
-    m.surface = Periods::single(surface.clone());
-    m.bottom = Periods::single(bottom.clone());
-    m.vegetation = Periods::single(model.vegetation.at(t0).clone());
-    // The Jacobian samples of the period's mean: midpoints of JACOBIAN_SAMPLES equal parts.
-    m.output.snapshot_times = (0..JACOBIAN_SAMPLES)
-        .map(|k| t0 + (k as f64 + 0.5) / JACOBIAN_SAMPLES as f64 * period)
-        .chain(std::iter::once(m.time.end))
-        .collect();
-    m.checkpoint.every = None;
-    m.checkpoint.wall_every = None;
-    m.solutes.clear();
-    m
-}
-
-/// Jacobians averaged over a period of the spin-up (the midpoint rule, exact for the
-/// harmonics of the period below this order).
-const JACOBIAN_SAMPLES: usize = 16;
-
 /// How the periodic steady state was found.
 #[derive(Debug, Clone, Default, PartialEq)]
 pub struct PeriodicReport {
@@ -318,126 +294,6 @@ impl PeriodicReport {
             crate::output::human(self.steady_surface_water * yr, 4),
             crate::output::human(self.steady_bottom_water * yr, 4),
         ) + &self.other_flows()
-    }
-}
-
-/// What one period of the spin-up model gives.
-struct PeriodEnd {
-    u: Vec<f64>,
-    steps: u64,
-    /// Cumulative inflow through the surface, net inflow, outflow to sinks (roots) and
-    /// runoff (energy, water).
-    top_inflow: [f64; 2],
-    inflow: [f64; 2],
-    sink: [f64; 2],
-    runoff: [f64; 2],
-}
-
-/// Integrates the spin-up model `m` over its one period from `u` (the run's own
-/// time stepping, landing on the forcing's breakpoints), calling `sample` with the time
-/// and state at each of the model's snapshot times before its end.
-fn one_period(
-    m: &Model,
-    u: &[f64],
-    dt: f64,
-    solver: SolverKind,
-    sample: &mut dyn FnMut(f64, &[f64]) -> Result<()>,
-) -> Result<PeriodEnd> {
-    let plan = SyncPlan::new(m)?;
-    let syncs = plan.syncs.clone();
-    let begin = Begin::Unknowns {
-        t: m.time.start,
-        dt,
-        u: u.to_vec(),
-    };
-    let mut sim = Simulation::new(m, plan, begin, OutputPosition::default(), solver, None)?;
-    for t in syncs {
-        sim.advance_to(t, &mut [])?;
-        if t < m.time.end && m.output.snapshot_times.contains(&t) {
-            sample(t, &sim.state().u)?;
-        }
-    }
-    let st = sim.state();
-    let two = |v: &[f64]| [v[0], v[1]];
-    Ok(PeriodEnd {
-        u: st.u.clone(),
-        steps: st.counters.steps,
-        top_inflow: two(&st.top_inflow),
-        inflow: two(&st.inflow),
-        sink: two(&st.sink),
-        runoff: two(&st.runoff),
-    })
-}
-
-/// The period-mean linearisation of the last period: (S/τ − F̄) δ = ΔS/P.
-struct MeanLinearization {
-    /// −F̄, unscaled.
-    mean_jac: BlockTri<3>,
-    /// S: the storage Jacobian (diagonal blocks) at the period's end.
-    stor: Vec<crate::solve::blocktri::Block<3>>,
-    /// Row and column scales, and ΔS/P.
-    row: Vec<f64>,
-    col: Vec<f64>,
-    rhs: Vec<f64>,
-    a: BlockTri<3>,
-    lin: Box<dyn crate::solve::linear::LinearSolver<3>>,
-}
-
-impl MeanLinearization {
-    fn new(n: usize, solver: SolverKind) -> Self {
-        MeanLinearization {
-            mean_jac: BlockTri::new(n),
-            stor: vec![[[0.0; 3]; 3]; n],
-            row: vec![0.0; 3 * n],
-            col: vec![0.0; 3 * n],
-            rhs: vec![0.0; 3 * n],
-            a: BlockTri::new(n),
-            lin: make_solver(solver, n),
-        }
-    }
-
-    /// The change of storage `j` (block j / 3, row j % 3) that update `delta` makes to
-    /// first order, (S δ)_j / V.
-    fn content_change(&self, delta: &[f64], volumes: &[f64], j: usize) -> f64 {
-        let (i, r) = (j / 3, j % 3);
-        (0..3)
-            .map(|c| self.stor[i][r][c] * delta[3 * i + c])
-            .sum::<f64>()
-            / volumes[i]
-    }
-
-    /// δ, unscaled, for pseudo-time step `tau` [s] (∞: without S).
-    fn solve(&mut self, tau: f64, delta: &mut [f64]) -> std::result::Result<(), String> {
-        let a = &mut self.a;
-        a.lower.copy_from_slice(&self.mean_jac.lower);
-        a.upper.copy_from_slice(&self.mean_jac.upper);
-        for (d, (mj, st)) in a
-            .diag
-            .iter_mut()
-            .zip(self.mean_jac.diag.iter().zip(&self.stor))
-        {
-            for r in 0..3 {
-                for c in 0..3 {
-                    d[r][c] = mj[r][c] + st[r][c] / tau;
-                }
-            }
-        }
-        a.scale(&self.row, &self.col);
-        for ((d, r), x) in delta.iter_mut().zip(&self.row).zip(&self.rhs) {
-            *d = x * r;
-        }
-        self.lin
-            .factor(a)
-            .and_then(|_| self.lin.solve(delta))
-            .map_err(|e| {
-                format!(
-                    "the period-mean Jacobian cannot be solved ({e:?}): a column closed at both ends has no unique periodic state"
-                )
-            })?;
-        for (d, c) in delta.iter_mut().zip(&self.col) {
-            *d *= c;
-        }
-        Ok(())
     }
 }
 
@@ -515,7 +371,7 @@ pub fn periodic_steady_state(
     let dt = m.time.dt_initial;
     let mut tau = period;
     let tau_max = ANDERSON_TAU_SECONDS.max(1.0e3 * period);
-    let mut anderson = Anderson::default();
+    let mut anderson = Anderson::new(ANDERSON_DEPTH);
     // The last period's end, to take the update again from.
     let mut base: Option<(Vec<f64>, Vec<f64>)> = None;
     loop {
@@ -530,28 +386,7 @@ pub fn periodic_steady_state(
         // The period-mean Jacobian of the fluxes, −F̄, summed from its samples.
         acc.zero();
         let mut sample = |t: f64, u: &[f64]| -> Result<()> {
-            sys.forget_kept();
-            sys.assemble(t, u, 0.0, &zeros, &mut res, Some(&mut jac))
-                .map_err(|nf| {
-                    Error::Numerical(format!(
-                        "the Jacobian is not finite at cell {} row {}",
-                        nf.cell, nf.row
-                    ))
-                })?;
-            for (a, b) in [
-                (&mut acc.lower, &jac.lower),
-                (&mut acc.diag, &jac.diag),
-                (&mut acc.upper, &jac.upper),
-            ] {
-                for (x, y) in a.iter_mut().zip(b.iter()) {
-                    for r in 0..B {
-                        for c in 0..B {
-                            x[r][c] += y[r][c] / JACOBIAN_SAMPLES as f64;
-                        }
-                    }
-                }
-            }
-            Ok(())
+            add_jacobian_sample(&mut sys, t, u, &zeros, &mut res, &mut jac, &mut acc)
         };
         let end = match one_period(m, &x, dt, solver, &mut sample) {
             Ok(e) => e,
@@ -685,39 +520,6 @@ pub fn periodic_steady_state(
     }
 }
 
-/// The state the update `delta` from `phi` (storages `s_phi`) leads to, in the contents:
-/// the contents of `phi` moved by S δ (S: the storage Jacobian blocks of `lin`), and the
-/// unknowns found from them cell by cell ([`unknowns_of_storages`]), from the update
-/// limited as a Newton update ([`Problem::apply_update`]); the vapour in equilibrium where
-/// it is algebraic. Where a small change of content is a large change of head (dry
-/// cells), the head follows the content, not the linearisation.
-fn corrected(
-    sys: &mut System,
-    t: f64,
-    phi: &[f64],
-    s_phi: &[f64],
-    delta: &mut [f64],
-    lin: &MeanLinearization,
-) -> Vec<f64> {
-    let n = sys.n;
-    let mut target = s_phi.to_vec();
-    let mut scale = vec![0.0; 3 * n];
-    let volumes = sys.volumes().to_vec();
-    for j in 0..3 * n {
-        let change = lin.content_change(delta, &volumes, j);
-        target[j] += change;
-        scale[j] = target[j].abs().max(change.abs());
-    }
-    let mut u = phi.to_vec();
-    let ones = vec![1.0; 3 * n];
-    sys.apply_update(&mut u, delta, &ones);
-    unknowns_of_storages(sys, t, &mut u, &target, &scale, phi);
-    if sys.last_unknown_decoupled() {
-        equilibrate_vapor(&mut u);
-    }
-    u
-}
-
 /// The pseudo-time step of the continuation at which Anderson acceleration takes over
 /// (with τ held) [s]: 10³ years, at least 10³ periods. Longer steps of the mean
 /// Jacobian overshoot the slow modes of the sand columns we measured (`harrow-dunes`
@@ -729,84 +531,6 @@ const ANDERSON_TAU_SECONDS: f64 = 1.0e3 * crate::props::constants::SECONDS_PER_Y
 /// Past iterates Anderson acceleration combines.
 const ANDERSON_DEPTH: usize = 5;
 
-/// Weights of the unknowns for the acceleration: temperature in K, head relative to
-/// 1 m + |h|, vapour density relative to 1e-3 kg m⁻³ + ρv.
-fn weights_of(u: &[f64]) -> Vec<f64> {
-    u.chunks_exact(3)
-        .flat_map(|x| [1.0, 1.0 / (1.0 + x[H].abs()), 1.0 / (1e-3 + x[RV].abs())])
-        .collect()
-}
-
-/// Anderson acceleration (Walker & Ni 2011, SIAM J. Numer. Anal. 49: "Anderson
-/// acceleration for fixed-point iterations", type II with unconstrained least squares)
-/// of x ← g(x): the next iterate is g_k − Σ γ_j Δg_j with γ minimising
-/// ‖f_k − Σ γ_j Δf_j‖ (f = g − x, weighted), over the last [`ANDERSON_DEPTH`] differences.
-#[derive(Default)]
-struct Anderson {
-    g: std::collections::VecDeque<Vec<f64>>,
-    f: std::collections::VecDeque<Vec<f64>>,
-}
-
-impl Anderson {
-    fn len(&self) -> usize {
-        self.g.len()
-    }
-
-    fn clear(&mut self) {
-        self.g.clear();
-        self.f.clear();
-    }
-
-    fn next(&mut self, x: &[f64], g: &[f64], w: &[f64]) -> Vec<f64> {
-        let f: Vec<f64> = g
-            .iter()
-            .zip(x)
-            .zip(w)
-            .map(|((g, x), w)| (g - x) * w)
-            .collect();
-        self.g.push_back(g.to_vec());
-        self.f.push_back(f);
-        if self.g.len() > ANDERSON_DEPTH + 1 {
-            self.g.pop_front();
-            self.f.pop_front();
-        }
-        let k = self.g.len() - 1;
-        if k == 0 {
-            return g.to_vec();
-        }
-        let df: Vec<Vec<f64>> = (0..k)
-            .map(|j| {
-                self.f[j + 1]
-                    .iter()
-                    .zip(&self.f[j])
-                    .map(|(a, b)| a - b)
-                    .collect()
-            })
-            .collect();
-        let fk = &self.f[k];
-        // The normal equations, each row augmented with its right-hand side.
-        let mut a = vec![vec![0.0; k + 1]; k];
-        for i in 0..k {
-            for j in 0..k {
-                a[i][j] = df[i].iter().zip(&df[j]).map(|(p, q)| p * q).sum();
-            }
-            a[i][i] *= 1.0 + 1e-10;
-            a[i][k] = df[i].iter().zip(fk).map(|(p, q)| p * q).sum();
-        }
-        let mut gamma = vec![0.0; k];
-        if !solve_dense(&mut a, &mut gamma) {
-            self.clear();
-            return g.to_vec();
-        }
-        let mut out = g.to_vec();
-        for (j, gj) in gamma.iter().enumerate() {
-            for ((o, g1), g0) in out.iter_mut().zip(&self.g[j + 1]).zip(&self.g[j]) {
-                *o -= gj * (g1 - g0);
-            }
-        }
-        out
-    }
-}
 /// Steady state of `model` (its boundary conditions must be time-independent) by
 /// pseudo-transient continuation: backward-Euler steps from `guess` with Δt growing
 /// without bound, until the state stops changing at Δt ≥ 10¹⁶ s.

@@ -3,13 +3,17 @@
 //! progress bar and an in-memory [`Recorder`] are observers. `deepdry run` composes them
 //! in [`crate::run`]; [`run_in_memory`] is a simulation with a recorder and no files.
 //!
+//! - [`implicit_jump`] cycle skipping's implicit jump (backward Euler on the envelope)
 //! - [`initial`]     initial states (hydrostatic, profile, steady state)
+//! - [`period`]      one period of a periodic forcing and its mean linearisation
 //! - [`times`]       sync times: forcing breakpoints, snapshots, checkpoints, the end
 //! - [`simulation`]  the simulation, its observer trait and events
 //! - [`observers`]   results writer, checkpointer, progress bar, recorder
 
+pub mod implicit_jump;
 pub mod initial;
 pub mod observers;
+pub mod period;
 pub mod simulation;
 pub mod times;
 

@@ -9,6 +9,7 @@
 //! whatever observes it, so a run writing files and one recording in memory give the
 //! same numbers bitwise.
 
+use super::implicit_jump::implicit_jump;
 use crate::error::{Error, Result};
 use crate::model::Model;
 use crate::output::diagnostics::{drying_front_depth, Profile, SeriesRecord};
@@ -112,6 +113,7 @@ pub fn envelope_options(model: &Model) -> Option<EnvelopeOptions> {
         max_jump: c.max_jump_periods,
         tolerance: c.tolerance,
         dt_after_jump: model.time.dt_initial,
+        implicit: c.implicit,
     })
 }
 
@@ -388,6 +390,8 @@ pub struct Simulation<'m> {
     /// Periods skipped by the jump that ends at the current state (0: the state was
     /// reached by a step); for the series record of a jump.
     just_skipped: u64,
+    /// The linear solver's kind (for the trial periods of implicit jumps).
+    solver: SolverKind,
 }
 
 impl<'m> Simulation<'m> {
@@ -450,7 +454,19 @@ impl<'m> Simulation<'m> {
             solutes,
             envelope,
             just_skipped: 0,
+            solver,
         })
+    }
+
+    /// Steps to take as given (see [`crate::solve::stepper::Replay`]); None: by the
+    /// error test.
+    pub fn set_replay(&mut self, replay: Option<crate::solve::stepper::Replay>) {
+        self.st.replay = replay;
+    }
+
+    /// The replay going on, if any (`broken` when a given step failed).
+    pub fn replay(&self) -> Option<&crate::solve::stepper::Replay> {
+        self.st.replay.as_ref()
     }
 
     /// Where cycle skipping stands (None: off).
@@ -642,15 +658,7 @@ impl<'m> Simulation<'m> {
             if env.exact < opts.exact_periods || env.points.len() < 3 {
                 continue;
             }
-            // The error tests read the state's cells: evaluate it directly (the same
-            // whatever the solver kept, so a resumed run decides the same).
             let t = self.st.state.t;
-            self.sys.evaluate_direct(t, &self.st.state.u);
-            let Some((_, env)) = self.envelope.as_mut() else {
-                return Ok(Advance::Reached);
-            };
-            let err = envelope::drift_change(&self.sys, &env.points, opts.tolerance);
-            env.last_error = err;
             // Whole periods before the next sync time, landing strictly before it.
             let next_sync = self
                 .plan
@@ -662,14 +670,83 @@ impl<'m> Simulation<'m> {
             while room > 0 && envelope::boundary(t0, p, env.period + room) >= next_sync {
                 room -= 1;
             }
-            let m = envelope::jump_size(err, &opts, env.last_jump, room);
-            if m == 0 {
-                continue;
+            // The implicit jump where it is asked for and not paused after failures;
+            // where it is abandoned, the explicit jump of the same block.
+            let mut implicit_done = None;
+            if opts.implicit && env.implicit_pause > 0 {
+                env.implicit_pause -= 1;
+            } else if opts.implicit {
+                let asked = envelope::implicit_jump_size(&opts, env, room);
+                let k = env.period;
+                let time_of = |m: u64| envelope::boundary(t0, p, k + m);
+                let found = if asked == 0 {
+                    Err((
+                        "no room before the next sync time".to_string(),
+                        Default::default(),
+                    ))
+                } else {
+                    implicit_jump(self.model, &env.points, &opts, asked, &time_of, self.solver)
+                };
+                let work = match &found {
+                    Ok((_, w)) | Err((_, w)) => *w,
+                };
+                env.trial_periods += work.periods;
+                env.trial_steps += work.steps;
+                match found {
+                    Ok((jump, _)) => {
+                        let m = jump.periods;
+                        let left = envelope::land(
+                            &mut self.sys,
+                            &mut self.st,
+                            env,
+                            &opts,
+                            m,
+                            time_of(m),
+                            jump.landing,
+                        );
+                        env.last_error = jump.error;
+                        env.last_implicit = true;
+                        env.implicit_failures = 0;
+                        implicit_done = Some((m, left, jump.error));
+                    }
+                    Err((why, _)) if asked > 0 => {
+                        // Explicit jumps for the next 2^f − 1 blocks after f failures in
+                        // a row (at most 63): each failure cost trial periods.
+                        env.implicit_failures += 1;
+                        env.implicit_pause = (1u64 << env.implicit_failures.min(6)) - 1;
+                        log::debug!(
+                            "cycle skipping: implicit jump of {asked} periods abandoned at year {:.6}: {why}; explicit jumps for {} blocks",
+                            self.model.time.year(t),
+                            env.implicit_pause
+                        );
+                    }
+                    Err(_) => {}
+                }
             }
-            let t_new = envelope::boundary(t0, p, env.period + m);
-            let left = envelope::jump(&mut self.sys, &mut self.st, env, &opts, m, t_new);
+            let (m, left, err) = match implicit_done {
+                Some(done) => done,
+                None => {
+                    // The error tests read the state's cells: evaluate it directly (the
+                    // same whatever the solver kept, so a resumed run decides the same).
+                    self.sys.evaluate_direct(t, &self.st.state.u);
+                    let Some((_, env)) = self.envelope.as_mut() else {
+                        return Ok(Advance::Reached);
+                    };
+                    let err = envelope::drift_change(&self.sys, &env.points, opts.tolerance);
+                    env.last_error = err;
+                    let m = envelope::jump_size(err, &opts, env.last_jump, room);
+                    if m == 0 {
+                        continue;
+                    }
+                    let t_new = envelope::boundary(t0, p, env.period + m);
+                    let left = envelope::jump(&mut self.sys, &mut self.st, env, &opts, m, t_new);
+                    env.last_implicit = false;
+                    (m, left, err)
+                }
+            };
+            let t_new = envelope::boundary(t0, p, period + 1 + m);
             log::debug!(
-                "cycle skipping: jumped {m} periods to year {:.6} (drift change {err:.3e}, storage residual {left:.1e})",
+                "cycle skipping: jumped {m} periods to year {:.6} (error estimate {err:.3e}, storage residual {left:.1e})",
                 self.model.time.year(t_new)
             );
             self.just_skipped = m;

@@ -66,6 +66,9 @@ pub struct EnvelopeOptions {
     pub tolerance: f64,
     /// Step size [s] the integration restarts with after a jump (at most).
     pub dt_after_jump: f64,
+    /// Jumps by backward Euler on the envelope, solved by the driver (which integrates
+    /// trial periods), instead of [`explicit_landing`].
+    pub implicit: bool,
 }
 
 /// A state at a period boundary: unknowns, storages and the cumulative flows
@@ -111,6 +114,16 @@ pub struct EnvelopeState {
     pub mismatch: Vec<f64>,
     /// The last error estimate ‖Δd‖ (scaled; per period²).
     pub last_error: f64,
+    /// Trial periods the implicit jumps integrated (their Newton iterations), and their
+    /// time steps; not part of the run's own steps.
+    pub trial_periods: u64,
+    pub trial_steps: u64,
+    /// Implicit jumps abandoned in a row, and the blocks left before the next is tried
+    /// (explicit jumps meanwhile).
+    pub implicit_failures: u64,
+    pub implicit_pause: u64,
+    /// Whether the last jump was implicit (its error estimate sizes the next).
+    pub last_implicit: bool,
 }
 
 impl EnvelopeState {
@@ -191,25 +204,72 @@ pub fn jump_size(err: f64, opts: &EnvelopeOptions, last_jump: u64, room: u64) ->
     }
 }
 
+/// The size [periods] of the next implicit jump: after an implicit jump, that jump
+/// grown or shrunk by its error estimate (backward Euler's error grows as m²: by
+/// 0.9/√err, at most 4× and at least 0.2×); after an explicit jump, twice that jump; at
+/// the start, the exact periods of a block; at most `opts.max_jump` and `room`.
+pub fn implicit_jump_size(opts: &EnvelopeOptions, env: &EnvelopeState, room: u64) -> u64 {
+    let m = if env.last_jump == 0 {
+        opts.exact_periods
+    } else if env.last_implicit && env.last_error.is_finite() {
+        let factor = (0.9 / env.last_error.max(1e-12).sqrt()).clamp(0.2, 4.0);
+        ((env.last_jump as f64 * factor).floor() as u64).max(1)
+    } else {
+        2 * env.last_jump
+    };
+    m.min(opts.max_jump).min(room)
+}
+
 /// Most Newton iterations of the inversion of the extrapolated storages.
 pub const INVERSION_ITERATIONS: usize = 30;
 /// The inversion stops when every conserved storage is within this fraction of its
 /// value (or of its change over the jump, where that is larger).
 pub const INVERSION_TOLERANCE: f64 = 1.0e-12;
 
+/// Where a jump lands: the storages of every block (all rows; the conserved ones are
+/// matched by the unknowns), the cumulative flows (as [`PeriodPoint::flows`]), and the
+/// unknowns the inversion starts from.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Landing {
+    pub u: Vec<f64>,
+    pub storage: Vec<f64>,
+    pub flows: Vec<f64>,
+}
+
+/// The explicit jump's landing: `m` periods along the drift of the last kept points,
+/// x₂ + m ∇x, for the unknowns (kept admissible by [`Problem::limit_prediction`]), the
+/// storages and the cumulative flows alike. (The quadratic through the three points,
+/// x₂ + m ∇x + ½ m (m + 1) ∇²x, is more accurate on a smooth envelope but amplifies the
+/// integration's period-to-period scatter by m²: on `cases/harrow-dunes.toml` over 10⁴
+/// years it moved the water taken in from the water table by 36 % against 7 % for the
+/// linear one; see DEVELOPERS.md.)
+pub fn explicit_landing<const B: usize, P: Problem<B> + ?Sized>(
+    sys: &P,
+    points: &[PeriodPoint],
+    m: u64,
+) -> Landing {
+    let n = points.len();
+    assert!(
+        n >= 3,
+        "a jump follows an error estimate from three boundary states"
+    );
+    let (p1, p2) = (&points[n - 2], &points[n - 1]);
+    let mf = m as f64;
+    let ext = |a: &[f64], b: &[f64]| -> Vec<f64> {
+        a.iter().zip(b).map(|(&x, &y)| x + mf * (x - y)).collect()
+    };
+    let mut u = ext(&p2.u, &p1.u);
+    sys.limit_prediction(&mut u, &p2.u);
+    Landing {
+        u,
+        storage: ext(&p2.storage, &p1.storage),
+        flows: ext(&p2.flows, &p1.flows),
+    }
+}
+
 /// Jumps `m` periods along the drift of the last kept points (the newest is the stepper's
-/// state) to time `t_new`. The conserved storages of every block are extrapolated
-/// along their drift, so that the content of each conserved quantity
-/// moves as the extrapolated net inflow, and the unknowns are found by Newton's method on
-/// M(u) = M* block by block (storages are block-local, [`Problem::storage_jacobian_into`];
-/// here with forward differences, the unknown k of a conserved row k solved for), from
-/// the extrapolation of the unknowns (kept admissible by
-/// [`Problem::limit_prediction`]); the other unknowns keep their extrapolation. The
-/// cumulative flows are extrapolated likewise; what the inversion leaves (a block that
-/// did not converge, round-off) is the jump's balance error, added to the net inflow and
-/// to `env.mismatch`. The multistep history restarts with a step of at most
-/// `opts.dt_after_jump`; the new state becomes the first point of the next block.
-/// Returns the largest relative storage residual the inversion left.
+/// state) to time `t_new` ([`explicit_landing`], then [`land`]). Returns the largest
+/// relative storage residual the inversion left.
 pub fn jump<const B: usize, P: Problem<B> + ?Sized>(
     sys: &mut P,
     st: &mut Stepper<B>,
@@ -218,42 +278,45 @@ pub fn jump<const B: usize, P: Problem<B> + ?Sized>(
     m: u64,
     t_new: f64,
 ) -> f64 {
-    let n = env.points.len();
-    assert!(
-        n >= 3,
-        "a jump follows an error estimate from three boundary states"
-    );
-    let (p0, p1, p2) = (&env.points[n - 3], &env.points[n - 2], &env.points[n - 1]);
-    let mf = m as f64;
-    // Linear extrapolation along the last drift: x2 + m ∇x. (The quadratic through the
-    // three points, x2 + m ∇x + ½ m (m + 1) ∇²x, is more accurate on a smooth envelope
-    // but amplifies the integration's period-to-period scatter by m²: on
-    // `cases/harrow-dunes.toml` over 10⁴ years it moved the water taken in from the water
-    // table by 36 % against 7 % for the linear one; see DEVELOPERS.md.)
-    let ext = move |a: f64, b: f64, _c: f64| a + mf * (a - b);
+    let landing = explicit_landing(sys, &env.points, m);
+    land(sys, st, env, opts, m, t_new, landing)
+}
+
+/// Puts the stepper's state at the end of a jump of `m` periods from the newest kept
+/// point to time `t_new`, at `landing`: the unknowns are found from the landing's
+/// storages by Newton's method on M(u) = M* block by block ([`unknowns_of_storages`],
+/// from the landing's unknowns; storages are block-local), the other unknowns keep the
+/// landing's; the cumulative flows are the landing's. What the inversion leaves (a
+/// block that did not converge, round-off), storage change − net inflow over the jump,
+/// is the jump's balance error: added to the net inflow and to `env.mismatch`. The
+/// multistep history restarts with a step of at most `opts.dt_after_jump`; the new state
+/// becomes the first point of the next block. Returns the largest relative storage
+/// residual the inversion left.
+pub fn land<const B: usize, P: Problem<B> + ?Sized>(
+    sys: &mut P,
+    st: &mut Stepper<B>,
+    env: &mut EnvelopeState,
+    opts: &EnvelopeOptions,
+    m: u64,
+    t_new: f64,
+    landing: Landing,
+) -> f64 {
+    let p2 = env
+        .points
+        .last()
+        .expect("a jump starts from a kept boundary state");
     let rows: Vec<usize> = sys.conserved_rows().to_vec();
     let nq = rows.len().min(MAX_CONSERVED);
     let s = &mut st.state;
-    let old = p2.u.clone();
-    for (((x, &a), &b), &c) in s.u.iter_mut().zip(&p2.u).zip(&p1.u).zip(&p0.u) {
-        *x = ext(a, b, c);
-    }
-    sys.limit_prediction(&mut s.u, &old);
+    let Landing {
+        u,
+        storage: target,
+        flows,
+    } = landing;
+    s.u = u;
     s.t = t_new;
-    // Target storages and the Newton iteration on M(u) = M*.
-    let target: Vec<f64> = p2
-        .storage
-        .iter()
-        .zip(&p1.storage)
-        .zip(&p0.storage)
-        .map(|((&a, &b), &c)| ext(a, b, c))
-        .collect();
-    let scale: Vec<f64> = target
-        .iter()
-        .zip(p2.storage.iter().zip(&p1.storage))
-        .map(|(t, (a, b))| t.abs().max(mf * (a - b).abs()))
-        .collect();
-    let worst = unknowns_of_storages(sys, t_new, &mut s.u, &target, &scale, &old);
+    let scale = inversion_scale(&target, &p2.storage);
+    let worst = unknowns_of_storages(sys, t_new, &mut s.u, &target, &scale, &p2.u);
     sys.evaluate(t_new, &s.u);
     sys.storage_into(&mut s.storage);
     // Storage change over the jump per conserved quantity, summed block by block.
@@ -270,17 +333,18 @@ pub fn jump<const B: usize, P: Problem<B> + ?Sized>(
         }
     }
     let q = s.inflow.len();
-    let extrapolate = |dst: &mut Vec<f64>, part: usize| {
-        for (k, x) in dst.iter_mut().enumerate() {
-            let j = part * q + k;
-            *x = ext(p2.flows[j], p1.flows[j], p0.flows[j]);
-        }
-    };
-    extrapolate(&mut s.inflow, 0);
-    extrapolate(&mut s.throughput, 1);
-    extrapolate(&mut s.top_inflow, 2);
-    extrapolate(&mut s.sink, 3);
-    extrapolate(&mut s.runoff, 4);
+    for (part, dst) in [
+        &mut s.inflow,
+        &mut s.throughput,
+        &mut s.top_inflow,
+        &mut s.sink,
+        &mut s.runoff,
+    ]
+    .into_iter()
+    .enumerate()
+    {
+        dst.copy_from_slice(&flows[part * q..(part + 1) * q]);
+    }
     for k in 0..nq.min(q) {
         let mismatch = change[k] - (s.inflow[k] - p2.flows[k]);
         s.inflow[k] += mismatch;
@@ -296,6 +360,16 @@ pub fn jump<const B: usize, P: Problem<B> + ?Sized>(
     env.points.clear();
     env.points.push(PeriodPoint::of(&st.state));
     worst
+}
+
+/// The scale of each storage of a jump's inversion: its `target` value, or its change
+/// from the boundary state's (`from`) where larger.
+pub fn inversion_scale(target: &[f64], from: &[f64]) -> Vec<f64> {
+    target
+        .iter()
+        .zip(from)
+        .map(|(t, a)| t.abs().max((t - a).abs()))
+        .collect()
 }
 
 /// Finds the unknowns `u` (from their value on entry) whose storages of the conserved

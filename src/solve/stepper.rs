@@ -205,6 +205,21 @@ pub struct Stepper<const B: usize> {
     /// recomputed where its times are not those of the points (after a restart, or a
     /// state set from outside, as the osmotic coupling does when it retries a step).
     changes: Vec<(f64, Conserved)>,
+    /// Steps to take as given instead of by the error test (see [`Replay`]).
+    pub replay: Option<Replay>,
+}
+
+/// A sequence of steps (size [s] and BDF order) taken as given, without the local error
+/// test: the steps of another integration of the same interval from the same start time,
+/// so that integrations from different states take the same steps and the map from the
+/// start state to the end state is smooth (cycle skipping's implicit jumps). A step
+/// whose Newton iteration fails ends the replay (`broken`), and the stepper goes on by
+/// its error test.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct Replay {
+    pub steps: Vec<(f64, usize)>,
+    pub next: usize,
+    pub broken: bool,
 }
 
 /// One cumulative quantity of a history point (inflow, throughput, top inflow, sink,
@@ -335,6 +350,7 @@ impl<const B: usize> Stepper<B> {
             u_old: vec![0.0; len],
             hist: vec![0.0; len],
             changes: Vec::new(),
+            replay: None,
         }
     }
 
@@ -910,7 +926,16 @@ impl<const B: usize> Stepper<B> {
         self.work.invalidate();
         let mut dt_try = self.state.dt.min(self.opts.dt_max);
         let mut error_failures = 0usize;
+        // The step given by a replay, if one is going on.
+        let mut given = match &self.replay {
+            Some(r) if !r.broken && r.next < r.steps.len() => Some(r.steps[r.next]),
+            _ => None,
+        };
         loop {
+            if let Some((dt_given, order)) = given {
+                dt_try = dt_given;
+                self.state.order = order;
+            }
             let a = self.prepare(sys, t_stop, dt_try, bdf.is_some());
             self.work.balance_window = match self.opts.newton.cumulative_balance_tol {
                 Some(tol) => {
@@ -935,6 +960,11 @@ impl<const B: usize> Stepper<B> {
                 Ok(stats) => stats,
                 Err(failure) => {
                     s.counters.rejected += 1;
+                    if given.take().is_some() {
+                        if let Some(r) = self.replay.as_mut() {
+                            r.broken = true;
+                        }
+                    }
                     // The retry starts with a Jacobian evaluated at its own start.
                     self.work.invalidate();
                     if dt <= self.opts.dt_min * (1.0 + 1e-9) {
@@ -959,6 +989,19 @@ impl<const B: usize> Stepper<B> {
                 }
             };
             s.counters.add(&stats);
+            if given.is_some() {
+                if let Some(r) = self.replay.as_mut() {
+                    r.next += 1;
+                }
+                let keep = bdf.map_or(1, |(max_order, _)| max_order + 1);
+                self.accept(sys, &a, dt_try, 1.0, keep);
+                return Ok(StepInfo {
+                    dt,
+                    newton_iterations: stats.iterations,
+                    order: a.k,
+                    alpha: a.alpha,
+                });
+            }
             let (factor, keep) = match bdf {
                 Some((max_order, rtol)) => {
                     match self.judge(sys, &a, &stats, max_order, rtol, &mut error_failures) {

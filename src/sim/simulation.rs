@@ -676,7 +676,14 @@ impl<'m> Simulation<'m> {
             if opts.implicit && env.implicit_pause > 0 {
                 env.implicit_pause -= 1;
             } else if opts.implicit {
-                let asked = envelope::implicit_jump_size(&opts, env, room);
+                // Landing at least a block before the next sync time: what is output is
+                // then E integrated periods past a landing (the error estimate counts
+                // on it).
+                let asked = envelope::implicit_jump_size(
+                    &opts,
+                    env,
+                    room.saturating_sub(opts.exact_periods),
+                );
                 let k = env.period;
                 let time_of = |m: u64| envelope::boundary(t0, p, k + m);
                 let found = if asked == 0 {

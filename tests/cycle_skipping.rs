@@ -342,3 +342,18 @@ fn forcing_that_does_not_repeat_is_refused() {
         "{e}"
     );
 }
+
+/// The daily demo asks for implicit jumps over a daily period that its surface wave
+/// shares, and `check` says so.
+#[test]
+fn daily_demo_uses_implicit_jumps() {
+    let case = Path::new(env!("CARGO_MANIFEST_DIR")).join("cases/harrow-dunes-daily.toml");
+    let m = deepdry::case::load(&case).unwrap();
+    let c = m.time.cycle_skipping.expect("cycle skipping");
+    assert!(c.implicit);
+    let day = deepdry::props::constants::SECONDS_PER_YEAR / 365.25;
+    assert!((c.period - day).abs() <= 1e-9 * day, "{}", c.period);
+    let o = deepdry(&["check", arg(&case)]);
+    assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
+    assert!(stdout(&o).contains("then an implicit jump (backward Euler on the envelope"));
+}

@@ -56,7 +56,7 @@ use crate::solve::problem::{weighted_change, Problem};
 
 use super::initial::equilibrate_vapor;
 use super::period::{
-    add_jacobian_sample, moved_contents, one_period_on_grid, periodic_model, Grid,
+    add_jacobian_sample, moved_contents, one_period_on_grid, periodic_model, Grid, GridSteps,
     MeanLinearization, PeriodEnd,
 };
 
@@ -147,7 +147,7 @@ fn solve(
     // The period from the boundary state, by the error test, its steps recorded (the
     // grid of every trial period after it), with the period-mean Jacobian.
     let mut lin_k = MeanLinearization::new(n, solver);
-    let (end_k, grid) = w.period(
+    let (end_k, (grid, _)) = w.period(
         &mut sys,
         &trial,
         &pk.u,
@@ -184,7 +184,7 @@ fn solve(
         let mut y = w.newton_step(&mut sys, &mut lin_k, t_new, &pk.u, &s_k, &s_fe, mf, period)?;
         let mut last = f64::NAN;
         for it in 0..MAX_ITERATIONS {
-            let (end, kept) = w.period(
+            let (end, (_, kept)) = w.period(
                 &mut sys,
                 &trial,
                 &y,
@@ -195,7 +195,7 @@ fn solve(
             )?;
             work.periods += 1;
             work.steps += end.steps;
-            if !kept.is_empty() {
+            if !kept {
                 return Err(Error::Numerical(
                     "a trial period could not keep to the recorded steps".into(),
                 ));
@@ -303,9 +303,8 @@ impl Work {
         }
     }
 
-    /// One trial period from `u` on `grid`, its period-mean Jacobian into `lin`.
-    /// Returns the period's end and the steps recorded ([`Grid::Record`]), or, for a
-    /// replay, an empty list when it kept to the steps given (else a list of one).
+    /// One trial period from `u` on `grid`, its period-mean Jacobian into `lin`; with
+    /// the steps recorded and whether it kept to those given ([`GridSteps`]).
     #[allow(clippy::too_many_arguments)]
     fn period(
         &mut self,
@@ -316,25 +315,15 @@ impl Work {
         solver: SolverKind,
         grid: Grid,
         lin: &mut MeanLinearization,
-    ) -> Result<(PeriodEnd, Vec<(f64, usize)>)> {
-        let replay = matches!(grid, Grid::Replay(_));
+    ) -> Result<(PeriodEnd, GridSteps)> {
         self.acc.zero();
         let (zeros, res, jac, acc) = (&self.zeros, &mut self.res, &mut self.jac, &mut self.acc);
         let mut sample = |t: f64, u: &[f64]| -> Result<()> {
             add_jacobian_sample(sys, t, u, zeros, res, jac, acc)
         };
-        let (end, (steps, kept)) = one_period_on_grid(trial, u, dt, solver, &mut sample, grid)?;
+        let out = one_period_on_grid(trial, u, dt, solver, &mut sample, grid)?;
         std::mem::swap(&mut lin.mean_jac, &mut self.acc);
-        let out = if replay {
-            if kept {
-                Vec::new()
-            } else {
-                vec![(0.0, 0)]
-            }
-        } else {
-            steps
-        };
-        Ok((end, out))
+        Ok(out)
     }
 
     /// The storages `s` at `u`, and the storage Jacobian and the scales of `lin` there.
@@ -402,8 +391,7 @@ impl Work {
             *c = lin.content_change(&self.delta, &volumes, j)
                 + period * self.flux_change[j] / volumes[j / B];
         }
-        let change = self.change.clone();
-        Ok(moved_contents(sys, t, y, s_y, &change, &mut self.delta))
+        Ok(moved_contents(sys, t, y, s_y, &self.change, &mut self.delta))
     }
 
     /// w with (S − τ F̄) w = V e (`e` per unit volume; the algebraic vapour row 0 where

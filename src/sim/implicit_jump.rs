@@ -391,7 +391,14 @@ impl Work {
             *c = lin.content_change(&self.delta, &volumes, j)
                 + period * self.flux_change[j] / volumes[j / B];
         }
-        Ok(moved_contents(sys, t, y, s_y, &self.change, &mut self.delta))
+        Ok(moved_contents(
+            sys,
+            t,
+            y,
+            s_y,
+            &self.change,
+            &mut self.delta,
+        ))
     }
 
     /// w with (S − τ F̄) w = V e (`e` per unit volume; the algebraic vapour row 0 where

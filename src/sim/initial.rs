@@ -418,13 +418,16 @@ pub fn periodic_steady_state(
         report.steps += end.steps;
         // The bottom's outflow: the top's inflow minus the net inflow, the sinks' and
         // the runoff (as the series' cumulative bottom flows).
-        let bottom = |q: usize| end.top_inflow[q] - end.inflow[q] - end.sink[q] - end.runoff[q];
-        report.surface_water = end.top_inflow[1];
+        let (inflow, top, sink, runoff) = (0, 2, 3, 4);
+        let bottom = |q: usize| {
+            end.flow(top, q) - end.flow(inflow, q) - end.flow(sink, q) - end.flow(runoff, q)
+        };
+        report.surface_water = end.flow(top, 1);
         report.bottom_water = bottom(1);
-        report.surface_energy = end.top_inflow[0];
+        report.surface_energy = end.flow(top, 0);
         report.bottom_energy = bottom(0);
-        report.root_water = end.sink[1];
-        report.runoff_water = end.runoff[1];
+        report.root_water = end.flow(sink, 1);
+        report.runoff_water = end.flow(runoff, 1);
         std::mem::swap(&mut lin_sys.mean_jac, &mut acc);
 
         // The contents' change over the period; scales and storage Jacobian at its end.

@@ -48,14 +48,17 @@ pub(crate) struct PeriodEnd {
     pub u: Vec<f64>,
     pub steps: u64,
     /// The cumulative flows over the period as a cycle-skipping point keeps them (net
-    /// inflow, throughput, top inflow, sinks, runoff; per conserved quantity).
+    /// inflow, throughput, top inflow, sinks, runoff; per conserved quantity: energy,
+    /// water).
     pub flows: Vec<f64>,
-    /// Cumulative inflow through the surface, net inflow, outflow to sinks (roots) and
-    /// runoff (energy, water).
-    pub top_inflow: [f64; 2],
-    pub inflow: [f64; 2],
-    pub sink: [f64; 2],
-    pub runoff: [f64; 2],
+}
+
+impl PeriodEnd {
+    /// Part `part` of the flows (0 net inflow, 1 throughput, 2 top inflow, 3 sinks,
+    /// 4 runoff) of conserved quantity `q` (0 energy, 1 water).
+    pub fn flow(&self, part: usize, q: usize) -> f64 {
+        self.flows[part * self.flows.len() / 5 + q]
+    }
 }
 
 /// Integrates the spin-up model `m` over its one period from `u` (the run's own
@@ -129,15 +132,12 @@ pub(crate) fn one_period_on_grid(
         .replay()
         .is_none_or(|r| !r.broken && r.next == r.steps.len());
     let st = sim.state();
-    let two = |v: &[f64]| [v[0], v[1]];
+    let mut flows = Vec::new();
+    PeriodPoint::flows_into(st, &mut flows);
     let end = PeriodEnd {
         u: st.u.clone(),
         steps: st.counters.steps,
-        top_inflow: two(&st.top_inflow),
-        inflow: two(&st.inflow),
-        sink: two(&st.sink),
-        runoff: two(&st.runoff),
-        flows: PeriodPoint::of(st).flows,
+        flows,
     };
     Ok((end, (watch.steps, kept)))
 }

@@ -84,13 +84,20 @@ impl PeriodPoint {
     /// The point of a stepper state.
     pub fn of(s: &StepState) -> Self {
         let mut flows = Vec::with_capacity(5 * s.inflow.len());
-        for v in [&s.inflow, &s.throughput, &s.top_inflow, &s.sink, &s.runoff] {
-            flows.extend_from_slice(v);
-        }
+        Self::flows_into(s, &mut flows);
         PeriodPoint {
             u: s.u.clone(),
             storage: s.storage.clone(),
             flows,
+        }
+    }
+
+    /// The cumulative flows of a stepper state in a point's layout into `out` (cleared
+    /// first): net inflow, throughput, top inflow, sinks, runoff.
+    pub fn flows_into(s: &StepState, out: &mut Vec<f64>) {
+        out.clear();
+        for v in [&s.inflow, &s.throughput, &s.top_inflow, &s.sink, &s.runoff] {
+            out.extend_from_slice(v);
         }
     }
 }
@@ -142,10 +149,7 @@ impl EnvelopeState {
             let mut old = self.points.remove(0);
             old.u.clone_from(&s.u);
             old.storage.clone_from(&s.storage);
-            old.flows.clear();
-            for v in [&s.inflow, &s.throughput, &s.top_inflow, &s.sink, &s.runoff] {
-                old.flows.extend_from_slice(v);
-            }
+            PeriodPoint::flows_into(s, &mut old.flows);
             self.points.push(old);
         } else {
             self.points.push(PeriodPoint::of(s));

@@ -686,48 +686,43 @@ impl<'m> Simulation<'m> {
                 );
                 let k = env.period;
                 let time_of = |m: u64| envelope::boundary(t0, p, k + m);
-                let found = if asked == 0 {
-                    Err((
-                        "no room before the next sync time".to_string(),
-                        Default::default(),
-                    ))
-                } else {
-                    implicit_jump(self.model, &env.points, &opts, asked, &time_of, self.solver)
-                };
-                let work = match &found {
-                    Ok((_, w)) | Err((_, w)) => *w,
-                };
-                env.trial_periods += work.periods;
-                env.trial_steps += work.steps;
-                match found {
-                    Ok((jump, _)) => {
-                        let m = jump.periods;
-                        let left = envelope::land(
-                            &mut self.sys,
-                            &mut self.st,
-                            env,
-                            &opts,
-                            m,
-                            time_of(m),
-                            jump.landing,
-                        );
-                        env.last_error = jump.error;
-                        env.last_implicit = true;
-                        env.implicit_failures = 0;
-                        implicit_done = Some((m, left, jump.error));
+                if asked > 0 {
+                    let found =
+                        implicit_jump(self.model, &env.points, &opts, asked, &time_of, self.solver);
+                    let work = match &found {
+                        Ok((_, w)) | Err((_, w)) => *w,
+                    };
+                    env.trial_periods += work.periods;
+                    env.trial_steps += work.steps;
+                    match found {
+                        Ok((jump, _)) => {
+                            let m = jump.periods;
+                            let left = envelope::land(
+                                &mut self.sys,
+                                &mut self.st,
+                                env,
+                                &opts,
+                                m,
+                                time_of(m),
+                                jump.landing,
+                            );
+                            env.last_error = jump.error;
+                            env.last_implicit = true;
+                            env.implicit_failures = 0;
+                            implicit_done = Some((m, left, jump.error));
+                        }
+                        Err((why, _)) => {
+                            // Explicit jumps for the next 2^f − 1 blocks after f failures
+                            // in a row (at most 63): each failure cost trial periods.
+                            env.implicit_failures += 1;
+                            env.implicit_pause = (1u64 << env.implicit_failures.min(6)) - 1;
+                            log::debug!(
+                                "cycle skipping: implicit jump of {asked} periods abandoned at year {:.6}: {why}; explicit jumps for {} blocks",
+                                self.model.time.year(t),
+                                env.implicit_pause
+                            );
+                        }
                     }
-                    Err((why, _)) if asked > 0 => {
-                        // Explicit jumps for the next 2^f − 1 blocks after f failures in
-                        // a row (at most 63): each failure cost trial periods.
-                        env.implicit_failures += 1;
-                        env.implicit_pause = (1u64 << env.implicit_failures.min(6)) - 1;
-                        log::debug!(
-                            "cycle skipping: implicit jump of {asked} periods abandoned at year {:.6}: {why}; explicit jumps for {} blocks",
-                            self.model.time.year(t),
-                            env.implicit_pause
-                        );
-                    }
-                    Err(_) => {}
                 }
             }
             let (m, left, err) = match implicit_done {

@@ -989,21 +989,15 @@ impl<const B: usize> Stepper<B> {
                 }
             };
             s.counters.add(&stats);
-            if given.is_some() {
-                if let Some(r) = self.replay.as_mut() {
-                    r.next += 1;
+            let (factor, keep) = match (given, bdf) {
+                // A given step is taken as it is (the next one is given too).
+                (Some(_), _) => {
+                    if let Some(r) = self.replay.as_mut() {
+                        r.next += 1;
+                    }
+                    (1.0, bdf.map_or(1, |(max_order, _)| max_order + 1))
                 }
-                let keep = bdf.map_or(1, |(max_order, _)| max_order + 1);
-                self.accept(sys, &a, dt_try, 1.0, keep);
-                return Ok(StepInfo {
-                    dt,
-                    newton_iterations: stats.iterations,
-                    order: a.k,
-                    alpha: a.alpha,
-                });
-            }
-            let (factor, keep) = match bdf {
-                Some((max_order, rtol)) => {
+                (None, Some((max_order, rtol))) => {
                     match self.judge(sys, &a, &stats, max_order, rtol, &mut error_failures) {
                         Verdict::Reject { dt_try: next } => {
                             dt_try = next;
@@ -1012,7 +1006,7 @@ impl<const B: usize> Stepper<B> {
                         Verdict::Accept { factor } => (factor, max_order + 1),
                     }
                 }
-                None => (
+                (None, None) => (
                     change_factor(sys, &s.u, &self.u_old, &self.opts, stats.iterations),
                     1,
                 ),

@@ -629,9 +629,13 @@ pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
     }
     // Refused before any file is touched.
     let plan = SyncPlan::new(model)?;
-    for note in [model.moving_table_note(), model.periodic_dry_end_note()]
-        .into_iter()
-        .flatten()
+    for note in [
+        model.moving_table_note(),
+        model.periodic_dry_end_note(),
+        model.periodic_exchange_note(),
+    ]
+    .into_iter()
+    .flatten()
     {
         log::warn!("{note}");
     }

@@ -63,3 +63,68 @@ fn a_water_table_moving_through_centre_valued_cells_is_noted() {
     });
     assert_eq!(m.moving_table_note(), None);
 }
+
+/// A surface cycle repeated at least 100 times at an rtol above 2e-5 is noted: the water
+/// exchanged through the boundaries adds up each period's integration error (measured in
+/// README, "Periodic forcing: the water exchanged over many periods").
+#[test]
+fn many_cycles_at_a_loose_tolerance_are_noted() {
+    let loose = |t: String| t.replace("rtol = 1e-5\n", "");
+    // The demo sets rtol = 1e-5: no note.
+    assert_eq!(
+        model("harrow-dunes.toml", |t| t).periodic_exchange_note(),
+        None
+    );
+    // At the default rtol (1e-3), 10 000 annual cycles are noted.
+    let m = model("harrow-dunes.toml", loose);
+    assert_eq!(m.time.rtol, 1e-3);
+    let note = m.periodic_exchange_note().expect("a note");
+    assert!(
+        note.contains("repeats 10000 times") && note.contains("time.rtol = 1e-5"),
+        "{note}"
+    );
+    // 50 cycles: no note; 100: a note.
+    for (end, noted) in [("50.0", false), ("100.0", true)] {
+        let m = model("harrow-dunes.toml", |t| {
+            loose(t)
+                .replace("end_year = 10000.0", &format!("end_year = {end}"))
+                .replace(
+                    "times_year = [1.0, 10.0, 100.0, 1000.0, 3000.0, 10000.0]",
+                    "times_year = [1.0]",
+                )
+        });
+        assert_eq!(m.periodic_exchange_note().is_some(), noted, "{end} years");
+    }
+    // Without the wave (amplitude 0): no note.
+    let m = model("harrow-dunes.toml", |t| {
+        loose(t).replace("amplitude = 10.0", "amplitude = 0.0")
+    });
+    assert_eq!(m.periodic_exchange_note(), None);
+    // A daily cycle over 1 000 years at rtol 1e-4 is noted (365 250 periods).
+    let m = model("harrow-dunes-daily.toml", |t| {
+        t.replace("rtol = 1e-5\n", "rtol = 1e-4\n")
+    });
+    let note = m.periodic_exchange_note().expect("a note");
+    assert!(note.contains("repeats 365250 times"), "{note}");
+    // The note reaches `deepdry check`.
+    let dir = std::env::temp_dir().join(format!("deepdry-notes-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    let text = loose(
+        std::fs::read_to_string(
+            Path::new(env!("CARGO_MANIFEST_DIR")).join("cases/harrow-dunes.toml"),
+        )
+        .unwrap(),
+    );
+    let case = dir.join("harrow-dunes-loose.toml");
+    std::fs::write(&case, text).unwrap();
+    let o = std::process::Command::new(env!("CARGO_BIN_EXE_deepdry"))
+        .args(["check", case.to_str().unwrap()])
+        .output()
+        .unwrap();
+    let _ = std::fs::remove_dir_all(&dir);
+    let out = String::from_utf8_lossy(&o.stdout);
+    assert!(
+        o.status.success() && out.contains("note: the surface cycle repeats 10000 times"),
+        "{out}"
+    );
+}

@@ -208,9 +208,13 @@ pub fn summary(m: &Model) -> String {
             "  liquid content of each cell averaged over a hydrostatic head profile within it (cell_average_retention)"
         );
     }
-    for note in [m.moving_table_note(), m.periodic_dry_end_note()]
-        .into_iter()
-        .flatten()
+    for note in [
+        m.moving_table_note(),
+        m.periodic_dry_end_note(),
+        m.periodic_exchange_note(),
+    ]
+    .into_iter()
+    .flatten()
     {
         let _ = writeln!(o, "  note: {note}");
     }

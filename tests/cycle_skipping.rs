@@ -341,6 +341,19 @@ fn forcing_that_does_not_repeat_is_refused() {
         e.contains("the bottom head") && e.contains("a table or stepped schedule"),
         "{e}"
     );
+    // Solutes are not carried by the jumps (their masses are not extrapolated): refused,
+    // naming both ways out.
+    let e = refused(&[(
+        "[output]",
+        "[[solutes]]\nname = \"chloride\"\nfree_diffusivity_m2_per_s = 2.03e-9\n\
+         dispersivity_m = 0.05\ndeposition_g_per_m2_per_year = 0.1\n\n[output]",
+    )]);
+    assert!(
+        e.contains("does not carry solutes")
+            && e.contains("[time.cycle_skipping]")
+            && e.contains("[[solutes]]"),
+        "{e}"
+    );
 }
 
 /// The daily demo asks for implicit jumps over a daily period that its surface wave

@@ -16,22 +16,23 @@
 //! y_k e^{−bP(j)} has the relative error 1 + m (1 − e^{bP}) − e^{−bmP}
 //! = −½ m (m + 1) (bP)² + O((bmP)³) (Taylor expansion; derived), and these add up.
 
-use deepdry::solve::blocktri::{zero_block, Block, BlockRows};
+use deepdry::solve::blocktri::Block;
 use deepdry::solve::envelope::{self, EnvelopeOptions, EnvelopeState};
 use deepdry::solve::linear::{make_solver, SolverKind};
 use deepdry::solve::newton::NewtonOptions;
-use deepdry::solve::problem::{BalanceScales, Conserved, ErrorTest, NonFinite, Problem};
+use deepdry::solve::problem::Problem;
 use deepdry::solve::stepper::{Integrator, StepOptions, Stepper};
+
+mod support;
+use support::ode::{Ode, OdeProblem};
 
 const P: f64 = 1.0;
 const A: f64 = 4.0;
 const B_RATE: f64 = 0.004;
 const ATOL: f64 = 1e-9;
 
-struct TwoModes {
-    y: [f64; 2],
-    terms: [f64; 2],
-}
+/// The system as an ODE y' = g(t, y).
+struct TwoModes;
 
 fn omega() -> f64 {
     2.0 * std::f64::consts::PI / P
@@ -57,103 +58,30 @@ fn exact(t: f64, y10: f64, y20: f64) -> [f64; 2] {
     ]
 }
 
-impl Problem<2> for TwoModes {
-    fn blocks(&self) -> usize {
-        1
-    }
-    fn volumes(&self) -> &[f64] {
-        &[1.0]
-    }
-    fn conserved_rows(&self) -> &[usize] {
-        &[]
-    }
-    fn evaluate(&mut self, _t: f64, u: &[f64]) {
-        self.y.copy_from_slice(u);
-    }
-    fn storage(&self, _i: usize) -> [f64; 2] {
-        self.y
-    }
-    fn boundary_flows(&self) -> (Conserved, Conserved) {
-        (Conserved::default(), Conserved::default())
-    }
-    fn assemble(
-        &mut self,
-        t: f64,
-        u: &[f64],
-        c: f64,
-        hist: &[f64],
-        res: &mut [f64],
-        jac: Option<&mut dyn BlockRows<2>>,
-    ) -> Result<(), NonFinite> {
-        self.evaluate(t, u);
+impl Ode<2> for TwoModes {
+    fn rhs(&self, t: f64, y: &[f64; 2]) -> [f64; 2] {
         let s = (omega() * t).sin();
-        let g = [-A * (self.y[0] - s), -B_RATE * (self.y[1] - self.y[0])];
-        let m = [
-            A * (self.y[0].abs() + s.abs()),
-            B_RATE * (self.y[1].abs() + self.y[0].abs()),
-        ];
-        for r in 0..2 {
-            res[r] = c * self.y[r] - hist[r] - g[r];
-            self.terms[r] = (c * self.y[r]).abs() + hist[r].abs() + m[r];
-        }
-        if let Some(jac) = jac {
-            jac.set_diag(0, &[[c + A, 0.0], [-B_RATE, c + B_RATE]]);
-        }
-        Ok(())
+        [-A * (y[0] - s), -B_RATE * (y[1] - y[0])]
     }
-    fn storage_jacobian_into(&self, out: &mut dyn BlockRows<2>) {
-        let mut s: Block<2> = zero_block();
-        s[0][0] = 1.0;
-        s[1][1] = 1.0;
-        out.set_diag(0, &s);
-    }
-    fn convergence_scales_into(
-        &self,
-        _c: f64,
-        _hist: &[f64],
-        tol: f64,
-        scale: &mut [f64],
-    ) -> BalanceScales {
-        for (s, t) in scale.iter_mut().zip(&self.terms) {
-            *s = t.max(16.0 * f64::EPSILON * t / tol).max(1e-300);
-        }
-        BalanceScales::default()
-    }
-    fn column_scales_into(&self, _u: &[f64], col: &mut [f64]) {
-        col.fill(1.0);
-    }
-    fn apply_update(&self, u: &mut [f64], dx: &mut [f64], col: &[f64]) -> bool {
-        let mut small = true;
-        for r in 0..2 {
-            let d = dx[r] * col[r];
-            dx[r] = d;
-            u[r] += d;
-            small &= d.abs() <= 1e-14 * u[r].abs().max(ATOL);
-        }
-        small
-    }
-    fn error_tests(
-        &self,
-        _i: usize,
-        new: &[f64],
-        old: &[f64],
-        rtol: f64,
-    ) -> [(usize, ErrorTest); 2] {
-        let den = |r: usize| ATOL + rtol * new[r].abs().max(old[r].abs());
+    fn magnitudes(&self, t: f64, y: &[f64; 2]) -> [f64; 2] {
+        let s = (omega() * t).sin();
         [
-            (0, ErrorTest::Unknown { den: den(0) }),
-            (1, ErrorTest::Unknown { den: den(1) }),
+            A * (y[0].abs() + s.abs()),
+            B_RATE * (y[1].abs() + y[0].abs()),
         ]
+    }
+    fn jacobian(&self, _t: f64, _y: &[f64; 2]) -> Block<2> {
+        [[-A, 0.0], [B_RATE, -B_RATE]]
+    }
+    fn atol(&self) -> [f64; 2] {
+        [ATOL; 2]
     }
 }
 
 #[test]
 fn the_envelope_follows_the_slow_decay_of_a_linear_problem() {
     let (y10, y20) = (0.0, 1.0);
-    let mut p = TwoModes {
-        y: [0.0; 2],
-        terms: [0.0; 2],
-    };
+    let mut p = OdeProblem::new(TwoModes);
     let state = Stepper::<2>::initial_state(&mut p, 0.0, 1e-4, vec![y10, y20]);
     let opts = StepOptions {
         dt_min: 1e-12,

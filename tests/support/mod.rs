@@ -3,6 +3,7 @@
 #![allow(dead_code)]
 
 pub mod fit;
+pub mod ode;
 
 use hdf5::types::{FloatSize, IntSize, TypeDescriptor, VarLenUnicode};
 use std::collections::BTreeMap;

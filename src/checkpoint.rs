@@ -286,13 +286,16 @@ fn e(path: &Path) -> impl Fn(hdf5::Error) -> Error + '_ {
     move |err| crate::output::h5util::io_error(path, err)
 }
 
-/// Writes a checkpoint atomically to `path`. On failure (e.g. a full disk) the partial
-/// temporary file is removed and any earlier file at `path` is left as it was.
+/// Writes a checkpoint atomically to `path`: the stepper state and the states of the
+/// problem's kept evaluations (`kept`: cells, faces, as [`crate::solve::problem::Problem::kept_states`]).
+/// On failure (e.g. a full disk) the partial temporary file is removed and any earlier
+/// file at `path` is left as it was.
 #[allow(clippy::too_many_arguments)]
 pub fn write(
     path: &Path,
     model: &Model,
     state: &StepState,
+    kept: (&[f64], &[f64]),
     position: LoopPosition,
     results_file: &Path,
     info: &CheckpointInfo,
@@ -305,6 +308,7 @@ pub fn write(
         path,
         model,
         state,
+        kept,
         position,
         results_file,
         info,
@@ -326,6 +330,7 @@ fn write_via(
     path: &Path,
     model: &Model,
     state: &StepState,
+    kept: (&[f64], &[f64]),
     position: LoopPosition,
     results_file: &Path,
     info: &CheckpointInfo,
@@ -385,7 +390,7 @@ fn write_via(
         f64s(
             &file,
             "linearization_cells",
-            &state.linearization_cells,
+            kept.0,
             "mixed",
             "cell states of the kept evaluations with derivatives (linearisation points)",
         )
@@ -393,7 +398,7 @@ fn write_via(
         f64s(
             &file,
             "linearization_faces",
-            &state.linearization_faces,
+            kept.1,
             "mixed",
             "face states of the kept evaluations with derivatives (linearisation points)",
         )

@@ -194,7 +194,7 @@ fn check(model: &Model, seed: u64, label: &str) {
         }
         let (cells_at, faces_at) = sys.linearization_states();
         let mut restored = System::new(model);
-        restored.restore_linearization(&cells_at, &faces_at);
+        restored.restore_linearization(cells_at, faces_at);
         let mut again = near.clone();
         again[0] += 1e-3;
         let mut res_a = vec![0.0; 3 * n];

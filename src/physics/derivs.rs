@@ -142,7 +142,7 @@ pub(super) type SourceJacobian<'a> = dyn Fn(usize, &mut Block<BLOCK>) + 'a;
 /// methods of [`Derivs`], see there).
 pub(super) trait Kept {
     fn forget(&mut self);
-    fn bases(&self) -> (Vec<f64>, Vec<f64>);
+    fn bases(&self) -> (&[f64], &[f64]);
     fn restore(&mut self, sys: &System, cells: &[f64], faces: &[f64]);
     /// Returns whether some face kept its base (its flux parts are then those of the
     /// base, to be completed by [`Kept::complete_parts`]).
@@ -274,11 +274,8 @@ impl<const N: usize, const M: usize, const R: usize> Kept for Derivs<N, M, R> {
     /// The base states: of the cells (3 per cell) and of the faces (6 per face: the
     /// unknowns of the cell above and below); NaN where there is none. Empty before the
     /// first evaluation.
-    fn bases(&self) -> (Vec<f64>, Vec<f64>) {
-        (
-            self.cell_base.clone(),
-            self.face_base.iter().flatten().copied().collect(),
-        )
+    fn bases(&self) -> (&[f64], &[f64]) {
+        (&self.cell_base, self.face_base.as_flattened())
     }
 
     /// Re-evaluates the bases at the given base states (as from [`Derivs::bases`]);

@@ -410,7 +410,7 @@ impl System {
     /// [`System::evaluate`]): of the cells (3 per cell) and of the interior faces (6 per
     /// face, the unknowns of the cells above and below); NaN where there is none. With
     /// [`System::restore_linearization`] they restore those evaluations exactly.
-    pub fn linearization_states(&self) -> (Vec<f64>, Vec<f64>) {
+    pub fn linearization_states(&self) -> (&[f64], &[f64]) {
         self.kept().bases()
     }
 

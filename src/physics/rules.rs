@@ -295,7 +295,7 @@ impl Problem<BLOCK> for System {
         self.forget_linearization();
     }
 
-    fn kept_states(&self) -> (Vec<f64>, Vec<f64>) {
+    fn kept_states(&self) -> (&[f64], &[f64]) {
         self.linearization_states()
     }
 

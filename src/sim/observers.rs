@@ -167,6 +167,7 @@ impl Checkpointer {
             path,
             sim.model(),
             sim.state(),
+            sim.kept_states(),
             position,
             &self.results,
             &info,

@@ -569,6 +569,12 @@ impl<'m> Simulation<'m> {
     pub fn state(&self) -> &StepState {
         &self.st.state
     }
+    /// The states at which the column's kept evaluations were made (cells, faces), which
+    /// a checkpoint saves beside [`Simulation::state`] so that a resume continues bitwise
+    /// (borrowed: no copy of 72 B per cell at each checkpoint).
+    pub fn kept_states(&self) -> (&[f64], &[f64]) {
+        self.sys.linearization_states()
+    }
     pub fn output(&self) -> &OutputPosition {
         &self.output
     }
@@ -882,9 +888,6 @@ impl<'m> Simulation<'m> {
         for o in obs.iter_mut() {
             o.checkpoint(self, &data)?;
         }
-        // The copies of the kept evaluations' states are written: not kept resident
-        // (72 B per cell) until the next checkpoint copies them afresh.
-        self.st.drop_synced();
         Ok(())
     }
 
@@ -917,13 +920,11 @@ impl<'m> Simulation<'m> {
         })
     }
 
-    /// The balance at the current state, with the solver's kept evaluation states copied
-    /// into the stepper state (so that a checkpoint resumes bitwise). Evaluating does not
-    /// change what the next step computes: every step evaluates its start state afresh.
+    /// The balance at the current state. Evaluating does not change what the next step
+    /// computes: every step evaluates its start state afresh.
     fn checkpoint_data(&mut self) -> CheckpointData {
         self.sys.evaluate(self.st.state.t, &self.st.state.u);
         let (balance_abs, balance_rel) = column_balance(&self.sys, &self.st);
-        self.st.sync_state(&self.sys);
         CheckpointData {
             balance_abs,
             balance_rel,

@@ -176,9 +176,10 @@ pub trait Problem<const B: usize> {
     fn forget_kept(&mut self) {}
 
     /// The states at which kept evaluations were made (two arrays, empty when none), so
-    /// that a saved run continues exactly; see [`Problem::restore_kept`].
-    fn kept_states(&self) -> (Vec<f64>, Vec<f64>) {
-        (Vec::new(), Vec::new())
+    /// that a saved run continues exactly; see [`Problem::restore_kept`]. Borrowed: a
+    /// checkpoint writes them from here, without a copy.
+    fn kept_states(&self) -> (&[f64], &[f64]) {
+        (&[], &[])
     }
 
     /// Remakes kept evaluations at the given states (as from [`Problem::kept_states`]).

@@ -173,8 +173,10 @@ pub struct StepState {
     /// for the predictive step controller.
     pub last_error: f64,
     /// The states at which the problem's kept evaluations were made (see
-    /// [`Problem::kept_states`]): part of the state because later steps build on them.
-    /// Filled by [`Stepper::sync_state`]; empty: none.
+    /// [`Problem::kept_states`]): part of a saved state because later steps build on
+    /// them. Read from a checkpoint and handed to the problem by [`Stepper::new`], which
+    /// empties them: during a run the problem holds its own, and a checkpoint writes
+    /// those (no resident copy). Empty: none.
     pub linearization_cells: Vec<f64>,
     pub linearization_faces: Vec<f64>,
 }
@@ -340,8 +342,11 @@ impl<const B: usize> Stepper<B> {
             state.storage = vec![0.0; len];
             sys.storage_into(&mut state.storage);
         }
-        // The kept evaluations of the run this state comes from.
+        // The kept evaluations of the run this state comes from; the problem holds them
+        // from here on (a checkpoint writes them from it), so the state's copies go.
         sys.restore_kept(&state.linearization_cells, &state.linearization_faces);
+        state.linearization_cells = Vec::new();
+        state.linearization_faces = Vec::new();
         Stepper {
             state,
             opts,
@@ -392,21 +397,6 @@ impl<const B: usize> Stepper<B> {
             linearization_cells: Vec::new(),
             linearization_faces: Vec::new(),
         }
-    }
-
-    /// Copies into the state what it takes from the problem (the states of its kept
-    /// evaluations), so that it continues the run exactly: call before saving the state.
-    pub fn sync_state<P: Problem<B> + ?Sized>(&mut self, sys: &P) {
-        let (cells, faces) = sys.kept_states();
-        self.state.linearization_cells = cells;
-        self.state.linearization_faces = faces;
-    }
-
-    /// Drops the copies [`Stepper::sync_state`] made (once they are saved): the problem
-    /// still holds its kept evaluations, and the next sync copies them afresh.
-    pub fn drop_synced(&mut self) {
-        self.state.linearization_cells = Vec::new();
-        self.state.linearization_faces = Vec::new();
     }
 
     /// Forgets the multistep history (after a discontinuity in the forcing): the next

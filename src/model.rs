@@ -433,6 +433,19 @@ impl Model {
         self.vegetation.periods.iter().any(|p| p.1.is_some())
     }
 
+    /// The notes for a case that will run but poorly (what `check` prints and `run` logs
+    /// as warnings), in that order: [`Model::moving_table_note`],
+    /// [`Model::periodic_dry_end_note`], [`Model::periodic_exchange_note`].
+    pub fn notes(&self) -> impl Iterator<Item = String> {
+        [
+            self.moving_table_note(),
+            self.periodic_dry_end_note(),
+            self.periodic_exchange_note(),
+        ]
+        .into_iter()
+        .flatten()
+    }
+
     /// A note when a water table moves through the column's cells while the liquid
     /// content is taken at the cell centres (`[mesh] cell_average_retention` off): each
     /// cell then drains or fills at once when the table passes its centre, and the

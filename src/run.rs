@@ -629,14 +629,7 @@ pub fn run(model: &Model, opts: &RunOptions) -> Result<RunSummary> {
     }
     // Refused before any file is touched.
     let plan = SyncPlan::new(model)?;
-    for note in [
-        model.moving_table_note(),
-        model.periodic_dry_end_note(),
-        model.periodic_exchange_note(),
-    ]
-    .into_iter()
-    .flatten()
-    {
+    for note in model.notes() {
         log::warn!("{note}");
     }
     let folder = opts

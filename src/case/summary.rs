@@ -208,14 +208,7 @@ pub fn summary(m: &Model) -> String {
             "  liquid content of each cell averaged over a hydrostatic head profile within it (cell_average_retention)"
         );
     }
-    for note in [
-        m.moving_table_note(),
-        m.periodic_dry_end_note(),
-        m.periodic_exchange_note(),
-    ]
-    .into_iter()
-    .flatten()
-    {
+    for note in m.notes() {
         let _ = writeln!(o, "  note: {note}");
     }
     let _ = writeln!(o, "Layers:");
@@ -355,12 +348,12 @@ pub fn summary(m: &Model) -> String {
         fmt_g(t.atol_vapor)
     );
     if let Some(c) = &t.cycle_skipping {
+        let most = c.max_jump_periods;
         let how = if c.implicit {
-            "an implicit jump (backward Euler on the envelope, solved by trial periods on the steps of one recorded period) of up to {} periods while its estimated error (½ m × the change of the drift over the jump) is"
+            format!("an implicit jump (backward Euler on the envelope, solved by trial periods on the steps of one recorded period) of up to {most} periods while its estimated error (½ m × the change of the drift over the jump) is")
         } else {
-            "a jump of up to {} periods along the drift of the last one while its estimated error (½ m (m + 1) × the change of the drift between periods) is"
-        }
-        .replace("{}", &c.max_jump_periods.to_string());
+            format!("a jump of up to {most} periods along the drift of the last one while its estimated error (½ m (m + 1) × the change of the drift between periods) is")
+        };
         let _ = writeln!(
             o,
             "Cycle skipping: forcing period {} yr from year {}; {} whole periods integrated, then {how} within rtol {} and the case's atol; snapshots, checkpoint times and the end are always integrated (a jump never reaches them); the forcing was checked to repeat with this period",

@@ -8,7 +8,7 @@ use crate::model::{BottomBc, Model, Periods, SurfaceBc};
 use crate::physics::System;
 use crate::physics::{H, RV};
 use crate::solve::blocktri::BlockTri;
-use crate::solve::envelope::{unknowns_of_storages, PeriodPoint};
+use crate::solve::envelope::{unknowns_of_storages, PeriodPoint, FLOW_PARTS};
 use crate::solve::linear::{make_solver, solve_dense, SolverKind};
 use crate::solve::problem::Problem;
 
@@ -57,7 +57,7 @@ impl PeriodEnd {
     /// Part `part` of the flows (0 net inflow, 1 throughput, 2 top inflow, 3 sinks,
     /// 4 runoff) of conserved quantity `q` (0 energy, 1 water).
     pub fn flow(&self, part: usize, q: usize) -> f64 {
-        self.flows[part * self.flows.len() / 5 + q]
+        self.flows[part * self.flows.len() / FLOW_PARTS + q]
     }
 }
 

@@ -93,14 +93,36 @@ impl PeriodPoint {
     }
 
     /// The cumulative flows of a stepper state in a point's layout into `out` (cleared
-    /// first): net inflow, throughput, top inflow, sinks, runoff.
+    /// first): the [`FLOW_PARTS`] parts net inflow, throughput, top inflow, sinks,
+    /// runoff, one after the other.
     pub fn flows_into(s: &StepState, out: &mut Vec<f64>) {
         out.clear();
         for v in [&s.inflow, &s.throughput, &s.top_inflow, &s.sink, &s.runoff] {
             out.extend_from_slice(v);
         }
     }
+
+    /// The reverse of [`PeriodPoint::flows_into`]: the stepper state's cumulative flows
+    /// set from `flows` in a point's layout (each part as long as the state's).
+    pub fn flows_onto(flows: &[f64], s: &mut StepState) {
+        let q = s.inflow.len();
+        for (part, dst) in [
+            &mut s.inflow,
+            &mut s.throughput,
+            &mut s.top_inflow,
+            &mut s.sink,
+            &mut s.runoff,
+        ]
+        .into_iter()
+        .enumerate()
+        {
+            dst.copy_from_slice(&flows[part * q..(part + 1) * q]);
+        }
+    }
 }
+
+/// The parts of a point's cumulative flows ([`PeriodPoint::flows_into`]).
+pub const FLOW_PARTS: usize = 5;
 
 /// Where cycle skipping stands: part of a run's state (checkpointed).
 #[derive(Debug, Clone, PartialEq, Default)]
@@ -336,19 +358,8 @@ pub fn land<const B: usize, P: Problem<B> + ?Sized>(
             *ch += v * (m_new[row] - m_old[row]);
         }
     }
+    PeriodPoint::flows_onto(&flows, s);
     let q = s.inflow.len();
-    for (part, dst) in [
-        &mut s.inflow,
-        &mut s.throughput,
-        &mut s.top_inflow,
-        &mut s.sink,
-        &mut s.runoff,
-    ]
-    .into_iter()
-    .enumerate()
-    {
-        dst.copy_from_slice(&flows[part * q..(part + 1) * q]);
-    }
     for k in 0..nq.min(q) {
         let mismatch = change[k] - (s.inflow[k] - p2.flows[k]);
         s.inflow[k] += mismatch;

@@ -752,10 +752,10 @@ impl<'m> Simulation<'m> {
                     (m, left, err)
                 }
             };
-            let t_new = envelope::boundary(t0, p, period + 1 + m);
+            // (The landing put the state at the jump's end.)
             log::debug!(
                 "cycle skipping: jumped {m} periods to year {:.6} (error estimate {err:.3e}, storage residual {left:.1e})",
-                self.model.time.year(t_new)
+                self.model.time.year(self.st.state.t)
             );
             self.just_skipped = m;
             let rec = series_record(&self.sys, &self.st, m as f64 * p, 0);

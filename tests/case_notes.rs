@@ -4,7 +4,10 @@
 //! What the notes warn of is measured in README, "Performance" (the moving table's
 //! pulsing bottom flux; the periodic case's ~2 700 steps per year without a dry end).
 
+mod support;
+
 use std::path::Path;
+use support::{arg, deepdry, stdout, Scratch};
 
 fn model(file: &str, edit: impl Fn(String) -> String) -> deepdry::model::Model {
     let dir = Path::new(env!("CARGO_MANIFEST_DIR")).join("cases");
@@ -107,22 +110,16 @@ fn many_cycles_at_a_loose_tolerance_are_noted() {
     let note = m.periodic_exchange_note().expect("a note");
     assert!(note.contains("repeats 365250 times"), "{note}");
     // The note reaches `deepdry check`.
-    let dir = std::env::temp_dir().join(format!("deepdry-notes-{}", std::process::id()));
-    std::fs::create_dir_all(&dir).unwrap();
+    let dir = Scratch::new("notes");
     let text = loose(
         std::fs::read_to_string(
             Path::new(env!("CARGO_MANIFEST_DIR")).join("cases/harrow-dunes.toml"),
         )
         .unwrap(),
     );
-    let case = dir.join("harrow-dunes-loose.toml");
-    std::fs::write(&case, text).unwrap();
-    let o = std::process::Command::new(env!("CARGO_BIN_EXE_deepdry"))
-        .args(["check", case.to_str().unwrap()])
-        .output()
-        .unwrap();
-    let _ = std::fs::remove_dir_all(&dir);
-    let out = String::from_utf8_lossy(&o.stdout);
+    let case = dir.write("harrow-dunes-loose.toml", &text);
+    let o = deepdry(&["check", arg(&case)]);
+    let out = stdout(&o);
     assert!(
         o.status.success() && out.contains("note: the surface cycle repeats 10000 times"),
         "{out}"

@@ -694,6 +694,21 @@ fn write_envelope(file: &File, env: &EnvelopeState) -> hdf5::Result<()> {
         }
         f64s(file, "cycle_skipping_points", &points, "mixed", "cycle skipping: the boundary states of the current block, oldest first, each its unknowns, storages and cumulative flows (net inflow, throughput, top inflow, sinks, runoff; energy, water)")?;
     }
+    if let Some((k0, p)) = &env.origin {
+        let ds = file
+            .new_dataset_builder()
+            .with_data(&Array1::from_vec(vec![*k0]))
+            .create("cycle_skipping_origin_period")?;
+        describe(
+            &ds,
+            "1",
+            "cycle skipping: index of the period boundary the last jump started from",
+        )?;
+        let mut row = p.u.clone();
+        row.extend_from_slice(&p.storage);
+        row.extend_from_slice(&p.flows);
+        f64s(file, "cycle_skipping_origin", &row, "mixed", "cycle skipping: the boundary state the last jump started from, as a point of cycle_skipping_points")?;
+    }
     Ok(())
 }
 
@@ -726,6 +741,11 @@ fn read_envelope(
         return Err("cycle_skipping_implicit");
     }
     let width = 2 * len + 5 * nq;
+    let point = |w: &[f64]| PeriodPoint {
+        u: w[..len].to_vec(),
+        storage: w[len..2 * len].to_vec(),
+        flows: w[2 * len..].to_vec(),
+    };
     let count = c[5] as usize;
     let points = if count == 0 {
         Vec::new()
@@ -737,13 +757,28 @@ fn read_envelope(
         if raw.len() != count * width {
             return Err("cycle_skipping_points");
         }
-        raw.chunks_exact(width)
-            .map(|w| PeriodPoint {
-                u: w[..len].to_vec(),
-                storage: w[len..2 * len].to_vec(),
-                flows: w[2 * len..].to_vec(),
-            })
-            .collect()
+        raw.chunks_exact(width).map(point).collect()
+    };
+    // Written once a jump was made (checkpoints of earlier versions have none: their
+    // next implicit jump is then one of backward Euler).
+    let origin = match file.dataset("cycle_skipping_origin_period") {
+        Err(_) => None,
+        Ok(d) => {
+            let k0 = d
+                .read_raw::<u64>()
+                .map_err(|_| "cycle_skipping_origin_period")?;
+            let raw = file
+                .dataset("cycle_skipping_origin")
+                .and_then(|d| d.read_raw::<f64>())
+                .map_err(|_| "cycle_skipping_origin")?;
+            if k0.len() != 1 || k0[0] > c[0] {
+                return Err("cycle_skipping_origin_period");
+            }
+            if raw.len() != width {
+                return Err("cycle_skipping_origin");
+            }
+            Some((k0[0], point(&raw)))
+        }
     };
     Ok(Some(EnvelopeState {
         period: c[0],
@@ -759,6 +794,7 @@ fn read_envelope(
         implicit_failures: implicit[2],
         implicit_pause: implicit[3],
         last_implicit: implicit[4] == 1,
+        origin,
     }))
 }
 

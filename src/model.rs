@@ -342,7 +342,7 @@ pub struct CycleSkipping {
     pub max_jump_periods: u64,
     /// Relative tolerance of a jump's estimated error [-].
     pub tolerance: f64,
-    /// Jumps by backward Euler on the envelope (`jump = "implicit"`), not by the
+    /// Jumps by BDF2 on the envelope (`jump = "implicit"`), not by the
     /// explicit extrapolation of the last period's drift.
     pub implicit: bool,
 }

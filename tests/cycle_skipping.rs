@@ -270,10 +270,18 @@ fn resume_between_jumps(edits: &[(&str, &str)], scratch: &str) {
         after_20 >= 5.0,
         "only {after_20} periods skipped after year 20"
     );
+    let mut jumped = false;
     for t in [20.0, 40.0] {
         let ck = checkpoint_at(&b, t);
         let cd = datasets(&ck).unwrap();
         assert!(cd.contains_key("cycle_skipping_counts"), "{t}");
+        // After a jump, its start is kept: the older point of the next implicit jump.
+        let jumps = match &cd["cycle_skipping_counts"] {
+            Data::UInt(_, counts) => counts[3],
+            other => panic!("{other:?}"),
+        };
+        jumped |= jumps > 0;
+        assert_eq!(cd.contains_key("cycle_skipping_origin"), jumps > 0, "{t}");
         if implicit {
             // Implicit jumps were tried (their trial periods counted) before the resume.
             match &cd["cycle_skipping_implicit"] {
@@ -285,6 +293,7 @@ fn resume_between_jumps(edits: &[(&str, &str)], scratch: &str) {
         assert_same_datasets(&ra, &rb);
         assert_same_datasets(&checkpoint_at(&a, 60.0), &checkpoint_at(&b, 60.0));
     }
+    assert!(jumped, "no jump before year 40");
 }
 
 #[test]
@@ -368,5 +377,5 @@ fn daily_demo_uses_implicit_jumps() {
     assert!((c.period - day).abs() <= 1e-9 * day, "{}", c.period);
     let o = deepdry(&["check", arg(&case)]);
     assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
-    assert!(stdout(&o).contains("then an implicit jump (backward Euler on the envelope"));
+    assert!(stdout(&o).contains("then an implicit jump (BDF2 on the envelope"));
 }

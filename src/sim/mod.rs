@@ -3,7 +3,7 @@
 //! progress bar and an in-memory [`Recorder`] are observers. `deepdry run` composes them
 //! in [`crate::run`]; [`run_in_memory`] is a simulation with a recorder and no files.
 //!
-//! - [`implicit_jump`] cycle skipping's implicit jump (backward Euler on the envelope)
+//! - [`implicit_jump`] cycle skipping's implicit jump (BDF2 on the envelope)
 //! - [`initial`]     initial states (hydrostatic, profile, steady state)
 //! - [`period`]      one period of a periodic forcing and its mean linearisation
 //! - [`times`]       sync times: forcing breakpoints, snapshots, checkpoints, the end

@@ -66,7 +66,7 @@ pub struct EnvelopeOptions {
     pub tolerance: f64,
     /// Step size [s] the integration restarts with after a jump (at most).
     pub dt_after_jump: f64,
-    /// Jumps by backward Euler on the envelope, solved by the driver (which integrates
+    /// Jumps by BDF2 on the envelope, solved by the driver (which integrates
     /// trial periods), instead of [`explicit_landing`].
     pub implicit: bool,
 }
@@ -153,6 +153,10 @@ pub struct EnvelopeState {
     pub implicit_pause: u64,
     /// Whether the last jump was implicit (its error estimate sizes the next).
     pub last_implicit: bool,
+    /// The boundary state the last jump started from, with its period index: the older
+    /// point of the implicit jump's second-order step (see
+    /// [`crate::sim::implicit_jump`]). None before the first jump.
+    pub origin: Option<(u64, PeriodPoint)>,
 }
 
 impl EnvelopeState {
@@ -233,7 +237,8 @@ pub fn jump_size(err: f64, opts: &EnvelopeOptions, last_jump: u64, room: u64) ->
 /// The size [periods] of the next implicit jump: after an implicit jump, that jump
 /// grown or shrunk by its error estimate (backward Euler's error grows as m²: by
 /// 0.9/√err, at most 4× and at least 0.2×); after an explicit jump, twice that jump; at
-/// the start, the exact periods of a block; at most `opts.max_jump` and `room`.
+/// the start, the exact periods of a block; at most `opts.max_jump`, `room`, and
+/// [`MAX_STEP_RATIO`] times the periods since the last jump's start.
 pub fn implicit_jump_size(opts: &EnvelopeOptions, env: &EnvelopeState, room: u64) -> u64 {
     let m = if env.last_jump == 0 {
         opts.exact_periods
@@ -243,8 +248,18 @@ pub fn implicit_jump_size(opts: &EnvelopeOptions, env: &EnvelopeState, room: u64
     } else {
         2 * env.last_jump
     };
-    m.min(opts.max_jump).min(room)
+    // The two-step formula is zero-stable for step ratios below 1 + √2.
+    let ratio_cap = env.origin.as_ref().map_or(u64::MAX, |(k0, _)| {
+        (MAX_STEP_RATIO * env.period.saturating_sub(*k0) as f64).floor() as u64
+    });
+    m.min(ratio_cap).min(opts.max_jump).min(room)
 }
+
+/// Largest ratio of an implicit jump to the periods between its two starting points
+/// (the last jump and the block after it): variable-step BDF2 is zero-stable below
+/// 1 + √2, its parasitic root ω²/(1 + 2ω) = 0.8 at 2 (derived from its characteristic
+/// polynomial (1 + 2ω)ρ² − (1 + ω)²ρ + ω² for y′ = 0).
+pub const MAX_STEP_RATIO: f64 = 2.0;
 
 /// Most Newton iterations of the inversion of the extrapolated storages.
 pub const INVERSION_ITERATIONS: usize = 30;
@@ -372,6 +387,8 @@ pub fn land<const B: usize, P: Problem<B> + ?Sized>(
     env.last_jump = m;
     env.jumps += 1;
     env.skipped += m;
+    // The jump's start becomes the older point of the next implicit jump.
+    env.origin = env.points.pop().map(|p| (env.period - m, p));
     env.points.clear();
     env.points.push(PeriodPoint::of(&st.state));
     worst

@@ -33,9 +33,9 @@
 //!
 //! solved as above with β m in place of m; the cumulative flows are combined alike. A
 //! stiff mode is still damped (by → 0 as m grows), and the step ratio m/h is held below
-//! [`crate::solve::envelope::MAX_STEP_RATIO`] for zero-stability. The error estimate
-//! and the sizes of the jumps stay backward Euler's (the estimate is that of the first-
-//! order landing C_k + m ΔS(y)): the landing is second order, its control conservative.
+//! [`crate::solve::envelope::MAX_STEP_RATIO`] for zero-stability. Its error estimate
+//! compares the landing with the quadratic through the two points and the first period
+//! (`Formula::local_error_into`), and the jumps are sized by its cube root.
 //!
 //! **One grid.** Integrated by the error test, a period's end scatters with the step
 //! sequence, which changes with the state: Newton then stalls at that scatter times m.
@@ -101,8 +101,8 @@ pub struct ImplicitJump {
     pub landing: Landing,
     /// Periods jumped (at most those asked).
     pub periods: u64,
-    /// Its error estimate, ½ m ‖ΔS(y_k) − ΔS(y*)‖ by the error tests at the skipping
-    /// tolerance (≤ 1).
+    /// Its error estimate ([`Formula::local_error_into`], filtered) by the error tests
+    /// at the skipping tolerance (≤ 1).
     pub error: f64,
 }
 
@@ -183,7 +183,7 @@ fn solve(
     let drift_k: Vec<f64> = s_end.iter().zip(&s_k).map(|(b, a)| b - a).collect();
 
     let mut lin = MeanLinearization::new(n, solver);
-    let (mut s_y, mut s_land, mut s_be) = (vec![0.0; len], vec![0.0; len], vec![0.0; len]);
+    let (mut s_y, mut s_land, mut e) = (vec![0.0; len], vec![0.0; len], vec![0.0; len]);
     let mut m = m_asked.max(1);
     for attempt in 0..MAX_ATTEMPTS {
         let mf = m as f64;
@@ -193,13 +193,6 @@ fn solve(
         // C_k + a₂ (C_k − C_k−h): what the landing adds m β ΔS(y) to.
         let base: Vec<f64> = f.combine(&pk.storage, older.map(|p| &p.storage[..]));
         let step = f.beta * mf;
-        // Forward Euler along the boundary state's drift, for the error estimate.
-        let s_fe: Vec<f64> = pk
-            .storage
-            .iter()
-            .zip(&drift_k)
-            .map(|(c, d)| c + mf * d)
-            .collect();
         // The first iterate: a Newton step from the boundary state itself, where
         // G = C_k − base − mβ ΔS(y_k) (linearly implicit on the envelope: the modes
         // faster than the jump start near their landing, not m drifts away).
@@ -232,11 +225,9 @@ fn solve(
             w.linearize(&mut sys, &mut lin, t_trial, &y, &mut s_y, model)?;
             w.storage_at(&mut sys, t_trial, &end.u, &mut s_end);
             // The landing along this period's drift, C* = base + mβ ΔS(y_j), its
-            // unknowns; and backward Euler's, C_k + m ΔS(y_j), for the error estimate.
+            // unknowns.
             for j in 0..len {
-                let drift = s_end[j] - s_y[j];
-                s_land[j] = base[j] + step * drift;
-                s_be[j] = pk.storage[j] + mf * drift;
+                s_land[j] = base[j] + step * (s_end[j] - s_y[j]);
             }
             let mut u_land = y.clone();
             let scale = inversion_scale(&s_land, &pk.storage);
@@ -259,8 +250,8 @@ fn solve(
                 end.steps
             );
             if distance <= ITERATION_TOLERANCE {
-                let error =
-                    w.error_estimate(&sys, &mut lin, &u_land, &s_fe, &s_be, period, opts)?;
+                f.local_error_into(&s_land, pk, older, &drift_k, &mut e);
+                let error = w.error_estimate(&sys, &mut lin, &u_land, &e, period, opts)?;
                 log::debug!("implicit jump of {m} periods: error estimate {error:.3e}");
                 if error <= 1.0 {
                     let mut flows = f.combine(&pk.flows, older.map(|p| &p.flows[..]));
@@ -277,8 +268,10 @@ fn solve(
                         error,
                     });
                 }
-                // Too long: backward Euler's error grows as m².
-                let shorter = ((mf * 0.9 / error.sqrt()).floor() as u64).min(m - 1);
+                // Too long: the error grows as m² (backward Euler) or m³.
+                let shorter = ((mf * (0.9 * 0.9 / error).powf(1.0 / f.error_power())).floor()
+                    as u64)
+                    .min(m - 1);
                 if shorter == 0 || attempt + 1 == MAX_ATTEMPTS {
                     return Err(Error::Numerical(format!(
                         "the error estimate {error:.3e} of a jump of {m} periods exceeds the tolerance"
@@ -323,25 +316,90 @@ struct Formula {
     a1: f64,
     a2: f64,
     beta: f64,
+    /// The jump m and the periods h back to the older point (0: none) [periods].
+    m: f64,
+    h: f64,
 }
 
 impl Formula {
     fn new(m: u64, older: Option<u64>) -> Self {
+        let mf = m as f64;
         match older {
             Some(h) if h > 0 => {
-                let w = m as f64 / h as f64;
+                let w = mf / h as f64;
                 let d = 1.0 + 2.0 * w;
                 Formula {
                     a1: (1.0 + w) * (1.0 + w) / d,
                     a2: w * w / d,
                     beta: (1.0 + w) / d,
+                    m: mf,
+                    h: h as f64,
                 }
             }
             _ => Formula {
                 a1: 1.0,
                 a2: 0.0,
                 beta: 1.0,
+                m: mf,
+                h: 0.0,
             },
+        }
+    }
+
+    /// The power of m that the local error grows with: 2 for backward Euler, 3 for the
+    /// two-step formula.
+    fn error_power(&self) -> f64 {
+        if self.h > 0.0 {
+            3.0
+        } else {
+            2.0
+        }
+    }
+
+    /// The local error of the landing `landing` (C*) in the contents, into `e`, from
+    /// the newest point (C_k, and `drift` = ΔS(y_k), the period integrated from it) and
+    /// the older one (derived here, t in periods from the newest point):
+    ///
+    /// - backward Euler: against forward Euler, e = ½ (C_k + m ΔS(y_k) − C*)
+    ///   (= ½ m (ΔS(y_k) − ΔS(y*)), ≈ ½ m² C″);
+    /// - the two-step formula (Milne's device, common practice for predictor–corrector
+    ///   pairs): the predictor q is the quadratic through C_{k−h} at −h, C_k at 0 and
+    ///   C_k + ΔS(y_k) at 1 (the drift is the change over the period, not a derivative),
+    ///   q(m) = C_k + m ΔS(y_k) + m(m − 1) c, c = (C_{k−h} − C_k + h ΔS(y_k))/(h(h + 1)).
+    ///   For a cubic envelope y, the interpolation error is y(m) − q(m) =
+    ///   y‴ m(m − 1)(m + h)/6, and the formula's residual at the exact values is
+    ///   y‴ m³ K with K = 1/6 − 1/(6ω(1 + 2ω)) − (1 + ω)/(2(1 + 2ω)) (−2/9 at ω = 1, the
+    ///   error constant of BDF2), so C* − y(m) = −K m³ y‴ where ΔS does not depend on
+    ///   the state, and e = C* − y(m) = r (C* − q), r = −K m³/(−K m³ + m(m − 1)(m + h)/6).
+    fn local_error_into(
+        &self,
+        landing: &[f64],
+        newest: &PeriodPoint,
+        older: Option<&PeriodPoint>,
+        drift: &[f64],
+        e: &mut [f64],
+    ) {
+        let (m, h) = (self.m, self.h);
+        let ck = &newest.storage;
+        match older {
+            Some(o) if h > 0.0 => {
+                let w = m / h;
+                let k = 1.0 / 6.0
+                    - 1.0 / (6.0 * w * (1.0 + 2.0 * w))
+                    - (1.0 + w) / (2.0 * (1.0 + 2.0 * w));
+                let corrector = -k * m * m * m;
+                let r = corrector / (corrector + m * (m - 1.0) * (m + h) / 6.0);
+                for (j, x) in e.iter_mut().enumerate() {
+                    let c = (o.storage[j] - ck[j] + h * drift[j]) / (h * (h + 1.0));
+                    let q = ck[j] + m * drift[j] + m * (m - 1.0) * c;
+                    *x = r * (landing[j] - q);
+                }
+            }
+            _ => {
+                for (j, x) in e.iter_mut().enumerate() {
+                    *x = 0.5 * (ck[j] + m * drift[j] - landing[j]);
+                }
+            }
         }
     }
 
@@ -507,8 +565,8 @@ impl Work {
         out.map_err(Error::Numerical)
     }
 
-    /// The jump's error estimate: backward against forward Euler in the contents,
-    /// e = ½ (C_FE − C*) = ½ m (ΔS(y_k) − ΔS(y*)), filtered through one backward-Euler
+    /// The jump's error estimate: the local error `e` in the contents
+    /// ([`Formula::local_error_into`]), filtered through one backward-Euler
     /// step over the E exact periods that follow every landing before anything reads the
     /// state (an implicit jump lands at least E periods before a snapshot, checkpoint
     /// or the end), e' = (I − E P F̄ S⁻¹)⁻¹ e (the filtered estimate of stiff solvers,
@@ -529,18 +587,12 @@ impl Work {
         sys: &System,
         lin: &mut MeanLinearization,
         u: &[f64],
-        s_fe: &[f64],
-        s_land: &[f64],
+        e: &[f64],
         period: f64,
         opts: &EnvelopeOptions,
     ) -> Result<f64> {
-        let e: Vec<f64> = s_fe
-            .iter()
-            .zip(s_land)
-            .map(|(a, b)| 0.5 * (a - b))
-            .collect();
         let filter = opts.exact_periods as f64 * period;
-        self.solve_scaled(sys, lin, &e, filter)?;
+        self.solve_scaled(sys, lin, e, filter)?;
         let volumes = sys.volumes();
         for (j, c) in self.change.iter_mut().enumerate() {
             *c = lin.content_change(&self.delta, volumes, j);
@@ -558,7 +610,7 @@ impl Work {
 
 #[cfg(test)]
 mod tests {
-    use super::Formula;
+    use super::{Formula, PeriodPoint};
 
     /// At equal steps (ω = 1) the formula is the constant-step BDF2,
     /// y_{n+1} − 4/3 y_n + 1/3 y_{n−1} = 2/3 h f_{n+1} (Hairer & Wanner, Solving Ordinary
@@ -598,5 +650,57 @@ mod tests {
         let lhs = y(4.0) - y(0.0);
         assert!((lhs - 4.0 * dy(4.0) + c * 16.0).abs() < 1e-12);
         assert_eq!(be.combine(&[2.0], Some(&[5.0])), vec![2.0]);
+    }
+
+    fn point(c: f64) -> PeriodPoint {
+        PeriodPoint {
+            u: vec![],
+            storage: vec![c],
+            flows: vec![],
+        }
+    }
+
+    /// The local error estimates are exact where their derivations are: for a cubic
+    /// envelope whose drift does not depend on the state (y′ a function of t alone), the
+    /// two-step landing's error at any step ratio, and for a quadratic one backward
+    /// Euler's (derived in `Formula::local_error_into`).
+    #[test]
+    fn the_local_error_estimates_are_exact_for_low_degree_envelopes() {
+        let (a, b, c, d) = (0.3, 1.1, -0.4, 0.07);
+        let y = |t: f64| a + b * t + c * t * t + d * t * t * t;
+        let dy = |t: f64| b + 2.0 * c * t + 3.0 * d * t * t;
+        for (m, h) in [(1, 1), (4, 8), (16, 8), (1000, 600), (7, 3)] {
+            let f = Formula::new(m, Some(h));
+            let (mf, hf) = (m as f64, h as f64);
+            let landing = f.combine(&[y(0.0)], Some(&[y(-hf)]))[0] + f.beta * mf * dy(mf);
+            let drift = [y(1.0) - y(0.0)];
+            let mut e = [0.0];
+            f.local_error_into(
+                &[landing],
+                &point(y(0.0)),
+                Some(&point(y(-hf))),
+                &drift,
+                &mut e,
+            );
+            let truth = landing - y(mf);
+            assert!(
+                (e[0] - truth).abs() <= 1e-9 * truth.abs(),
+                "m {m} h {h}: {} vs {truth}",
+                e[0]
+            );
+            assert_eq!(f.error_power(), 3.0);
+        }
+        // Backward Euler on a quadratic (d = 0): e = ½ m (ΔS(y_k) − ΔS(y*)) with the
+        // drifts the period's changes; here y* is exact, so e = ½ m (y(1) − y(0) −
+        // (y(m + 1) − y(m))) = −c m², exactly −½ m² y″.
+        let q = |t: f64| a + b * t + c * t * t;
+        let m = 6.0;
+        let f = Formula::new(6, None);
+        let landing = q(0.0) + m * (q(m + 1.0) - q(m));
+        let mut e = [0.0];
+        f.local_error_into(&[landing], &point(q(0.0)), None, &[q(1.0) - q(0.0)], &mut e);
+        assert!((e[0] - 0.5 * m * ((q(1.0) - q(0.0)) - (q(m + 1.0) - q(m)))).abs() < 1e-12);
+        assert!((e[0] + c * m * m).abs() < 1e-12, "{}", e[0]);
+        assert_eq!(f.error_power(), 2.0);
     }
 }

@@ -235,15 +235,18 @@ pub fn jump_size(err: f64, opts: &EnvelopeOptions, last_jump: u64, room: u64) ->
 }
 
 /// The size [periods] of the next implicit jump: after an implicit jump, that jump
-/// grown or shrunk by its error estimate (backward Euler's error grows as m²: by
-/// 0.9/√err, at most 4× and at least 0.2×); after an explicit jump, twice that jump; at
+/// grown or shrunk by its error estimate (by 0.9/err^(1/p), at most 4× and at least
+/// 0.2×, p = 2 for backward Euler, whose error grows as m², 3 for the two-step formula
+/// of every later jump); after an explicit jump, twice that jump; at
 /// the start, the exact periods of a block; at most `opts.max_jump`, `room`, and
 /// [`MAX_STEP_RATIO`] times the periods since the last jump's start.
 pub fn implicit_jump_size(opts: &EnvelopeOptions, env: &EnvelopeState, room: u64) -> u64 {
     let m = if env.last_jump == 0 {
         opts.exact_periods
     } else if env.last_implicit && env.last_error.is_finite() {
-        let factor = (0.9 / env.last_error.max(1e-12).sqrt()).clamp(0.2, 4.0);
+        // The last jump took the two-step formula if a jump came before it.
+        let power = if env.jumps >= 2 { 3.0 } else { 2.0 };
+        let factor = (0.9 / env.last_error.max(1e-12).powf(1.0 / power)).clamp(0.2, 4.0);
         ((env.last_jump as f64 * factor).floor() as u64).max(1)
     } else {
         2 * env.last_jump

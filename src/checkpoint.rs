@@ -654,6 +654,14 @@ fn f64s(file: &File, name: &str, v: &[f64], units: &str, long: &str) -> hdf5::Re
     describe(&ds, units, long)
 }
 
+/// The 1-D f64 dataset `name` of `file`; Err: its name (the part of a checkpoint that is
+/// missing or unreadable).
+fn read_f64s(file: &File, name: &'static str) -> std::result::Result<Vec<f64>, &'static str> {
+    file.dataset(name)
+        .and_then(|d| d.read_raw::<f64>())
+        .map_err(|_| name)
+}
+
 fn write_envelope(file: &File, env: &EnvelopeState) -> hdf5::Result<()> {
     let counts = vec![
         env.period,
@@ -725,10 +733,7 @@ fn read_envelope(
     let c = counts
         .read_raw::<u64>()
         .map_err(|_| "cycle_skipping_counts")?;
-    let v = file
-        .dataset("cycle_skipping_values")
-        .and_then(|d| d.read_raw::<f64>())
-        .map_err(|_| "cycle_skipping_values")?;
+    let v = read_f64s(file, "cycle_skipping_values")?;
     if c.len() != 6 || v.len() != 1 + nq || c[5] > 3 {
         return Err("cycle skipping state");
     }
@@ -750,10 +755,7 @@ fn read_envelope(
     let points = if count == 0 {
         Vec::new()
     } else {
-        let raw = file
-            .dataset("cycle_skipping_points")
-            .and_then(|d| d.read_raw::<f64>())
-            .map_err(|_| "cycle_skipping_points")?;
+        let raw = read_f64s(file, "cycle_skipping_points")?;
         if raw.len() != count * width {
             return Err("cycle_skipping_points");
         }
@@ -767,10 +769,7 @@ fn read_envelope(
             let k0 = d
                 .read_raw::<u64>()
                 .map_err(|_| "cycle_skipping_origin_period")?;
-            let raw = file
-                .dataset("cycle_skipping_origin")
-                .and_then(|d| d.read_raw::<f64>())
-                .map_err(|_| "cycle_skipping_origin")?;
+            let raw = read_f64s(file, "cycle_skipping_origin")?;
             if k0.len() != 1 || k0[0] > c[0] {
                 return Err("cycle_skipping_origin_period");
             }
@@ -882,10 +881,7 @@ fn read_solutes(file: &File) -> std::result::Result<Option<SoluteState>, &'stati
         .iter()
         .map(|s| s.as_str().to_string())
         .collect();
-    let times = file
-        .dataset("solute_time_s")
-        .and_then(|d| d.read_raw::<f64>())
-        .map_err(|_| "solute_time_s")?;
+    let times = read_f64s(file, "solute_time_s")?;
     let mass = file
         .dataset("solute_mass")
         .and_then(|d| d.read_2d::<f64>())
@@ -894,10 +890,7 @@ fn read_solutes(file: &File) -> std::result::Result<Option<SoluteState>, &'stati
         .dataset("solute_cumulative")
         .and_then(|d| d.read_2d::<f64>())
         .map_err(|_| "solute_cumulative")?;
-    let initial_mass = file
-        .dataset("solute_initial_mass")
-        .and_then(|d| d.read_raw::<f64>())
-        .map_err(|_| "solute_initial_mass")?;
+    let initial_mass = read_f64s(file, "solute_initial_mass")?;
     if times.is_empty()
         || mass.nrows() != times.len()
         || cum.nrows() != times.len()

@@ -350,7 +350,7 @@ pub fn summary(m: &Model) -> String {
     if let Some(c) = &t.cycle_skipping {
         let most = c.max_jump_periods;
         let how = if c.implicit {
-            format!("an implicit jump (BDF2 on the envelope through the previous jump's start, backward Euler for the first; solved by trial periods on the steps of one recorded period) of up to {most} periods while its estimated error (the landing against the quadratic through the two points and the period after the newest; for the first, ½ m × the change of the drift over the jump) is")
+            format!("an implicit jump (BDF2 on the envelope through the previous jump's start, backward Euler for the first; solved by trial periods on the steps of one recorded period) of up to {most} periods while its estimated error (the landing against the quadratic through the two points and the period after the newest, or ½ m × the change of the drift over the jump where that allows a longer jump; for the first jump the latter) is")
         } else {
             format!("a jump of up to {most} periods along the drift of the last one while its estimated error (½ m (m + 1) × the change of the drift between periods) is")
         };

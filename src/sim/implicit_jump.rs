@@ -35,7 +35,14 @@
 //! stiff mode is still damped (by → 0 as m grows), and the step ratio m/h is held below
 //! [`crate::solve::envelope::MAX_STEP_RATIO`] for zero-stability. Its error estimate
 //! compares the landing with the quadratic through the two points and the first period
-//! (`Formula::local_error_into`), and the jumps are sized by its cube root.
+//! (`Formula::local_error_into`), and the jumps are sized by its cube root. Where that
+//! estimate grows only as m (the drift's change from one period to the next, which the
+//! quadratic extrapolates twice over: on the daily wave after the first centuries it held
+//! the jumps at ~2 200 days, backward Euler's at ~7 000), backward Euler's estimate along
+//! the same drift is taken instead when it allows the longer jump: the jump is accepted
+//! when either estimate allows it (measured: the same accuracy, and on 10⁴ years of
+//! days 1 102 jumps instead of 1 645; README, "Periodic forcing: second-order implicit
+//! jumps").
 //!
 //! **One grid.** Integrated by the error test, a period's end scatters with the step
 //! sequence, which changes with the state: Newton then stalls at that scatter times m.
@@ -251,7 +258,19 @@ fn solve(
             );
             if distance <= ITERATION_TOLERANCE {
                 f.local_error_into(&s_land, pk, older, &drift_k, &mut e);
-                let error = w.error_estimate(&sys, &mut lin, &u_land, &e, period, opts)?;
+                let mut error = w.error_estimate(&sys, &mut lin, &u_land, &e, period, opts)?;
+                if f.error_power() > 2.0 {
+                    // Backward Euler's estimate along the same drift, on the cube-root
+                    // scale (its e^{3/2} sizes the next jump by 0.9/√e, as it would).
+                    for (j, x) in e.iter_mut().enumerate() {
+                        *x = 0.5 * mf * (drift_k[j] - (s_end[j] - s_y[j]));
+                    }
+                    let first = w.error_estimate(&sys, &mut lin, &u_land, &e, period, opts)?;
+                    log::debug!(
+                        "implicit jump of {m} periods: error estimates {error:.3e} (second order), {first:.3e} (first)"
+                    );
+                    error = error.min(first.powf(1.5));
+                }
                 log::debug!("implicit jump of {m} periods: error estimate {error:.3e}");
                 if error <= 1.0 {
                     let mut flows = f.combine(&pk.flows, older.map(|p| &p.flows[..]));

@@ -692,12 +692,11 @@ impl<'m> Simulation<'m> {
                 );
                 let k = env.period;
                 let time_of = |m: u64| envelope::boundary(t0, p, k + m);
-                let origin = env.origin.as_ref().map(|(k0, p)| (k - k0, p));
                 if asked > 0 {
                     let found = implicit_jump(
                         self.model,
                         &env.points,
-                        origin,
+                        env.older_point(),
                         &opts,
                         asked,
                         &time_of,

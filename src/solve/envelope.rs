@@ -169,6 +169,14 @@ impl EnvelopeState {
         }
     }
 
+    /// The older point of the next implicit jump: the last jump's start, with the
+    /// periods from it to the last boundary reached (None before the first jump).
+    pub fn older_point(&self) -> Option<(u64, &PeriodPoint)> {
+        self.origin
+            .as_ref()
+            .map(|(k0, p)| (self.period.saturating_sub(*k0), p))
+    }
+
     /// Keeps the point of state `s` (at a period boundary), dropping the oldest beyond 3.
     pub fn push(&mut self, s: &StepState) {
         if self.points.len() == 3 {
@@ -252,8 +260,8 @@ pub fn implicit_jump_size(opts: &EnvelopeOptions, env: &EnvelopeState, room: u64
         2 * env.last_jump
     };
     // The two-step formula is zero-stable for step ratios below 1 + √2.
-    let ratio_cap = env.origin.as_ref().map_or(u64::MAX, |(k0, _)| {
-        (MAX_STEP_RATIO * env.period.saturating_sub(*k0) as f64).floor() as u64
+    let ratio_cap = env.older_point().map_or(u64::MAX, |(h, _)| {
+        (MAX_STEP_RATIO * h as f64).floor() as u64
     });
     m.min(ratio_cap).min(opts.max_jump).min(room)
 }

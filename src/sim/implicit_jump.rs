@@ -35,7 +35,7 @@
 //! stiff mode is still damped (by → 0 as m grows), and the step ratio m/h is held below
 //! [`crate::solve::envelope::MAX_STEP_RATIO`] for zero-stability. Its error estimate
 //! compares the landing with the quadratic through the two points and the first period
-//! (`Formula::local_error_into`), and the jumps are sized by its cube root. Where that
+//! (`Formula::second_order_error_into`), and the jumps are sized by its cube root. Where that
 //! estimate grows only as m (the drift's change from one period to the next, which the
 //! quadratic extrapolates twice over: on the daily wave after the first centuries it held
 //! the jumps at ~2 200 days, backward Euler's at ~7 000), backward Euler's estimate along
@@ -108,7 +108,7 @@ pub struct ImplicitJump {
     pub landing: Landing,
     /// Periods jumped (at most those asked).
     pub periods: u64,
-    /// Its error estimate ([`Formula::local_error_into`], filtered) by the error tests
+    /// Its error estimate (see [`Formula`], filtered) by the error tests
     /// at the skipping tolerance (≤ 1).
     pub error: f64,
 }
@@ -257,20 +257,21 @@ fn solve(
                 end.steps
             );
             if distance <= ITERATION_TOLERANCE {
-                f.local_error_into(&s_land, pk, older, &drift_k, &mut e);
-                let mut error = w.error_estimate(&sys, &mut lin, &u_land, &e, period, opts)?;
-                if f.error_power() > 2.0 {
-                    // Backward Euler's estimate along the same drift, on the cube-root
-                    // scale (its e^{3/2} sizes the next jump by 0.9/√e, as it would).
-                    for (j, x) in e.iter_mut().enumerate() {
-                        *x = 0.5 * mf * (drift_k[j] - (s_end[j] - s_y[j]));
+                first_order_error_into(mf, &drift_k, &s_end, &s_y, &mut e);
+                let first = w.error_estimate(&sys, &mut lin, &u_land, &e, period, opts)?;
+                let error = match older.filter(|_| f.error_power() > 2.0) {
+                    Some(o) => {
+                        f.second_order_error_into(&s_land, pk, o, &drift_k, &mut e);
+                        let second = w.error_estimate(&sys, &mut lin, &u_land, &e, period, opts)?;
+                        log::debug!(
+                            "implicit jump of {m} periods: error estimates {second:.3e} (second order), {first:.3e} (first)"
+                        );
+                        // Backward Euler's on the cube-root scale (its e^{3/2} sizes the
+                        // next jump by 0.9/√e, as it would), where it is the smaller.
+                        second.min(first.powf(1.5))
                     }
-                    let first = w.error_estimate(&sys, &mut lin, &u_land, &e, period, opts)?;
-                    log::debug!(
-                        "implicit jump of {m} periods: error estimates {error:.3e} (second order), {first:.3e} (first)"
-                    );
-                    error = error.min(first.powf(1.5));
-                }
+                    None => first,
+                };
                 log::debug!("implicit jump of {m} periods: error estimate {error:.3e}");
                 if error <= 1.0 {
                     let mut flows = f.combine(&pk.flows, older.map(|p| &p.flows[..]));
@@ -319,6 +320,15 @@ fn solve(
 }
 
 const B: usize = 3;
+
+/// Backward Euler's local error over a jump of `m` periods in the contents, into `e`:
+/// against forward Euler, e = ½ m (ΔS(y_k) − ΔS(y*)) ≈ ½ m² C″, with ΔS(y_k) = `drift`
+/// and ΔS(y*) = `s_end` − `s_y` (the period integrated from the landing's iterate).
+fn first_order_error_into(m: f64, drift: &[f64], s_end: &[f64], s_y: &[f64], e: &mut [f64]) {
+    for (j, x) in e.iter_mut().enumerate() {
+        *x = 0.5 * m * (drift[j] - (s_end[j] - s_y[j]));
+    }
+}
 
 /// The two-step formula of a jump of m periods whose older point lies h periods before
 /// the newest (variable-step BDF2 on the envelope, ω = m/h):
@@ -375,50 +385,37 @@ impl Formula {
         }
     }
 
-    /// The local error of the landing `landing` (C*) in the contents, into `e`, from
-    /// the newest point (C_k, and `drift` = ΔS(y_k), the period integrated from it) and
-    /// the older one (derived here, t in periods from the newest point):
-    ///
-    /// - backward Euler: against forward Euler, e = ½ (C_k + m ΔS(y_k) − C*)
-    ///   (= ½ m (ΔS(y_k) − ΔS(y*)), ≈ ½ m² C″);
-    /// - the two-step formula (Milne's device, common practice for predictor–corrector
-    ///   pairs): the predictor q is the quadratic through C_{k−h} at −h, C_k at 0 and
-    ///   C_k + ΔS(y_k) at 1 (the drift is the change over the period, not a derivative),
-    ///   q(m) = C_k + m ΔS(y_k) + m(m − 1) c, c = (C_{k−h} − C_k + h ΔS(y_k))/(h(h + 1)).
-    ///   For a cubic envelope y, the interpolation error is y(m) − q(m) =
-    ///   y‴ m(m − 1)(m + h)/6, and the formula's residual at the exact values is
-    ///   y‴ m³ K with K = 1/6 − 1/(6ω(1 + 2ω)) − (1 + ω)/(2(1 + 2ω)) (−2/9 at ω = 1, the
-    ///   error constant of BDF2), so C* − y(m) = −K m³ y‴ where ΔS does not depend on
-    ///   the state, and e = C* − y(m) = r (C* − q), r = −K m³/(−K m³ + m(m − 1)(m + h)/6).
-    fn local_error_into(
+    /// The two-step formula's local error of the landing `landing` (C*) in the
+    /// contents, into `e`, from the newest point (C_k, and `drift` = ΔS(y_k), the period
+    /// integrated from it) and the older one (derived here, t in periods from the newest
+    /// point; Milne's device, common practice for predictor–corrector pairs): the
+    /// predictor q is the quadratic through C_{k−h} at −h, C_k at 0 and C_k + ΔS(y_k) at
+    /// 1 (the drift is the change over the period, not a derivative),
+    /// q(m) = C_k + m ΔS(y_k) + m(m − 1) c, c = (C_{k−h} − C_k + h ΔS(y_k))/(h(h + 1)).
+    /// For a cubic envelope y, the interpolation error is y(m) − q(m) =
+    /// y‴ m(m − 1)(m + h)/6, and the formula's residual at the exact values is
+    /// y‴ m³ K with K = 1/6 − 1/(6ω(1 + 2ω)) − (1 + ω)/(2(1 + 2ω)) (−2/9 at ω = 1, the
+    /// error constant of BDF2), so C* − y(m) = −K m³ y‴ where ΔS does not depend on the
+    /// state, and e = C* − y(m) = r (C* − q), r = −K m³/(−K m³ + m(m − 1)(m + h)/6).
+    /// (Backward Euler's is [`first_order_error_into`].)
+    fn second_order_error_into(
         &self,
         landing: &[f64],
         newest: &PeriodPoint,
-        older: Option<&PeriodPoint>,
+        older: &PeriodPoint,
         drift: &[f64],
         e: &mut [f64],
     ) {
         let (m, h) = (self.m, self.h);
         let ck = &newest.storage;
-        match older {
-            Some(o) if h > 0.0 => {
-                let w = m / h;
-                let k = 1.0 / 6.0
-                    - 1.0 / (6.0 * w * (1.0 + 2.0 * w))
-                    - (1.0 + w) / (2.0 * (1.0 + 2.0 * w));
-                let corrector = -k * m * m * m;
-                let r = corrector / (corrector + m * (m - 1.0) * (m + h) / 6.0);
-                for (j, x) in e.iter_mut().enumerate() {
-                    let c = (o.storage[j] - ck[j] + h * drift[j]) / (h * (h + 1.0));
-                    let q = ck[j] + m * drift[j] + m * (m - 1.0) * c;
-                    *x = r * (landing[j] - q);
-                }
-            }
-            _ => {
-                for (j, x) in e.iter_mut().enumerate() {
-                    *x = 0.5 * (ck[j] + m * drift[j] - landing[j]);
-                }
-            }
+        let w = m / h;
+        let k = 1.0 / 6.0 - 1.0 / (6.0 * w * (1.0 + 2.0 * w)) - (1.0 + w) / (2.0 * (1.0 + 2.0 * w));
+        let corrector = -k * m * m * m;
+        let r = corrector / (corrector + m * (m - 1.0) * (m + h) / 6.0);
+        for (j, x) in e.iter_mut().enumerate() {
+            let c = (older.storage[j] - ck[j] + h * drift[j]) / (h * (h + 1.0));
+            let q = ck[j] + m * drift[j] + m * (m - 1.0) * c;
+            *x = r * (landing[j] - q);
         }
     }
 
@@ -585,9 +582,9 @@ impl Work {
     }
 
     /// The jump's error estimate: the local error `e` in the contents
-    /// ([`Formula::local_error_into`]), filtered through one backward-Euler
-    /// step over the E exact periods that follow every landing before anything reads the
-    /// state (an implicit jump lands at least E periods before a snapshot, checkpoint
+    /// ([`first_order_error_into`], `Formula::second_order_error_into`), filtered through
+    /// one backward-Euler step over the E exact periods that follow every landing before
+    /// anything reads the state (an implicit jump lands at least E periods before a snapshot, checkpoint
     /// or the end), e' = (I − E P F̄ S⁻¹)⁻¹ e (the filtered estimate of stiff solvers,
     /// common practice; from memory): a mode that those periods forget (the top cells
     /// under the forcing), whose part of e is the landing's lag and not an error the run
@@ -629,7 +626,7 @@ impl Work {
 
 #[cfg(test)]
 mod tests {
-    use super::{Formula, PeriodPoint};
+    use super::{first_order_error_into, Formula, PeriodPoint};
 
     /// At equal steps (ω = 1) the formula is the constant-step BDF2,
     /// y_{n+1} − 4/3 y_n + 1/3 y_{n−1} = 2/3 h f_{n+1} (Hairer & Wanner, Solving Ordinary
@@ -682,7 +679,8 @@ mod tests {
     /// The local error estimates are exact where their derivations are: for a cubic
     /// envelope whose drift does not depend on the state (y′ a function of t alone), the
     /// two-step landing's error at any step ratio, and for a quadratic one backward
-    /// Euler's (derived in `Formula::local_error_into`).
+    /// Euler's (derived in `Formula::second_order_error_into` and
+    /// `first_order_error_into`).
     #[test]
     fn the_local_error_estimates_are_exact_for_low_degree_envelopes() {
         let (a, b, c, d) = (0.3, 1.1, -0.4, 0.07);
@@ -694,13 +692,7 @@ mod tests {
             let landing = f.combine(&[y(0.0)], Some(&[y(-hf)]))[0] + f.beta * mf * dy(mf);
             let drift = [y(1.0) - y(0.0)];
             let mut e = [0.0];
-            f.local_error_into(
-                &[landing],
-                &point(y(0.0)),
-                Some(&point(y(-hf))),
-                &drift,
-                &mut e,
-            );
+            f.second_order_error_into(&[landing], &point(y(0.0)), &point(y(-hf)), &drift, &mut e);
             let truth = landing - y(mf);
             assert!(
                 (e[0] - truth).abs() <= 1e-9 * truth.abs(),
@@ -715,9 +707,8 @@ mod tests {
         let q = |t: f64| a + b * t + c * t * t;
         let m = 6.0;
         let f = Formula::new(6, None);
-        let landing = q(0.0) + m * (q(m + 1.0) - q(m));
         let mut e = [0.0];
-        f.local_error_into(&[landing], &point(q(0.0)), None, &[q(1.0) - q(0.0)], &mut e);
+        first_order_error_into(m, &[q(1.0) - q(0.0)], &[q(m + 1.0)], &[q(m)], &mut e);
         assert!((e[0] - 0.5 * m * ((q(1.0) - q(0.0)) - (q(m + 1.0) - q(m)))).abs() < 1e-12);
         assert!((e[0] + c * m * m).abs() < 1e-12, "{}", e[0]);
         assert_eq!(f.error_power(), 2.0);

@@ -67,7 +67,9 @@ impl Profile {
             self.head[i] = c.h.v;
             self.liquid_content[i] = c.theta.v;
             self.vapor_density[i] = c.rv.v;
-            self.relative_humidity[i] = c.rv.v / c.rvs.v;
+            // rv / rvs(T), rvs as the cells' evaluation computes it (bitwise).
+            let rvs = crate::props::water::saturated_vapor_density_d1(c.t.v).0;
+            self.relative_humidity[i] = c.rv.v / rvs;
         }
         self.root_water_uptake.clear();
         if sys.has_vegetation {

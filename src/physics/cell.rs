@@ -187,23 +187,61 @@ pub fn cell_props<const N: usize>(
 }
 
 impl<const N: usize> CellProps<N> {
-    /// The values alone (what the residual-only path computes).
-    pub fn values(&self) -> CellProps<0> {
+    /// Every property NaN: a placeholder, never read as a value.
+    #[inline]
+    pub fn undefined() -> Self {
+        let x = Dual::cst(f64::NAN);
         CellProps {
+            t: x,
+            h: x,
+            rv: x,
+            theta: x,
+            theta_a: x,
+            hr: x,
+            rvs: x,
+            drvs: x,
+            rveq: x,
+            k: x,
+            kt: x,
+            dv: x,
+            eta: x,
+            lambda: x,
+            energy: x,
+            water: x,
+            vapor: x,
+        }
+    }
+}
+
+/// What the column keeps of each cell's last evaluation (`System::cells`): the unknowns
+/// and what the cell's own rows, the step's error test and the results read. 8 values
+/// (64 B) instead of the 17 of a whole record: the properties only faces read are
+/// evaluated where a face needs them, and dropped after it (see `System::evaluate`).
+#[derive(Debug, Clone, Copy)]
+pub struct CellValues {
+    pub t: Dual<0>,
+    pub h: Dual<0>,
+    pub rv: Dual<0>,
+    /// Liquid content θl [m³ m⁻³].
+    pub theta: Dual<0>,
+    /// Equilibrium vapour density hr·rvs [kg m⁻³].
+    pub rveq: Dual<0>,
+    /// Storages per bulk volume: energy e [J m⁻³], total water [kg m⁻³], vapour [kg m⁻³].
+    pub energy: Dual<0>,
+    pub water: Dual<0>,
+    pub vapor: Dual<0>,
+}
+
+impl<const N: usize> CellProps<N> {
+    /// What the column keeps of this record (its values, see [`CellValues`]).
+    #[inline]
+    pub fn kept_values(&self) -> CellValues {
+        CellValues {
             t: self.t.value_only(),
             h: self.h.value_only(),
             rv: self.rv.value_only(),
             theta: self.theta.value_only(),
-            theta_a: self.theta_a.value_only(),
-            hr: self.hr.value_only(),
-            rvs: self.rvs.value_only(),
-            drvs: self.drvs.value_only(),
             rveq: self.rveq.value_only(),
-            k: self.k.value_only(),
-            kt: self.kt.value_only(),
-            dv: self.dv.value_only(),
-            eta: self.eta.value_only(),
-            lambda: self.lambda.value_only(),
             energy: self.energy.value_only(),
             water: self.water.value_only(),
             vapor: self.vapor.value_only(),
@@ -211,45 +249,30 @@ impl<const N: usize> CellProps<N> {
     }
 }
 
-/// A cell's properties with derivatives kept as the base of linearised evaluations
-/// (`crate::physics::derivs`), without the unknowns T, h and rv: their duals are the
-/// independent variables at the base state (`Dual::var`), and in equilibrium mode rv is
-/// rveq itself, so they are rebuilt exactly from the base state ([`KeptCell::full`]).
-/// 14 duals instead of 17 (equilibrium mode: 336 B instead of 408 B per cell).
+/// What a cell keeps of its evaluation with derivatives as the base of linearised
+/// evaluations (`crate::physics::derivs`): the properties its own rows and the step's
+/// error test read — liquid content, equilibrium vapour density and the three storages
+/// — with their derivatives. The properties only faces read (conductivities,
+/// diffusivity, humidity…) are not kept: a cell is linearised only where both its faces
+/// are (a face evaluated afresh evaluates both its cells directly), so no face reads a
+/// linearised cell. 5 duals instead of the 17 of the whole record (equilibrium mode:
+/// 120 B instead of 408 B per cell).
 #[derive(Debug, Clone, Copy)]
 pub struct KeptCell<const N: usize> {
     pub theta: Dual<N>,
-    pub theta_a: Dual<N>,
-    pub hr: Dual<N>,
-    pub rvs: Dual<N>,
-    pub drvs: Dual<N>,
     pub rveq: Dual<N>,
-    pub k: Dual<N>,
-    pub kt: Dual<N>,
-    pub dv: Dual<N>,
-    pub eta: Dual<N>,
-    pub lambda: Dual<N>,
     pub energy: Dual<N>,
     pub water: Dual<N>,
     pub vapor: Dual<N>,
 }
 
 impl<const N: usize> KeptCell<N> {
-    /// The record of `c` without its unknowns.
+    /// What `c` keeps.
     #[inline]
     pub fn of(c: &CellProps<N>) -> Self {
         KeptCell {
             theta: c.theta,
-            theta_a: c.theta_a,
-            hr: c.hr,
-            rvs: c.rvs,
-            drvs: c.drvs,
             rveq: c.rveq,
-            k: c.k,
-            kt: c.kt,
-            dv: c.dv,
-            eta: c.eta,
-            lambda: c.lambda,
             energy: c.energy,
             water: c.water,
             vapor: c.vapor,
@@ -267,34 +290,10 @@ impl<const N: usize> KeptCell<N> {
         }
     }
 
-    /// The whole record at its base state `x0` (as evaluated there, bitwise).
-    #[inline]
-    pub fn full(&self, x0: &[f64], with_rv: bool) -> CellProps<N> {
-        CellProps {
-            t: Dual::var(x0[0], 0),
-            h: Dual::var(x0[1], 1),
-            rv: self.rv(x0, with_rv),
-            theta: self.theta,
-            theta_a: self.theta_a,
-            hr: self.hr,
-            rvs: self.rvs,
-            drvs: self.drvs,
-            rveq: self.rveq,
-            k: self.k,
-            kt: self.kt,
-            dv: self.dv,
-            eta: self.eta,
-            lambda: self.lambda,
-            energy: self.energy,
-            water: self.water,
-            vapor: self.vapor,
-        }
-    }
-
-    /// The properties at the state (t, h, rv), displaced by `du` (the first N of t, h, rv)
-    /// from the base state of this record, to first order, into `out` (written in place:
-    /// no copy of the whole record); the unknowns themselves exactly (`rv`: None where it
-    /// is not an unknown, equilibrium mode, and then rveq linearised).
+    /// The kept properties at the state (t, h, rv), displaced by `du` (the first N of t,
+    /// h, rv) from the base state of this record, to first order, into `out` (written in
+    /// place); the unknowns themselves exactly (`rv`: None where it is not an unknown,
+    /// equilibrium mode, and then rveq linearised).
     #[inline(always)]
     pub fn taylor_into(
         &self,
@@ -302,27 +301,88 @@ impl<const N: usize> KeptCell<N> {
         h: f64,
         rv: Option<f64>,
         du: &[f64; N],
-        out: &mut CellProps<0>,
+        out: &mut CellValues,
     ) {
         out.t = Dual::cst(t);
         out.h = Dual::cst(h);
+        out.rveq = self.rveq.taylor(du);
         out.rv = match rv {
             Some(rv) => Dual::cst(rv),
-            None => self.rveq.taylor(du),
+            None => out.rveq,
         };
         out.theta = self.theta.taylor(du);
-        out.theta_a = self.theta_a.taylor(du);
-        out.hr = self.hr.taylor(du);
-        out.rvs = self.rvs.taylor(du);
-        out.drvs = self.drvs.taylor(du);
-        out.rveq = self.rveq.taylor(du);
-        out.k = self.k.taylor(du);
-        out.kt = self.kt.taylor(du);
-        out.dv = self.dv.taylor(du);
-        out.eta = self.eta.taylor(du);
-        out.lambda = self.lambda.taylor(du);
         out.energy = self.energy.taylor(du);
         out.water = self.water.taylor(du);
         out.vapor = self.vapor.taylor(du);
+    }
+}
+
+/// The properties of a cell that only its faces read, with derivatives, kept beside its
+/// [`KeptCell`] where the flux parts of linearised faces are asked for at every step
+/// (solute transport): a face between cells near their bases then gets its parts from
+/// their linearised records instead of two direct evaluations. 9 duals (equilibrium
+/// mode: 216 B per cell), held only by such runs.
+#[derive(Debug, Clone, Copy)]
+pub struct FaceInputs<const N: usize> {
+    pub theta_a: Dual<N>,
+    pub hr: Dual<N>,
+    pub rvs: Dual<N>,
+    pub drvs: Dual<N>,
+    pub k: Dual<N>,
+    pub kt: Dual<N>,
+    pub dv: Dual<N>,
+    pub eta: Dual<N>,
+    pub lambda: Dual<N>,
+}
+
+impl<const N: usize> FaceInputs<N> {
+    /// What `c` keeps for its faces.
+    #[inline]
+    pub fn of(c: &CellProps<N>) -> Self {
+        FaceInputs {
+            theta_a: c.theta_a,
+            hr: c.hr,
+            rvs: c.rvs,
+            drvs: c.drvs,
+            k: c.k,
+            kt: c.kt,
+            dv: c.dv,
+            eta: c.eta,
+            lambda: c.lambda,
+        }
+    }
+
+    /// The whole record at the state (t, h, rv), displaced by `du` from the base state of
+    /// `kept` and this record, to first order (the unknowns exactly, as
+    /// [`KeptCell::taylor_into`]).
+    #[inline]
+    pub fn whole(
+        &self,
+        kept: &KeptCell<N>,
+        t: f64,
+        h: f64,
+        rv: Option<f64>,
+        du: &[f64; N],
+    ) -> CellProps<0> {
+        let rveq = kept.rveq.taylor(du);
+        CellProps {
+            t: Dual::cst(t),
+            h: Dual::cst(h),
+            rv: rv.map_or(rveq, Dual::cst),
+            theta: kept.theta.taylor(du),
+            theta_a: self.theta_a.taylor(du),
+            hr: self.hr.taylor(du),
+            rvs: self.rvs.taylor(du),
+            drvs: self.drvs.taylor(du),
+            rveq,
+            k: self.k.taylor(du),
+            kt: self.kt.taylor(du),
+            dv: self.dv.taylor(du),
+            eta: self.eta.taylor(du),
+            lambda: self.lambda.taylor(du),
+            energy: kept.energy.taylor(du),
+            water: kept.water.taylor(du),
+            vapor: kept.vapor.taylor(du),
+        }
     }
 }

@@ -10,7 +10,7 @@
 //! so Newton keeps them packed (2×2 blocks plus that row) and the block-tridiagonal
 //! solver solves the 2×2 system.
 
-use super::cell::{cell_props, CellProps, KeptCell};
+use super::cell::{cell_props, CellProps, CellValues, FaceInputs, KeptCell};
 use super::dual::Dual;
 use super::flux::{face_flux, FaceFlux};
 use super::BLOCK;
@@ -110,6 +110,9 @@ impl FaceBase {
 pub(super) struct Derivs<const N: usize, const M: usize, const R: usize> {
     /// Without the unknowns, which `cell_base` gives (see [`KeptCell`]).
     cells: Vec<KeptCell<N>>,
+    /// Only where the system completes the flux parts at every step
+    /// (`System::parts_each_step`; else empty).
+    face_inputs: Vec<FaceInputs<N>>,
     cell_base: Vec<f64>,
     faces: Vec<FaceBase>,
     /// The first `R` totals (energy, water, and the vapour total in kinetic mode: in
@@ -125,6 +128,7 @@ impl<const N: usize, const M: usize, const R: usize> Default for Derivs<N, M, R>
     fn default() -> Self {
         Derivs {
             cells: Vec::new(),
+            face_inputs: Vec::new(),
             cell_base: Vec::new(),
             faces: Vec::new(),
             totals: Vec::new(),
@@ -153,12 +157,19 @@ pub(super) trait Kept {
         sys: &System,
         t: f64,
         u: &[f64],
-        cells: &mut [super::CellProps<0>],
+        cells: &mut [CellValues],
+        whole: &mut [CellProps<0>],
         faces: &mut [FaceFlux<0>],
         totals: &mut [[Dual<0>; BLOCK]],
         parts: bool,
     ) -> bool;
-    fn complete_parts(&self, sys: &System, u: &[f64], faces: &mut [FaceFlux<0>]);
+    fn complete_parts(
+        &self,
+        sys: &System,
+        u: &[f64],
+        whole: Option<&[CellProps<0>]>,
+        faces: &mut [FaceFlux<0>],
+    );
     fn jacobian_into(
         &self,
         sys: &System,
@@ -191,18 +202,16 @@ impl<const N: usize, const M: usize, const R: usize> Derivs<N, M, R> {
             0.0,
         );
         self.cells = vec![KeptCell::of(&any); n];
+        self.face_inputs = if sys.parts_each_step {
+            vec![FaceInputs::of(&any); n]
+        } else {
+            Vec::new()
+        };
         self.cell_base = vec![f64::NAN; BLOCK * n];
         self.faces = vec![FaceBase::of(&FaceFlux::zero()); n + 1];
         self.totals = vec![[Dual::cst(0.0); R]; n + 1];
         self.face_base = vec![[f64::NAN; 6]; n + 1];
         self.face_kept = vec![false; n + 1];
-    }
-
-    /// Cell `k`'s whole record rebuilt from the kept record at its base (the values of
-    /// its evaluation there; not reached where [`Derivs::evaluate`] needs a direct cell).
-    #[inline]
-    fn whole_at(&self, k: usize) -> CellProps<N> {
-        self.cells[k].full(&self.cell_base[BLOCK * k..BLOCK * k + BLOCK], Self::WITH_RV)
     }
 
     /// Whether the unknowns of face `j`'s two cells lie near the face's base.
@@ -239,6 +248,15 @@ impl<const N: usize, const M: usize, const R: usize> Derivs<N, M, R> {
         f.operands_water = base.operands_water;
         f.operands_energy = base.operands_energy;
         f
+    }
+
+    /// Keeps cell `i`'s record `c` (and its face inputs where kept).
+    #[inline]
+    fn keep_cell(&mut self, i: usize, c: &CellProps<N>) {
+        self.cells[i] = KeptCell::of(c);
+        if let Some(e) = self.face_inputs.get_mut(i) {
+            *e = FaceInputs::of(c);
+        }
     }
 
     /// Face `j`'s totals linearised to the change `du` from its base.
@@ -291,7 +309,7 @@ impl<const N: usize, const M: usize, const R: usize> Kept for Derivs<N, M, R> {
         for i in 0..n {
             let x = &cells[BLOCK * i..BLOCK * i + BLOCK];
             if x.iter().all(|v| v.is_finite()) {
-                self.cells[i] = KeptCell::of(&props(i, x));
+                self.keep_cell(i, &props(i, x));
                 self.cell_base[BLOCK * i..BLOCK * i + BLOCK].copy_from_slice(x);
             }
         }
@@ -331,12 +349,11 @@ impl<const N: usize, const M: usize, const R: usize> Kept for Derivs<N, M, R> {
         // Cells and the interior face above each, in one pass: a face evaluated afresh
         // reads the whole records of its two cells, both evaluated directly in this pass
         // (a face that does not keep its base makes both its cells direct), kept here
-        // in two alternating slots while needed (the kept records hold no unknowns). The
-        // end cells are always direct (their boundary faces are evaluated), and their
-        // boundary faces are evaluated as soon as they are.
+        // in two alternating slots while needed (the kept records hold only what the
+        // cells' own rows read). The end cells are always direct (their boundary faces
+        // are evaluated), and their boundary faces are evaluated as soon as they are.
         let avg = sys.physics.face_conductivity;
-        let mut slot: [CellProps<N>; 2] = [self.whole_at(0), self.whole_at(0)];
-        let mut fresh = [false; 2];
+        let mut slot: [CellProps<N>; 2] = [CellProps::undefined(), CellProps::undefined()];
         let mut top = None;
         let mut bottom = None;
         for i in 0..n {
@@ -351,9 +368,9 @@ impl<const N: usize, const M: usize, const R: usize> Kept for Derivs<N, M, R> {
             if direct {
                 slot[here] = sys.props_at::<N>(i, x);
                 let c = &slot[here];
-                self.cells[i] = KeptCell::of(c);
+                self.keep_cell(i, c);
                 self.cell_base[BLOCK * i..BLOCK * i + BLOCK].copy_from_slice(x);
-                sys.cells[i] = c.values();
+                sys.cells[i] = c.kept_values();
             } else {
                 let x0 = &self.cell_base[BLOCK * i..BLOCK * i + BLOCK];
                 self.cells[i].taylor_into(
@@ -364,11 +381,8 @@ impl<const N: usize, const M: usize, const R: usize> Kept for Derivs<N, M, R> {
                     &mut sys.cells[i],
                 );
             }
-            fresh[here] = direct;
             if i == 0 || i == n - 1 {
-                if !direct {
-                    slot[here] = self.whole_at(i);
-                }
+                // Direct: their boundary faces are never kept.
                 let c = &slot[here];
                 if i == 0 {
                     top = Some(sys.top_face(t, c));
@@ -390,11 +404,7 @@ impl<const N: usize, const M: usize, const R: usize> Kept for Derivs<N, M, R> {
                 sys.face_totals[j] = self.totals_at(j, &du);
                 any_kept = true;
             } else {
-                for (k, cell) in [(prev, j - 1), (here, j)] {
-                    if !fresh[k] {
-                        slot[k] = self.whole_at(cell);
-                    }
-                }
+                // Both its cells were evaluated directly (above and last pass).
                 let f = face_flux(
                     &slot[prev],
                     &slot[here],
@@ -428,18 +438,24 @@ impl<const N: usize, const M: usize, const R: usize> Kept for Derivs<N, M, R> {
         any_kept
     }
 
-    /// The value evaluation at (t, u): cells and faces near their bases by
-    /// linearisation, the others directly, into `cells`, `faces`, `totals`. Without
-    /// `parts`, a linearised face gets its totals only (what the residual needs), its
-    /// flux parts are left as they were (see [`Derivs::complete_parts`]). False, and
-    /// nothing written, when the workspace is not set up for this system.
+    /// The value evaluation at (t, u): faces near their bases by linearisation, cells
+    /// too where they and both their faces are, the others directly, into `cells`,
+    /// `faces`, `totals` (as [`Derivs::evaluate`] chooses, so a face evaluated afresh
+    /// reads two direct cells). Where the face inputs are kept (a run that asks for the
+    /// flux parts at every step), every cell near its base is linearised, its whole
+    /// record too, and every cell's whole record goes into `whole` (else empty), from
+    /// which [`Derivs::complete_parts`] completes the parts. Without `parts`, a
+    /// linearised face gets its totals only (what the residual needs), its flux parts
+    /// are left as they were. False, and nothing written, when the workspace is not set
+    /// up for this system.
     #[allow(clippy::too_many_arguments)]
     fn linearised(
         &self,
         sys: &System,
         t: f64,
         u: &[f64],
-        cells: &mut [super::CellProps<0>],
+        cells: &mut [CellValues],
+        whole: &mut [CellProps<0>],
         faces: &mut [FaceFlux<0>],
         totals: &mut [[Dual<0>; BLOCK]],
         parts: bool,
@@ -448,63 +464,114 @@ impl<const N: usize, const M: usize, const R: usize> Kept for Derivs<N, M, R> {
         if self.cells.len() != n || u.len() != BLOCK * n {
             return false;
         }
-        for (i, c) in cells.iter_mut().enumerate() {
+        let inputs = !self.face_inputs.is_empty() && whole.len() == n;
+        let avg = sys.physics.face_conductivity;
+        // Whether the face above cell i keeps its base (boundary faces never do).
+        let mut above_near = false;
+        // The whole records of the last two cells evaluated as such: a face evaluated
+        // afresh reads those of its two cells.
+        let mut pair: [CellProps<0>; 2] = [CellProps::undefined(), CellProps::undefined()];
+        for i in 0..n {
+            let below_near = i + 1 < n && self.face_near(i + 1, u);
             let x = &u[BLOCK * i..BLOCK * i + BLOCK];
             let x0 = &self.cell_base[BLOCK * i..BLOCK * i + BLOCK];
-            if near(x, x0, Self::WITH_RV) {
+            let (here, prev) = (i % 2, 1 - i % 2);
+            let near_base = near(x, x0, Self::WITH_RV);
+            if near_base && above_near && below_near && !inputs {
                 self.cells[i].taylor_into(
                     x[T],
                     x[H],
                     Self::WITH_RV.then_some(x[RV]),
                     &change::<N>(x, x0),
-                    c,
+                    &mut cells[i],
                 );
             } else {
-                *c = sys.props_at(i, x);
-            }
-        }
-        let avg = sys.physics.face_conductivity;
-        for j in 1..n {
-            if self.face_near(j, u) {
-                let du = self.face_change(j, u);
-                if parts {
-                    faces[j] = self.parts_at(sys, j, &cells[j - 1], &cells[j]);
+                pair[here] = if near_base && inputs {
+                    self.face_inputs[i].whole(
+                        &self.cells[i],
+                        x[T],
+                        x[H],
+                        Self::WITH_RV.then_some(x[RV]),
+                        &change::<N>(x, x0),
+                    )
+                } else {
+                    sys.props_at(i, x)
+                };
+                cells[i] = pair[here].kept_values();
+                if inputs {
+                    whole[i] = pair[here];
                 }
-                totals[j] = self.totals_at(j, &du);
-            } else {
-                let f = face_flux(
-                    &cells[j - 1],
-                    &cells[j],
-                    0,
-                    0,
-                    sys.d_below[j - 1],
-                    sys.d_above[j],
-                    avg,
-                );
-                totals[j] = f.totals();
-                faces[j] = f;
             }
+            // The end cells have their whole records: their boundary faces are never kept.
+            if i == 0 {
+                faces[0] = sys.top_face(t, &pair[here]);
+            }
+            if i == n - 1 {
+                faces[n] = sys.bottom_face(t, &pair[here]);
+            }
+            // Face j = i, between cells i − 1 and i.
+            let j = i;
+            if j >= 1 {
+                if above_near {
+                    totals[j] = self.totals_at(j, &self.face_change(j, u));
+                } else {
+                    let f = face_flux(
+                        &pair[prev],
+                        &pair[here],
+                        0,
+                        0,
+                        sys.d_below[j - 1],
+                        sys.d_above[j],
+                        avg,
+                    );
+                    totals[j] = f.totals();
+                    faces[j] = f;
+                }
+            }
+            above_near = below_near;
         }
-        for (j, f) in [
-            (0, sys.top_face(t, &cells[0])),
-            (n, sys.bottom_face(t, &cells[n - 1])),
-        ] {
-            totals[j] = f.totals();
-            faces[j] = f;
+        totals[0] = faces[0].totals();
+        totals[n] = faces[n].totals();
+        if parts {
+            self.complete_parts(sys, u, inputs.then_some(&*whole), faces);
         }
         true
     }
 
     /// The flux parts of the linearised interior faces at `u`, left out by
     /// [`Derivs::linearised`] without `parts` at the same `u` (the totals and the other
-    /// faces are already there).
-    fn complete_parts(&self, sys: &System, u: &[f64], faces: &mut [FaceFlux<0>]) {
+    /// faces are already there), from the whole records of their cells: those it left
+    /// in `whole` where given, else evaluated directly (a linearised cell holds only its
+    /// kept properties).
+    fn complete_parts(
+        &self,
+        sys: &System,
+        u: &[f64],
+        whole: Option<&[CellProps<0>]>,
+        faces: &mut [FaceFlux<0>],
+    ) {
         if self.cells.len() != sys.n {
             return;
         }
+        if let Some(whole) = whole {
+            for j in 1..sys.n {
+                if self.face_near(j, u) {
+                    faces[j] = self.parts_at(sys, j, &whole[j - 1], &whole[j]);
+                }
+            }
+            return;
+        }
+        let direct = |i: usize| sys.props_at::<0>(i, &u[BLOCK * i..BLOCK * i + BLOCK]);
+        // The cell above the face, while the face above it was linearised too.
+        let mut above: Option<CellProps<0>> = None;
         for j in 1..sys.n {
             if self.face_near(j, u) {
-                faces[j] = self.parts_at(sys, j, &sys.cells[j - 1], &sys.cells[j]);
+                let up = above.take().unwrap_or_else(|| direct(j - 1));
+                let lo = direct(j);
+                faces[j] = self.parts_at(sys, j, &up, &lo);
+                above = Some(lo);
+            } else {
+                above = None;
             }
         }
     }
@@ -594,6 +661,12 @@ impl<const N: usize, const M: usize, const R: usize> Kept for Derivs<N, M, R> {
         use crate::memory::push;
         const OWNER: &str = "kept evaluations";
         push(out, OWNER, "cell records (Dual)", &self.cells);
+        push(
+            out,
+            OWNER,
+            "cell face inputs (Dual; solute runs)",
+            &self.face_inputs,
+        );
         push(out, OWNER, "cell base states", &self.cell_base);
         push(out, OWNER, "face parts at base", &self.faces);
         push(out, OWNER, "face totals (Dual)", &self.totals);

@@ -35,7 +35,7 @@ pub fn column_balance(sys: &System, st: &ColumnStepper) -> ([f64; 2], [f64; 2]) 
     let (abs, rel) = st.balance(sys);
     ([abs[0], abs[1]], [rel[0], rel[1]])
 }
-use cell::{cell_props, CellProps};
+use cell::{cell_props, CellProps, CellValues};
 use derivs::{Derivs, Kept};
 use dual::{Dual, D0};
 use flux::{face_flux, FaceFlux};
@@ -67,9 +67,10 @@ pub struct System {
     /// What the unknowns mean to the solvers: update limits, error measures and
     /// tolerances, step-change targets (see `rules`).
     pub rules: VariableRules,
-    /// Values of the last evaluation (with or without derivatives): cell properties,
-    /// face fluxes and, per face, the total energy, water and vapour flux.
-    pub cells: Vec<CellProps<0>>,
+    /// Values of the last evaluation (with or without derivatives): what is kept of the
+    /// cell properties ([`CellValues`]), face fluxes and, per face, the total energy,
+    /// water and vapour flux.
+    pub cells: Vec<CellValues>,
     pub faces: Vec<FaceFlux<0>>,
     pub face_totals: Vec<[D0; BLOCK]>,
     /// The last evaluation with derivatives (the Jacobian's source): 3 slots per cell
@@ -78,6 +79,13 @@ pub struct System {
     d_reduced: Derivs<2, 4, 2>,
     /// Whether the last evaluation left out the flux parts of linearised faces.
     parts_left_out: bool,
+    /// Whether the flux parts are asked for at every step (solute transport): the kept
+    /// evaluations then keep what faces read of their cells (see `derivs`), and the
+    /// residual-only evaluations leave the whole cell records in `whole_cells` (else
+    /// empty), valid when `whole_valid`.
+    pub parts_each_step: bool,
+    whole_cells: Vec<CellProps<0>>,
+    whole_valid: bool,
     /// Osmotic head of the pore water in each cell [m] (empty: none; see
     /// [`cell::cell_props`]): set from the solutes before each step.
     pub osmotic_head: Vec<f64>,
@@ -171,35 +179,37 @@ struct FaceMagnitudes {
     operands_water: f64,
 }
 
-/// Fills cell properties, face fluxes and face totals of `sys` at state `u`, time `t`,
-/// with `N` derivative slots per cell and `M` = 2N per face (3 and 6, 2 and 4, or 0 and 0
-/// for values).
-fn evaluate_into<const N: usize, const M: usize>(
+/// Fills the cell values, face fluxes and face totals of `sys` at state `u`, time `t`,
+/// every cell and face evaluated directly (a face from the whole records of its two
+/// cells, kept while needed).
+fn evaluate_into(
     sys: &System,
     t: f64,
     u: &[f64],
-    cells: &mut [CellProps<N>],
-    faces: &mut [FaceFlux<M>],
-    totals: &mut [[Dual<M>; BLOCK]],
+    cells: &mut [CellValues],
+    faces: &mut [FaceFlux<0>],
+    totals: &mut [[D0; BLOCK]],
 ) {
     let n = sys.n;
-    for (i, c) in cells.iter_mut().enumerate() {
-        *c = sys.props_at(i, &u[BLOCK * i..BLOCK * i + BLOCK]);
-    }
     let avg = sys.physics.face_conductivity;
+    let mut above: CellProps<0> = sys.props_at(0, &u[..BLOCK]);
+    cells[0] = above.kept_values();
+    faces[0] = sys.top_face(t, &above);
     for j in 1..n {
+        let below: CellProps<0> = sys.props_at(j, &u[BLOCK * j..BLOCK * j + BLOCK]);
+        cells[j] = below.kept_values();
         faces[j] = face_flux(
-            &cells[j - 1],
-            &cells[j],
+            &above,
+            &below,
             0,
-            N,
+            0,
             sys.d_below[j - 1],
             sys.d_above[j],
             avg,
         );
+        above = below;
     }
-    faces[0] = sys.top_face(t, &cells[0]);
-    faces[n] = sys.bottom_face(t, &cells[n - 1]);
+    faces[n] = sys.bottom_face(t, &above);
     for (tot, f) in totals.iter_mut().zip(faces.iter()) {
         *tot = f.totals();
     }
@@ -233,12 +243,19 @@ impl System {
             surface: model.surface.clone(),
             bottom: model.bottom.clone(),
             rules: VariableRules::for_model(model),
-            cells: vec![zero; n],
+            cells: vec![zero.kept_values(); n],
             faces: vec![FaceFlux::zero(); n + 1],
             face_totals: vec![[D0::cst(0.0); BLOCK]; n + 1],
             d_full: Derivs::default(),
             d_reduced: Derivs::default(),
             parts_left_out: false,
+            parts_each_step: !model.solutes.is_empty(),
+            whole_cells: if model.solutes.is_empty() {
+                Vec::new()
+            } else {
+                vec![zero; n]
+            },
+            whole_valid: false,
             osmotic_head: Vec::new(),
             has_vegetation: model.has_plants(),
             vegetation: model.vegetation.clone(),
@@ -385,6 +402,12 @@ impl System {
         use crate::memory::push;
         const OWNER: &str = "system";
         push(out, OWNER, "cell values", &self.cells);
+        push(
+            out,
+            OWNER,
+            "whole cell records (solute runs)",
+            &self.whole_cells,
+        );
         push(out, OWNER, "face values", &self.faces);
         push(out, OWNER, "face totals", &self.face_totals);
         push(out, OWNER, "widths", &self.widths);
@@ -485,16 +508,26 @@ impl System {
     /// totals only) until [`System::complete_face_parts`].
     fn evaluate_values(&mut self, t: f64, u: &[f64], parts: bool, linearise: bool) {
         let mut cells = std::mem::take(&mut self.cells);
+        let mut whole = std::mem::take(&mut self.whole_cells);
         let mut faces = std::mem::take(&mut self.faces);
         let mut totals = std::mem::take(&mut self.face_totals);
         let done = linearise
-            && self
-                .kept()
-                .linearised(self, t, u, &mut cells, &mut faces, &mut totals, parts);
+            && self.kept().linearised(
+                self,
+                t,
+                u,
+                &mut cells,
+                &mut whole,
+                &mut faces,
+                &mut totals,
+                parts,
+            );
         if !done {
             evaluate_into(self, t, u, &mut cells, &mut faces, &mut totals);
         }
         self.parts_left_out = done && !parts;
+        self.whole_valid = done && !whole.is_empty();
+        self.whole_cells = whole;
         self.cells = cells;
         self.faces = faces;
         self.face_totals = totals;
@@ -508,7 +541,8 @@ impl System {
             return;
         }
         let mut faces = std::mem::take(&mut self.faces);
-        self.kept().complete_parts(self, u, &mut faces);
+        let whole = self.whole_valid.then_some(&self.whole_cells[..]);
+        self.kept().complete_parts(self, u, whole, &mut faces);
         self.faces = faces;
         self.parts_left_out = false;
     }
@@ -518,6 +552,7 @@ impl System {
     /// gets its flux parts at the base until [`System::complete_face_parts`]).
     pub fn evaluate_with_derivatives(&mut self, t: f64, u: &[f64]) {
         self.parts_left_out = self.with_kept_mut(|d, sys| d.evaluate(sys, t, u));
+        self.whole_valid = false;
     }
 
     /// Storage per bulk volume of cell i: [energy J m⁻³, water kg m⁻³, vapour kg m⁻³],

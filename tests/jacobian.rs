@@ -424,7 +424,7 @@ fn jacobian_matches_finite_differences_with_a_pond_and_runoff() {
         });
         let mut sys = System::new(&m);
         let n = sys.n;
-        let d0 = sys.d_above[0];
+        let d0 = sys.d_above(0);
         // Surface heads: inside the pond's band, inside the runoff band, well above.
         for x in [4e-4, pmax + 1.5e-3 + 3e-4, pmax + 0.05] {
             let mut u = vec![0.0; 3 * n];

@@ -39,7 +39,7 @@ impl System {
         let t = t.next_down();
         let bc = self.surface.at(t);
         let c0 = *c0;
-        let d0 = self.d_above[0];
+        let d0 = self.d_above(0);
         let avg = self.physics.face_conductivity;
         let (tg, heat_flux) = match &bc.heat {
             SurfaceHeat::Temperature(s) => (Dual::cst(s.value(t)), None),
@@ -129,7 +129,7 @@ impl System {
         pond: bool,
     ) -> FaceFlux<M> {
         let c0 = *c0;
-        let d0 = self.d_above[0];
+        let d0 = self.d_above(0);
         let rh = rh.value(t);
         let g = self.ghost(0, tg, head_from_rh(rh, tg), None);
         let mut f = face_flux(&g, &c0, 0, N, 0.0, d0, self.physics.face_conductivity);
@@ -154,7 +154,7 @@ impl System {
             };
             f.vapor_th = Dual::cst(0.0);
             if pond {
-                let (w, dw) = super::pond_weight(c0.h.v - self.d_above[0]);
+                let (w, dw) = super::pond_weight(c0.h.v - self.d_above(0));
                 if w > 0.0 {
                     let w = Dual::lift(c0.h.chain(w, dw), N);
                     let ra = ra.max(f64::MIN_POSITIVE);
@@ -181,7 +181,7 @@ impl System {
         let n = self.n;
         let bc = self.bottom.at(t);
         let cn = *cn;
-        let dn = self.d_below[n - 1];
+        let dn = self.d_below(n - 1);
         let avg = self.physics.face_conductivity;
         let (tg, heat_flux) = match &bc.heat {
             BottomHeat::Temperature(s) => (Dual::cst(s.value(t)), None),

@@ -239,8 +239,8 @@ impl<const N: usize, const M: usize, const R: usize> Derivs<N, M, R> {
             lo,
             0,
             0,
-            sys.d_below[j - 1],
-            sys.d_above[j],
+            sys.d_below(j - 1),
+            sys.d_above(j),
             sys.physics.face_conductivity,
         );
         f.scale_water = base.scale_water;
@@ -322,8 +322,8 @@ impl<const N: usize, const M: usize, const R: usize> Kept for Derivs<N, M, R> {
                     &props(j, &x[BLOCK..]),
                     0,
                     N,
-                    sys.d_below[j - 1],
-                    sys.d_above[j],
+                    sys.d_below(j - 1),
+                    sys.d_above(j),
                     avg,
                 );
                 self.totals[j] = rows_of(f.totals());
@@ -410,8 +410,8 @@ impl<const N: usize, const M: usize, const R: usize> Kept for Derivs<N, M, R> {
                     &slot[here],
                     0,
                     N,
-                    sys.d_below[j - 1],
-                    sys.d_above[j],
+                    sys.d_below(j - 1),
+                    sys.d_above(j),
                     avg,
                 );
                 let tot = f.totals();
@@ -520,8 +520,8 @@ impl<const N: usize, const M: usize, const R: usize> Kept for Derivs<N, M, R> {
                         &pair[here],
                         0,
                         0,
-                        sys.d_below[j - 1],
-                        sys.d_above[j],
+                        sys.d_below(j - 1),
+                        sys.d_above(j),
                         avg,
                     );
                     totals[j] = f.totals();

@@ -56,9 +56,6 @@ pub struct System {
     pub widths: Vec<f64>,
     pub centers: Vec<f64>,
     pub faces_z: Vec<f64>,
-    /// Distance from each cell centre to its upper and lower face [m].
-    pub d_above: Vec<f64>,
-    pub d_below: Vec<f64>,
     pub soils: Vec<Soil>,
     pub cell_soil: Vec<usize>,
     pub physics: Physics,
@@ -94,7 +91,8 @@ pub struct System {
     /// Whether any period has plants.
     pub has_vegetation: bool,
     /// Root water uptake of each cell from the last assembly [kg m⁻² s⁻¹ of column: the
-    /// cell's sink times its width], and its total [energy W m⁻², water kg m⁻² s⁻¹].
+    /// cell's sink times its width; empty without plants], and its total [energy W m⁻²,
+    /// water kg m⁻² s⁻¹].
     pub uptake: Vec<f64>,
     pub uptake_totals: [f64; 2],
     /// Whether the top cell holds a surface store (ponded water; see
@@ -203,8 +201,8 @@ fn evaluate_into(
             &below,
             0,
             0,
-            sys.d_below[j - 1],
-            sys.d_above[j],
+            sys.d_below(j - 1),
+            sys.d_above(j),
             avg,
         );
         above = below;
@@ -219,8 +217,6 @@ impl System {
     pub fn new(model: &Model) -> System {
         let m = &model.mesh;
         let n = m.n_cells();
-        let d_above = (0..n).map(|i| m.centers[i] - m.faces[i]).collect();
-        let d_below = (0..n).map(|i| m.faces[i + 1] - m.centers[i]).collect();
         let zero: CellProps<0> = cell_props(
             &model.soils[model.cell_soil[0]],
             &model.physics,
@@ -235,8 +231,6 @@ impl System {
             widths: m.widths.clone(),
             centers: m.centers.clone(),
             faces_z: m.faces.clone(),
-            d_above,
-            d_below,
             soils: model.soils.clone(),
             cell_soil: model.cell_soil.clone(),
             physics: model.physics.clone(),
@@ -259,11 +253,27 @@ impl System {
             osmotic_head: Vec::new(),
             has_vegetation: model.has_plants(),
             vegetation: model.vegetation.clone(),
-            uptake: vec![0.0; n],
+            uptake: if model.has_plants() {
+                vec![0.0; n]
+            } else {
+                Vec::new()
+            },
             uptake_totals: [0.0; 2],
             surface_store: model.has_surface_store(),
             runoff: [0.0; 2],
         }
+    }
+
+    /// Distance from the centre of cell `i` to its upper face [m].
+    #[inline(always)]
+    pub fn d_above(&self, i: usize) -> f64 {
+        self.centers[i] - self.faces_z[i]
+    }
+
+    /// Distance from the centre of cell `i` to its lower face [m].
+    #[inline(always)]
+    pub fn d_below(&self, i: usize) -> f64 {
+        self.faces_z[i + 1] - self.centers[i]
     }
 
     /// Number of unknowns (3 per cell).
@@ -295,10 +305,10 @@ impl System {
                 0.0
             },
         );
-        if i == 0 && self.surface_store && x[H] > self.d_above[0] {
+        if i == 0 && self.surface_store && x[H] > self.d_above(0) {
             // The pond: water standing on the surface, in hydrostatic equilibrium with
             // the top cell's centre, at the cell's temperature.
-            let (p, dp) = pond_of_excess(x[H] - self.d_above[0]);
+            let (p, dp) = pond_of_excess(x[H] - self.d_above(0));
             let p = c.h.chain(p, dp);
             let per_width = 1.0 / self.widths[0];
             c.water = c.water + p * (WATER_DENSITY * per_width);
@@ -317,7 +327,7 @@ impl System {
     /// infiltrates later, and runs off above the largest ponding depth.
     pub fn pond_depth(&self, h0: f64) -> f64 {
         if self.surface_store {
-            pond_of_excess(h0 - self.d_above[0]).0
+            pond_of_excess(h0 - self.d_above(0)).0
         } else {
             0.0
         }
@@ -340,7 +350,7 @@ impl System {
     fn runoff_terms(&self, t: f64) -> Option<(f64, f64, f64)> {
         let pmax = self.max_pond_depth(t)?;
         let c0 = &self.cells[0];
-        let (p, dp) = pond_of_excess(c0.h.v - self.d_above[0]);
+        let (p, dp) = pond_of_excess(c0.h.v - self.d_above(0));
         let (r, dr) = runoff_rate(p - pmax);
         if r == 0.0 && dr == 0.0 {
             return None;
@@ -413,8 +423,6 @@ impl System {
         push(out, OWNER, "widths", &self.widths);
         push(out, OWNER, "centres", &self.centers);
         push(out, OWNER, "face depths", &self.faces_z);
-        push(out, OWNER, "distances above", &self.d_above);
-        push(out, OWNER, "distances below", &self.d_below);
         push(out, OWNER, "cell soils", &self.cell_soil);
         push(out, OWNER, "osmotic heads", &self.osmotic_head);
         push(out, OWNER, "root uptake", &self.uptake);

@@ -104,8 +104,10 @@ impl FaceBase {
 /// Of a face, only its totals (the residual's terms) keep their derivatives; of its flux
 /// parts only what the convergence scales read is kept, at the base ([`FaceBase`]), and
 /// the parts of a linearised face are evaluated directly from its cells when asked for
-/// ([`Kept::complete_parts`]). A cell keeps its properties without its unknowns
-/// ([`KeptCell`]), which its base state gives.
+/// ([`Kept::complete_parts`]). A cell keeps only what its own rows and the error test
+/// read ([`KeptCell`]; its unknowns are its base state), so it is linearised only where
+/// both its faces keep their bases too; runs that ask for the flux parts at every step
+/// (solutes) also keep what its faces read ([`FaceInputs`]).
 #[derive(Debug, Clone)]
 pub(super) struct Derivs<const N: usize, const M: usize, const R: usize> {
     /// Without the unknowns, which `cell_base` gives (see [`KeptCell`]).

@@ -487,17 +487,19 @@ impl System {
     /// time `t` [s].
     ///
     /// The evaluations with derivatives (the Jacobian's) are kept per cell and per face
-    /// with the state they were made at (see `derivs::Derivs`): a cell whose unknowns
+    /// with the state they were made at (see `derivs::Derivs`): a face whose two cells
     /// lie within 1e-7 relative of its kept state (head: relative to max(|h|, 0.01 m))
-    /// takes its properties by linearisation, value + derivatives · change, and a face
-    /// whose two cells lie that near its kept state its total fluxes likewise (its flux
+    /// takes its total fluxes by linearisation, value + derivatives · change, and a cell
+    /// that lies that near its kept state, and both of whose faces do, the properties
+    /// its own rows read (storages, rveq, liquid content) likewise (its faces' flux
     /// parts, which only the results and the solutes read, are evaluated from the cell
     /// values: the kept face records hold no derivatives of them). The error is of
     /// second order in the change, ~1e-16 relative times the square of the laws' slopes
     /// in log–log terms (about 18 for the saturation pressure in T, a few for the Mualem
     /// conductivity in h): at most ~2e-12 of the terms, 500 times below the Newton
     /// tolerance (`tests/jacobian.rs` checks 1e-11). Cells away from a
-    /// moving front mostly qualify (on the benchmark case, three quarters of the cell
+    /// moving front mostly qualify (on the benchmark case, measured before a cell also
+    /// needed both its faces kept: three quarters of the cell
     /// evaluations of the residual-only Newton iterations, and 43 % of those of the
     /// Jacobian evaluations, which keep them). Boundary faces are always evaluated
     /// directly.

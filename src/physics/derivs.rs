@@ -12,7 +12,7 @@
 
 use super::cell::{cell_props, CellProps, CellValues, FaceInputs, KeptCell};
 use super::dual::Dual;
-use super::flux::{face_flux, FaceFlux};
+use super::flux::FaceFlux;
 use super::BLOCK;
 use super::{System, ENERGY, H, RV, T, VAPOR, WATER};
 use crate::solve::blocktri::{zero_block, Block, BlockRows};
@@ -236,15 +236,7 @@ impl<const N: usize, const M: usize, const R: usize> Derivs<N, M, R> {
         lo: &CellProps<0>,
     ) -> FaceFlux<0> {
         let base = &self.faces[j];
-        let mut f: FaceFlux<0> = face_flux(
-            up,
-            lo,
-            0,
-            0,
-            sys.d_below(j - 1),
-            sys.d_above(j),
-            sys.physics.face_conductivity,
-        );
+        let mut f: FaceFlux<0> = sys.interior_face(up, lo, j);
         f.scale_water = base.scale_water;
         f.scale_energy = base.scale_energy;
         f.operands_water = base.operands_water;
@@ -315,19 +307,11 @@ impl<const N: usize, const M: usize, const R: usize> Kept for Derivs<N, M, R> {
                 self.cell_base[BLOCK * i..BLOCK * i + BLOCK].copy_from_slice(x);
             }
         }
-        let avg = sys.physics.face_conductivity;
         for j in 1..n {
             let x = &faces[6 * j..6 * j + 6];
             if x.iter().all(|v| v.is_finite()) {
-                let f = face_flux(
-                    &props(j - 1, &x[..BLOCK]),
-                    &props(j, &x[BLOCK..]),
-                    0,
-                    N,
-                    sys.d_below(j - 1),
-                    sys.d_above(j),
-                    avg,
-                );
+                let f: FaceFlux<M> =
+                    sys.interior_face(&props(j - 1, &x[..BLOCK]), &props(j, &x[BLOCK..]), j);
                 self.totals[j] = rows_of(f.totals());
                 self.faces[j] = FaceBase::of(&f.values());
                 self.face_base[j].copy_from_slice(x);
@@ -354,7 +338,6 @@ impl<const N: usize, const M: usize, const R: usize> Kept for Derivs<N, M, R> {
         // in two alternating slots while needed (the kept records hold only what the
         // cells' own rows read). The end cells are always direct (their boundary faces
         // are evaluated), and their boundary faces are evaluated as soon as they are.
-        let avg = sys.physics.face_conductivity;
         let mut slot: [CellProps<N>; 2] = [CellProps::undefined(), CellProps::undefined()];
         let mut top = None;
         let mut bottom = None;
@@ -407,15 +390,7 @@ impl<const N: usize, const M: usize, const R: usize> Kept for Derivs<N, M, R> {
                 any_kept = true;
             } else {
                 // Both its cells were evaluated directly (above and last pass).
-                let f = face_flux(
-                    &slot[prev],
-                    &slot[here],
-                    0,
-                    N,
-                    sys.d_below(j - 1),
-                    sys.d_above(j),
-                    avg,
-                );
+                let f = sys.interior_face(&slot[prev], &slot[here], j);
                 let tot = f.totals();
                 self.totals[j] = rows_of(tot);
                 let v = f.values();
@@ -467,7 +442,6 @@ impl<const N: usize, const M: usize, const R: usize> Kept for Derivs<N, M, R> {
             return false;
         }
         let inputs = !self.face_inputs.is_empty() && whole.len() == n;
-        let avg = sys.physics.face_conductivity;
         // Whether the face above cell i keeps its base (boundary faces never do).
         let mut above_near = false;
         // The whole records of the last two cells evaluated as such: a face evaluated
@@ -517,15 +491,7 @@ impl<const N: usize, const M: usize, const R: usize> Kept for Derivs<N, M, R> {
                 if above_near {
                     totals[j] = self.totals_at(j, &self.face_change(j, u));
                 } else {
-                    let f = face_flux(
-                        &pair[prev],
-                        &pair[here],
-                        0,
-                        0,
-                        sys.d_below(j - 1),
-                        sys.d_above(j),
-                        avg,
-                    );
+                    let f = sys.interior_face(&pair[prev], &pair[here], j);
                     totals[j] = f.totals();
                     faces[j] = f;
                 }

@@ -189,22 +189,13 @@ fn evaluate_into(
     totals: &mut [[D0; BLOCK]],
 ) {
     let n = sys.n;
-    let avg = sys.physics.face_conductivity;
     let mut above: CellProps<0> = sys.props_at(0, &u[..BLOCK]);
     cells[0] = above.kept_values();
     faces[0] = sys.top_face(t, &above);
     for j in 1..n {
         let below: CellProps<0> = sys.props_at(j, &u[BLOCK * j..BLOCK * j + BLOCK]);
         cells[j] = below.kept_values();
-        faces[j] = face_flux(
-            &above,
-            &below,
-            0,
-            0,
-            sys.d_below(j - 1),
-            sys.d_above(j),
-            avg,
-        );
+        faces[j] = sys.interior_face(&above, &below, j);
         above = below;
     }
     faces[n] = sys.bottom_face(t, &above);
@@ -262,6 +253,27 @@ impl System {
             surface_store: model.has_surface_store(),
             runoff: [0.0; 2],
         }
+    }
+
+    /// The fluxes through interior face `j` (between cells j − 1 and j) from the records
+    /// `up`, `lo` of those cells with N slots each: the face's derivatives with respect
+    /// to the cell above in slots 0..N and to the cell below in N..2N.
+    #[inline(always)]
+    pub(super) fn interior_face<const N: usize, const M: usize>(
+        &self,
+        up: &CellProps<N>,
+        lo: &CellProps<N>,
+        j: usize,
+    ) -> FaceFlux<M> {
+        face_flux(
+            up,
+            lo,
+            0,
+            N,
+            self.d_below(j - 1),
+            self.d_above(j),
+            self.physics.face_conductivity,
+        )
     }
 
     /// Distance from the centre of cell `i` to its upper face [m].

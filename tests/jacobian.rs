@@ -283,6 +283,20 @@ fn check(model: &Model, seed: u64, label: &str) {
     );
 }
 
+/// The column of most of these checks: 2 m of sandy loam in 8 cells under air of relative
+/// humidity `rh` at 18 °C, a water table at 25 °C at the bottom, one year.
+fn small_column(rh: f64) -> Model {
+    column(
+        uniform_mesh(2.0, 8),
+        sandy_loam(),
+        dry_surface(291.15, rh),
+        water_table(298.15),
+        291.15,
+        298.15,
+        YEAR,
+    )
+}
+
 fn row_scale(jac: &BlockTri<3>, rb: usize, r: usize) -> f64 {
     let mut m = 0.0f64;
     for b in [&jac.lower[rb], &jac.diag[rb], &jac.upper[rb]] {
@@ -295,29 +309,13 @@ fn row_scale(jac: &BlockTri<3>, rb: usize, r: usize) -> f64 {
 
 #[test]
 fn jacobian_matches_finite_differences_equilibrium() {
-    let m = column(
-        uniform_mesh(2.0, 8),
-        sandy_loam(),
-        dry_surface(291.15, 0.2),
-        water_table(298.15),
-        291.15,
-        298.15,
-        YEAR,
-    );
+    let m = small_column(0.2);
     check(&m, 1, "equilibrium, atmosphere/water table");
 }
 
 #[test]
 fn jacobian_matches_finite_differences_kinetic_thermal_liquid() {
-    let mut m = column(
-        uniform_mesh(2.0, 8),
-        sandy_loam(),
-        dry_surface(291.15, 0.3),
-        water_table(298.15),
-        291.15,
-        298.15,
-        YEAR,
-    );
+    let mut m = small_column(0.3);
     m.physics.vapor_mode = VaporMode::Kinetic { rate: 1e-2 };
     m.physics.thermal_liquid_gain = Some(7.0);
     m.physics.viscosity_correction = true;
@@ -375,15 +373,7 @@ fn jacobian_matches_finite_differences_other_boundaries() {
 /// the reduction and on its plateau.
 #[test]
 fn jacobian_matches_finite_differences_with_root_uptake() {
-    let mut m = column(
-        uniform_mesh(2.0, 8),
-        sandy_loam(),
-        dry_surface(291.15, 0.2),
-        water_table(298.15),
-        291.15,
-        298.15,
-        YEAR,
-    );
+    let mut m = small_column(0.2);
     let shape = RootShape::Linear { depth: 1.5 };
     let root_fraction = deepdry::case::vegetation::root_fractions(&shape, &m.mesh.faces);
     m.vegetation = Periods::single(Some(Vegetation {
@@ -404,15 +394,7 @@ fn jacobian_matches_finite_differences_with_root_uptake() {
 /// restored Jacobians, the finite differences).
 #[test]
 fn jacobian_matches_finite_differences_with_a_solute() {
-    let mut m = column(
-        uniform_mesh(2.0, 8),
-        sandy_loam(),
-        dry_surface(291.15, 0.2),
-        water_table(298.15),
-        291.15,
-        298.15,
-        YEAR,
-    );
+    let mut m = small_column(0.2);
     m.solutes.push(Solute {
         name: "chloride".into(),
         // Chloride in free water at 25 °C (from memory).
@@ -443,15 +425,7 @@ fn jacobian_matches_finite_differences_with_a_solute() {
 fn jacobian_matches_finite_differences_with_a_pond_and_runoff() {
     let open = || Some((Schedule::Constant(0.2), Schedule::Constant(100.0)));
     for (pmax, air) in [(0.0, None), (0.1, None), (0.1, open()), (0.0, open())] {
-        let mut m = column(
-            uniform_mesh(2.0, 8),
-            sandy_loam(),
-            dry_surface(291.15, 0.2),
-            water_table(298.15),
-            291.15,
-            298.15,
-            YEAR,
-        );
+        let mut m = small_column(0.2);
         m.surface = Periods::single(SurfaceBc {
             heat: SurfaceHeat::Temperature(Schedule::Constant(291.15)),
             water: SurfaceWater::Pond {

@@ -120,8 +120,8 @@ pub struct BalanceWindow {
 pub struct NewtonWork<const B: usize> {
     /// The cumulative balance the next solve is held to (None: only the per-step test).
     pub balance_window: Option<BalanceWindow>,
+    /// The residual; after the convergence test, the Newton update in its place.
     pub res: Vec<f64>,
-    pub dx: Vec<f64>,
     /// The reciprocal row scales of the convergence test (the row scaling of the matrix).
     pub row: Vec<f64>,
     pub col: Vec<f64>,
@@ -152,7 +152,6 @@ impl<const B: usize> NewtonWork<B> {
         NewtonWork {
             balance_window: None,
             res: vec![0.0; B * n],
-            dx: vec![0.0; B * n],
             row: vec![0.0; B * n],
             col: vec![0.0; B * n],
             jac_raw: PackedTri::new(n, decoupled),
@@ -180,8 +179,8 @@ impl<const B: usize> NewtonWork<B> {
         );
         self.storage
             .arrays(out, OWNER, ["", "storage blocks", "", ""]);
-        for v in [&self.res, &self.dx, &self.row, &self.col] {
-            push(out, OWNER, "vectors (4)", v);
+        for v in [&self.res, &self.row, &self.col] {
+            push(out, OWNER, "vectors (3)", v);
         }
     }
 
@@ -338,10 +337,12 @@ pub fn solve<const B: usize, P: Problem<B> + ?Sized>(
             w.factor_c = Some(c);
             stats.factorizations += 1;
         }
-        for ((d, r), s) in w.dx.iter_mut().zip(w.res.iter()).zip(w.row.iter()) {
-            *d = -r * s;
+        // The scaled right-hand side, the solution and then the update taken all go into
+        // the residual's array, which the next iteration evaluates afresh.
+        for (r, s) in w.res.iter_mut().zip(w.row.iter()) {
+            *r = -*r * s;
         }
-        if let Err(e) = lin.solve(&mut w.dx) {
+        if let Err(e) = lin.solve(&mut w.res) {
             w.invalidate();
             if fresh {
                 return Err(NewtonFailure::Linear(e));
@@ -349,8 +350,7 @@ pub fn solve<const B: usize, P: Problem<B> + ?Sized>(
             continue;
         }
         stats.iterations += 1;
-        // (The update taken replaces the solution in `dx`.)
-        small_update = sys.apply_update(u, &mut w.dx, &w.col);
+        small_update = sys.apply_update(u, &mut w.res, &w.col);
     }
 }
 

@@ -615,9 +615,7 @@ fn a_resumed_run_killed_early_resumes_from_its_own_newest_checkpoint() {
     };
     let case_all = dir.write("all.toml", &all.text());
     let out = dir.join("out");
-    let t0 = Instant::now();
     run_ok(&case_all, &out, &[]);
-    let wall = t0.elapsed().as_secs_f64();
     let ck20 = dir.join("ck20.h5");
     std::fs::copy(checkpoint_at(&out, 20.0), &ck20).unwrap();
     let reference = dir.join("reference.h5");
@@ -626,8 +624,23 @@ fn a_resumed_run_killed_early_resumes_from_its_own_newest_checkpoint() {
     std::fs::copy(checkpoint_at(&out, all.end_year), &final_ref).unwrap();
     // The same case with keep = 4 (keep is not part of the physics).
     let case = dir.write("keep4.toml", &long_case().text());
+    // Killed as soon as it has written a checkpoint of its own (the first after year
+    // 20, about 5 of its 180 years in): a delay in wall time could outlast the whole run
+    // when the first run was slowed by the tests running beside it.
+    let spawned = std::time::SystemTime::now();
     let mut child = spawn_run(&case, &out, &["--resume", arg(&ck20)]);
-    std::thread::sleep(Duration::from_secs_f64(0.3 * wall));
+    let give_up = Instant::now() + Duration::from_secs(120);
+    while Instant::now() < give_up {
+        let own = checkpoints(&out).iter().any(|(_, p)| {
+            std::fs::metadata(p)
+                .and_then(|m| m.modified())
+                .is_ok_and(|m| m >= spawned)
+        });
+        if own {
+            break;
+        }
+        std::thread::sleep(Duration::from_millis(2));
+    }
     child.kill().unwrap();
     assert!(!child.wait().unwrap().success(), "finished before the kill");
     let newest = newest_checkpoint(&out).unwrap();

@@ -662,6 +662,14 @@ fn read_f64s(file: &File, name: &'static str) -> std::result::Result<Vec<f64>, &
         .map_err(|_| name)
 }
 
+/// A boundary state of cycle skipping as a row of its checkpoint datasets, appended to
+/// `out`: its unknowns, storages and cumulative flows (read back by `read_envelope`).
+fn point_row(p: &PeriodPoint, out: &mut Vec<f64>) {
+    out.extend_from_slice(&p.u);
+    out.extend_from_slice(&p.storage);
+    out.extend_from_slice(&p.flows);
+}
+
 fn write_envelope(file: &File, env: &EnvelopeState) -> hdf5::Result<()> {
     let counts = vec![
         env.period,
@@ -696,9 +704,7 @@ fn write_envelope(file: &File, env: &EnvelopeState) -> hdf5::Result<()> {
     if !env.points.is_empty() {
         let mut points = Vec::new();
         for p in &env.points {
-            points.extend_from_slice(&p.u);
-            points.extend_from_slice(&p.storage);
-            points.extend_from_slice(&p.flows);
+            point_row(p, &mut points);
         }
         f64s(file, "cycle_skipping_points", &points, "mixed", "cycle skipping: the boundary states of the current block, oldest first, each its unknowns, storages and cumulative flows (net inflow, throughput, top inflow, sinks, runoff; energy, water)")?;
     }
@@ -712,9 +718,8 @@ fn write_envelope(file: &File, env: &EnvelopeState) -> hdf5::Result<()> {
             "1",
             "cycle skipping: index of the period boundary the last jump started from",
         )?;
-        let mut row = p.u.clone();
-        row.extend_from_slice(&p.storage);
-        row.extend_from_slice(&p.flows);
+        let mut row = Vec::new();
+        point_row(p, &mut row);
         f64s(file, "cycle_skipping_origin", &row, "mixed", "cycle skipping: the boundary state the last jump started from, as a point of cycle_skipping_points")?;
     }
     Ok(())

@@ -291,29 +291,22 @@ impl<const N: usize> KeptCell<N> {
     }
 
     /// The kept properties at the state (t, h, rv), displaced by `du` (the first N of t,
-    /// h, rv) from the base state of this record, to first order, into `out` (written in
-    /// place); the unknowns themselves exactly (`rv`: None where it is not an unknown,
-    /// equilibrium mode, and then rveq linearised).
+    /// h, rv) from the base state of this record, to first order; the unknowns
+    /// themselves exactly (`rv`: None where it is not an unknown, equilibrium mode, and
+    /// then rveq linearised).
     #[inline(always)]
-    pub fn taylor_into(
-        &self,
-        t: f64,
-        h: f64,
-        rv: Option<f64>,
-        du: &[f64; N],
-        out: &mut CellValues,
-    ) {
-        out.t = Dual::cst(t);
-        out.h = Dual::cst(h);
-        out.rveq = self.rveq.taylor(du);
-        out.rv = match rv {
-            Some(rv) => Dual::cst(rv),
-            None => out.rveq,
-        };
-        out.theta = self.theta.taylor(du);
-        out.energy = self.energy.taylor(du);
-        out.water = self.water.taylor(du);
-        out.vapor = self.vapor.taylor(du);
+    pub fn taylor(&self, t: f64, h: f64, rv: Option<f64>, du: &[f64; N]) -> CellValues {
+        let rveq = self.rveq.taylor(du);
+        CellValues {
+            t: Dual::cst(t),
+            h: Dual::cst(h),
+            rv: rv.map_or(rveq, Dual::cst),
+            theta: self.theta.taylor(du),
+            rveq,
+            energy: self.energy.taylor(du),
+            water: self.water.taylor(du),
+            vapor: self.vapor.taylor(du),
+        }
     }
 }
 
@@ -353,8 +346,8 @@ impl<const N: usize> FaceInputs<N> {
     }
 
     /// The whole record at the state (t, h, rv), displaced by `du` from the base state of
-    /// `kept` and this record, to first order (the unknowns exactly, as
-    /// [`KeptCell::taylor_into`]).
+    /// `kept` and this record, to first order (the kept properties and the unknowns as
+    /// [`KeptCell::taylor`] gives them).
     #[inline]
     pub fn whole(
         &self,
@@ -364,25 +357,25 @@ impl<const N: usize> FaceInputs<N> {
         rv: Option<f64>,
         du: &[f64; N],
     ) -> CellProps<0> {
-        let rveq = kept.rveq.taylor(du);
+        let v = kept.taylor(t, h, rv, du);
         CellProps {
-            t: Dual::cst(t),
-            h: Dual::cst(h),
-            rv: rv.map_or(rveq, Dual::cst),
-            theta: kept.theta.taylor(du),
+            t: v.t,
+            h: v.h,
+            rv: v.rv,
+            theta: v.theta,
             theta_a: self.theta_a.taylor(du),
             hr: self.hr.taylor(du),
             rvs: self.rvs.taylor(du),
             drvs: self.drvs.taylor(du),
-            rveq,
+            rveq: v.rveq,
             k: self.k.taylor(du),
             kt: self.kt.taylor(du),
             dv: self.dv.taylor(du),
             eta: self.eta.taylor(du),
             lambda: self.lambda.taylor(du),
-            energy: kept.energy.taylor(du),
-            water: kept.water.taylor(du),
-            vapor: kept.vapor.taylor(du),
+            energy: v.energy,
+            water: v.water,
+            vapor: v.vapor,
         }
     }
 }

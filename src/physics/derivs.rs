@@ -358,12 +358,11 @@ impl<const N: usize, const M: usize, const R: usize> Kept for Derivs<N, M, R> {
                 sys.cells[i] = c.kept_values();
             } else {
                 let x0 = &self.cell_base[BLOCK * i..BLOCK * i + BLOCK];
-                self.cells[i].taylor_into(
+                sys.cells[i] = self.cells[i].taylor(
                     x[T],
                     x[H],
                     Self::WITH_RV.then_some(x[RV]),
                     &change::<N>(x, x0),
-                    &mut sys.cells[i],
                 );
             }
             if i == 0 || i == n - 1 {
@@ -454,12 +453,11 @@ impl<const N: usize, const M: usize, const R: usize> Kept for Derivs<N, M, R> {
             let (here, prev) = (i % 2, 1 - i % 2);
             let near_base = near(x, x0, Self::WITH_RV);
             if near_base && above_near && below_near && !inputs {
-                self.cells[i].taylor_into(
+                cells[i] = self.cells[i].taylor(
                     x[T],
                     x[H],
                     Self::WITH_RV.then_some(x[RV]),
                     &change::<N>(x, x0),
-                    &mut cells[i],
                 );
             } else {
                 pair[here] = if near_base && inputs {

@@ -244,6 +244,10 @@ fn interrupted() -> bool {
 struct StopOnSignal;
 
 impl Observer for StopOnSignal {
+    /// Reads no snapshot.
+    fn needs_profile(&self) -> bool {
+        false
+    }
     fn step_accepted(&mut self, _sim: &Simulation, _step: &StepInfo) -> Result<Request> {
         Ok(if interrupted() {
             Request::Stop

@@ -40,49 +40,78 @@ impl Profile {
         ]
     }
 
+    /// The face profiles in the order of [`crate::output::results::PROFILE_FACE`].
+    pub fn faces(&self) -> [&[f64]; 5] {
+        [
+            &self.liquid_iso,
+            &self.liquid_th,
+            &self.vapor_iso,
+            &self.vapor_th,
+            &self.heat,
+        ]
+    }
+
     /// Fills from the last evaluation of `sys`.
     pub fn fill(&mut self, sys: &System) {
-        let n = sys.n;
-        let resize = |v: &mut Vec<f64>, k: usize| v.resize(k, 0.0);
-        for v in [
+        let cells = [
             &mut self.temperature_c,
             &mut self.head,
             &mut self.liquid_content,
             &mut self.vapor_density,
             &mut self.relative_humidity,
-        ] {
-            resize(v, n);
+        ];
+        for (k, v) in cells.into_iter().enumerate() {
+            cell_profile(sys, k, v);
         }
-        for v in [
+        root_uptake_profile(sys, &mut self.root_water_uptake);
+        let faces = [
             &mut self.liquid_iso,
             &mut self.liquid_th,
             &mut self.vapor_iso,
             &mut self.vapor_th,
             &mut self.heat,
-        ] {
-            resize(v, n + 1);
+        ];
+        for (k, v) in faces.into_iter().enumerate() {
+            face_profile(sys, k, v);
         }
-        for (i, c) in sys.cells.iter().enumerate() {
-            self.temperature_c[i] = c.t.v - CELSIUS_ZERO;
-            self.head[i] = c.h.v;
-            self.liquid_content[i] = c.theta.v;
-            self.vapor_density[i] = c.rv.v;
-            // rv / rvs(T), rvs as the cells' evaluation computes it (bitwise).
-            let rvs = crate::props::water::saturated_vapor_density_d1(c.t.v).0;
-            self.relative_humidity[i] = c.rv.v / rvs;
-        }
-        self.root_water_uptake.clear();
-        if sys.has_vegetation {
-            self.root_water_uptake
-                .extend(sys.uptake.iter().zip(&sys.widths).map(|(u, w)| u / w));
-        }
-        for (j, f) in sys.faces.iter().enumerate() {
-            self.liquid_iso[j] = WATER_DENSITY * f.liquid_iso.v;
-            self.liquid_th[j] = WATER_DENSITY * f.liquid_th.v;
-            self.vapor_iso[j] = f.vapor_iso.v;
-            self.vapor_th[j] = f.vapor_th.v;
-            self.heat[j] = f.energy().v;
-        }
+    }
+}
+
+/// Cell profile `k` of the last evaluation of `sys` into `out` (resized to the cells), in
+/// the order of [`crate::output::results::PROFILE_CELL`]: temperature [°C], head [m],
+/// liquid content [m³ m⁻³], vapour density [kg m⁻³], relative humidity [-].
+pub fn cell_profile(sys: &System, k: usize, out: &mut Vec<f64>) {
+    out.clear();
+    out.extend(sys.cells.iter().map(|c| match k {
+        0 => c.t.v - CELSIUS_ZERO,
+        1 => c.h.v,
+        2 => c.theta.v,
+        3 => c.rv.v,
+        // rv / rvs(T), rvs as the cells' evaluation computes it (bitwise).
+        _ => c.rv.v / crate::props::water::saturated_vapor_density_d1(c.t.v).0,
+    }));
+}
+
+/// Face profile `k` of the last evaluation of `sys` into `out` (resized to the faces),
+/// positive downward: liquid water flux, isothermal and thermal [kg m⁻² s⁻¹], vapour
+/// flux, isothermal and thermal [kg m⁻² s⁻¹], heat flux [W m⁻²].
+pub fn face_profile(sys: &System, k: usize, out: &mut Vec<f64>) {
+    out.clear();
+    out.extend(sys.faces.iter().map(|f| match k {
+        0 => WATER_DENSITY * f.liquid_iso.v,
+        1 => WATER_DENSITY * f.liquid_th.v,
+        2 => f.vapor_iso.v,
+        3 => f.vapor_th.v,
+        _ => f.energy().v,
+    }));
+}
+
+/// Root water uptake per cell [kg m⁻³ s⁻¹] of the last assembly of `sys` into `out`
+/// (empty without vegetation).
+pub fn root_uptake_profile(sys: &System, out: &mut Vec<f64>) {
+    out.clear();
+    if sys.has_vegetation {
+        out.extend(sys.uptake.iter().zip(&sys.widths).map(|(u, w)| u / w));
     }
 }
 

@@ -22,6 +22,7 @@ use super::h5util::{
 };
 use crate::error::{Error, Result};
 use crate::model::Model;
+use crate::physics::System;
 use hdf5::types::VarLenUnicode;
 use hdf5::{Dataset, File};
 use std::path::{Path, PathBuf};
@@ -789,40 +790,47 @@ impl ResultsFile {
         Ok(())
     }
 
-    /// Writes a snapshot at `time_year`, then everything queued, then flushes the file.
+    /// Writes a snapshot at `time_year` of the profiles `p`, then everything queued, then
+    /// flushes the file.
     pub fn write_snapshot(&mut self, time_year: f64, p: &Profile) -> Result<()> {
+        self.write_snapshot_rows(time_year, &mut ProfileRows::Filled(p))
+    }
+
+    /// Whether [`ResultsFile::write_snapshot_of`] can write this file's snapshots: it has
+    /// no solute profiles (which the solutes compute; root uptake is the system's).
+    pub fn snapshots_from_system(&self) -> bool {
+        self.sets
+            .solute_profiles
+            .iter()
+            .all(|(_, kind, _)| *kind == SoluteProfileKind::RootUptake)
+    }
+
+    /// As [`ResultsFile::write_snapshot`], each profile computed from the last evaluation
+    /// of `sys` as it is written, into one buffer: the same rows, bitwise, as from the
+    /// [`Profile`] filled from `sys`, without holding all of them at once (80 B per cell).
+    pub fn write_snapshot_of(&mut self, time_year: f64, sys: &System) -> Result<()> {
+        self.write_snapshot_rows(
+            time_year,
+            &mut ProfileRows::System {
+                sys,
+                row: Vec::new(),
+            },
+        )
+    }
+
+    fn write_snapshot_rows(&mut self, time_year: f64, p: &mut ProfileRows) -> Result<()> {
         let e = self.write_error();
         append_1d(&self.sets.profile_time, &[time_year]).map_err(&e)?;
-        for (ds, v) in self.sets.cells.iter().zip(p.cells()) {
-            append_row(ds, v).map_err(&e)?;
+        for (k, ds) in self.sets.cells.iter().enumerate() {
+            append_row(ds, p.cell(k)).map_err(&e)?;
         }
-        let faces = [
-            &p.liquid_iso,
-            &p.liquid_th,
-            &p.vapor_iso,
-            &p.vapor_th,
-            &p.heat,
-        ];
-        for (ds, v) in self.sets.faces.iter().zip(faces) {
-            append_row(ds, v).map_err(&e)?;
+        for (k, ds) in self.sets.faces.iter().enumerate() {
+            append_row(ds, p.face(k)).map_err(&e)?;
         }
         for (ds, kind, k) in &self.sets.solute_profiles {
-            if *kind == SoluteProfileKind::RootUptake {
-                append_row(ds, &p.root_water_uptake).map_err(&e)?;
-                continue;
-            }
-            let Some(sp) = p.solutes.get(*k) else {
-                return Err(Error::Internal(format!(
-                    "snapshot without the profiles of solute {k}"
-                )));
-            };
-            let v = match kind {
-                SoluteProfileKind::Concentration => &sp.concentration,
-                SoluteProfileKind::Flux => &sp.flux,
-                SoluteProfileKind::Age => &sp.accumulation_age,
-                SoluteProfileKind::Precipitate => &sp.precipitate,
-                SoluteProfileKind::RootUptake => &p.root_water_uptake,
-            };
+            let v = p.other(*kind, *k).ok_or_else(|| {
+                Error::Internal(format!("snapshot without the profiles of solute {k}"))
+            })?;
             append_row(ds, v).map_err(&e)?;
         }
         self.snapshots += 1;
@@ -946,6 +954,63 @@ impl ResultsFile {
                 )
             } else {
                 super::h5util::io_error(&path, err)
+            }
+        }
+    }
+}
+
+/// Where the rows of a snapshot come from: a filled [`Profile`], or the last evaluation
+/// of the system, one row at a time into `row`.
+enum ProfileRows<'a> {
+    Filled(&'a Profile),
+    System { sys: &'a System, row: Vec<f64> },
+}
+
+impl ProfileRows<'_> {
+    /// Cell profile `k` (order of [`PROFILE_CELL`]).
+    fn cell(&mut self, k: usize) -> &[f64] {
+        match self {
+            ProfileRows::Filled(p) => p.cells()[k],
+            ProfileRows::System { sys, row } => {
+                crate::output::diagnostics::cell_profile(sys, k, row);
+                row
+            }
+        }
+    }
+
+    /// Face profile `k` (order of [`PROFILE_FACE`]).
+    fn face(&mut self, k: usize) -> &[f64] {
+        match self {
+            ProfileRows::Filled(p) => p.faces()[k],
+            ProfileRows::System { sys, row } => {
+                crate::output::diagnostics::face_profile(sys, k, row);
+                row
+            }
+        }
+    }
+
+    /// A solute profile (of solute `k`) or the root uptake; None where it is not there.
+    fn other(&mut self, kind: SoluteProfileKind, k: usize) -> Option<&[f64]> {
+        match self {
+            ProfileRows::Filled(p) => {
+                if kind == SoluteProfileKind::RootUptake {
+                    return Some(&p.root_water_uptake);
+                }
+                let sp = p.solutes.get(k)?;
+                Some(match kind {
+                    SoluteProfileKind::Concentration => &sp.concentration,
+                    SoluteProfileKind::Flux => &sp.flux,
+                    SoluteProfileKind::Age => &sp.accumulation_age,
+                    SoluteProfileKind::Precipitate => &sp.precipitate,
+                    SoluteProfileKind::RootUptake => &p.root_water_uptake,
+                })
+            }
+            ProfileRows::System { sys, row } => {
+                if kind != SoluteProfileKind::RootUptake {
+                    return None;
+                }
+                crate::output::diagnostics::root_uptake_profile(sys, row);
+                Some(row)
             }
         }
     }

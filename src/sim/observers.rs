@@ -93,7 +93,15 @@ impl Observer for ResultsWriter {
     }
     fn snapshot(&mut self, sim: &Simulation, time_year: f64, profile: &Profile) -> Result<()> {
         self.still_there(sim)?;
-        self.file.write_snapshot(time_year, profile)
+        if self.file.snapshots_from_system() {
+            self.file.write_snapshot_of(time_year, sim.system())
+        } else {
+            self.file.write_snapshot(time_year, profile)
+        }
+    }
+    /// Its rows are computed from the system one at a time, but for the solutes'.
+    fn needs_profile(&self) -> bool {
+        !self.file.snapshots_from_system()
     }
     /// The rows a checkpoint counts must be on disk before it is written.
     fn checkpoint(&mut self, sim: &Simulation, _data: &CheckpointData) -> Result<()> {
@@ -178,6 +186,10 @@ impl Checkpointer {
 }
 
 impl Observer for Checkpointer {
+    /// Reads no snapshot.
+    fn needs_profile(&self) -> bool {
+        false
+    }
     fn started(&mut self, _sim: &Simulation) -> Result<()> {
         self.last_wall = Instant::now();
         Ok(())
@@ -226,6 +238,10 @@ impl Progress {
 }
 
 impl Observer for Progress {
+    /// Reads no snapshot.
+    fn needs_profile(&self) -> bool {
+        false
+    }
     fn started(&mut self, _sim: &Simulation) -> Result<()> {
         use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
         let bar = ProgressBar::with_draw_target(Some(1000), ProgressDrawTarget::stderr());

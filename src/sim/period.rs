@@ -150,6 +150,10 @@ struct TrialWatch {
 }
 
 impl Observer for TrialWatch {
+    /// Reads no snapshot.
+    fn needs_profile(&self) -> bool {
+        false
+    }
     fn step_accepted(&mut self, sim: &Simulation, step: &StepInfo) -> Result<Request> {
         if self.record {
             self.steps.push((step.dt, step.order));

@@ -353,9 +353,17 @@ pub trait Observer {
     fn series(&mut self, _sim: &Simulation, _record: &SeriesRecord) -> Result<()> {
         Ok(())
     }
-    /// A snapshot time was reached: the profiles of the state, evaluated directly.
+    /// A snapshot time was reached: the profiles of the state, evaluated directly (the
+    /// system holds that evaluation). `profile` is filled only when some observer
+    /// [`Observer::needs_profile`] (else empty).
     fn snapshot(&mut self, _sim: &Simulation, _time_year: f64, _profile: &Profile) -> Result<()> {
         Ok(())
+    }
+    /// Whether [`Observer::snapshot`] reads its `profile` (true), or takes what it needs
+    /// from the simulation's system (false): where no observer reads it, the profiles
+    /// are not gathered (80 B per cell at each snapshot).
+    fn needs_profile(&self) -> bool {
+        true
     }
     /// A checkpoint time was reached (or one was asked for): the state, its output
     /// position and `data` are what a checkpoint records.
@@ -586,7 +594,7 @@ impl<'m> Simulation<'m> {
     /// a series record and a snapshot of the start state (a new results file begins so).
     pub fn start(&mut self, obs: &mut [&mut dyn Observer], initial_output: bool) -> Result<()> {
         if initial_output {
-            self.fill_profiles();
+            self.fill_profiles(needs_profile(obs));
             let rec = series_record(&self.sys, &self.st, 0.0, 0);
             self.emit_series(obs, rec)?;
             self.emit_snapshot(obs)?;
@@ -809,7 +817,7 @@ impl<'m> Simulation<'m> {
             if at_snapshot {
                 // The profiles of the state evaluated directly, not linearised: the same
                 // whatever the solver kept (a branch from this state shows the same).
-                self.fill_profiles();
+                self.fill_profiles(needs_profile(obs));
                 self.emit_snapshot(obs)?;
             }
             let mut checkpoint = landed && is_member(&self.plan.checkpoints, t_sync);
@@ -970,16 +978,18 @@ impl<'m> Simulation<'m> {
         Ok(())
     }
 
-    /// The profiles of the state into `self.profile`: the state evaluated directly, not
-    /// linearised (the same whatever the solver kept: a branch from this state shows the
-    /// same), with its root uptake and solute profiles.
-    fn fill_profiles(&mut self) {
+    /// The state evaluated directly, not linearised (the same whatever the solver kept: a
+    /// branch from this state shows the same), with its root uptake; with `gather`, its
+    /// profiles and the solute profiles into `self.profile`.
+    fn fill_profiles(&mut self, gather: bool) {
         self.sys.evaluate_direct(self.st.state.t, &self.st.state.u);
         if self.sys.has_vegetation {
             self.sys.compute_uptake(self.st.state.t);
         }
-        self.profile.fill(&self.sys);
-        self.fill_solute_profiles();
+        if gather {
+            self.profile.fill(&self.sys);
+            self.fill_solute_profiles();
+        }
     }
 
     /// The solute profiles of the state into `self.profile` (the flow evaluated directly
@@ -1006,4 +1016,9 @@ impl<'m> Simulation<'m> {
         self.profile = Profile::default();
         Ok(())
     }
+}
+
+/// Whether some observer reads the profiles of a snapshot (see [`Observer::needs_profile`]).
+fn needs_profile(obs: &[&mut dyn Observer]) -> bool {
+    obs.iter().any(|o| o.needs_profile())
 }

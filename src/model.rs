@@ -328,6 +328,10 @@ pub struct TimeControl {
     pub balance_tolerance: f64,
     /// Cycle skipping under periodic forcing (`[time.cycle_skipping]`); None: off.
     pub cycle_skipping: Option<CycleSkipping>,
+    /// Keep no evaluations with derivatives between Newton iterations (`memory =
+    /// "lean"`): less memory per cell, about twice the run time (see DEVELOPERS.md,
+    /// "Memory per cell").
+    pub lean_memory: bool,
 }
 
 /// Cycle skipping (envelope following, see [`crate::solve::envelope`]): whole periods

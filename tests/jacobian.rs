@@ -56,6 +56,32 @@ fn check(model: &Model, seed: u64, label: &str) {
         sys.assemble(t, &u, c, &hist, &mut res_values, None)
             .unwrap();
         assert_eq!(res, res_values, "{label}: residual-only path differs");
+        // `memory = "lean"` keeps no evaluation with derivatives and evaluates the
+        // Jacobian cell by cell as it goes: the same residual, Jacobian and storage
+        // blocks, bitwise, as a system that evaluates everything afresh.
+        {
+            let mut direct = System::new(model);
+            let mut lean = System::new(model);
+            lean.lean = true;
+            let (mut r1, mut r2) = (vec![0.0; 3 * n], vec![0.0; 3 * n]);
+            let (mut j1, mut j2) = (BlockTri::new(n), BlockTri::new(n));
+            direct
+                .assemble(t, &u, c, &hist, &mut r1, Some(&mut j1))
+                .unwrap();
+            lean.assemble(t, &u, c, &hist, &mut r2, Some(&mut j2))
+                .unwrap();
+            assert_eq!(r1, res, "{label}: direct residual");
+            assert_eq!(r2, res, "{label}: lean residual");
+            assert_eq!(j2.diag, j1.diag, "{label}: lean Jacobian, diagonal");
+            assert_eq!(j2.lower, j1.lower, "{label}: lean Jacobian, lower");
+            assert_eq!(j2.upper, j1.upper, "{label}: lean Jacobian, upper");
+            let (mut s1, mut s2) = (vec![[[0.0; 3]; 3]; n], vec![[[0.0; 3]; 3]; n]);
+            direct.storage_jacobian_into(&mut s1);
+            lean.storage_jacobian_into(&mut s2);
+            assert_eq!(s2, s1, "{label}: lean storage blocks");
+            lean.assemble(t, &u, c, &hist, &mut r2, None).unwrap();
+            assert_eq!(r2, res, "{label}: lean residual-only path");
+        }
         // The Jacobian is linear in the integrator coefficient: J(c2) = J(c) + (c2 − c) S,
         // with S the storage blocks (what lets Newton change Δt without re-evaluating).
         let c2 = 2.7 * c;

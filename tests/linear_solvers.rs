@@ -204,6 +204,30 @@ fn scaled_agrees<const B: usize>(decoupled: bool) {
             two.solve(&mut x2).unwrap();
             assert_eq!(x1, x2, "{} B = {B} dc = {dc} packed {packed}", one.name());
             assert!(residual(&stored, &x1, &b) < 1e-10);
+            // Borrowing from the matrix (`memory = "lean"`): the factors leave out what
+            // the solve reads from `m` again, with bitwise the same solution; a plain
+            // solve without the matrix is refused where something was left out.
+            let mut three = make();
+            three.borrow_from_matrix(true);
+            three.factor_scaled(&m).unwrap();
+            let mut x3 = b.clone();
+            three.solve_scaled(&m, &mut x3).unwrap();
+            assert_eq!(x3, x1, "{} borrowing, B = {B} dc = {dc}", one.name());
+            let mut x4 = b.clone();
+            let plain = three.solve(&mut x4);
+            let left_out = decoupled && one.name() == "block-tridiagonal";
+            assert_eq!(plain.is_err(), left_out, "{} plain solve", one.name());
+            let (mut full, mut lean) = (Vec::new(), Vec::new());
+            two.arrays(&mut full);
+            three.arrays(&mut lean);
+            let bytes = |v: &[deepdry::memory::ArrayCost]| v.iter().map(|a| a.bytes).sum::<usize>();
+            if left_out {
+                // The lower blocks ((B−1)² values) and the algebraic rows (B) per block.
+                let saved = n * 8 * ((B - 1) * (B - 1) + B);
+                assert_eq!(bytes(&full) - bytes(&lean), saved);
+            } else {
+                assert_eq!(bytes(&full), bytes(&lean));
+            }
         }
     }
 }

@@ -179,6 +179,7 @@ fn model() -> Model {
             newton_tolerance: deepdry::solve::newton::DEFAULT_RESIDUAL_TOL,
             balance_tolerance: deepdry::case::build::DEFAULT_BALANCE_TOLERANCE,
             cycle_skipping: None,
+            lean_memory: false,
         },
         output: OutputControl {
             folder: std::path::PathBuf::from("."),

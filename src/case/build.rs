@@ -1491,6 +1491,7 @@ const TIME_KEYS: &[&str] = &[
     "newton_tolerance",
     "balance_tolerance",
     "cycle_skipping",
+    "memory",
 ];
 
 /// Default of `[time] balance_tolerance`: the cumulative balance error of a run relative
@@ -1545,6 +1546,12 @@ fn read_time(root: &Table) -> R<TimeControl> {
         Some(v) => v.choice(&["backward-euler", "bdf"])?,
         None => "bdf",
     };
+    // "lean": no kept evaluations with derivatives, and BDF up to order 2 unless
+    // max_order says otherwise (see DEVELOPERS.md, "Memory per cell").
+    let lean_memory = match t.get("memory") {
+        Some(v) => v.choice(&["fast", "lean"])? == "lean",
+        None => false,
+    };
     let method = if method == "bdf" {
         let max_order = match t.get("max_order") {
             Some(v) => {
@@ -1554,6 +1561,7 @@ fn read_time(root: &Table) -> R<TimeControl> {
                 }
                 k
             }
+            None if lean_memory => 2,
             None => 5,
         };
         Method::Bdf { max_order }
@@ -1654,6 +1662,7 @@ fn read_time(root: &Table) -> R<TimeControl> {
         newton_tolerance,
         balance_tolerance,
         cycle_skipping,
+        lean_memory,
     })
 }
 

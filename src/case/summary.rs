@@ -347,6 +347,12 @@ pub fn summary(m: &Model) -> String {
         fmt_g(t.atol_head),
         fmt_g(t.atol_vapor)
     );
+    if t.lean_memory {
+        let _ = writeln!(
+            o,
+            "Memory: lean (no evaluations with derivatives kept between Newton iterations: about 0.86 kB per cell instead of 1.27 kB with BDF up to order 2, at about three times the run time)"
+        );
+    }
     if let Some(c) = &t.cycle_skipping {
         let most = c.max_jump_periods;
         let how = if c.implicit {

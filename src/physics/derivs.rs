@@ -172,9 +172,12 @@ pub(super) trait Kept {
         whole: Option<&[CellProps<0>]>,
         faces: &mut [FaceFlux<0>],
     );
+    #[allow(clippy::too_many_arguments)]
     fn jacobian_into(
         &self,
         sys: &System,
+        t: f64,
+        u: &[f64],
         c: f64,
         jac: &mut dyn BlockRows<BLOCK>,
         sources: Option<&SourceJacobian>,
@@ -551,76 +554,27 @@ impl<const N: usize, const M: usize, const R: usize> Kept for Derivs<N, M, R> {
     fn jacobian_into(
         &self,
         sys: &System,
+        _t: f64,
+        _u: &[f64],
         c: f64,
         jac: &mut dyn BlockRows<BLOCK>,
         sources: Option<&SourceJacobian>,
     ) -> Result<(), NonFinite> {
-        let n = sys.n;
-        let rate = sys.kinetic_rate();
-        let rows = if rate.is_some() { BLOCK } else { BLOCK - 1 };
-        let mut bad: [Option<NonFinite>; 3] = [None, None, None];
-        for i in 0..n {
-            // Lower, diagonal and upper block of row i.
-            let mut blocks = [zero_block::<BLOCK>(); 3];
-            let w = sys.widths[i];
-            let cp = &self.cells[i];
-            let d = &mut blocks[1];
-            let energy = cp.energy * (c * w);
-            let water = cp.water * (c * w);
-            for col in 0..N {
-                d[ENERGY][col] += energy.d[col];
-                d[WATER][col] += water.d[col];
-            }
-            match rate {
-                Some(b) => {
-                    let rv = cp.rv(&self.cell_base[BLOCK * i..BLOCK * i + BLOCK], true);
-                    let vapor = cp.vapor * (c * w) - (cp.rveq - rv) * (b * w);
-                    for col in 0..N {
-                        d[VAPOR][col] += vapor.d[col];
-                    }
-                }
-                None => {
-                    // rv − rveq(T, h): 1 for the vapour unknown, −∂rveq for T and h.
-                    for col in 0..N {
-                        d[VAPOR][col] -= cp.rveq.d[col];
-                    }
-                    d[VAPOR][RV] += 1.0;
-                }
-            }
-            // Face i (above the cell: its flow leaves the row, sign −1), then face i + 1
-            // (below: +1); a face's derivatives are w.r.t. the cell above it (slots
-            // 0..N) and below it (N..2N), the boundary faces' both w.r.t. their cell.
-            for (j, sign) in [(i, -1.0), (i + 1, 1.0)] {
-                let vals = &self.totals[j];
-                let col_up = if j == 0 { 0 } else { j - 1 };
-                let col_dn = if j == n { n - 1 } else { j };
-                // 0: lower, 1: diagonal, 2: upper block of row i.
-                let (ku, kd) = (col_up + 1 - i, col_dn + 1 - i);
-                for (r, v) in vals.iter().enumerate().take(rows) {
-                    for col in 0..N {
-                        blocks[ku][r][col] += sign * v.d[col];
-                    }
-                    for col in 0..N {
-                        blocks[kd][r][col] += sign * v.d[N + col];
-                    }
-                }
-            }
-            if let Some(add) = sources {
-                add(i, &mut blocks[1]);
-            }
-            for (k, b) in blocks.iter().enumerate() {
-                if bad[k].is_none() {
-                    if let Some(row) = b.iter().position(|r| !super::all_finite(r)) {
-                        bad[k] = Some(NonFinite { cell: i, row });
-                    }
-                }
-            }
+        let mut bad = FirstNonFinite::default();
+        for i in 0..sys.n {
+            let blocks = jacobian_row(
+                sys,
+                i,
+                c,
+                &self.cells[i],
+                &self.cell_base[BLOCK * i..BLOCK * i + BLOCK],
+                [&self.totals[i], &self.totals[i + 1]],
+                sources,
+            );
+            bad.check(i, &blocks);
             jac.set_row(i, &blocks[0], &blocks[1], &blocks[2]);
         }
-        match bad.into_iter().flatten().next() {
-            Some(e) => Err(e),
-            None => Ok(()),
-        }
+        bad.result()
     }
 
     fn arrays(&self, out: &mut Vec<crate::memory::ArrayCost>) {
@@ -642,21 +596,226 @@ impl<const N: usize, const M: usize, const R: usize> Kept for Derivs<N, M, R> {
 
     /// The storage-derivative blocks (see [`System::storage_jacobian_into`]).
     fn storage_blocks_into(&self, sys: &System, out: &mut dyn BlockRows<BLOCK>) {
-        let kinetic = sys.kinetic_rate().is_some();
         for i in 0..sys.n {
-            let w = sys.widths[i];
-            let cp = &self.cells[i];
-            let mut b = zero_block();
-            let rows = [cp.energy, cp.water, cp.vapor];
-            let used = if kinetic { BLOCK } else { BLOCK - 1 };
-            for (r, row) in rows.iter().enumerate().take(used) {
-                for col in 0..N {
-                    b[r][col] = w * row.d[col];
-                }
-            }
-            out.set_diag(i, &b);
+            out.set_diag(i, &storage_block(sys, i, &self.cells[i]));
         }
     }
+}
+
+/// The evaluations with derivatives of a run that keeps none (`[time] memory = "lean"`):
+/// every value evaluation is direct, and the Jacobian and the storage-derivative blocks
+/// are evaluated afresh from the state, cell by cell and face by face, holding only the
+/// two cells and the face at hand. No array per cell or face (against the 321 B per
+/// cell of [`Derivs`] in equilibrium mode); a Jacobian costs a value evaluation more,
+/// and every residual is evaluated directly. The Jacobian is bitwise that of [`Derivs`]
+/// with no base kept.
+#[derive(Debug, Clone, Copy, Default)]
+pub(super) struct Streamed<const N: usize, const M: usize, const R: usize>;
+
+impl<const N: usize, const M: usize, const R: usize> Kept for Streamed<N, M, R> {
+    fn forget(&mut self) {}
+
+    fn bases(&self) -> (&[f64], &[f64]) {
+        (&[], &[])
+    }
+
+    fn restore(&mut self, _sys: &System, _cells: &[f64], _faces: &[f64]) {}
+
+    /// The values alone, directly (the derivatives are evaluated by
+    /// [`Kept::jacobian_into`] at the same state).
+    fn evaluate(&mut self, sys: &mut System, t: f64, u: &[f64]) -> bool {
+        sys.evaluate_direct(t, u);
+        false
+    }
+
+    fn linearised(
+        &self,
+        _sys: &System,
+        _t: f64,
+        _u: &[f64],
+        _cells: &mut [CellValues],
+        _whole: &mut [CellProps<0>],
+        _faces: &mut [FaceFlux<0>],
+        _totals: &mut [[Dual<0>; BLOCK]],
+        _parts: bool,
+    ) -> bool {
+        false
+    }
+
+    /// Nothing to complete: every evaluation is direct.
+    fn complete_parts(
+        &self,
+        _sys: &System,
+        _u: &[f64],
+        _whole: Option<&[CellProps<0>]>,
+        _faces: &mut [FaceFlux<0>],
+    ) {
+    }
+
+    fn jacobian_into(
+        &self,
+        sys: &System,
+        t: f64,
+        u: &[f64],
+        c: f64,
+        jac: &mut dyn BlockRows<BLOCK>,
+        sources: Option<&SourceJacobian>,
+    ) -> Result<(), NonFinite> {
+        let n = sys.n;
+        let x = |i: usize| &u[BLOCK * i..BLOCK * i + BLOCK];
+        let mut bad = FirstNonFinite::default();
+        let mut here: CellProps<N> = sys.props_at(0, x(0));
+        let top: FaceFlux<M> = sys.top_face(t, &here);
+        let mut above: [Dual<M>; R] = rows_of(top.totals());
+        for i in 0..n {
+            let (below, next): ([Dual<M>; R], Option<CellProps<N>>) = if i + 1 < n {
+                let next: CellProps<N> = sys.props_at(i + 1, x(i + 1));
+                let f: FaceFlux<M> = sys.interior_face(&here, &next, i + 1);
+                (rows_of(f.totals()), Some(next))
+            } else {
+                let f: FaceFlux<M> = sys.bottom_face(t, &here);
+                (rows_of(f.totals()), None)
+            };
+            let blocks = jacobian_row(
+                sys,
+                i,
+                c,
+                &KeptCell::of(&here),
+                x(i),
+                [&above, &below],
+                sources,
+            );
+            bad.check(i, &blocks);
+            jac.set_row(i, &blocks[0], &blocks[1], &blocks[2]);
+            above = below;
+            if let Some(next) = next {
+                here = next;
+            }
+        }
+        bad.result()
+    }
+
+    /// From the cells' states of the last evaluation (which hold the unknowns exactly).
+    fn storage_blocks_into(&self, sys: &System, out: &mut dyn BlockRows<BLOCK>) {
+        for i in 0..sys.n {
+            let v = &sys.cells[i];
+            let cp: CellProps<N> = sys.props_at(i, &[v.t.v, v.h.v, v.rv.v]);
+            out.set_diag(i, &storage_block(sys, i, &KeptCell::of(&cp)));
+        }
+    }
+
+    fn arrays(&self, _out: &mut Vec<crate::memory::ArrayCost>) {}
+}
+
+/// Jacobian block row `i` (lower, diagonal, upper block) of the residual of
+/// [`System::assemble`] with coefficient `c`, from the cell's record with derivatives
+/// `cp` made at its state `x` and the totals with derivatives of its faces above and
+/// below (`faces`), with `sources(i, diag)` (when given) adding the derivatives of the
+/// cell's source terms last. Each entry sums, in this order, the cell's storage and
+/// local terms, the face above, the face below and the sources.
+#[inline]
+fn jacobian_row<const N: usize, const M: usize, const R: usize>(
+    sys: &System,
+    i: usize,
+    c: f64,
+    cp: &KeptCell<N>,
+    x: &[f64],
+    faces: [&[Dual<M>; R]; 2],
+    sources: Option<&SourceJacobian>,
+) -> [Block<BLOCK>; 3] {
+    let n = sys.n;
+    let rate = sys.kinetic_rate();
+    let rows = if rate.is_some() { BLOCK } else { BLOCK - 1 };
+    let mut blocks = [zero_block::<BLOCK>(); 3];
+    let w = sys.widths[i];
+    let d = &mut blocks[1];
+    let energy = cp.energy * (c * w);
+    let water = cp.water * (c * w);
+    for col in 0..N {
+        d[ENERGY][col] += energy.d[col];
+        d[WATER][col] += water.d[col];
+    }
+    match rate {
+        Some(b) => {
+            let rv = cp.rv(x, N > RV);
+            let vapor = cp.vapor * (c * w) - (cp.rveq - rv) * (b * w);
+            for col in 0..N {
+                d[VAPOR][col] += vapor.d[col];
+            }
+        }
+        None => {
+            // rv − rveq(T, h): 1 for the vapour unknown, −∂rveq for T and h.
+            for col in 0..N {
+                d[VAPOR][col] -= cp.rveq.d[col];
+            }
+            d[VAPOR][RV] += 1.0;
+        }
+    }
+    // Face i (above the cell: its flow leaves the row, sign −1), then face i + 1
+    // (below: +1); a face's derivatives are w.r.t. the cell above it (slots 0..N) and
+    // below it (N..2N), the boundary faces' both w.r.t. their cell.
+    for (vals, (j, sign)) in faces.into_iter().zip([(i, -1.0), (i + 1, 1.0)]) {
+        let col_up = if j == 0 { 0 } else { j - 1 };
+        let col_dn = if j == n { n - 1 } else { j };
+        // 0: lower, 1: diagonal, 2: upper block of row i.
+        let (ku, kd) = (col_up + 1 - i, col_dn + 1 - i);
+        for (r, v) in vals.iter().enumerate().take(rows) {
+            for col in 0..N {
+                blocks[ku][r][col] += sign * v.d[col];
+            }
+            for col in 0..N {
+                blocks[kd][r][col] += sign * v.d[N + col];
+            }
+        }
+    }
+    if let Some(add) = sources {
+        add(i, &mut blocks[1]);
+    }
+    blocks
+}
+
+/// The first non-finite entry of a Jacobian: the first in a lower block, else in a
+/// diagonal, else in an upper one (by block row, then row).
+#[derive(Default)]
+struct FirstNonFinite([Option<NonFinite>; 3]);
+
+impl FirstNonFinite {
+    #[inline]
+    fn check(&mut self, i: usize, blocks: &[Block<BLOCK>; 3]) {
+        for (k, b) in blocks.iter().enumerate() {
+            if self.0[k].is_none() {
+                if let Some(row) = b.iter().position(|r| !super::all_finite(r)) {
+                    self.0[k] = Some(NonFinite { cell: i, row });
+                }
+            }
+        }
+    }
+
+    fn result(self) -> Result<(), NonFinite> {
+        match self.0.into_iter().flatten().next() {
+            Some(e) => Err(e),
+            None => Ok(()),
+        }
+    }
+}
+
+/// Cell i's storage-derivative block from its record with derivatives `cp`.
+#[inline]
+fn storage_block<const N: usize>(sys: &System, i: usize, cp: &KeptCell<N>) -> Block<BLOCK> {
+    let w = sys.widths[i];
+    let mut b = zero_block();
+    let rows = [cp.energy, cp.water, cp.vapor];
+    let used = if sys.kinetic_rate().is_some() {
+        BLOCK
+    } else {
+        BLOCK - 1
+    };
+    for (r, row) in rows.iter().enumerate().take(used) {
+        for col in 0..N {
+            b[r][col] = w * row.d[col];
+        }
+    }
+    b
 }
 
 /// The values of a face's totals (NaN for those not kept).

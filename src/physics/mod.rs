@@ -36,7 +36,7 @@ pub fn column_balance(sys: &System, st: &ColumnStepper) -> ([f64; 2], [f64; 2]) 
     ([abs[0], abs[1]], [rel[0], rel[1]])
 }
 use cell::{cell_props, CellProps, CellValues};
-use derivs::{Derivs, Kept};
+use derivs::{Derivs, Kept, Streamed};
 use dual::{Dual, D0};
 use flux::{face_flux, FaceFlux};
 
@@ -74,6 +74,10 @@ pub struct System {
     /// in kinetic mode, 2 in equilibrium mode (see `derivs`).
     d_full: Derivs<BLOCK, { 2 * BLOCK }, BLOCK>,
     d_reduced: Derivs<2, 4, 2>,
+    /// Whether no evaluation with derivatives is kept (`[time] memory = "lean"`): the
+    /// Jacobian is then evaluated afresh, cell by cell, and every value evaluation is
+    /// direct (see `derivs::Streamed`).
+    pub lean: bool,
     /// Whether the last evaluation left out the flux parts of linearised faces.
     parts_left_out: bool,
     /// Whether the flux parts are asked for at every step (solute transport): the kept
@@ -233,6 +237,7 @@ impl System {
             face_totals: vec![[D0::cst(0.0); BLOCK]; n + 1],
             d_full: Derivs::default(),
             d_reduced: Derivs::default(),
+            lean: model.time.lean_memory,
             parts_left_out: false,
             parts_each_step: !model.solutes.is_empty(),
             whole_cells: if model.solutes.is_empty() {
@@ -472,7 +477,15 @@ impl System {
 
     /// The kept evaluations with derivatives of this system's vapour mode.
     fn kept(&self) -> &dyn Kept {
-        if self.reduced() {
+        const STREAMED_FULL: Streamed<BLOCK, { 2 * BLOCK }, BLOCK> = Streamed;
+        const STREAMED_REDUCED: Streamed<2, 4, 2> = Streamed;
+        if self.lean {
+            if self.reduced() {
+                &STREAMED_REDUCED
+            } else {
+                &STREAMED_FULL
+            }
+        } else if self.reduced() {
             &self.d_reduced
         } else {
             &self.d_full
@@ -482,7 +495,13 @@ impl System {
     /// Runs `f` on the kept evaluations, taken out of the system for the call (so that
     /// `f` may also change the system).
     fn with_kept_mut<R>(&mut self, f: impl FnOnce(&mut dyn Kept, &mut System) -> R) -> R {
-        if self.reduced() {
+        if self.lean {
+            if self.reduced() {
+                f(&mut Streamed::<2, 4, 2>, self)
+            } else {
+                f(&mut Streamed::<BLOCK, { 2 * BLOCK }, BLOCK>, self)
+            }
+        } else if self.reduced() {
             let mut d = std::mem::take(&mut self.d_reduced);
             let r = f(&mut d, self);
             self.d_reduced = d;
@@ -878,7 +897,7 @@ impl System {
                 |i: usize, d: &mut Block<BLOCK>| self.add_source_jacobian(i, plants, runoff, d);
             let any = plants.is_some() || runoff.is_some();
             self.kept()
-                .jacobian_into(self, c, jac, any.then_some(&sources))?;
+                .jacobian_into(self, t, u, c, jac, any.then_some(&sources))?;
         }
         Ok(())
     }

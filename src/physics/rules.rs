@@ -125,6 +125,10 @@ impl Problem<BLOCK> for System {
         self.kinetic_rate().is_none()
     }
 
+    fn lean_memory(&self) -> bool {
+        self.lean
+    }
+
     fn storage_jacobian_into(&self, out: &mut dyn BlockRows<BLOCK>) {
         System::storage_jacobian_into(self, out);
     }

@@ -33,6 +33,16 @@ pub trait LinearSolver<const B: usize> {
     fn factor_scaled(&mut self, m: &Scaled<B>) -> Result<(), LinearError>;
     /// Solves A x = b in place (b becomes x) with the last factorisation.
     fn solve(&mut self, b: &mut [f64]) -> Result<(), LinearError>;
+    /// Whether [`LinearSolver::factor_scaled`] may leave out of its factors what the
+    /// solve can read again from the matrix it factorised (which must then be given to
+    /// [`LinearSolver::solve_scaled`] unchanged): less memory, a little more work per
+    /// solve. Default: ignored.
+    fn borrow_from_matrix(&mut self, _borrow: bool) {}
+    /// [`LinearSolver::solve`] after [`LinearSolver::factor_scaled`] of `m` (the same
+    /// matrix, unchanged).
+    fn solve_scaled(&mut self, _m: &Scaled<B>, b: &mut [f64]) -> Result<(), LinearError> {
+        self.solve(b)
+    }
     fn name(&self) -> &'static str;
     /// The heap arrays of the solver (see [`crate::memory`]).
     fn arrays(&self, out: &mut Vec<crate::memory::ArrayCost>);
@@ -247,6 +257,12 @@ pub struct BlockThomas<const B: usize> {
     /// (a_0 … a_{B−2}, 1/a_{B−1}) of x_{B−1} = (r_{B−1} − Σ a_c x_c) / a_{B−1}.
     reduced: bool,
     last: Vec<[f64; B]>,
+    /// Whether a factorisation of a scaled matrix in the decoupled pattern leaves its
+    /// lower blocks and algebraic rows in the matrix (`lower` and `last` stay empty; the
+    /// solve reads them from it, see [`LinearSolver::borrow_from_matrix`]).
+    borrow: bool,
+    /// Whether the last factorisation left them there.
+    borrowed: bool,
 }
 
 /// Block `i` of a flat array of m×m blocks, into the leading part of a B×B block.
@@ -279,18 +295,24 @@ impl<const B: usize> BlockThomas<B> {
             lower: Vec::new(),
             reduced: false,
             last: Vec::new(),
+            borrow: false,
+            borrowed: false,
         }
     }
 
-    /// Sizes the factor arrays for blocks of m×m (and the last rows when reduced).
-    fn reserve(&mut self, m: usize, reduced: bool) {
+    /// Sizes the factor arrays for blocks of m×m (and the last rows when reduced), but
+    /// the lower blocks and last rows when they are `borrowed` from the matrix.
+    fn reserve(&mut self, m: usize, reduced: bool, borrowed: bool) {
         let need = m * m * self.n;
-        for v in [&mut self.inv, &mut self.e, &mut self.lower] {
+        for v in [&mut self.inv, &mut self.e] {
             if v.len() < need {
                 v.resize(need, 0.0);
             }
         }
-        if reduced && self.last.len() < self.n {
+        if !borrowed && self.lower.len() < need {
+            self.lower.resize(need, 0.0);
+        }
+        if reduced && !borrowed && self.last.len() < self.n {
             self.last.resize(self.n, [0.0; B]);
         }
     }
@@ -371,19 +393,25 @@ impl<const B: usize> BlockThomas<B> {
                 store(&mut self.e, i, m, &e);
             }
             store(&mut self.inv, i, m, &inv);
-            store(&mut self.lower, i, m, &low);
             if d[m][m] == 0.0 || !d[m][m].is_finite() {
                 return Err(LinearError::Singular { index: B * i + m });
             }
-            let mut last = [0.0; B];
-            last[..m].copy_from_slice(&d[m][..m]);
-            last[m] = 1.0 / d[m][m];
-            self.last[i] = last;
+            if !self.borrowed {
+                store(&mut self.lower, i, m, &low);
+                self.last[i] = last_row(&d);
+            }
         }
         Ok(())
     }
 
-    fn solve_reduced(&self, b: &mut [f64]) {
+    /// The solve in the decoupled pattern, with the lower block and the last row of
+    /// block row i from `lower(i)` and `last(i)` (kept, or read from the matrix).
+    fn solve_reduced(
+        &self,
+        b: &mut [f64],
+        lower: impl Fn(usize) -> Block<B>,
+        last: impl Fn(usize) -> [f64; B],
+    ) {
         let n = self.n;
         let m = B - 1;
         let mut prev = [0.0; B];
@@ -391,7 +419,7 @@ impl<const B: usize> BlockThomas<B> {
             let mut r = [0.0; B];
             r[..m].copy_from_slice(&b[B * i..B * i + m]);
             if i > 0 {
-                let ly = mat_vec(&load::<B>(&self.lower, i, m), &prev, m);
+                let ly = mat_vec(&lower(i), &prev, m);
                 for k in 0..m {
                     r[k] -= ly[k];
                 }
@@ -407,7 +435,8 @@ impl<const B: usize> BlockThomas<B> {
                 next[k] = b[B * i + k];
             }
         }
-        for (x, l) in b.chunks_exact_mut(B).zip(self.last.iter()) {
+        for (i, x) in b.chunks_exact_mut(B).enumerate() {
+            let l = last(i);
             let mut s = x[m];
             for c in 0..m {
                 s -= l[c] * x[c];
@@ -415,20 +444,54 @@ impl<const B: usize> BlockThomas<B> {
             x[m] = s * l[m];
         }
     }
+
+    /// Whether the factors are there to solve with (`borrowed`: the lower blocks and
+    /// last rows read from the matrix).
+    fn ready(&self, b: &[f64]) -> Result<(), LinearError> {
+        if b.len() != B * self.n {
+            return Err(LinearError::Pattern);
+        }
+        let m = if self.reduced { B - 1 } else { B };
+        if self.inv.len() < m * m * self.n {
+            // Not factorised yet.
+            return Err(LinearError::Singular { index: 0 });
+        }
+        Ok(())
+    }
+}
+
+/// The last row of a diagonal block in the decoupled pattern, as the solve uses it:
+/// (a_0 … a_{B−2}, 1/a_{B−1}).
+#[inline(always)]
+fn last_row<const B: usize>(d: &Block<B>) -> [f64; B] {
+    let m = B - 1;
+    let mut last = [0.0; B];
+    last[..m].copy_from_slice(&d[m][..m]);
+    last[m] = 1.0 / d[m][m];
+    last
 }
 
 impl<const B: usize> BlockThomas<B> {
-    /// The factorisation of the matrix whose blocks `a` gives.
-    fn factor_from<S: BlockSource<B>>(&mut self, a: &S) -> Result<(), LinearError> {
+    /// The factorisation of the matrix whose blocks `a` gives; with `borrow`, in the
+    /// decoupled pattern, without its lower blocks and last rows (read from `a` again by
+    /// the solve).
+    fn factor_from<S: BlockSource<B>>(&mut self, a: &S, borrow: bool) -> Result<(), LinearError> {
         if a.blocks() != self.n {
             return Err(LinearError::Pattern);
         }
         self.reduced = a.last_decoupled();
         if self.reduced {
-            self.reserve(B - 1, true);
+            self.borrowed = borrow;
+            if borrow {
+                // Not filled by this factorisation: freed (no-op when empty).
+                self.lower = Vec::new();
+                self.last = Vec::new();
+            }
+            self.reserve(B - 1, true, borrow);
             return self.factor_reduced(a);
         }
-        self.reserve(B, false);
+        self.borrowed = false;
+        self.reserve(B, false, false);
         let n = self.n;
         for i in 0..n {
             let mut bp = a.diag(i);
@@ -455,24 +518,47 @@ impl<const B: usize> BlockThomas<B> {
 
 impl<const B: usize> LinearSolver<B> for BlockThomas<B> {
     fn factor(&mut self, a: &BlockTri<B>) -> Result<(), LinearError> {
-        self.factor_from(a)
+        self.factor_from(a, false)
     }
 
     fn factor_scaled(&mut self, m: &Scaled<B>) -> Result<(), LinearError> {
-        self.factor_from(m)
+        self.factor_from(m, self.borrow)
+    }
+
+    fn borrow_from_matrix(&mut self, borrow: bool) {
+        self.borrow = borrow;
+    }
+
+    fn solve_scaled(&mut self, a: &Scaled<B>, b: &mut [f64]) -> Result<(), LinearError> {
+        if !self.borrowed {
+            return self.solve(b);
+        }
+        self.ready(b)?;
+        let m = B - 1;
+        self.solve_reduced(
+            b,
+            |i| {
+                let mut low = zero_block::<B>();
+                let full = a.lower(i);
+                for r in 0..m {
+                    low[r][..m].copy_from_slice(&full[r][..m]);
+                }
+                low
+            },
+            |i| last_row(&a.diag(i)),
+        );
+        all_finite(b)
     }
 
     fn solve(&mut self, b: &mut [f64]) -> Result<(), LinearError> {
-        if b.len() != B * self.n {
+        self.ready(b)?;
+        if self.borrowed {
+            // The factors lack what the matrix holds (see `solve_scaled`).
             return Err(LinearError::Pattern);
         }
-        let m = if self.reduced { B - 1 } else { B };
-        if self.inv.len() < m * m * self.n {
-            // Not factorised yet.
-            return Err(LinearError::Singular { index: 0 });
-        }
         if self.reduced {
-            self.solve_reduced(b);
+            let m = B - 1;
+            self.solve_reduced(b, |i| load::<B>(&self.lower, i, m), |i| self.last[i]);
             return all_finite(b);
         }
         let n = self.n;

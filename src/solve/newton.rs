@@ -232,6 +232,7 @@ pub fn solve<const B: usize, P: Problem<B> + ?Sized>(
     if !opts.reuse_jacobian {
         w.invalidate();
     }
+    lin.borrow_from_matrix(sys.lean_memory());
     // Worst scaled residual of the previous iterate, and whether the Jacobian was fresh
     // (evaluated at that iterate) when its update was computed.
     let mut last = f64::INFINITY;
@@ -342,7 +343,15 @@ pub fn solve<const B: usize, P: Problem<B> + ?Sized>(
         for (r, s) in w.res.iter_mut().zip(w.row.iter()) {
             *r = -*r * s;
         }
-        if let Err(e) = lin.solve(&mut w.res) {
+        let jc = w.jac_c.unwrap_or(c);
+        let scaled = Scaled {
+            a: &w.jac_raw,
+            s: &w.storage,
+            dc: c - jc,
+            row: &w.row,
+            col: &w.col,
+        };
+        if let Err(e) = lin.solve_scaled(&scaled, &mut w.res) {
             w.invalidate();
             if fresh {
                 return Err(NewtonFailure::Linear(e));

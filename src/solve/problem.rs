@@ -124,6 +124,13 @@ pub trait Problem<const B: usize> {
         false
     }
 
+    /// Whether the run trades time for memory: Newton's linear solver then keeps only
+    /// what it cannot read again from the kept Newton matrix (see
+    /// [`super::linear::LinearSolver::borrow_from_matrix`]). Default: false.
+    fn lean_memory(&self) -> bool {
+        false
+    }
+
     /// Derivative of the storage terms `V M(u)` of each block with respect to its own
     /// unknowns, from the last evaluation with derivatives: the part of the Jacobian
     /// that scales with `c` (zero rows for algebraic equations).

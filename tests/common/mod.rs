@@ -114,6 +114,7 @@ pub fn column(
             newton_tolerance: deepdry::solve::newton::DEFAULT_RESIDUAL_TOL,
             balance_tolerance: deepdry::case::build::DEFAULT_BALANCE_TOLERANCE,
             cycle_skipping: None,
+            lean_memory: false,
         },
         output: OutputControl {
             folder: std::env::temp_dir(),

@@ -561,8 +561,9 @@ impl<const N: usize, const M: usize, const R: usize> Kept for Derivs<N, M, R> {
         sources: Option<&SourceJacobian>,
     ) -> Result<(), NonFinite> {
         let mut bad = FirstNonFinite::default();
+        let mut blocks = [zero_block::<BLOCK>(); 3];
         for i in 0..sys.n {
-            let blocks = jacobian_row(
+            jacobian_row(
                 sys,
                 i,
                 c,
@@ -570,6 +571,7 @@ impl<const N: usize, const M: usize, const R: usize> Kept for Derivs<N, M, R> {
                 &self.cell_base[BLOCK * i..BLOCK * i + BLOCK],
                 [&self.totals[i], &self.totals[i + 1]],
                 sources,
+                &mut blocks,
             );
             bad.check(i, &blocks);
             jac.set_row(i, &blocks[0], &blocks[1], &blocks[2]);
@@ -664,6 +666,7 @@ impl<const N: usize, const M: usize, const R: usize> Kept for Streamed<N, M, R> 
         let n = sys.n;
         let x = |i: usize| &u[BLOCK * i..BLOCK * i + BLOCK];
         let mut bad = FirstNonFinite::default();
+        let mut blocks = [zero_block::<BLOCK>(); 3];
         let mut here: CellProps<N> = sys.props_at(0, x(0));
         let top: FaceFlux<M> = sys.top_face(t, &here);
         let mut above: [Dual<M>; R] = rows_of(top.totals());
@@ -676,7 +679,7 @@ impl<const N: usize, const M: usize, const R: usize> Kept for Streamed<N, M, R> 
                 let f: FaceFlux<M> = sys.bottom_face(t, &here);
                 (rows_of(f.totals()), None)
             };
-            let blocks = jacobian_row(
+            jacobian_row(
                 sys,
                 i,
                 c,
@@ -684,6 +687,7 @@ impl<const N: usize, const M: usize, const R: usize> Kept for Streamed<N, M, R> 
                 x(i),
                 [&above, &below],
                 sources,
+                &mut blocks,
             );
             bad.check(i, &blocks);
             jac.set_row(i, &blocks[0], &blocks[1], &blocks[2]);
@@ -713,7 +717,8 @@ impl<const N: usize, const M: usize, const R: usize> Kept for Streamed<N, M, R> 
 /// below (`faces`), with `sources(i, diag)` (when given) adding the derivatives of the
 /// cell's source terms last. Each entry sums, in this order, the cell's storage and
 /// local terms, the face above, the face below and the sources.
-#[inline]
+#[inline(always)]
+#[allow(clippy::too_many_arguments)]
 fn jacobian_row<const N: usize, const M: usize, const R: usize>(
     sys: &System,
     i: usize,
@@ -722,11 +727,12 @@ fn jacobian_row<const N: usize, const M: usize, const R: usize>(
     x: &[f64],
     faces: [&[Dual<M>; R]; 2],
     sources: Option<&SourceJacobian>,
-) -> [Block<BLOCK>; 3] {
+    blocks: &mut [Block<BLOCK>; 3],
+) {
     let n = sys.n;
     let rate = sys.kinetic_rate();
     let rows = if rate.is_some() { BLOCK } else { BLOCK - 1 };
-    let mut blocks = [zero_block::<BLOCK>(); 3];
+    *blocks = [zero_block::<BLOCK>(); 3];
     let w = sys.widths[i];
     let d = &mut blocks[1];
     let energy = cp.energy * (c * w);
@@ -771,7 +777,6 @@ fn jacobian_row<const N: usize, const M: usize, const R: usize>(
     if let Some(add) = sources {
         add(i, &mut blocks[1]);
     }
-    blocks
 }
 
 /// The first non-finite entry of a Jacobian: the first in a lower block, else in a
@@ -780,7 +785,7 @@ fn jacobian_row<const N: usize, const M: usize, const R: usize>(
 struct FirstNonFinite([Option<NonFinite>; 3]);
 
 impl FirstNonFinite {
-    #[inline]
+    #[inline(always)]
     fn check(&mut self, i: usize, blocks: &[Block<BLOCK>; 3]) {
         for (k, b) in blocks.iter().enumerate() {
             if self.0[k].is_none() {
@@ -800,7 +805,7 @@ impl FirstNonFinite {
 }
 
 /// Cell i's storage-derivative block from its record with derivatives `cp`.
-#[inline]
+#[inline(always)]
 fn storage_block<const N: usize>(sys: &System, i: usize, cp: &KeptCell<N>) -> Block<BLOCK> {
     let w = sys.widths[i];
     let mut b = zero_block();

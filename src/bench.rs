@@ -146,11 +146,17 @@ impl Row {
     }
 }
 
-/// The arrays a run of the reference case holds at its end (the multistep history full),
-/// in bytes per cell (see [`crate::memory`]).
-fn memory_per_cell(text: &str, origin: &str, base: &Path) -> Result<String> {
+/// The arrays a run of the reference case (with `overrides`, described by `label`) holds
+/// at its end (the multistep history full), in bytes per cell (see [`crate::memory`]).
+fn memory_per_cell(
+    text: &str,
+    origin: &str,
+    base: &Path,
+    overrides: &[Override],
+    label: &str,
+) -> Result<String> {
     use crate::sim::{Begin, OutputPosition, Simulation, SyncPlan};
-    let model = crate::case::parse_with_overrides(text, origin, base, &[])?;
+    let model = crate::case::parse_with_overrides(text, origin, base, overrides)?;
     let u = initial_unknowns(&model, SolverKind::BlockThomas)?;
     let begin = Begin::Unknowns {
         t: model.time.start,
@@ -169,7 +175,7 @@ fn memory_per_cell(text: &str, origin: &str, base: &Path) -> Result<String> {
     sim.run_to_end(&mut [])?;
     let cells = sim.system().n;
     Ok(format!(
-        "memory per cell of the reference run's arrays (at its end; {} history points):\n{}",
+        "memory per cell of the reference run's arrays{label} (at its end; {} history points):\n{}",
         sim.state().history.len(),
         crate::memory::table(&sim.arrays(), cells)
     ))
@@ -309,7 +315,15 @@ fn bench_in(
     if let Some(m) = peak_memory_mib() {
         let _ = writeln!(out, "peak memory {m:.1} MiB");
     }
-    out.push_str(&memory_per_cell(text, origin, base)?);
+    out.push_str(&memory_per_cell(text, origin, base, &[], "")?);
+    // The lean mode's (no kept evaluations; BDF up to order 2): less memory, more time.
+    out.push_str(&memory_per_cell(
+        text,
+        origin,
+        base,
+        &[Override::set("time.memory", "\"lean\"")?],
+        " with [time] memory = \"lean\"",
+    )?);
     if accuracy {
         let own_results = crate::plot::data::read(&own.join("results.h5"))?;
         out.push_str(&crate::accuracy::accuracy(

@@ -184,6 +184,20 @@ impl<const B: usize> NewtonWork<B> {
         }
     }
 
+    /// The scaled Newton matrix for coefficient `c`, J(c) = J(c_J) + (c − c_J) S from the
+    /// kept parts, row- and column-scaled: what is factorised, and what a solve borrowing
+    /// from it reads (the same while `c`, the kept Jacobian and the scales are).
+    fn scaled(&self, c: f64) -> Scaled<'_, B> {
+        let jc = self.jac_c.unwrap_or(c);
+        Scaled {
+            a: &self.jac_raw,
+            s: &self.storage,
+            dc: c - jc,
+            row: &self.row,
+            col: &self.col,
+        }
+    }
+
     /// Forgets the kept Jacobian and factorisation: the next iteration evaluates afresh.
     pub fn invalidate(&mut self) {
         self.jac_c = None;
@@ -319,16 +333,8 @@ pub fn solve<const B: usize, P: Problem<B> + ?Sized>(
         if w.factor_c != Some(c) {
             // J(c) from the kept parts, row scaling by the row magnitudes, column scaling
             // by typical variable sizes; then factorise.
-            let jc = w.jac_c.unwrap_or(c);
             sys.column_scales_into(u, &mut w.col);
-            let scaled = Scaled {
-                a: &w.jac_raw,
-                s: &w.storage,
-                dc: c - jc,
-                row: &w.row,
-                col: &w.col,
-            };
-            if let Err(e) = lin.factor_scaled(&scaled) {
+            if let Err(e) = lin.factor_scaled(&w.scaled(c)) {
                 w.invalidate();
                 if fresh {
                     return Err(NewtonFailure::Linear(e));
@@ -343,15 +349,10 @@ pub fn solve<const B: usize, P: Problem<B> + ?Sized>(
         for (r, s) in w.res.iter_mut().zip(w.row.iter()) {
             *r = -*r * s;
         }
-        let jc = w.jac_c.unwrap_or(c);
-        let scaled = Scaled {
-            a: &w.jac_raw,
-            s: &w.storage,
-            dc: c - jc,
-            row: &w.row,
-            col: &w.col,
-        };
-        if let Err(e) = lin.solve_scaled(&scaled, &mut w.res) {
+        let mut x = std::mem::take(&mut w.res);
+        let solved = lin.solve_scaled(&w.scaled(c), &mut x);
+        w.res = x;
+        if let Err(e) = solved {
             w.invalidate();
             if fresh {
                 return Err(NewtonFailure::Linear(e));

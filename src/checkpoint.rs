@@ -519,7 +519,7 @@ fn write_via(
             Ok(())
         };
         // A 2-D dataset written row by row from the history points' own arrays (no
-        // gathered copy: at 6 points, 2 × 144 B per cell at the peak of a run's memory).
+        // gathered copy: at 5 points, 2 × 120 B per cell at the peak of a run's memory).
         let rows = |name: &str,
                     row: &dyn Fn(&HistoryPoint) -> &[f64],
                     units: &str,

@@ -164,7 +164,10 @@ pub struct StepState {
     /// block from these, so its round-off is that of the change, not of the content.
     pub initial_storage: Vec<f64>,
     pub counters: Counters,
-    /// Earlier accepted points, newest first (BDF only; at most max_order + 1).
+    /// Earlier accepted points, newest first (BDF only; at most max_order: a step of
+    /// order k reads k of them, for its predictor through k + 1 points and its error
+    /// estimate, and the estimate of order k + 1 one more, which is wanted only below
+    /// max_order).
     pub history: Vec<HistoryPoint>,
     /// Current BDF order and the number of steps taken at it.
     pub order: usize,
@@ -985,7 +988,7 @@ impl<const B: usize> Stepper<B> {
                     if let Some(r) = self.replay.as_mut() {
                         r.next += 1;
                     }
-                    (1.0, bdf.map_or(1, |(max_order, _)| max_order + 1))
+                    (1.0, bdf.map_or(1, |(max_order, _)| max_order))
                 }
                 (None, Some((max_order, rtol))) => {
                     match self.judge(sys, &a, &stats, max_order, rtol, &mut error_failures) {
@@ -993,7 +996,7 @@ impl<const B: usize> Stepper<B> {
                             dt_try = next;
                             continue;
                         }
-                        Verdict::Accept { factor } => (factor, max_order + 1),
+                        Verdict::Accept { factor } => (factor, max_order),
                     }
                 }
                 (None, None) => (

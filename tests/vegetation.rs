@@ -263,6 +263,25 @@ fn plot_draws_uptake_and_transpiration() {
     ] {
         assert!(sets.contains_key(name), "no {name}");
     }
+    // The file's uptake profiles (computed from the system row by row as they are
+    // written) are bitwise those an in-memory run gathers into its snapshots.
+    let model = deepdry::case::load(&case).unwrap();
+    let (rec, _) = deepdry::sim::run_in_memory(&model, SolverKind::BlockThomas).unwrap();
+    let gathered: Vec<u64> = rec
+        .snapshots
+        .iter()
+        .flat_map(|s| s.profile.root_water_uptake.iter().map(|x| x.to_bits()))
+        .collect();
+    let stored: Vec<u64> = sets["profiles/root_water_uptake"]
+        .floats()
+        .iter()
+        .map(|x| x.to_bits())
+        .collect();
+    assert!(
+        gathered.iter().any(|&b| f64::from_bits(b) != 0.0),
+        "no uptake"
+    );
+    assert_eq!(stored, gathered, "profiles/root_water_uptake");
     let figs = dir.join("figs");
     let o = deepdry(&["plot", arg(&results), "--out", arg(&figs)]);
     assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));

@@ -79,6 +79,17 @@ fn check(model: &Model, seed: u64, label: &str) {
             direct.storage_jacobian_into(&mut s1);
             lean.storage_jacobian_into(&mut s2);
             assert_eq!(s2, s1, "{label}: lean storage blocks");
+            // Newton's call takes the storage blocks from the Jacobian's pass: the same.
+            for sys2 in [&mut direct, &mut lean] {
+                let (mut j3, mut s3) = (BlockTri::new(n), vec![[[0.0; 3]; 3]; n]);
+                sys2.assemble_full(t, &u, c, &hist, &mut r2, Some((&mut j3, Some(&mut s3))))
+                    .unwrap();
+                assert_eq!(s3, s1, "{label}: storage blocks from the Jacobian's pass");
+                assert_eq!(
+                    j3.diag, j1.diag,
+                    "{label}: Jacobian with the storage blocks"
+                );
+            }
             lean.assemble(t, &u, c, &hist, &mut r2, None).unwrap();
             assert_eq!(r2, res, "{label}: lean residual-only path");
         }

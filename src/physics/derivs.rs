@@ -172,6 +172,7 @@ pub(super) trait Kept {
         whole: Option<&[CellProps<0>]>,
         faces: &mut [FaceFlux<0>],
     );
+    /// With `storage`, the storage-derivative blocks too (as [`Kept::storage_blocks_into`]).
     #[allow(clippy::too_many_arguments)]
     fn jacobian_into(
         &self,
@@ -181,6 +182,7 @@ pub(super) trait Kept {
         c: f64,
         jac: &mut dyn BlockRows<BLOCK>,
         sources: Option<&SourceJacobian>,
+        storage: Option<&mut dyn BlockRows<BLOCK>>,
     ) -> Result<(), NonFinite>;
     fn storage_blocks_into(&self, sys: &System, out: &mut dyn BlockRows<BLOCK>);
     /// The heap arrays of the kept evaluations (see [`crate::memory`]).
@@ -559,7 +561,11 @@ impl<const N: usize, const M: usize, const R: usize> Kept for Derivs<N, M, R> {
         c: f64,
         jac: &mut dyn BlockRows<BLOCK>,
         sources: Option<&SourceJacobian>,
+        storage: Option<&mut dyn BlockRows<BLOCK>>,
     ) -> Result<(), NonFinite> {
+        if let Some(out) = storage {
+            self.storage_blocks_into(sys, out);
+        }
         let mut bad = FirstNonFinite::default();
         let mut blocks = [zero_block::<BLOCK>(); 3];
         for i in 0..sys.n {
@@ -662,6 +668,7 @@ impl<const N: usize, const M: usize, const R: usize> Kept for Streamed<N, M, R> 
         c: f64,
         jac: &mut dyn BlockRows<BLOCK>,
         sources: Option<&SourceJacobian>,
+        mut storage: Option<&mut dyn BlockRows<BLOCK>>,
     ) -> Result<(), NonFinite> {
         let n = sys.n;
         let x = |i: usize| &u[BLOCK * i..BLOCK * i + BLOCK];
@@ -679,16 +686,20 @@ impl<const N: usize, const M: usize, const R: usize> Kept for Streamed<N, M, R> 
                 let f: FaceFlux<M> = sys.bottom_face(t, &here);
                 (rows_of(f.totals()), None)
             };
+            let kept = KeptCell::of(&here);
             jacobian_row(
                 sys,
                 i,
                 c,
-                &KeptCell::of(&here),
+                &kept,
                 x(i),
                 [&above, &below],
                 sources,
                 &mut blocks,
             );
+            if let Some(out) = storage.as_deref_mut() {
+                out.set_diag(i, &storage_block(sys, i, &kept));
+            }
             bad.check(i, &blocks);
             jac.set_row(i, &blocks[0], &blocks[1], &blocks[2]);
             above = below;
@@ -699,7 +710,8 @@ impl<const N: usize, const M: usize, const R: usize> Kept for Streamed<N, M, R> 
         bad.result()
     }
 
-    /// From the cells' states of the last evaluation (which hold the unknowns exactly).
+    /// From the cells' states of the last evaluation (which hold the unknowns exactly);
+    /// Newton takes them from [`Kept::jacobian_into`]'s pass instead.
     fn storage_blocks_into(&self, sys: &System, out: &mut dyn BlockRows<BLOCK>) {
         for i in 0..sys.n {
             let v = &sys.cells[i];

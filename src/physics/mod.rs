@@ -820,6 +820,25 @@ impl System {
         res: &mut [f64],
         jac: Option<&mut dyn BlockRows<BLOCK>>,
     ) -> Result<(), NonFinite> {
+        match jac {
+            Some(jac) => self.assemble_full(t, u, c, hist, res, Some((jac, None))),
+            None => self.assemble_full(t, u, c, hist, res, None),
+        }
+    }
+
+    /// [`System::assemble`], with the Jacobian and, when given, the storage-derivative
+    /// blocks too (those of [`System::storage_jacobian_into`], bitwise; the lean mode
+    /// evaluates them in the Jacobian's pass instead of another).
+    #[allow(clippy::too_many_arguments, clippy::type_complexity)]
+    pub fn assemble_full(
+        &mut self,
+        t: f64,
+        u: &[f64],
+        c: f64,
+        hist: &[f64],
+        res: &mut [f64],
+        jac: Option<(&mut dyn BlockRows<BLOCK>, Option<&mut dyn BlockRows<BLOCK>>)>,
+    ) -> Result<(), NonFinite> {
         if jac.is_some() {
             self.evaluate_with_derivatives(t, u);
         } else {
@@ -880,7 +899,7 @@ impl System {
                 row: k % BLOCK,
             });
         }
-        if let Some(jac) = jac {
+        if let Some((jac, storage)) = jac {
             // With the uptake and runoff terms (their Jacobian entries added after the
             // flux blocks'), row by row.
             let plants = if self.has_vegetation {
@@ -897,7 +916,7 @@ impl System {
                 |i: usize, d: &mut Block<BLOCK>| self.add_source_jacobian(i, plants, runoff, d);
             let any = plants.is_some() || runoff.is_some();
             self.kept()
-                .jacobian_into(self, t, u, c, jac, any.then_some(&sources))?;
+                .jacobian_into(self, t, u, c, jac, any.then_some(&sources), storage)?;
         }
         Ok(())
     }

@@ -133,6 +133,19 @@ impl Problem<BLOCK> for System {
         System::storage_jacobian_into(self, out);
     }
 
+    fn assemble_with_storage(
+        &mut self,
+        t: f64,
+        u: &[f64],
+        c: f64,
+        hist: &[f64],
+        res: &mut [f64],
+        jac: &mut dyn BlockRows<BLOCK>,
+        storage: &mut dyn BlockRows<BLOCK>,
+    ) -> Result<(), NonFinite> {
+        System::assemble_full(self, t, u, c, hist, res, Some((jac, Some(storage))))
+    }
+
     fn convergence_scales_into(
         &self,
         c: f64,

@@ -259,9 +259,8 @@ pub fn solve<const B: usize, P: Problem<B> + ?Sized>(
         }
         let fresh = w.jac_c.is_none();
         if fresh {
-            sys.assemble(t, u, c, hist, &mut w.res, Some(&mut w.jac_raw))
+            sys.assemble_with_storage(t, u, c, hist, &mut w.res, &mut w.jac_raw, &mut w.storage)
                 .map_err(NewtonFailure::NonFinite)?;
-            sys.storage_jacobian_into(&mut w.storage);
             w.jac_c = Some(c);
             w.factor_c = None;
             stats.jacobians += 1;

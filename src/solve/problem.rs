@@ -137,6 +137,26 @@ pub trait Problem<const B: usize> {
     /// Written with [`BlockRows::set_diag`].
     fn storage_jacobian_into(&self, out: &mut dyn BlockRows<B>);
 
+    /// [`Problem::assemble`] with the Jacobian into `jac` and the storage-derivative
+    /// blocks into `storage` (as [`Problem::storage_jacobian_into`] after it), in one
+    /// call, so that a problem that evaluates both from the same pass may. Default: the
+    /// two calls.
+    #[allow(clippy::too_many_arguments)]
+    fn assemble_with_storage(
+        &mut self,
+        t: f64,
+        u: &[f64],
+        c: f64,
+        hist: &[f64],
+        res: &mut [f64],
+        jac: &mut dyn BlockRows<B>,
+        storage: &mut dyn BlockRows<B>,
+    ) -> Result<(), NonFinite> {
+        self.assemble(t, u, c, hist, res, Some(jac))?;
+        self.storage_jacobian_into(storage);
+        Ok(())
+    }
+
     /// After the last evaluation (by [`Problem::assemble`]): per row, the scale against
     /// which Newton applies its tolerance `tol` (the magnitude of the terms that make
     /// up the row, or its round-off floor / `tol` where that is larger), into `scale`;

@@ -350,7 +350,7 @@ pub fn summary(m: &Model) -> String {
     if t.lean_memory {
         let _ = writeln!(
             o,
-            "Memory: lean (no evaluations with derivatives kept between Newton iterations: about 0.7 kB of arrays per cell instead of 1.2 kB, at 2.5 to 3 times the run time)"
+            "Memory: lean (no evaluations with derivatives kept between Newton iterations: about 0.7 kB of arrays per cell instead of 1.2 kB, at 2 to 3 times the run time)"
         );
     }
     if let Some(c) = &t.cycle_skipping {

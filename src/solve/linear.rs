@@ -445,8 +445,7 @@ impl<const B: usize> BlockThomas<B> {
         }
     }
 
-    /// Whether the factors are there to solve with (`borrowed`: the lower blocks and
-    /// last rows read from the matrix).
+    /// Whether `b` has this solver's size and a factorisation is there to solve with.
     fn ready(&self, b: &[f64]) -> Result<(), LinearError> {
         if b.len() != B * self.n {
             return Err(LinearError::Pattern);
@@ -534,19 +533,8 @@ impl<const B: usize> LinearSolver<B> for BlockThomas<B> {
             return self.solve(b);
         }
         self.ready(b)?;
-        let m = B - 1;
-        self.solve_reduced(
-            b,
-            |i| {
-                let mut low = zero_block::<B>();
-                let full = a.lower(i);
-                for r in 0..m {
-                    low[r][..m].copy_from_slice(&full[r][..m]);
-                }
-                low
-            },
-            |i| last_row(&a.diag(i)),
-        );
+        // (The solve reads only the leading (B−1)×(B−1) part of a lower block.)
+        self.solve_reduced(b, |i| a.lower(i), |i| last_row(&a.diag(i)));
         all_finite(b)
     }
 
